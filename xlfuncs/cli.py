@@ -1,0 +1,134 @@
+"""The ``volcast`` command.
+
+``volcast fit FILE.csv [--column C] [--model M] [--dist D] [--options O]`` prints the fit table.
+Exit status 0 on success, 2 on bad input with a one-line reason on standard error.
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import math
+import sys
+
+from .sheet import VOLFIT
+
+__all__ = ["main", "read_returns_csv"]
+
+
+class CliError(Exception):
+    """Bad input: printed as one line, exit status 2."""
+
+
+def read_returns_csv(path: str, column: str | None = None) -> list:
+    """The chosen numeric column of a CSV file (header row required), as a list of floats."""
+    try:
+        with open(path, newline="", encoding="utf-8-sig") as fh:
+            rows = list(csv.reader(fh))
+    except FileNotFoundError:
+        raise CliError(f"{path}: no such file") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise CliError(f"{path}: cannot be read as a CSV text file ({exc})") from None
+    rows = [r for r in rows if any(c.strip() for c in r)]
+    if len(rows) < 2:
+        raise CliError(f"{path}: needs a header row and at least one row of data")
+    header = [h.strip() for h in rows[0]]
+    if column is not None:
+        if column in header:
+            col = header.index(column)
+        elif column.isdigit() and 1 <= int(column) <= len(header):
+            col = int(column) - 1
+        else:
+            raise CliError(f'{path}: no column "{column}"; the columns are {", ".join(header)}')
+    else:
+        lowered = [h.lower() for h in header]
+        named = [i for i, h in enumerate(lowered) if h in ("return", "returns", "ret", "r")]
+        if named:
+            col = named[0]
+        else:
+            numeric = [i for i in range(len(header)) if all(_is_number(r[i]) for r in rows[1:] if i < len(r) and r[i].strip())]
+            if not numeric:
+                raise CliError(f"{path}: no numeric column found; name one with --column")
+            col = numeric[-1]
+    out = []
+    for lineno, r in enumerate(rows[1:], start=2):
+        cell = r[col].strip() if col < len(r) else ""
+        if not cell:
+            raise CliError(f'{path} line {lineno}: column "{header[col]}" is blank')
+        if not _is_number(cell):
+            raise CliError(f'{path} line {lineno}: "{cell}" in column "{header[col]}" is not a number')
+        out.append(float(cell))
+    return out
+
+
+def _is_number(s: str) -> bool:
+    try:
+        return math.isfinite(float(s))
+    except ValueError:
+        return False
+
+
+def _fmt(v) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return "TRUE" if v else "FALSE"
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float):
+        return f"{v:.6g}" if abs(v) >= 1e-4 or v == 0 else f"{v:.4e}"
+    return str(v)
+
+
+def format_table(rows) -> str:
+    cells = [[_fmt(v) for v in row] for row in rows]
+    # long texts (options, the optimiser's message) do not widen the numeric columns
+    widths = [0] * max(len(r) for r in cells)
+    for r in cells:
+        if r[0] in ("options", "converged"):
+            continue
+        for i, c in enumerate(r):
+            widths[i] = max(widths[i], len(c))
+    lines = []
+    for r in cells:
+        if r[0] in ("options", "converged"):
+            lines.append("  ".join(c for c in [r[0].ljust(widths[0])] + [c for c in r[1:] if c]))
+        else:
+            lines.append("  ".join(c.ljust(w) if i == 0 else c.rjust(w) for i, (c, w) in enumerate(zip(r, widths))).rstrip())
+    return "\n".join(lines)
+
+
+def _cmd_fit(args) -> int:
+    returns = read_returns_csv(args.file, args.column)
+    rows = VOLFIT([[v] for v in returns], args.model, args.dist, args.options)
+    if len(rows) == 1 and isinstance(rows[0][0], str) and rows[0][0].startswith("ERROR:"):
+        raise CliError(rows[0][0][len("ERROR:"):].strip())
+    print(format_table(rows))
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
+    sub = parser.add_subparsers(dest="command", required=True)
+    p = sub.add_parser("fit", help="estimate a model on a CSV column and print the fit table")
+    p.add_argument("file", help="CSV file with a header row")
+    p.add_argument("--column", help='column name or 1-based number (default: a column named "return", else the last numeric one)')
+    p.add_argument("--model", default="GARCH(1,1)", help="model string, e.g. AR(1)-GJR-GARCH(1,1) (default GARCH(1,1))")
+    p.add_argument("--dist", default="normal", help="normal, t, skewt or ged (default normal)")
+    p.add_argument("--options", default=None, help='options string, e.g. "se=hessian; nu=8"')
+    p.set_defaults(func=_cmd_fit)
+    return parser
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except CliError as exc:
+        print(f"volcast: {exc}", file=sys.stderr)
+        return 2
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

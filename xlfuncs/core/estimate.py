@@ -1,0 +1,756 @@
+"""Maximum-likelihood estimation, standard errors and the fit summary.
+
+:func:`fit` estimates a model and returns a :class:`FitResult`; :func:`evaluate` builds a
+``FitResult`` from given parameters (a fit table a person typed) without estimating.
+
+The optimiser works on the *free* parameters: the full vector less the fixed ones (option
+``name=value``), less the one an IGARCH constraint implies (the last beta, or the last alpha
+when there is no beta) and less a variance-targeted omega.  It runs L-BFGS-B with box bounds
+(positivity, distribution domains) on parameters scaled to order one, with the likelihood
+returning a large finite penalty outside the admissible region (persistence >= 1, a negative
+GJR news coefficient, a non-stationary AR or non-invertible MA part), so a line search simply
+backs off.  It then polishes by Newton steps on a central-difference Hessian of the analytic
+gradient until the Newton decrement is below 1e-10, which pins every estimate far beyond its
+seventh significant digit.  ``converged`` is TRUE only if that test passes.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import optimize, stats
+
+from .distributions import Distribution, get_distribution
+from .errors import ConvergenceError, InputError
+from .likelihood import Likelihood
+from .spec import ModelSpec, Options, parse_model, parse_options
+
+__all__ = ["FitResult", "fit", "evaluate", "persistence_of", "check_params"]
+
+_PENALTY = 1e12
+_DECREMENT_TOL = 1e-6  # converged: the log-likelihood is within about tol/2 of its maximum
+_POLISH_TOL = 1e-12  # Newton polishing stops here
+_BOUND_GAP = 1e-6  # a fit on the stationarity bound holds persistence at 1 - gap
+
+
+# ---------------------------------------------------------------------------------------
+@dataclass
+class FitResult:
+    """A model with its parameters, their inference and the fit statistics."""
+
+    spec: ModelSpec
+    dist: Distribution
+    options: Options
+    names: tuple
+    params: np.ndarray
+    std_errors: np.ndarray  # nan where not estimated (fixed, implied, targeted, at a bound)
+    status: tuple  # per parameter: 'free', 'fixed', 'implied', 'target', 'bound'
+    loglik: float
+    nobs: int
+    n_free: int
+    converged: bool
+    message: str
+    estimated: bool = True  # False for a fit built from given parameters
+    cov: np.ndarray | None = None
+    extras: dict = field(default_factory=dict)
+
+    # ----- derived statistics ------------------------------------------------------------
+    def value(self, name: str) -> float:
+        return float(self.params[self.names.index(name)])
+
+    @property
+    def param_dict(self) -> dict:
+        return {n: float(v) for n, v in zip(self.names, self.params)}
+
+    @property
+    def aic(self) -> float:
+        return -2.0 * self.loglik + 2.0 * self.n_free
+
+    @property
+    def bic(self) -> float:
+        return -2.0 * self.loglik + self.n_free * math.log(self.nobs)
+
+    @property
+    def t_stats(self) -> np.ndarray:
+        with np.errstate(all="ignore"):
+            return self.params / self.std_errors
+
+    @property
+    def p_values(self) -> np.ndarray:
+        return 2.0 * stats.norm.sf(np.abs(self.t_stats))
+
+    @property
+    def persistence(self) -> float | None:
+        return persistence_of(self.spec, self.dist, self.params)
+
+    @property
+    def uncond_variance(self) -> float | None:
+        return uncond_variance_of(self.spec, self.dist, self.params)
+
+    @property
+    def half_life(self) -> float | None:
+        pers = self.persistence
+        if pers is None or not (0.0 < pers < 1.0):
+            return None
+        return math.log(0.5) / math.log(pers)
+
+
+# ---------------------------------------------------------------------------------------
+def _parts(spec: ModelSpec, params, names):
+    d = dict(zip(names, params))
+    alpha = np.array([d[f"alpha[{i}]"] for i in range(1, spec.p + 1)]) if spec.variance != "constant" else np.zeros(0)
+    gamma = np.array([d[f"gamma[{i}]"] for i in range(1, spec.p + 1)]) if spec.asymmetric else np.zeros(0)
+    beta = np.array([d[f"beta[{j}]"] for j in range(1, spec.q + 1)]) if spec.variance != "constant" else np.zeros(0)
+    return d, alpha, gamma, beta
+
+
+def persistence_of(spec: ModelSpec, dist: Distribution, params) -> float | None:
+    """Sum of the variance recursion's own-lag weights; None for a constant variance."""
+    if spec.variance == "constant":
+        return None
+    names = tuple(spec.param_names) + tuple(dist.param_names)
+    d, alpha, gamma, beta = _parts(spec, params, names)
+    if spec.variance == "egarch":
+        return float(beta.sum())
+    pers = float(alpha.sum() + beta.sum())
+    if spec.variance == "gjr":
+        eta = np.array([d[n] for n in dist.param_names])
+        pers += float(gamma.sum()) * dist.neg_sq_moment(eta)
+    return pers
+
+
+def uncond_variance_of(spec: ModelSpec, dist: Distribution, params) -> float | None:
+    names = tuple(spec.param_names) + tuple(dist.param_names)
+    d, alpha, gamma, beta = _parts(spec, params, names)
+    omega = d["omega"]
+    if spec.variance == "constant":
+        return float(omega)
+    pers = persistence_of(spec, dist, params)
+    if spec.variance == "egarch":
+        return _egarch_uncond(spec, dist, d, alpha, gamma, beta)
+    if pers is None or pers >= 1.0:
+        return None
+    return float(omega / (1.0 - pers))
+
+
+def _egarch_uncond(spec, dist, d, alpha, gamma, beta):
+    """E[sigma^2] of an EGARCH(1,1): exp(omega/(1-beta)) prod_i E exp(beta^i g(z)) (Nelson 1991).
+
+    Defined only where the shock has exponential moments (normal, GED with nu >= 1); blank
+    otherwise and for higher orders.
+    """
+    if spec.p != 1 or spec.q != 1 or not abs(beta[0]) < 1:
+        return None
+    eta = np.array([d[n] for n in dist.param_names])
+    if dist.name in ("t", "skewt") or (dist.name == "ged" and eta[0] < 1.0):
+        return None
+    from scipy import integrate
+
+    a, g, b = float(alpha[0]), float(gamma[0]), float(beta[0])
+    kappa = dist.abs_moment(eta)
+    logval = d["omega"] / (1.0 - b)
+    c = 1.0
+    for _ in range(200):
+        def integrand(z, c=c):
+            return math.exp(c * (a * (abs(z) - kappa) + g * z) + float(dist.logpdf(np.array([z]), eta)[0]))
+        val = integrate.quad(integrand, -np.inf, 0, limit=200)[0] + integrate.quad(integrand, 0, np.inf, limit=200)[0]
+        if not (val > 0 and math.isfinite(val)):
+            return None
+        logval += math.log(val)
+        c *= b
+        if abs(c) < 1e-12:
+            break
+    out = math.exp(logval)
+    return out if math.isfinite(out) else None
+
+
+def check_params(spec: ModelSpec, dist: Distribution, names, params) -> None:
+    """Raise InputError if given parameters lie outside the model's domain (fit tables typed by hand)."""
+    d = dict(zip(names, params))
+    for n, v in d.items():
+        if not math.isfinite(v):
+            raise InputError(f"parameter {n} must be a finite number, got {v}")
+    eta = np.array([d[n] for n in dist.param_names])
+    dist.check(eta)
+    if spec.variance in ("constant", "arch", "garch", "gjr", "igarch"):
+        if not d["omega"] > 0:
+            raise InputError(f"omega must be greater than 0, got {d['omega']:g}")
+    if spec.variance in ("arch", "garch", "gjr", "igarch"):
+        for n, v in d.items():
+            if (n.startswith("alpha") or n.startswith("beta")) and v < 0:
+                raise InputError(f"{n} must be 0 or more, got {v:g}")
+        if spec.variance == "gjr":
+            for i in range(1, spec.p + 1):
+                if d[f"alpha[{i}]"] + d[f"gamma[{i}]"] < 0:
+                    raise InputError(f"alpha[{i}] + gamma[{i}] must be 0 or more, got {d[f'alpha[{i}]'] + d[f'gamma[{i}]']:g}")
+    if spec.variance == "igarch":
+        total = sum(v for n, v in d.items() if n.startswith("alpha") or n.startswith("beta"))
+        if abs(total - 1.0) > 1e-6:
+            raise InputError(f"IGARCH alphas and betas must sum to 1, got {total:.6g}")
+
+
+# ---------------------------------------------------------------------------------------
+class _Problem:
+    """Free-parameter view of a likelihood: mapping, bounds, objective and gradient."""
+
+    def __init__(self, lik: Likelihood, options: Options, sum_to: float | None = None, kappa: float = 0.5):
+        self.lik = lik
+        self.spec = spec = lik.spec
+        self.dist = lik.dist
+        self.options = options
+        names = lik.names
+        k = lik.k
+        fixed = options.fixed_dict
+        for n in fixed:
+            if n not in names:
+                have = ", ".join(names)
+                raise InputError(f'options: {n} is not a parameter of {spec.canonical} with {self.dist.name} shocks (it has {have})')
+        status = ["free"] * k
+        for n in fixed:
+            status[lik.idx[n]] = "fixed"
+        # a sum constraint on the variance weights: IGARCH (sum 1), or a fit held at the
+        # stationarity bound (sum just below 1); the last beta (or last alpha) is implied
+        self.implied = None
+        self.sum_to = 1.0 if spec.variance == "igarch" else sum_to
+        if self.sum_to is not None:
+            last = f"beta[{spec.q}]" if spec.q else f"alpha[{spec.p}]"
+            if last in fixed:
+                raise InputError(f"options: {last} is implied by the others (the alphas and betas of an IGARCH model sum to 1); fix another parameter")
+            self.implied = lik.idx[last]
+            status[self.implied] = "implied"
+        self.target = options.target
+        if self.target:
+            if spec.variance in ("egarch", "igarch"):
+                raise InputError(f"options: target=yes works with ARCH, GARCH and GJR-GARCH variances, not {spec.variance_canonical}")
+            if "omega" in fixed:
+                raise InputError("options: target=yes implies omega; do not also fix omega")
+            status[lik.idx["omega"]] = "target"
+        self.status = status
+        self.free = np.array([i for i, s in enumerate(status) if s == "free"], dtype=int)
+        if len(self.free) == 0:
+            raise InputError("options: every parameter is fixed; nothing is left to estimate (use VOLLOGLIK to score fixed parameters)")
+        self.base = np.zeros(k)
+        for n, v in fixed.items():
+            self.base[lik.idx[n]] = v
+        # affine map full = base + A u (IGARCH implied parameter included)
+        A = np.zeros((k, len(self.free)))
+        A[self.free, np.arange(len(self.free))] = 1.0
+        if self.implied is not None:
+            weights = {lik.idx[n]: 1.0 for n in names if n.startswith("alpha") or n.startswith("beta")}
+            if spec.variance == "gjr":
+                weights.update({lik.idx[n]: kappa for n in names if n.startswith("gamma")})
+            weights.pop(self.implied)
+            self.base[self.implied] = self.sum_to - sum(w * self.base[i] for i, w in weights.items() if status[i] == "fixed")
+            for col, i in enumerate(self.free):
+                if i in weights:
+                    A[self.implied, col] = -weights[i]
+        self.A = A
+        self.analytic = lik.linear and not self.target
+        self.n_calls = 0
+
+    def full(self, u):
+        theta = self.base + self.A @ u
+        if self.target:
+            e, _ = self.lik.residuals(theta)
+            vbar = float(np.mean(e * e))
+            iomega = self.lik.idx["omega"]
+            theta[iomega] = 0.0
+            pers = persistence_of(self.spec, self.dist, theta) if self.spec.variance != "constant" else 0.0
+            theta[iomega] = vbar * (1.0 - pers)
+        return theta
+
+    # ----- admissible region (beyond box bounds) ---------------------------------------
+    def admissible(self, theta) -> bool:
+        spec = self.spec
+        lik = self.lik
+        mu, phi, tht, omega, alpha, gamma, beta, eta = lik.split(theta)
+        lo_hi = self.dist.bounds()
+        for v, (lo, hi) in zip(eta, lo_hi):
+            if not (lo < v < hi):
+                return False
+        if spec.ar and not _stationary(phi):
+            return False
+        if spec.ma and not _stationary(-np.asarray(tht)):
+            return False
+        v = spec.variance
+        if v == "constant":
+            return omega > 0
+        if v == "egarch":
+            return _stationary(beta)
+        if not omega > 0 or np.any(alpha < 0) or np.any(beta < 0):
+            return False
+        if v == "gjr" and np.any(alpha + gamma < 0):
+            return False
+        if v == "igarch":
+            return True
+        if self.sum_to is not None:
+            return True  # held on the bound by construction
+        pers = persistence_of(spec, self.dist, theta)
+        return pers < 1.0
+
+    # ----- objective -------------------------------------------------------------------
+    def negll(self, u):
+        self.n_calls += 1
+        theta = self.full(u)
+        if not self.admissible(theta):
+            return _PENALTY
+        val = self.lik.loglik(theta)
+        return -val if math.isfinite(val) else _PENALTY
+
+    def scores_free(self, u):
+        """(terms, per-observation scores nobs x n_free) at u; analytic or central differences."""
+        theta = self.full(u)
+        if self.analytic:
+            l, G = self.lik.scores(theta)
+            return l, G @ self.A
+        l = self.lik.terms(theta)
+        G = np.empty((len(l), len(u)))
+        for j in range(len(u)):
+            h = self.steps[j]
+            up, dn = u.copy(), u.copy()
+            up[j] += h
+            dn[j] -= h
+            G[:, j] = (self.lik.terms(self.full(up)) - self.lik.terms(self.full(dn))) / (2 * h)
+        return l, G
+
+    def fun_grad(self, u):
+        self.n_calls += 1
+        theta = self.full(u)
+        if not self.admissible(theta):
+            return _PENALTY, np.zeros(len(u))
+        if self.analytic:
+            l, G = self.lik.scores(theta)
+            val = float(l.sum())
+            if not math.isfinite(val):
+                return _PENALTY, np.zeros(len(u))
+            return -val, -(G.sum(axis=0) @ self.A)
+        val = self.lik.loglik(theta)
+        if not math.isfinite(val):
+            return _PENALTY, np.zeros(len(u))
+        g = np.empty(len(u))
+        for j in range(len(u)):
+            h = self.steps[j]
+            up, dn = u.copy(), u.copy()
+            up[j] += h
+            dn[j] -= h
+            g[j] = -(self.negll(dn) - self.negll(up)) / (2 * h)
+        return -val, g
+
+    def hessian(self, u, active=None):
+        """Hessian of the log-likelihood in the free parameters (central differences)."""
+        m = len(u)
+        H = np.zeros((m, m))
+        if self.analytic:
+            for j in range(m):
+                h = self.steps[j]
+                up, dn = u.copy(), u.copy()
+                up[j] += h
+                dn[j] -= h
+                gu = -self.fun_grad(up)[1]
+                gd = -self.fun_grad(dn)[1]
+                H[:, j] = (gu - gd) / (2 * h)
+        else:
+            f0 = -self.negll(u)
+            hs = self.steps * 100.0
+            for i in range(m):
+                for j in range(i, m):
+                    if i == j:
+                        up, dn = u.copy(), u.copy()
+                        up[i] += hs[i]
+                        dn[i] -= hs[i]
+                        H[i, i] = (-self.negll(up) - 2 * f0 + -self.negll(dn)) / hs[i] ** 2
+                    else:
+                        vals = []
+                        for si, sj in ((1, 1), (1, -1), (-1, 1), (-1, -1)):
+                            w = u.copy()
+                            w[i] += si * hs[i]
+                            w[j] += sj * hs[j]
+                            vals.append(-self.negll(w))
+                        H[i, j] = H[j, i] = (vals[0] - vals[1] - vals[2] + vals[3]) / (4 * hs[i] * hs[j])
+        return 0.5 * (H + H.T)
+
+
+def _stationary(coefs) -> bool:
+    """True if 1 - sum c_i L^i has all roots outside the unit circle."""
+    c = np.asarray(coefs, dtype=float)
+    if c.size == 0:
+        return True
+    if c.size == 1:
+        return abs(c[0]) < 1.0
+    roots = np.roots(np.concatenate([[1.0], -c]))  # z^n - c1 z^(n-1) - ... ; need |z| < 1
+    return bool(np.all(np.abs(roots) < 1.0))
+
+
+# ---------------------------------------------------------------------------------------
+def _scale_and_bounds(problem: _Problem, r):
+    lik = problem.lik
+    spec = problem.spec
+    sd = float(np.std(r)) or 1.0
+    var = sd * sd
+    scales, bounds = [], []
+    for n in lik.names:
+        if n == "mu":
+            s, b = 0.1 * sd, (None, None)
+        elif n.startswith("phi") or n.startswith("theta"):
+            s, b = 0.1, (-0.9999, 0.9999) if (spec.ar if n.startswith("phi") else spec.ma) == 1 else (None, None)
+        elif n == "omega":
+            if spec.variance == "egarch":
+                s, b = 0.1, (None, None)
+            else:
+                s, b = 0.05 * var, (var * 1e-9, None)
+        elif n.startswith("alpha"):
+            s, b = 0.05, ((None, None) if spec.variance == "egarch" else (0.0, 1.0))
+        elif n.startswith("gamma"):
+            s, b = 0.05, ((None, None) if spec.variance == "egarch" else (-1.0, 1.0))
+        elif n.startswith("beta"):
+            s, b = 0.05, ((-0.9999, 0.9999) if spec.variance == "egarch" else (0.0, 1.0))
+        elif n == "nu":
+            s = 1.0
+            lo = problem.dist.bounds()[0][0]
+            b = (lo + 0.02, 300.0) if lo > 0 else (0.2, 50.0)
+        elif n == "lambda":
+            s, b = 0.1, (-0.995, 0.995)
+        else:  # pragma: no cover
+            s, b = 1.0, (None, None)
+        scales.append(s)
+        bounds.append(b)
+    free = problem.free
+    return np.array(scales)[free], [bounds[i] for i in free]
+
+
+def _start_candidates(problem: _Problem, r) -> list:
+    """Full-parameter starting points, best first by log-likelihood."""
+    lik = problem.lik
+    spec = problem.spec
+    dist = problem.dist
+    k = lik.k
+    idx = lik.idx
+    th = np.zeros(k)
+    # mean: sample mean / OLS AR coefficients, MA at zero
+    if spec.has_mu:
+        th[idx["mu"]] = float(np.mean(r))
+    if spec.ar:
+        X = lik.rlag.T
+        y = lik.y
+        if spec.has_mu:
+            X = np.column_stack([np.ones(len(y)), X])
+        coef = np.linalg.lstsq(X, y, rcond=None)[0]
+        phis = coef[1:] if spec.has_mu else coef
+        if not _stationary(phis):
+            phis = phis * 0.0
+        if spec.has_mu:
+            th[idx["mu"]] = coef[0] if np.any(phis) else float(np.mean(r))
+        for i in range(spec.ar):
+            th[idx[f"phi[{i + 1}]"]] = phis[i]
+    for n, v in problem.options.fixed_dict.items():
+        th[idx[n]] = v
+    e, _ = lik.residuals(th)
+    v = float(np.mean(e * e)) or 1.0
+    eta = dist.start()
+    for n, val in zip(dist.param_names, eta):
+        th[idx[n]] = val
+    for n, val in problem.options.fixed_dict.items():
+        th[idx[n]] = val
+    p, q = spec.p, spec.q
+    cands = []
+    kind = spec.variance
+    if kind == "constant":
+        grid = [()]
+    elif kind == "arch":
+        grid = [(a, 0.0, 0.0) for a in (0.1, 0.3, 0.6)]
+    elif kind == "egarch":
+        grid = [(a, g, b) for a in (0.1, 0.25) for g in (0.0, -0.05) for b in (0.9, 0.97)]
+    elif kind == "igarch":
+        grid = [(a, 0.0, 1.0 - a) for a in (0.05, 0.1, 0.2)]
+    else:
+        grid = [(a, 0.0, b) for a, b in ((0.05, 0.9), (0.1, 0.85), (0.1, 0.7), (0.2, 0.6), (0.03, 0.95), (0.3, 0.3))]
+        if kind == "gjr":
+            grid = [(0.5 * a, a, b) for a, _, b in grid]
+    for g in grid:
+        t = th.copy()
+        if kind == "constant":
+            t[idx["omega"]] = v
+        else:
+            a_tot, g_tot, b_tot = g
+            for i in range(1, p + 1):
+                t[idx[f"alpha[{i}]"]] = a_tot / p
+                if spec.asymmetric:
+                    t[idx[f"gamma[{i}]"]] = g_tot / p
+            for j in range(1, q + 1):
+                t[idx[f"beta[{j}]"]] = b_tot / q if q else 0.0
+            if kind == "arch" or q == 0:
+                if kind == "igarch":
+                    for i in range(1, p + 1):
+                        t[idx[f"alpha[{i}]"]] = 1.0 / p
+            if kind == "egarch":
+                t[idx["omega"]] = math.log(v) * (1.0 - b_tot)
+            else:
+                pers = a_tot + 0.5 * g_tot + (b_tot if q else 0.0)
+                if kind == "igarch":
+                    pers = 0.9
+                t[idx["omega"]] = v * max(1.0 - pers, 0.02)
+        for n, val in problem.options.fixed_dict.items():
+            t[idx[n]] = val
+        cands.append(t)
+    scored = []
+    for t in cands:
+        u = t[problem.free]
+        val = -problem.negll(u)
+        scored.append((val, t))
+    scored.sort(key=lambda x: -x[0])
+    return [t for val, t in scored if val > -_PENALTY / 2] or [scored[0][1]]
+
+
+def _optimise(problem: _Problem, u0, scales, bounds, max_iter=500):
+    """L-BFGS-B on scaled parameters; returns (u, info) ."""
+    sb = []
+    for (lo, hi), s in zip(bounds, scales):
+        sb.append((None if lo is None else lo / s, None if hi is None else hi / s))
+
+    def fg(x):
+        f, g = problem.fun_grad(x * scales)
+        return f, g * scales
+
+    x0 = u0 / scales
+    # keep the start strictly inside the box
+    for i, (lo, hi) in enumerate(sb):
+        if lo is not None and x0[i] <= lo:
+            x0[i] = lo + 1e-6 * max(1.0, abs(lo))
+        if hi is not None and x0[i] >= hi:
+            x0[i] = hi - 1e-6 * max(1.0, abs(hi))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = optimize.minimize(fg, x0, jac=True, method="L-BFGS-B", bounds=sb,
+                                options={"maxiter": max_iter, "ftol": 1e-13, "gtol": 1e-7})
+    return res.x * scales, res, sb
+
+
+def _polish(problem: _Problem, u, scales, sbounds, max_steps=8):
+    """Newton steps on the Hessian; returns (u, H, decrement, active mask, steps taken)."""
+    m = len(u)
+    active = np.zeros(m, dtype=bool)
+    H = None
+    dec = math.inf
+    f = problem.negll(u)
+    taken = 0
+    for _ in range(max_steps):
+        f_now, g = problem.fun_grad(u)
+        g = -g  # gradient of the log-likelihood
+        # bounds that hold: at the bound with the gradient pushing out
+        # bounds that hold: near the bound with the gradient pushing out; snap onto it
+        x = u / scales
+        active[:] = False
+        for i, (lo, hi) in enumerate(sbounds):
+            tol = 1e-3 * max(1.0, abs(x[i]))
+            if lo is not None and x[i] - lo <= tol and g[i] < 0:
+                active[i] = True
+                x[i] = lo
+            if hi is not None and hi - x[i] <= tol and g[i] > 0:
+                active[i] = True
+                x[i] = hi
+        if active.any():
+            snapped = x * scales
+            if problem.negll(snapped) <= f_now + 1e-9:
+                u = snapped
+                f_now, g = problem.fun_grad(u)
+                g = -g
+            else:
+                active[:] = False
+        H = problem.hessian(u)
+        fr = ~active
+        Hf = H[np.ix_(fr, fr)]
+        try:
+            L = np.linalg.cholesky(-Hf)
+        except np.linalg.LinAlgError:
+            return u, H, math.inf, active, taken
+        step_f = np.linalg.solve(L.T, np.linalg.solve(L, g[fr]))
+        dec = float(g[fr] @ step_f)
+        if dec < _POLISH_TOL:
+            return u, H, dec, active, taken
+        step = np.zeros(m)
+        step[fr] = step_f
+        t = 1.0
+        improved = False
+        for _ls in range(30):
+            cand = u + t * step
+            ok = True
+            for i, (lo, hi) in enumerate(sbounds):
+                xi = cand[i] / scales[i]
+                if (lo is not None and xi < lo) or (hi is not None and xi > hi):
+                    ok = False
+            if ok:
+                fc = problem.negll(cand)
+                if fc <= f_now + 1e-12 * max(1.0, abs(f_now)):
+                    improved = True
+                    break
+            t *= 0.5
+        if not improved:
+            return u, H, dec, active, taken
+        u = cand
+        taken += 1
+    f_now, g = problem.fun_grad(u)
+    g = -g
+    H = problem.hessian(u)
+    fr = ~active
+    try:
+        L = np.linalg.cholesky(-H[np.ix_(fr, fr)])
+        dec = float(g[fr] @ np.linalg.solve(L.T, np.linalg.solve(L, g[fr])))
+    except np.linalg.LinAlgError:
+        dec = math.inf
+    return u, H, dec, active, taken
+
+
+def _run(problem: _Problem, r, starts):
+    """Optimise from up to three starting points; the best (ll, u, H, dec, active, res, steps)."""
+    scales, bounds = _scale_and_bounds(problem, r)
+    problem.steps = 1e-5 * scales
+    best = None
+    for t0 in starts[:3]:
+        u, res, sb = _optimise(problem, t0[problem.free], scales, bounds)
+        u, H, dec, active, steps = _polish(problem, u, scales, sb)
+        ll = -problem.negll(u)
+        cand = (ll, u, H, dec, active, res, steps)
+        if best is None or ll > best[0]:
+            best = cand
+        if math.isfinite(dec) and dec < _POLISH_TOL and ll > -_PENALTY / 2:
+            break
+    return best
+
+
+def _clean_returns(r, spec: ModelSpec) -> np.ndarray:
+    r = np.asarray(r, dtype=float).ravel()
+    if r.size == 0:
+        raise InputError("returns are empty; give at least one column of numbers")
+    if not np.all(np.isfinite(r)):
+        bad = int(np.flatnonzero(~np.isfinite(r))[0]) + 1
+        raise InputError(f"returns row {bad} is not a finite number")
+    if r.size < spec.min_obs:
+        raise InputError(f"{spec.canonical} needs at least {spec.min_obs} returns, got {r.size}")
+    if np.ptp(r) == 0:
+        raise InputError("returns are all the same number; a constant series has no variance to model")
+    return r
+
+
+def fit(r, model="GARCH(1,1)", dist="normal", options=None) -> FitResult:
+    """Estimate ``model`` with shocks ``dist`` on returns ``r`` by maximum likelihood."""
+    spec = model if isinstance(model, ModelSpec) else parse_model(model)
+    dist = dist if isinstance(dist, Distribution) else get_distribution(dist)
+    options = options if isinstance(options, Options) else parse_options(options)
+    r = _clean_returns(r, spec)
+    lik = Likelihood(r, spec, dist, options.presample)
+    problem = _Problem(lik, options)
+    # check fixed values against the domain
+    for n, v in options.fixed_dict.items():
+        if n in dist.param_names:
+            eta = dist.start().copy()
+            eta[dist.param_names.index(n)] = v
+            dist.check(eta)
+        elif n == "omega" and spec.variance != "egarch" and v <= 0:
+            raise InputError(f"options: omega must be greater than 0, got {v:g}")
+    best = _run(problem, r, _start_candidates(problem, r))
+    n_free = len(problem.free)
+    if spec.variance in ("arch", "garch", "gjr") and best[0] > -_PENALTY / 2:
+        pers = persistence_of(spec, dist, problem.full(best[1]))
+        if pers > 1.0 - 1e-3:
+            # the maximum lies on the stationarity bound: maximise on the bound itself
+            kappa = dist.neg_sq_moment(problem.full(best[1])[lik.k - len(dist.param_names):]) if spec.variance == "gjr" else 0.5
+            held = _Problem(lik, options, sum_to=1.0 - _BOUND_GAP, kappa=kappa)
+            t0 = problem.full(best[1])
+            alt = _run(held, r, [t0])
+            if alt[0] >= best[0] - 1e-9:
+                problem, best = held, alt
+    ll, u, H, dec, active, res, steps = best
+    if not ll > -_PENALTY / 2:
+        raise ConvergenceError(
+            f"no admissible estimate of {spec.canonical} with {dist.name} shocks was found from the starting points tried"
+        )
+    converged = bool(math.isfinite(dec) and dec < _DECREMENT_TOL)
+    gradient_only = False
+    if not converged and not math.isfinite(dec):
+        # the Hessian is not negative definite (a flat or kinked likelihood): use the score
+        # (LM) statistic g' (G'G)^-1 g with the outer product of the scores as the metric
+        _, G = problem.scores_free(u)
+        g = G.sum(axis=0)
+        fr = ~active
+        try:
+            lm = float(g[fr] @ np.linalg.solve(G[:, fr].T @ G[:, fr], g[fr]))
+        except np.linalg.LinAlgError:
+            lm = math.inf
+        gradient_only = converged = bool(lm < _DECREMENT_TOL)
+        dec = lm
+    theta = problem.full(u)
+    status = list(problem.status)
+    for col, i in enumerate(problem.free):
+        if active[col]:
+            status[i] = "bound"
+    if converged:
+        if gradient_only:
+            msg = (f"converged by the score test ({dec:.1e}) after {res.nit} quasi-Newton iterations; the Hessian "
+                   f"is not negative definite there, so some parameters may be poorly identified")
+        else:
+            msg = f"converged: {res.nit} quasi-Newton iterations and {steps} Newton steps; Newton decrement {dec:.1e}"
+        held_names = [lik.names[problem.free[c]] for c in np.flatnonzero(active)]
+        if held_names:
+            msg += "; at a bound: " + ", ".join(held_names)
+        if problem.sum_to is not None and spec.variance != "igarch":
+            msg += f"; persistence held at the stationarity bound {1 - _BOUND_GAP:.6f} (the data favour IGARCH)"
+    else:
+        msg = f"NOT converged: {res.message if isinstance(res.message, str) else res.message!s}; Newton decrement {dec:.2g} (tolerance {_DECREMENT_TOL:g})"
+    se, cov = _std_errors(problem, u, H, active, options.se)
+    return FitResult(
+        spec=spec, dist=dist, options=options, names=lik.names, params=theta, std_errors=se,
+        status=tuple(status), loglik=ll, nobs=lik.nobs, n_free=int(n_free - active.sum()),
+        converged=converged, message=msg, cov=cov,
+    )
+
+
+def _std_errors(problem: _Problem, u, H, active, kind: str):
+    k = problem.lik.k
+    se = np.full(k, np.nan)
+    fr = ~active
+    if H is None or not np.all(np.isfinite(H)):
+        return se, None
+    _, G = problem.scores_free(u)
+    G = G[:, fr]
+    Hf = H[np.ix_(fr, fr)]
+    try:
+        Hinv = np.linalg.inv(-Hf)
+        if kind == "hessian":
+            V = Hinv
+        elif kind == "opg":
+            V = np.linalg.inv(G.T @ G)
+        else:
+            V = Hinv @ (G.T @ G) @ Hinv
+    except np.linalg.LinAlgError:
+        return se, None
+    A = problem.A[:, fr]
+    Vfull = A @ V @ A.T
+    d = np.diag(Vfull)
+    ok = d > 0
+    se[ok] = np.sqrt(d[ok])
+    for i, s in enumerate(problem.status):
+        if s in ("fixed", "target"):
+            se[i] = np.nan
+    for col, i in enumerate(problem.free):
+        if active[col]:
+            se[i] = np.nan
+    return se, Vfull
+
+
+def evaluate(r, spec: ModelSpec, dist: Distribution, names, params, options: Options | None = None) -> FitResult:
+    """A FitResult for given parameters on returns r: log-likelihood, no estimation, no standard errors."""
+    options = options or Options()
+    r = np.asarray(r, dtype=float)
+    lik = Likelihood(r, spec, dist, options.presample)
+    check_params(spec, dist, names, params)
+    theta = np.array([dict(zip(names, params))[n] for n in lik.names], dtype=float)
+    ll = lik.loglik(theta)
+    nfree = len(lik.names)
+    return FitResult(
+        spec=spec, dist=dist, options=options, names=lik.names, params=theta,
+        std_errors=np.full(lik.k, np.nan), status=tuple(["given"] * lik.k), loglik=ll, nobs=lik.nobs,
+        n_free=nfree, converged=True, message="parameters given, not estimated", estimated=False,
+    )

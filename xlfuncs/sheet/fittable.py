@@ -1,0 +1,144 @@
+"""The fit table: a model's whole description, readable and editable in cells (DESIGN.md).
+
+:func:`encode` lays a :class:`~xlfuncs.core.estimate.FitResult` out as rows; :func:`decode`
+reads rows back (header optional, names case-insensitive, unknown rows ignored, trailing
+blank rows of an oversized range ignored, ``alpha0``/``alpha1`` accepted) into a
+:class:`TableFit` that the other worksheet functions use.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..core.distributions import get_distribution
+from ..core.errors import InputError
+from ..core.estimate import FitResult, check_params
+from ..core.spec import normalise_param_name, parse_model, parse_options
+from .cells import SheetError, as_rows, is_blank, is_error_text
+
+__all__ = ["HEADER", "encode", "decode", "TableFit"]
+
+HEADER = ["parameter", "estimate", "std_error", "t_stat", "p_value"]
+_STATUS_TEXT = {"fixed": "fixed", "implied": "implied", "target": "targeted", "bound": "at bound", "given": None}
+
+
+def _num(x):
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def encode(fit: FitResult) -> list:
+    rows = [list(HEADER)]
+    blank = [None, None, None]
+    rows.append(["model", fit.spec.canonical] + blank)
+    rows.append(["dist", fit.dist.name] + blank)
+    rows.append(["options", fit.options.canonical] + blank)
+    t, pv = fit.t_stats, fit.p_values
+    for i, name in enumerate(fit.names):
+        se = _num(fit.std_errors[i])
+        if se is None:
+            rows.append([name, _num(fit.params[i]), _STATUS_TEXT.get(fit.status[i]), None, None])
+        else:
+            rows.append([name, _num(fit.params[i]), se, _num(t[i]), _num(pv[i])])
+    rows.append(["loglik", _num(fit.loglik)] + blank)
+    rows.append(["aic", _num(fit.aic)] + blank)
+    rows.append(["bic", _num(fit.bic)] + blank)
+    rows.append(["nobs", int(fit.nobs)] + blank)
+    rows.append(["persistence", _num(fit.persistence)] + blank)
+    rows.append(["uncond_variance", _num(fit.uncond_variance)] + blank)
+    rows.append(["half_life", _num(fit.half_life)] + blank)
+    rows.append(["converged", bool(fit.converged), fit.message, None, None])
+    return rows
+
+
+@dataclass
+class TableFit:
+    """What a fit table says: model, distribution, options and parameter values."""
+
+    spec: object
+    dist: object
+    options: object
+    names: tuple
+    params: np.ndarray
+    std_errors: dict
+    converged: object = None
+
+    def as_fit_result(self, r=None) -> FitResult:
+        """A FitResult (no estimation) for forecasting and scoring."""
+        from ..core.estimate import evaluate
+
+        if r is None:
+            r = np.zeros(10)
+        return evaluate(r, self.spec, self.dist, self.names, self.params, self.options)
+
+
+def decode(value, arg: str = "fit") -> TableFit:
+    if is_error_text(value):
+        raise SheetError(f"{arg} holds an error from another cell: {str(value).strip()[6:].strip()}")
+    rows = as_rows(value)
+    fields = {}
+    params = {}
+    ses = {}
+    for row in rows:
+        if not row or is_blank(row[0]):
+            continue
+        key = row[0]
+        if is_error_text(key):
+            raise SheetError(f"{arg} holds an error from another cell: {str(key).strip()[6:].strip()}")
+        if not isinstance(key, str):
+            continue
+        k = key.strip().lower()
+        val = row[1] if len(row) > 1 else None
+        if k in ("model", "dist", "options", "converged"):
+            fields[k] = val
+            continue
+        name = normalise_param_name(k)
+        if name is None:
+            continue  # header, statistics and unknown rows
+        if is_blank(val):
+            raise SheetError(f"{arg}: the row {key.strip()} has no value in its second column")
+        if isinstance(val, bool) or isinstance(val, str) and is_error_text(val):
+            raise SheetError(f"{arg}: the row {key.strip()} must hold a number, got {val!r}")
+        try:
+            x = float(val)
+        except (TypeError, ValueError):
+            raise SheetError(f"{arg}: the row {key.strip()} must hold a number, got {val!r}") from None
+        if name in params:
+            raise SheetError(f"{arg}: the parameter {name} appears twice")
+        params[name] = x
+        se = row[2] if len(row) > 2 else None
+        if isinstance(se, (int, float)) and not isinstance(se, bool):
+            ses[name] = float(se)
+    if "model" not in fields or is_blank(fields.get("model")):
+        if not params:
+            raise SheetError(
+                f"{arg} is not a fit table; pass the range VOLFIT returns, or a table with rows model, dist and the parameters"
+            )
+        raise SheetError(f"{arg} has no model row; add a row with model in the first column and e.g. GARCH(1,1) beside it")
+    try:
+        spec = parse_model(fields["model"])
+        dist = get_distribution(fields.get("dist") if not is_blank(fields.get("dist")) else "normal")
+        options = parse_options(fields.get("options") if not is_blank(fields.get("options")) else None)
+    except InputError as exc:
+        raise SheetError(f"{arg}: {exc}") from None
+    names = tuple(spec.param_names) + tuple(dist.param_names)
+    missing = [n for n in names if n not in params]
+    fixed = options.fixed_dict
+    for n in list(missing):
+        if n in fixed:
+            params[n] = fixed[n]
+            missing.remove(n)
+    if missing:
+        raise SheetError(f"{arg} lacks the parameter{'s' if len(missing) > 1 else ''} {', '.join(missing)} that {spec.canonical} with {dist.name} shocks needs")
+    vals = np.array([params[n] for n in names], dtype=float)
+    try:
+        check_params(spec, dist, names, vals)
+    except InputError as exc:
+        raise SheetError(f"{arg}: {exc}") from None
+    return TableFit(spec=spec, dist=dist, options=options, names=names, params=vals, std_errors=ses,
+                    converged=fields.get("converged"))
