@@ -286,27 +286,128 @@ class Likelihood:
         val = float(np.sum(self.terms(theta)))
         return val if math.isfinite(val) else -math.inf
 
-    def scores(self, theta):
-        """Per-observation terms l (nobs) and analytic scores G (nobs x k); linear families only."""
+    def scores(self, theta, total: bool = False):
+        """Per-observation terms l (nobs) and analytic scores G (nobs x k); linear families only.
+
+        With ``total=True`` returns (sum of l, gradient) without forming G.
+        """
         e, de = self.residuals(theta, derivs=True)
         sig2, D = self.variance(theta, e, de if de is not None else np.zeros((0, self.n)))
         es = e[self.s0:]
         eta = theta[self.k - len(self.dist.param_names):]
         with np.errstate(all="ignore"):
             if np.any(~(sig2 > 0)):
+                if total:
+                    return math.nan, np.full(self.k, np.nan)
                 return np.full(self.nobs, np.nan), np.full((self.nobs, self.k), np.nan)
             sd = np.sqrt(sig2)
             z = es / sd
             l = self.dist.logpdf(z, eta) - np.log(sd)
             fz = self.dist.dlogpdf_dz(z, eta)
-            G = (-0.5 * (fz * z + 1.0) / sig2) * D
+            w = -0.5 * (fz * z + 1.0) / sig2
             nm = self.n_mean
+            nd = len(self.dist.param_names)
+            if total:
+                g = D @ w
+                if nm:
+                    g[:nm] += de[:, self.s0:] @ (fz / sd)
+                if nd:
+                    g[self.k - nd:] += self.dist.dlogpdf_dparams(z, eta).sum(axis=1)
+                return float(l.sum()), g
+            G = w * D
             if nm:
                 G[:nm] += (fz / sd) * de[:, self.s0:]
-            nd = len(self.dist.param_names)
             if nd:
                 G[self.k - nd:] += self.dist.dlogpdf_dparams(z, eta)
         return l, G.T
+
+    def gradient(self, theta):
+        """(log-likelihood, gradient) by the adjoint of the variance filter; linear families.
+
+        The forward derivatives D = d sigma^2/d theta satisfy D = filter(RHS, ZI), so for the
+        weights w_t = d l / d sigma^2_t,  sum_t w_t D_t = sum_t lam_t RHS_t + sum_k lam_k ZI_k
+        with lam the same filter run backwards over w: one filter instead of k.
+        """
+        s = self.spec
+        if s.variance == "constant":
+            val, g = self.scores(theta, total=True)
+            return val, g
+        _, _, _, omega, alpha, gamma, beta, eta = self.split(theta)
+        p, q, k = self.p, self.q, self.k
+        e, de = self.residuals(theta, derivs=True)
+        e2 = e * e
+        sbar = e2.mean()
+        asym = s.asymmetric
+        if asym:
+            neg = e < 0
+            n2 = np.where(neg, e2, 0.0)
+            nbar = n2.mean()
+        mean_mode = self.presample == "mean"
+        P = np.concatenate([np.full(p, sbar), e2]) if mean_mode else e2
+        if asym:
+            N = np.concatenate([np.full(p, nbar), n2]) if mean_mode else n2
+        m = len(P) - p
+        x = np.full(m, omega)
+        for i in range(1, p + 1):
+            x += alpha[i - 1] * P[p - i: p - i + m]
+            if asym:
+                x += gamma[i - 1] * N[p - i: p - i + m]
+        if q:
+            den = np.concatenate([[1.0], -beta])
+            tail = np.cumsum(beta[::-1])[::-1]
+            sig2, _ = lfilter([1.0], den, x, zi=sbar * tail)
+        else:
+            sig2 = x
+        if np.any(~(sig2 > 0)):
+            return math.nan, np.full(k, np.nan)
+        es = e[self.s0:]
+        with np.errstate(all="ignore"):
+            sd = np.sqrt(sig2)
+            z = es / sd
+            val = float(np.sum(self.dist.logpdf(z, eta) - np.log(sd)))
+            fz = self.dist.dlogpdf_dz(z, eta)
+        w = -0.5 * (fz * z + 1.0) / sig2
+        lam = lfilter([1.0], den, w[::-1])[::-1] if q else w
+        g = np.zeros(k)
+        base = self.idx["omega"]
+        g[base] = lam.sum()
+        for i in range(1, p + 1):
+            g[base + i] = P[p - i: p - i + m] @ lam
+            if asym:
+                g[base + p + i] = N[p - i: p - i + m] @ lam
+        off = base + p + 1 + (p if asym else 0)
+        for j in range(1, q + 1):
+            lag = np.empty(m)
+            lag[:j] = sbar
+            lag[j:] = sig2[:-j]
+            g[off + j - 1] = lag @ lam
+        nm = self.n_mean
+        if nm:
+            dE2 = 2.0 * e * de
+            dsbar = dE2.mean(axis=1)
+            if asym:
+                dN2 = np.where(neg, dE2, 0.0)
+                dnbar = dN2.mean(axis=1)
+            gm = de[:, self.s0:] @ (fz / sd)
+            for i in range(1, p + 1):
+                lo, hi = p - i, p - i + m  # window in padded coordinates
+                if mean_mode:
+                    pre = max(0, p - lo)  # how many presample entries the window covers
+                    part = dE2[:, max(lo - p, 0): hi - p] @ lam[pre:]
+                    gm += alpha[i - 1] * (dsbar * lam[:pre].sum() + part)
+                    if asym:
+                        gm += gamma[i - 1] * (dnbar * lam[:pre].sum() + dN2[:, max(lo - p, 0): hi - p] @ lam[pre:])
+                else:
+                    gm += alpha[i - 1] * (dE2[:, lo:hi] @ lam)
+                    if asym:
+                        gm += gamma[i - 1] * (dN2[:, lo:hi] @ lam)
+            if q:
+                gm += dsbar * (lam[:q] @ tail)
+            g[:nm] = gm
+        nd = len(self.dist.param_names)
+        if nd:
+            g[k - nd:] = self.dist.dlogpdf_dparams(z, eta).sum(axis=1)
+        return val, g
 
     # ------------------------------------------------------------------ series
     def series(self, theta):

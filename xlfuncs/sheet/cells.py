@@ -82,6 +82,9 @@ def as_rows(value) -> list:
     if isinstance(value, (list, tuple)):
         if not value:
             return []
+        kinds = set(map(type, value))
+        if kinds <= {list}:
+            return value
         if all(isinstance(r, (list, tuple, np.ndarray)) for r in value):
             return [list(r) for r in value]
         return [[v] for v in value]
@@ -137,6 +140,9 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
     flat = rows[0] if orientation == "row" else [r[0] if r else None for r in rows]
     unit = "column" if orientation == "row" else "row"
     n = len(flat)
+    fast = _fast_numbers(flat, orientation)
+    if fast is not None:
+        return fast
     first = next((i for i, v in enumerate(flat) if not is_blank(v)), None)
     if first is None:
         raise SheetError(f"{arg} holds no numbers (every cell is blank)")
@@ -161,6 +167,27 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
         vals.append(x)
         pos.append(i)
     return Returns(np.array(vals), np.array(pos, dtype=int), n, orientation)
+
+
+def _fast_numbers(flat, orientation) -> "Returns | None":
+    """The common case, a block of plain numbers with blank cells only at the ends."""
+    kinds = set(map(type, flat))
+    if not kinds <= {float, int, type(None)}:
+        return None
+    arr = np.array(flat, dtype=float)  # None becomes nan
+    good = ~np.isnan(arr)
+    if int(good.size - good.sum()) != flat.count(None):
+        return None  # a nan that is not a blank cell
+    idx = np.flatnonzero(good)
+    if idx.size == 0:
+        return None
+    first, last = int(idx[0]), int(idx[-1])
+    if idx.size != last - first + 1:
+        return None  # blanks inside: the careful path words the message
+    vals = arr[first:last + 1]
+    if not np.all(np.isfinite(vals)):
+        return None
+    return Returns(vals, np.arange(first, last + 1), len(flat), orientation)
 
 
 def _number_text(s: str) -> bool:

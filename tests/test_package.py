@@ -1,0 +1,36 @@
+"""The package's public surface and the direction of its imports (DESIGN.md layers)."""
+
+import doctest
+import importlib
+import subprocess
+import sys
+
+import pytest
+
+import xlfuncs
+
+
+def test_top_level_exports_the_worksheet_functions():
+    assert set(xlfuncs.__all__) == {"VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK"}
+    for name in xlfuncs.__all__:
+        assert callable(getattr(xlfuncs, name))
+
+
+def test_core_loads_no_spreadsheet_library():
+    code = ("import sys, xlfuncs.core; bad = [m for m in ('xlwings', 'openpyxl') "
+            "if m in sys.modules]; print(','.join(bad))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.strip()
+    assert out == ""
+
+
+def test_sheet_layer_needs_no_xlwings():
+    code = "import sys, xlfuncs; print('xlwings' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.strip()
+    assert out == "False"
+
+
+@pytest.mark.parametrize("module", ["xlfuncs.core.spec", "xlfuncs.core.distributions", "xlfuncs.sheet.functions"])
+def test_docstring_examples(module):
+    mod = importlib.import_module(module)
+    result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
+    assert result.failed == 0
