@@ -691,7 +691,17 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
                 break
             prev = dec
         if dec < _POLISH_TOL:
+            # a fresh central Hessian (for the standard errors) and one exact Newton step
             H = problem.hessian(u)
+            try:
+                step = np.linalg.solve(-H, g)
+            except np.linalg.LinAlgError:
+                return None
+            cand = u + step
+            if inside(cand) and -problem.negll(cand) >= f - 1e-12:
+                u = cand
+                taken += 1
+                dec = min(dec, float(g @ step))
             break
     if not dec < _POLISH_TOL:
         return None
