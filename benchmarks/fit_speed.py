@@ -18,6 +18,13 @@ textbook / volfit >= 100.
 
 from __future__ import annotations
 
+import os
+
+# one BLAS thread for every contender: the fits are small, and spinning BLAS threads make timings
+# swing wildly when anything else runs on the machine
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+os.environ.setdefault("OMP_NUM_THREADS", "1")
+
 import argparse
 import math
 import statistics
@@ -94,7 +101,7 @@ def main(argv=None):
     ap.add_argument("--textbook-rounds", type=int, default=3)
     args = ap.parse_args(argv)
     r = load()
-    cells = [[v] for v in r]
+    cells = [[v] for v in r.tolist()]  # Excel hands over Python floats
     volfit(cells), reference_fit(r)  # warm up imports and caches
     times = {"volfit": [], "reference": [], "textbook": []}
     out = {}

@@ -11,6 +11,8 @@ import csv
 import math
 import sys
 
+from .core.errors import InputError
+from .core.spec import parse_options
 from .sheet import VOLFIT
 
 __all__ = ["main", "read_returns_csv"]
@@ -20,8 +22,12 @@ class CliError(Exception):
     """Bad input: printed as one line, exit status 2."""
 
 
-def read_returns_csv(path: str, column: str | None = None) -> list:
-    """The chosen numeric column of a CSV file (header row required), as a list of floats."""
+def read_returns_csv(path: str, column: str | None = None, skip_blanks: bool = False) -> list:
+    """The chosen numeric column of a CSV file (header row required), as a list of floats.
+
+    Blank cells before the first and after the last number are ignored (a return column computed
+    from prices starts blank); blank cells in between are refused unless ``skip_blanks``.
+    """
     try:
         with open(path, newline="", encoding="utf-8-sig") as fh:
             rows = list(csv.reader(fh))
@@ -29,7 +35,7 @@ def read_returns_csv(path: str, column: str | None = None) -> list:
         raise CliError(f"{path}: no such file") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise CliError(f"{path}: cannot be read as a CSV text file ({exc})") from None
-    rows = [r for r in rows if any(c.strip() for c in r)]
+    rows = [r for r in rows if any(c.strip() for c in r)] if rows else rows
     if len(rows) < 2:
         raise CliError(f"{path}: needs a header row and at least one row of data")
     header = [h.strip() for h in rows[0]]
@@ -50,11 +56,16 @@ def read_returns_csv(path: str, column: str | None = None) -> list:
             if not numeric:
                 raise CliError(f"{path}: no numeric column found; name one with --column")
             col = numeric[-1]
+    cells = [(lineno, r[col].strip() if col < len(r) else "") for lineno, r in enumerate(rows[1:], start=2)]
+    filled = [i for i, (_, c) in enumerate(cells) if c]
+    if not filled:
+        raise CliError(f'{path}: column "{header[col]}" holds no numbers')
     out = []
-    for lineno, r in enumerate(rows[1:], start=2):
-        cell = r[col].strip() if col < len(r) else ""
+    for lineno, cell in cells[filled[0]: filled[-1] + 1]:
         if not cell:
-            raise CliError(f'{path} line {lineno}: column "{header[col]}" is blank')
+            if skip_blanks:
+                continue
+            raise CliError(f'{path} line {lineno}: column "{header[col]}" is blank; fill it or pass --options "missing=skip"')
         if not _is_number(cell):
             raise CliError(f'{path} line {lineno}: "{cell}" in column "{header[col]}" is not a number')
         out.append(float(cell))
@@ -99,7 +110,11 @@ def format_table(rows) -> str:
 
 
 def _cmd_fit(args) -> int:
-    returns = read_returns_csv(args.file, args.column)
+    try:
+        skip = parse_options(args.options).missing == "skip"
+    except InputError as exc:
+        raise CliError(str(exc)) from None
+    returns = read_returns_csv(args.file, args.column, skip_blanks=skip)
     rows = VOLFIT([[v] for v in returns], args.model, args.dist, args.options)
     if len(rows) == 1 and isinstance(rows[0][0], str) and rows[0][0].startswith("ERROR:"):
         raise CliError(rows[0][0][len("ERROR:"):].strip())
@@ -107,8 +122,15 @@ def _cmd_fit(args) -> int:
     return 0
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with usage errors as one line (DESIGN.md: exit 2, a one-line reason)."""
+
+    def error(self, message):
+        raise CliError(f"{message}; see {self.prog} --help")
+
+
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
+    parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
     sub = parser.add_subparsers(dest="command", required=True)
     p = sub.add_parser("fit", help="estimate a model on a CSV column and print the fit table")
     p.add_argument("file", help="CSV file with a header row")
@@ -122,8 +144,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv=None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
     try:
+        args = parser.parse_args(argv)
         return args.func(args)
     except CliError as exc:
         print(f"volcast: {exc}", file=sys.stderr)

@@ -286,10 +286,12 @@ class Likelihood:
         val = float(np.sum(self.terms(theta)))
         return val if math.isfinite(val) else -math.inf
 
-    def scores(self, theta, total: bool = False):
+    def scores(self, theta, total: bool = False, fisher: bool = False):
         """Per-observation terms l (nobs) and analytic scores G (nobs x k); linear families only.
 
-        With ``total=True`` returns (sum of l, gradient) without forming G.
+        With ``total=True`` returns (sum of l, gradient) without forming G.  With ``fisher=True``
+        (normal shocks only) returns (sum of l, gradient, expected information
+        sum_t [de de' / sigma^2 + D D' / (2 sigma^4)]), the matrix of Fisher scoring.
         """
         e, de = self.residuals(theta, derivs=True)
         sig2, D = self.variance(theta, e, de if de is not None else np.zeros((0, self.n)))
@@ -307,6 +309,15 @@ class Likelihood:
             w = -0.5 * (fz * z + 1.0) / sig2
             nm = self.n_mean
             nd = len(self.dist.param_names)
+            if fisher:
+                g = D @ w
+                Ds = D / sig2
+                info = 0.5 * (Ds @ Ds.T)
+                if nm:
+                    des = de[:, self.s0:] / sd
+                    g[:nm] += de[:, self.s0:] @ (fz / sd)
+                    info[:nm, :nm] += des @ des.T
+                return float(l.sum()), g, info
             if total:
                 g = D @ w
                 if nm:

@@ -173,7 +173,7 @@ def parse_model(text) -> ModelSpec:
         raise InputError(f"model must be text such as GARCH(1,1), got {text!r}")
     raw = text
     s = re.sub(r"\s+", "", text).upper()
-    token = re.compile(r"([A-Z]+(?:-GARCH)?)(?:\(([^()]*)\))?")
+    token = re.compile(r"(GJR-GARCH|[A-Z]+)(?:\(([^()]*)\))?")
     parts = []
     pos = 0
     while pos < len(s):
@@ -342,6 +342,7 @@ def parse_options(text) -> Options:
     values = dict(_DEFAULTS)
     ints: dict = {}
     fixed: dict = {}
+    seen: set = set()
     for chunk in text.split(";"):
         chunk = chunk.strip()
         if not chunk:
@@ -354,6 +355,9 @@ def parse_options(text) -> Options:
         low = value.lower()
         if not value:
             raise InputError(f'options: {key}= has no value')
+        if key in seen:
+            raise InputError(f"options: {key} is given twice; keep one value")
+        seen.add(key)
         if key in _CHOICES:
             if key == "target":
                 low = _YES.get(low, low)
@@ -382,6 +386,8 @@ def parse_options(text) -> Options:
                 raise InputError(f"options: {key} must be a number to hold the parameter fixed, got {value}") from None
             if not math.isfinite(num):
                 raise InputError(f"options: {key} must be a finite number, got {value}")
+            if name in fixed:
+                raise InputError(f"options: {name} is given twice; keep one value")
             fixed[name] = num
     return Options(
         presample=values["presample"],

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import functools
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -50,7 +51,9 @@ def sheet_function(func):
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
         try:
-            return func(*args, **kwargs)
+            with np.errstate(all="ignore"), warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                return func(*args, **kwargs)
         except VolcastError as exc:
             return error_cell(str(exc))
         except RecursionError:  # pragma: no cover - defensive
@@ -130,9 +133,10 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
     if is_error_text(value):
         raise SheetError(f"{arg} holds an error from another cell: {str(value).strip()[6:].strip()}")
     rows = as_rows(value)
-    if not rows or all(len(r) == 0 for r in rows):
+    lengths = set(map(len, rows))
+    if not rows or lengths == {0}:
         raise SheetError(f"{arg} is empty; select a column of numbers")
-    width = max(len(r) for r in rows)
+    width = max(lengths)
     height = len(rows)
     if width > 1 and height > 1:
         raise SheetError(f"{arg} must be a single column or a single row, got {height} rows by {width} columns")
@@ -169,10 +173,13 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
     return Returns(np.array(vals), np.array(pos, dtype=int), n, orientation)
 
 
+_PLAIN_NUMBER_TYPES = {float, int, type(None), np.float64, np.float32, np.int64, np.int32}
+
+
 def _fast_numbers(flat, orientation) -> "Returns | None":
     """The common case, a block of plain numbers with blank cells only at the ends."""
     kinds = set(map(type, flat))
-    if not kinds <= {float, int, type(None)}:
+    if not kinds <= _PLAIN_NUMBER_TYPES:
         return None
     arr = np.array(flat, dtype=float)  # None becomes nan
     good = ~np.isnan(arr)

@@ -77,6 +77,14 @@ class TableFit:
         return evaluate(r, self.spec, self.dist, self.names, self.params, self.options)
 
 
+def _shown(v) -> str:
+    if isinstance(v, bool):
+        return "TRUE" if v else "FALSE"
+    if isinstance(v, str):
+        return f'text "{v}"'
+    return str(v)
+
+
 def decode(value, arg: str = "fit") -> TableFit:
     if is_error_text(value):
         raise SheetError(f"{arg} holds an error from another cell: {str(value).strip()[6:].strip()}")
@@ -103,11 +111,11 @@ def decode(value, arg: str = "fit") -> TableFit:
         if is_blank(val):
             raise SheetError(f"{arg}: the row {key.strip()} has no value in its second column")
         if isinstance(val, bool) or isinstance(val, str) and is_error_text(val):
-            raise SheetError(f"{arg}: the row {key.strip()} must hold a number, got {val!r}")
+            raise SheetError(f"{arg}: the row {key.strip()} must hold a number, got {_shown(val)}")
         try:
             x = float(val)
         except (TypeError, ValueError):
-            raise SheetError(f"{arg}: the row {key.strip()} must hold a number, got {val!r}") from None
+            raise SheetError(f"{arg}: the row {key.strip()} must hold a number, got {_shown(val)}") from None
         if name in params:
             raise SheetError(f"{arg}: the parameter {name} appears twice")
         params[name] = x
@@ -127,8 +135,17 @@ def decode(value, arg: str = "fit") -> TableFit:
     except InputError as exc:
         raise SheetError(f"{arg}: {exc}") from None
     names = tuple(spec.param_names) + tuple(dist.param_names)
-    missing = [n for n in names if n not in params]
+    extra = [n for n in params if n not in names]
+    if extra:
+        raise SheetError(
+            f"{arg} has the parameter{'s' if len(extra) > 1 else ''} {', '.join(extra)}, which {spec.canonical} with "
+            f"{dist.name} shocks does not have; fix the model row or delete the row{'s' if len(extra) > 1 else ''}"
+        )
     fixed = options.fixed_dict
+    stray = [n for n in fixed if n not in names]
+    if stray:
+        raise SheetError(f"{arg}: the options row fixes {', '.join(stray)}, which {spec.canonical} with {dist.name} shocks does not have")
+    missing = [n for n in names if n not in params]
     for n in list(missing):
         if n in fixed:
             params[n] = fixed[n]

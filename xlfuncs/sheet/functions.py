@@ -100,6 +100,12 @@ def VOLFORECAST(returns, fit, horizon=None, what=None):
     w = _choice(what, "what", _FORECAST_WHAT, "variance")
     table, data, result = _table_and_returns(returns, fit)
     fc = core_forecast(result, data.values, h, seed=table.options.seed, paths=table.options.paths)
+    if not (np.all(np.isfinite(fc.variance)) and np.all(np.isfinite(fc.cumvar)) and np.all(np.isfinite(fc.mean))):
+        bad = int(np.flatnonzero(~np.isfinite(fc.cumvar))[0]) + 1 if not np.all(np.isfinite(fc.cumvar)) else 1
+        raise SheetError(
+            f"the forecast overflows at step {bad}: the fit's parameters make the variance explode "
+            "(check persistence and omega)"
+        )
     if w == "table":
         rows = [["step", "mean", "variance", "vol", "cumvar"]]
         for i in range(h):
