@@ -176,7 +176,7 @@ BAD_MODELS = [
     (f"AR({MAX_ORDER + 1})", rf"orders above {MAX_ORDER}"),
     ("AR(1)-", r"ends with a dash"),
     ("-GARCH(1,1)", r"unexpected"),
-    ("GARCH(1,1", r'expected "-"'),
+    ("GARCH(1,1", r'parentheses do not match'),
     ("GARCH[1,1]", r'expected "-"'),
     ("ARCH(1)GARCH(1,1)", r'expected "-"'),
     ("AR(1)-GARCH(1,1)-ARCH(1)", r"more than a mean part and a variance part"),

@@ -735,7 +735,7 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     near = np.minimum(u - lo, hi - u) / scales
     if np.any(near < 1e-3):
         return None
-    res = SimpleNamespace(nit=it, success=True, message="converged", method="scoring")
+    res = SimpleNamespace(nit=it, success=True, message="converged", method="Fisher scoring" if fisher else "BHHH scoring")
     return u, H, dec, np.zeros(len(u), dtype=bool), res, taken
 
 
@@ -831,7 +831,7 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None) -> FitResult:
             msg = (f"converged by the score test ({dec:.1e}) after {res.nit} quasi-Newton iterations; the Hessian "
                    f"is not negative definite there, so some parameters may be poorly identified")
         else:
-            kind = "scoring (BHHH)" if getattr(res, "method", "") == "scoring" else "quasi-Newton"
+            kind = getattr(res, "method", "quasi-Newton")
             msg = f"converged: {res.nit} {kind} iterations and {steps} Newton steps; Newton decrement {dec:.1e}"
         held_names = [lik.names[problem.free[c]] for c in np.flatnonzero(active)]
         if held_names:

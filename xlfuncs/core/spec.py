@@ -173,6 +173,8 @@ def parse_model(text) -> ModelSpec:
         raise InputError(f"model must be text such as GARCH(1,1), got {text!r}")
     raw = text
     s = re.sub(r"\s+", "", text).upper()
+    if s.count("(") != s.count(")"):
+        raise _bad_model(raw, "its parentheses do not match")
     token = re.compile(r"(GJR-GARCH|[A-Z]+)(?:\(([^()]*)\))?")
     parts = []
     pos = 0
