@@ -129,3 +129,18 @@ def test_worksheet_loglik_scores_a_typed_table(dmbp):
     fitted = VOLFIT(cells, "ARCH(1)", "normal", "presample=drop")
     ll_row = [r for r in fitted if r[0] == "loglik"][0]
     assert_allclose(VOLLOGLIK(cells, fitted)[0][0], ll_row[1], rtol=1e-12)
+
+
+def test_ar2_mean_on_sunspots_against_statsmodels_autoreg():
+    """AR(2) on the yearly sunspot numbers (public dataset shipped with statsmodels): the
+    conditional likelihood's maximiser is conditional least squares, as statsmodels' AutoReg
+    estimates it (reference library)."""
+    sm = pytest.importorskip("statsmodels.api")
+    from statsmodels.tsa.ar_model import AutoReg
+
+    y = sm.datasets.sunspots.load_pandas().data["SUNACTIVITY"].to_numpy(dtype=float)
+    f = fit(y, "AR(2)", "normal", "presample=drop")
+    ref = AutoReg(y, lags=2, trend="c").fit()
+    assert_allclose(f.params[:3], ref.params, rtol=1e-6)
+    assert_allclose(f.value("omega"), ref.sigma2, rtol=1e-6)  # ML variance: SSR / (T - 2)
+    assert_allclose(f.loglik, ref.llf, rtol=1e-9)

@@ -349,7 +349,7 @@ OPTIONS = [
     ("periods=12", "presample=mean; se=robust; periods=12"),
     ("periods=252.0", "presample=mean; se=robust; periods=252"),
     ("seed=0", "presample=mean; se=robust; seed=0"),
-    ("paths=100", "presample=mean; se=robust; paths=100"),
+    ("paths=1000", "presample=mean; se=robust; paths=1000"),
     ("mu=0", "presample=mean; se=robust; mu=0"),
     ("nu=8.5", "presample=mean; se=robust; nu=8.5"),
     # canonical order: presample, se, target, missing, periods, seed, paths, then fixed as given
@@ -367,9 +367,9 @@ def test_options_canonical(typed, canonical):
 
 
 def test_option_fields():
-    o = parse_options("presample=drop; se=opg; target=yes; missing=skip; periods=52; seed=7; paths=500")
+    o = parse_options("presample=drop; se=opg; target=yes; missing=skip; periods=52; seed=7; paths=5000")
     assert (o.presample, o.se, o.target, o.missing) == ("drop", "opg", True, "skip")
-    assert (o.periods, o.seed, o.paths) == (52, 7, 500)
+    assert (o.periods, o.seed, o.paths) == (52, 7, 5000)
 
 
 @pytest.mark.parametrize(
@@ -416,7 +416,7 @@ BAD_OPTIONS = [
     ("periods=abc", r"periods must be a whole number.*got abc"),
     ("periods=inf", r"periods must be a whole number"),
     ("seed=-1", r"seed must be a whole number from 0"),
-    ("paths=99", r"paths must be a whole number from 100"),
+    ("paths=999", r"paths must be a whole number from 1000"),
     ("nu", r'"nu" is not key=value'),
     ("se hessian", r'"se hessian" is not key=value'),
     ("nu=", r"nu= has no value"),

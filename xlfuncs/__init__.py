@@ -9,7 +9,7 @@ Layers (imports run one way): ``xlfuncs.core`` (estimation, NumPy/SciPy only) <-
 ``xlfuncs.cli`` (the ``volcast`` command).
 """
 
-from .sheet import VOLFIT, VOLFORECAST, VOLLOGLIK, VOLSERIES
+from .sheet import VOLCOMPARE, VOLFIT, VOLFORECAST, VOLLOGLIK, VOLRISK, VOLSERIES, VOLTESTS
 
-__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK"]
+__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE"]
 __version__ = "0.1.0"

@@ -1,5 +1,5 @@
 """The worksheet layer: plain Python functions named as in DESIGN.md's catalogue."""
 
-from .functions import VOLFIT, VOLFORECAST, VOLLOGLIK, VOLSERIES
+from .functions import VOLCOMPARE, VOLFIT, VOLFORECAST, VOLLOGLIK, VOLRISK, VOLSERIES, VOLTESTS
 
-__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK"]
+__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE"]

@@ -28,6 +28,7 @@ __all__ = [
     "returns_column",
     "text_arg",
     "int_arg",
+    "float_arg",
     "is_error_text",
 ]
 
@@ -242,3 +243,26 @@ def int_arg(value, arg: str, lo: int, hi: int, default=None) -> int:
         shown = int(x) if math.isfinite(x) and x.is_integer() else v
         raise SheetError(f"{arg} must be a whole number from {lo} to {hi}, got {shown}")
     return int(x)
+
+
+def float_arg(value, arg: str, default=None, example: str = "") -> float:
+    """A one-cell number (range checks belong to the core, which words them)."""
+    rows = as_rows(value)
+    cells = [v for r in rows for v in r if not is_blank(v)]
+    hint = f", e.g. {example}" if example else ""
+    if not cells:
+        if default is None:
+            raise SheetError(f"{arg} is required: a number{hint}")
+        return default
+    if len(cells) > 1:
+        raise SheetError(f"{arg} must be one cell, got {len(cells)} filled cells")
+    v = cells[0]
+    if isinstance(v, bool) or _is_excel_error(v) or is_error_text(v):
+        raise SheetError(f"{arg} must be a number{hint}, got {_describe(v)}")
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        raise SheetError(f"{arg} must be a number{hint}, got {_describe(v)}") from None
+    if not math.isfinite(x):
+        raise SheetError(f"{arg} must be a finite number{hint}, got {v}")
+    return x

@@ -26,11 +26,13 @@ from ..core.estimate import evaluate, fit as core_fit
 from ..core.forecast import MAX_HORIZON, forecast as core_forecast, in_sample
 from ..core.spec import parse_model, parse_options
 from .cache import FIT_CACHE
-from .cells import SheetError, returns_column, sheet_function, text_arg
-from .cells import int_arg
+from ..core.diagnostics import MIN_OBS as MIN_TEST_OBS, default_lags, max_lags, run_tests
+from ..core.errors import VolcastError
+from ..core.risk import risk as core_risk
+from .cells import SheetError, as_rows, float_arg, int_arg, is_blank, is_error_text, returns_column, sheet_function, text_arg
 from .fittable import decode, encode
 
-__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "fit_from_cells"]
+__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE", "fit_from_cells"]
 
 _SERIES_WHAT = ("variance", "vol", "resid", "stdresid")
 _FORECAST_WHAT = ("variance", "vol", "cumvar", "cumvol", "mean", "table")
@@ -123,3 +125,108 @@ def VOLLOGLIK(returns, fit):
     if not np.isfinite(ll):
         raise SheetError("the log-likelihood is not finite at these parameters (a variance reached zero)")
     return [[float(ll)]]
+
+
+_COMPARE_HEADER = ["model", "dist", "loglik", "params", "aic", "bic", "persistence", "converged", "rank_bic"]
+_MAX_CANDIDATES = 60
+
+
+def _split_list(value, arg: str) -> list:
+    """Texts from a range, each cell holding one item or several separated by commas or
+    semicolons (commas inside parentheses, as in GARCH(1,1), do not separate)."""
+    items = []
+    for row in as_rows(value):
+        for cell in row:
+            if is_blank(cell):
+                continue
+            if is_error_text(cell) or not isinstance(cell, str):
+                raise SheetError(f"{arg} must be text such as GARCH(1,1), got {cell!r}")
+            depth, start = 0, 0
+            for i, ch in enumerate(cell + ","):
+                if ch == "(":
+                    depth += 1
+                elif ch == ")":
+                    depth -= 1
+                elif ch in ",;" and depth <= 0:
+                    piece = cell[start:i].strip()
+                    if piece:
+                        items.append(piece)
+                    start = i + 1
+    return items
+
+
+@sheet_function
+def VOLCOMPARE(returns, models, dist=None, options=None):
+    """Fit several candidate models (and distributions) to the same returns; one row each, ranked by BIC."""
+    model_list = _split_list(models, "models")
+    if not model_list:
+        raise SheetError("models is empty; give model strings such as GARCH(1,1), GJR-GARCH(1,1)")
+    dist_list = _split_list(dist, "dist") or ["normal"]
+    if len(model_list) * len(dist_list) > _MAX_CANDIDATES:
+        raise SheetError(f"models x dist gives {len(model_list) * len(dist_list)} candidates; at most {_MAX_CANDIDATES}")
+    opts_text = text_arg(options, "options")
+    parse_options(opts_text)  # a bad options string is one error for the whole call
+    rows, bics = [], []
+    for m in model_list:
+        for d in dist_list:
+            try:
+                result, _ = fit_from_cells(returns, m, d, opts_text)
+            except SheetError:
+                raise  # a problem with the returns themselves concerns every row
+            except VolcastError as exc:
+                rows.append([m, d, f"ERROR: {exc}"] + [None] * 6)
+                bics.append(None)
+                continue
+            rows.append([
+                result.spec.canonical, result.dist.name, float(result.loglik), int(result.n_free),
+                float(result.aic), float(result.bic),
+                None if result.persistence is None else float(result.persistence),
+                bool(result.converged), None,
+            ])
+            bics.append(float(result.bic) if result.converged else None)
+    order = sorted((b, i) for i, b in enumerate(bics) if b is not None)
+    for rank, (_, i) in enumerate(order, start=1):
+        rows[i][8] = rank
+    return [list(_COMPARE_HEADER)] + rows
+
+
+@sheet_function
+def VOLTESTS(returns, fit, lags=None):
+    """Diagnostics of a fit: Ljung-Box on z and z^2, ARCH-LM, Jarque-Bera, Engle-Ng sign bias."""
+    table, data, result = _table_and_returns(returns, fit)
+    resid, var, _ = in_sample(result, data.values)
+    with np.errstate(all="ignore"):
+        z = resid / np.sqrt(var)
+    z = z[np.isfinite(z)]
+    n = len(z)
+    if n < MIN_TEST_OBS:
+        raise SheetError(f"returns: the tests need at least {MIN_TEST_OBS} standardised residuals, got {n}")
+    spec = table.spec
+    var_order = 0 if spec.variance == "constant" else spec.p + spec.q
+    L = int_arg(lags, "lags", 1, max_lags(n), default=default_lags(n, max(spec.ar + spec.ma, var_order)))
+    out = [["test", "statistic", "df", "p_value"]]
+    for t in run_tests(z, L, spec.ar + spec.ma, var_order):
+        df = _cell(t.df)
+        out.append([t.label, _cell(t.statistic), int(df) if df is not None and df.is_integer() else df, _cell(t.p_value)])
+    return out
+
+
+def _cell(x):
+    if x is None:
+        return None
+    x = float(x)
+    return x if np.isfinite(x) else None
+
+
+@sheet_function
+def VOLRISK(returns, fit, level=None, horizon=None):
+    """Value-at-Risk and expected shortfall of the next horizon periods' cumulative return."""
+    lv = float_arg(level, "level", 0.99, "0.99")
+    h = int_arg(horizon, "horizon", 1, MAX_HORIZON, default=1)
+    table, data, result = _table_and_returns(returns, fit)
+    rk = core_risk(result, data.values, lv, h, paths=table.options.paths, seed=table.options.seed)
+    values = [rk.var, rk.es, rk.mean, rk.sd]
+    if not all(np.isfinite(v) for v in values):
+        raise SheetError("the risk figures overflow: the fit's parameters make the variance explode")
+    return [["measure", "value"], ["VaR", float(rk.var)], ["ES", float(rk.es)], ["mean", float(rk.mean)],
+            ["sd", float(rk.sd)], ["level", float(rk.level)], ["horizon", int(rk.horizon)], ["method", rk.method]]

@@ -1,0 +1,85 @@
+"""The module Excel loads through xlwings: thin wrappers over the worksheet layer.
+
+No logic lives here.  Each wrapper declares its range arguments with ``ndim=2`` (so a single
+cell still arrives as a list of rows), keeps the optional arguments positional with defaults,
+and hands everything to the function of the same name in :mod:`xlfuncs.sheet`.  The first line
+of each docstring is what Excel's function wizard shows; ``doc=`` documents each argument.
+
+Point the xlwings add-in's "UDF Modules" setting at ``xlfuncs.udfs`` and import the functions.
+"""
+
+import xlwings as xw
+
+from . import sheet
+
+_RETURNS = "Returns: one column (or row) of numbers, most recent last; blanks before and after are ignored"
+_FIT = "Fit table from VOLFIT (or one typed with rows model, dist and the parameters)"
+_MODEL = 'Model string, e.g. "GARCH(1,1)", "AR(1)-GJR-GARCH(1,1)", "EGARCH(1,1)" (default GARCH(1,1))'
+_DIST = 'Shock distribution: "normal" (default), "t", "skewt" or "ged"'
+_OPTIONS = 'Options, e.g. "se=hessian; nu=8; presample=drop" (optional)'
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("model", doc=_MODEL)
+@xw.arg("dist", doc=_DIST)
+@xw.arg("options", doc=_OPTIONS)
+def VOLFIT(returns, model=None, dist=None, options=None):
+    """Estimate an ARCH/GARCH-family model by maximum likelihood; returns the fit table."""
+    return sheet.VOLFIT(returns, model, dist, options)
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("fit", ndim=2, doc=_FIT)
+@xw.arg("what", doc='"variance" (default), "vol", "resid" or "stdresid"')
+def VOLSERIES(returns, fit, what=None):
+    """In-sample conditional variance (or vol, residuals), one value per return row."""
+    return sheet.VOLSERIES(returns, fit, what)
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("fit", ndim=2, doc=_FIT)
+@xw.arg("horizon", doc="Number of steps ahead, a whole number from 1 to 600")
+@xw.arg("what", doc='"variance" (default), "vol", "cumvar", "cumvol", "mean" or "table"')
+def VOLFORECAST(returns, fit, horizon=None, what=None):
+    """Forecast the variance (or vol, cumulative variance, mean) 1 to horizon steps ahead."""
+    return sheet.VOLFORECAST(returns, fit, horizon, what)
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("fit", ndim=2, doc=_FIT)
+def VOLLOGLIK(returns, fit):
+    """Log-likelihood of the returns at the fit table's parameters."""
+    return sheet.VOLLOGLIK(returns, fit)
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("fit", ndim=2, doc=_FIT)
+@xw.arg("lags", doc="Lags for the Ljung-Box and ARCH-LM tests (default min(10, n/5))")
+def VOLTESTS(returns, fit, lags=None):
+    """Diagnostic tests of a fit: Ljung-Box, ARCH-LM, Jarque-Bera, sign bias."""
+    return sheet.VOLTESTS(returns, fit, lags)
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("fit", ndim=2, doc=_FIT)
+@xw.arg("level", doc="Confidence level, e.g. 0.99 (default)")
+@xw.arg("horizon", doc="Periods the loss accumulates over, 1 (default) to 600")
+def VOLRISK(returns, fit, level=None, horizon=None):
+    """Value-at-Risk and expected shortfall of the next horizon periods, as positive losses."""
+    return sheet.VOLRISK(returns, fit, level, horizon)
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("models", ndim=2, doc='Candidate models: a range of model strings or one text such as "ARCH(1), GARCH(1,1)"')
+@xw.arg("dist", ndim=2, doc='Distribution(s), e.g. "normal" or "normal, t" (default normal)')
+@xw.arg("options", doc=_OPTIONS)
+def VOLCOMPARE(returns, models, dist=None, options=None):
+    """Fit candidate models to the same returns and rank them by BIC."""
+    return sheet.VOLCOMPARE(returns, models, dist, options)
