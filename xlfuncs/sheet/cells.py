@@ -206,15 +206,34 @@ def _number_text(s: str) -> bool:
         return False
 
 
-def text_arg(value, arg: str, default=None):
-    """A one-cell text argument (blank means the default)."""
-    rows = as_rows(value)
-    cells = [v for r in rows for v in r if not is_blank(v)]
+_MISSING = object()
+
+
+def _one_cell(value, arg: str):
+    """The single filled cell of a scalar argument, or _MISSING when every cell is blank."""
+    cells = [v for r in as_rows(value) for v in r if not is_blank(v)]
     if not cells:
-        return default
+        return _MISSING
     if len(cells) > 1:
         raise SheetError(f"{arg} must be one cell, got {len(cells)} filled cells")
-    v = cells[0]
+    return cells[0]
+
+
+def _number(v, arg: str, wanted: str) -> float:
+    """A cell's number, or a SheetError saying what was ``wanted`` instead."""
+    if isinstance(v, bool) or _is_excel_error(v) or is_error_text(v):
+        raise SheetError(f"{arg} must be {wanted}, got {_describe(v)}")
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        raise SheetError(f"{arg} must be {wanted}, got {_describe(v)}") from None
+
+
+def text_arg(value, arg: str, default=None):
+    """A one-cell text argument (blank means the default)."""
+    v = _one_cell(value, arg)
+    if v is _MISSING:
+        return default
     if is_error_text(v) or _is_excel_error(v):
         raise SheetError(f"{arg} holds an error from another cell: {v}")
     if isinstance(v, bool) or not isinstance(v, str):
@@ -224,45 +243,28 @@ def text_arg(value, arg: str, default=None):
 
 def int_arg(value, arg: str, lo: int, hi: int, default=None) -> int:
     """A one-cell whole number in [lo, hi] (Excel passes numbers as floats)."""
-    rows = as_rows(value)
-    cells = [v for r in rows for v in r if not is_blank(v)]
-    if not cells:
+    wanted = f"a whole number from {lo} to {hi}"
+    v = _one_cell(value, arg)
+    if v is _MISSING:
         if default is None:
-            raise SheetError(f"{arg} is required: a whole number from {lo} to {hi}")
+            raise SheetError(f"{arg} is required: {wanted}")
         return default
-    if len(cells) > 1:
-        raise SheetError(f"{arg} must be one cell, got {len(cells)} filled cells")
-    v = cells[0]
-    if isinstance(v, bool):
-        raise SheetError(f"{arg} must be a whole number from {lo} to {hi}, got {_describe(v)}")
-    try:
-        x = float(v)
-    except (TypeError, ValueError):
-        raise SheetError(f"{arg} must be a whole number from {lo} to {hi}, got {_describe(v)}") from None
+    x = _number(v, arg, wanted)
     if not math.isfinite(x) or not x.is_integer() or not lo <= x <= hi:
         shown = int(x) if math.isfinite(x) and x.is_integer() else v
-        raise SheetError(f"{arg} must be a whole number from {lo} to {hi}, got {shown}")
+        raise SheetError(f"{arg} must be {wanted}, got {shown}")
     return int(x)
 
 
 def float_arg(value, arg: str, default=None, example: str = "") -> float:
     """A one-cell number (range checks belong to the core, which words them)."""
-    rows = as_rows(value)
-    cells = [v for r in rows for v in r if not is_blank(v)]
-    hint = f", e.g. {example}" if example else ""
-    if not cells:
+    wanted = "a number" + (f", e.g. {example}" if example else "")
+    v = _one_cell(value, arg)
+    if v is _MISSING:
         if default is None:
-            raise SheetError(f"{arg} is required: a number{hint}")
+            raise SheetError(f"{arg} is required: {wanted}")
         return default
-    if len(cells) > 1:
-        raise SheetError(f"{arg} must be one cell, got {len(cells)} filled cells")
-    v = cells[0]
-    if isinstance(v, bool) or _is_excel_error(v) or is_error_text(v):
-        raise SheetError(f"{arg} must be a number{hint}, got {_describe(v)}")
-    try:
-        x = float(v)
-    except (TypeError, ValueError):
-        raise SheetError(f"{arg} must be a number{hint}, got {_describe(v)}") from None
+    x = _number(v, arg, wanted)
     if not math.isfinite(x):
-        raise SheetError(f"{arg} must be a finite number{hint}, got {v}")
+        raise SheetError(f"{arg} must be a finite number, got {v}")
     return x
