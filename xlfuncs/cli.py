@@ -1,6 +1,7 @@
 """The ``volcast`` command.
 
-``volcast fit FILE.csv [--column C] [--model M] [--dist D] [--options O]`` prints the fit table.
+``volcast fit FILE.csv [--column C] [--model M] [--dist D] [--options O]`` prints the fit table;
+``volcast recalc BOOK.xlsx [-o OUT.xlsx] [--values-only]`` recalculates a workbook headlessly.
 Exit status 0 on success, 2 on bad input with a one-line reason on standard error.
 """
 
@@ -129,6 +130,21 @@ class _Parser(argparse.ArgumentParser):
         raise CliError(f"{message}; see {self.prog} --help")
 
 
+def _cmd_recalc(args) -> int:
+    from .headless.recalc import RecalcError, recalc
+
+    try:
+        out, report = recalc(args.book, args.out, values_only=args.values_only)
+    except RecalcError as exc:
+        raise CliError(str(exc)) from None
+    print(f"recalculated {report.formulas} formulas ({report.spills} spilled results) into {out}")
+    if report.error_cells:
+        shown = ", ".join(f"{a} {v if len(v) < 80 else v[:77] + '...'}" for a, v in report.error_cells[:10])
+        more = f" and {len(report.error_cells) - 10} more" if len(report.error_cells) > 10 else ""
+        print(f"volcast: {len(report.error_cells)} cells evaluate to errors: {shown}{more}", file=sys.stderr)
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
     sub = parser.add_subparsers(dest="command", required=True)
@@ -139,6 +155,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--dist", default="normal", help="normal, t, skewt or ged (default normal)")
     p.add_argument("--options", default=None, help='options string, e.g. "se=hessian; nu=8"')
     p.set_defaults(func=_cmd_fit)
+    p = sub.add_parser("recalc", help="recalculate a workbook with no Excel; keeps formulas, stores values")
+    p.add_argument("book", help="the .xlsx workbook to recalculate (never written over)")
+    p.add_argument("-o", "--out", help="output workbook (default: BOOK.recalc.xlsx beside the input)")
+    p.add_argument("--values-only", action="store_true", help="write plain values instead of formulas with values")
+    p.set_defaults(func=_cmd_recalc)
     return parser
 
 

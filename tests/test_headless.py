@@ -1,0 +1,249 @@
+"""Headless recalculation: openpyxl-built workbooks, every value compared with direct calls of
+the worksheet functions, spills and legacy arrays as Excel shows them (Excel's documented
+dynamic-array behaviour: a result spills from its anchor, #SPILL! when blocked, E2# reads the
+spill; legacy array formulas pad with #N/A -- common practice), and the output's package."""
+
+import hashlib
+import math
+import shutil
+import subprocess
+import zipfile
+
+import numpy as np
+import openpyxl
+import pytest
+from numpy.testing import assert_allclose
+from openpyxl.worksheet.formula import ArrayFormula
+
+from xlfuncs import VOLFIT, VOLFORECAST, VOLRISK
+from xlfuncs.cli import main
+from xlfuncs.core import get_distribution, parse_model
+from xlfuncs.core.simulate import simulate
+from xlfuncs.headless.recalc import RecalcError, recalc
+
+N = 300
+
+
+@pytest.fixture(scope="module")
+def levels():
+    r = simulate(parse_model("GARCH(1,1)"), get_distribution("t"), np.array([0.4, 0.3, 0.1, 0.85, 6.0]), N,
+                 rng=np.random.default_rng(5))[:, 0]
+    return 100.0 * np.exp(np.cumsum(r / 100.0))
+
+
+def _returns(levels):
+    return [100.0 * math.log(levels[i] / levels[i - 1]) for i in range(1, len(levels))]
+
+
+def build(path, levels, blocker=False):
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Data"
+    ws["A1"], ws["B1"] = "level", "return (%)"
+    for i, v in enumerate(levels, start=2):
+        ws.cell(i, 1, float(v))
+        if i > 2:
+            ws.cell(i, 2, f"=LN(A{i}/A{i - 1})*100")
+    m = wb.create_sheet("Model sheet")
+    m["A1"], m["A2"] = "GARCH(1,1)", "normal"
+    m["C1"] = "=VOLFIT(Data!B2:B500, A1, A2)"  # spills; the range reaches past the data
+    m["I1"] = '=VOLFORECAST(Data!B2:B500, C1:G40, 12, "vol")'  # oversized fit range
+    m["J1"] = '=VOLFORECAST(Data!B2:B500, _xlfn.ANCHORARRAY(C1), 12, "variance")'  # spill reference
+    m["K1"] = "=SQRT(SUM(_xlfn.ANCHORARRAY(J1)))"  # a standard formula over a spilled result
+    m["K2"] = "=INDEX(C1#, 5, 2)*2"
+    m["K3"] = "=IFERROR(1/0, -1)"
+    m["K4"] = "='Model sheet'!K2+Data!A2"
+    m["L1"] = ArrayFormula("L1:L14", '=VOLFORECAST(Data!B2:B500, C1#, 12, "cumvar")')  # legacy array, 2 extra
+    m["M1"] = "=1/0"
+    m["M2"] = "=M1*2"  # an error upstream propagates
+    m["N1"] = "=VOLRISK(Data!B2:B500, C1#, 0.99, 1)"
+    if blocker:
+        m["O3"] = "in the way"
+    wb.save(path)
+
+
+@pytest.fixture(scope="module")
+def done(tmp_path_factory, levels):
+    d = tmp_path_factory.mktemp("book")
+    src = d / "book.xlsx"
+    build(src, levels)
+    before = hashlib.sha256(src.read_bytes()).hexdigest()
+    out, report = recalc(src, d / "out.xlsx")
+    assert hashlib.sha256(src.read_bytes()).hexdigest() == before  # the input's bytes are unchanged
+    return src, out, report
+
+
+def _engine_returns(out):
+    """The returns as the workbook computed them: direct calls get the very same numbers."""
+    ws = _vals(out, "Data")
+    return [[ws.cell(i, 2).value] for i in range(3, N + 2)]
+
+
+def _vals(path, sheet="Model sheet"):
+    return openpyxl.load_workbook(path, data_only=True)[sheet]
+
+
+def test_returns_from_prices_by_formula(done, levels):
+    _, out, _ = done
+    ws = _vals(out, "Data")
+    got = [ws.cell(i, 2).value for i in range(3, N + 2)]
+    assert_allclose(got, _returns(levels), rtol=1e-11)  # the engine divides, then takes logs
+
+
+def test_fit_spills_and_matches_a_direct_call(done, levels):
+    _, out, report = done
+    ws = _vals(out)
+    direct = VOLFIT(_engine_returns(out), "GARCH(1,1)", "normal")
+    for i, row in enumerate(direct):
+        for j, v in enumerate(row):
+            cell = ws.cell(1 + i, 3 + j).value
+            if isinstance(v, float):
+                assert_allclose(cell, v, rtol=1e-12)
+            else:
+                assert cell == v
+    assert report.spills >= 3
+
+
+def test_forecast_by_oversized_range_and_by_spill_reference(done, levels):
+    _, out, _ = done
+    ws = _vals(out)
+    cells = _engine_returns(out)
+    fit = VOLFIT(cells, "GARCH(1,1)", "normal")
+    vol = [r[0] for r in VOLFORECAST(cells, fit, 12, "vol")]
+    var = [r[0] for r in VOLFORECAST(cells, fit, 12, "variance")]
+    assert_allclose([ws.cell(i, 9).value for i in range(1, 13)], vol, rtol=1e-12)
+    assert_allclose([ws.cell(i, 10).value for i in range(1, 13)], var, rtol=1e-12)
+    assert ws["I13"].value is None  # nothing past the spill
+    assert_allclose(ws["K1"].value, math.sqrt(sum(var)), rtol=1e-12)
+    assert_allclose(ws["K2"].value, 2 * fit[4][1], rtol=1e-12)  # INDEX(C1#, 5, 2): mu's estimate
+    assert ws["K3"].value == -1
+    assert_allclose(ws["K4"].value, 2 * fit[4][1] + levels[0], rtol=1e-12)
+    risk = VOLRISK(cells, fit, 0.99, 1)
+    assert [ws.cell(i, 14).value for i in range(1, 9)] == [r[0] for r in risk]
+    assert_allclose(ws["O2"].value, risk[1][1], rtol=1e-12)
+
+
+def test_legacy_array_formula_fills_its_range_and_pads(done, levels):
+    _, out, _ = done
+    ws = _vals(out)
+    cells = _engine_returns(out)
+    cum = [r[0] for r in VOLFORECAST(cells, VOLFIT(cells, "GARCH(1,1)"), 12, "cumvar")]
+    assert_allclose([ws.cell(i, 12).value for i in range(1, 13)], cum, rtol=1e-12)
+    assert ws["L13"].value == "#N/A" and ws["L14"].value == "#N/A"
+
+
+def test_errors_propagate_and_are_reported(done):
+    _, out, report = done
+    ws = _vals(out)
+    assert ws["M1"].value == "#DIV/0!" and ws["M2"].value == "#DIV/0!"
+    flagged = {a for a, _ in report.error_cells}
+    assert {"Model sheet!M1", "Model sheet!M2", "Model sheet!L13"} <= flagged
+
+
+def test_formulas_are_kept_and_spills_marked_dynamic(done):
+    _, out, _ = done
+    ws = openpyxl.load_workbook(out)["Model sheet"]
+    assert ws["C1"].value.text == "=VOLFIT(Data!B2:B500, A1, A2)"
+    assert ws["C1"].value.ref.startswith("C1:G")
+    assert ws["K1"].value == "=SQRT(SUM(_xlfn.ANCHORARRAY(J1)))"
+    assert ws["K2"].value == "=INDEX(_xlfn.ANCHORARRAY(C1), 5, 2)*2"  # stored as Excel stores E2#
+    with zipfile.ZipFile(out) as z:
+        assert "xl/metadata.xml" in z.namelist()
+        sheet = z.read("xl/worksheets/sheet2.xml").decode()
+        assert 'r="C1" cm="1"' in sheet or ('r="C1"' in sheet and 'cm="1"' in sheet)
+        assert "fullCalcOnLoad=\"1\"" not in z.read("xl/workbook.xml").decode()
+
+
+def test_recalculating_the_output_gives_the_same_values(done, tmp_path):
+    _, out, _ = done
+    again, _ = recalc(out, tmp_path / "again.xlsx")
+    a, b = _vals(out), _vals(again)
+    for row in a.iter_rows(min_row=1, max_row=40, max_col=16):
+        for c in row:
+            v = b[c.coordinate].value
+            if isinstance(c.value, float):
+                assert_allclose(v, c.value, rtol=1e-12)
+            else:
+                assert v == c.value, c.coordinate
+
+
+def test_blocked_spill(tmp_path, levels):
+    src = tmp_path / "b.xlsx"
+    build(src, levels, blocker=True)
+    out, report = recalc(src, tmp_path / "o.xlsx")
+    ws = _vals(out)
+    assert ws["N1"].value == "#SPILL!"
+    assert ws["O3"].value == "in the way"
+    assert any("#SPILL!" in v for _, v in report.error_cells)
+
+
+def test_values_only(tmp_path, done):
+    src, _, _ = done
+    out, _ = recalc(src, tmp_path / "v.xlsx", values_only=True)
+    ws = openpyxl.load_workbook(out)["Model sheet"]
+    assert ws["C1"].value == "parameter" and isinstance(ws["K1"].value, float)
+
+
+def test_default_output_beside_input_and_never_over_it(tmp_path, done):
+    src, _, _ = done
+    local = tmp_path / "book.xlsx"
+    shutil.copy(src, local)
+    out, _ = recalc(local)
+    assert out == tmp_path / "book.recalc.xlsx" and out.exists()
+    with pytest.raises(RecalcError, match="refusing to write over the input"):
+        recalc(local, local)
+    assert main(["recalc", str(local), "-o", str(local)]) == 2
+
+
+def test_bad_workbooks_exit_2_with_one_line(tmp_path, capsys, levels):
+    junk = tmp_path / "junk.xlsx"
+    junk.write_bytes(b"not a zip")
+    assert main(["recalc", str(junk)]) == 2
+    assert "not a readable .xlsx" in capsys.readouterr().err
+    wb = openpyxl.Workbook()
+    wb.active["A1"] = "=Nowhere!B2+1"
+    wb.save(tmp_path / "m.xlsx")
+    assert main(["recalc", str(tmp_path / "m.xlsx")]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0 and "Sheet!A1" in err and "Nowhere" in err
+    wb = openpyxl.Workbook()
+    wb.active["B3"] = "=FROBNICATE(1)"
+    wb.save(tmp_path / "u.xlsx")
+    assert main(["recalc", str(tmp_path / "u.xlsx")]) == 2
+    err = capsys.readouterr().err
+    assert "Sheet!B3" in err and "FROBNICATE" in err and "not supported" in err
+    assert not (tmp_path / "u.recalc.xlsx").exists()  # nothing half-written
+
+
+def test_cli_reports_error_cells(tmp_path, capsys, done):
+    src, _, _ = done
+    assert main(["recalc", str(src), "-o", str(tmp_path / "c.xlsx")]) == 0
+    captured = capsys.readouterr()
+    assert "recalculated" in captured.out
+    assert "cells evaluate to errors" in captured.err and "Model sheet!M1 #DIV/0!" in captured.err
+
+
+def test_each_fit_is_estimated_once(tmp_path, levels):
+    from xlfuncs.sheet.cache import FIT_CACHE
+
+    src = tmp_path / "c.xlsx"
+    build(src, levels)
+    FIT_CACHE.clear()
+    recalc(src, tmp_path / "c2.xlsx")
+    # VOLFIT spills the table; every other function reads the table, so nothing re-estimates
+    assert FIT_CACHE.stats["estimations"] == 1
+
+
+@pytest.mark.skipif(shutil.which("soffice") is None, reason="LibreOffice (soffice) is not installed here; CI installs it")
+def test_libreoffice_shows_the_stored_values(tmp_path, done):
+    """A real spreadsheet application opens the output: the standard formulas keep their
+    stored values (LibreOffice recalculates array formulas itself, so spilled results are
+    checked in values-only output)."""
+    src, out, _ = done
+    vout, _ = recalc(src, tmp_path / "values.xlsx", values_only=True)
+    for book in (out, vout):
+        subprocess.run(["soffice", "--headless", "--convert-to", "csv", "--outdir", str(tmp_path), str(book)],
+                       check=True, capture_output=True, timeout=180)
+    data = (tmp_path / "out.csv").read_text().splitlines()
+    ws = _vals(out, "Data")
+    assert_allclose(float(data[2].split(",")[1]), ws["B3"].value, rtol=1e-9)

@@ -1,0 +1,267 @@
+"""The adapter over the formula-engine library (``formulas``, EUPL 1.1+; see DEVELOPERS.md).
+
+Everything the headless mode needs from a formula engine goes through this module, so the
+library could be swapped: :func:`compile_formula` turns one cell's formula text into a
+:class:`Compiled` with the references it reads, and :meth:`Compiled.__call__` evaluates it on
+values supplied by the caller.  Values crossing the adapter are plain Python: ``float``,
+``int``, ``str``, ``bool``, ``None`` (an empty cell), :class:`ExcelError`, or lists of rows of
+those for an array result.
+
+Our worksheet functions are registered into the engine through the worksheet layer, so a
+headless recalculation computes exactly what Excel with the add-in computes.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["ExcelError", "Compiled", "compile_formula", "FormulaError", "our_function_names",
+           "top_level_call", "ERROR_LITERALS"]
+
+ERROR_LITERALS = ("#NULL!", "#DIV/0!", "#VALUE!", "#REF!", "#NAME?", "#NUM!", "#N/A", "#SPILL!", "#CALC!")
+
+
+class ExcelError:
+    """An Excel error value such as #N/A (compares by its literal)."""
+
+    __slots__ = ("code",)
+
+    def __init__(self, code: str):
+        if code not in ERROR_LITERALS:
+            raise ValueError(f"not an Excel error literal: {code!r}")
+        self.code = code
+
+    def __eq__(self, other):
+        return isinstance(other, ExcelError) and other.code == self.code
+
+    def __hash__(self):
+        return hash(self.code)
+
+    def __repr__(self):
+        return f"ExcelError({self.code!r})"
+
+    def __str__(self):
+        return self.code
+
+
+class FormulaError(Exception):
+    """A formula the engine cannot compile or evaluate (unsupported function, bad syntax)."""
+
+
+_FUNC_RE = re.compile(r"(?<![A-Za-z0-9_.!$:])([A-Za-z_][A-Za-z0-9_.]*)\s*\(")
+_STRING_RE = re.compile(r'"(?:[^"]|"")*"')
+_OURS_RE = re.compile(r"^\s*=\s*(?:_xludf\.)?(VOL[A-Z]+)\s*\(", re.IGNORECASE)
+
+
+def _engine():
+    import formulas
+
+    return formulas
+
+
+_REGISTERED = False
+
+
+def our_function_names() -> tuple:
+    from .. import sheet
+
+    return tuple(sheet.__all__)
+
+
+def _register_ours():
+    """Register the worksheet functions (catalogue names, and with the _xludf. prefix)."""
+    global _REGISTERED
+    if _REGISTERED:
+        return
+    from .. import sheet
+
+    funcs = _engine().get_functions()
+    for name in sheet.__all__:
+        fn = getattr(sheet, name)
+        wrapped = _wrap_ours(fn)
+        funcs[name] = wrapped
+        funcs[f"_XLUDF.{name}"] = wrapped
+    _REGISTERED = True
+
+
+class _Result:
+    """Carries a worksheet function's list-of-rows result through the engine untouched."""
+
+    __slots__ = ("rows",)
+
+    def __init__(self, rows):
+        self.rows = rows
+
+
+def _wrap_ours(fn):
+    def call(*args):
+        return _Result(fn(*[_to_cells(a) for a in args]))
+
+    call.__name__ = fn.__name__
+    return call
+
+
+def _to_cells(value):
+    """An engine value as an Excel-shaped argument (lists of rows; errors as their literal)."""
+    if isinstance(value, np.ndarray):
+        if value.ndim == 0:
+            return _to_cells(value.item() if value.dtype != object else value[()])
+        if value.ndim == 1:
+            value = value.reshape(1, -1)
+        return [[_scalar_cell(v) for v in row] for row in value.tolist()]
+    return _scalar_cell(value)
+
+
+def _scalar_cell(v):
+    if isinstance(v, np.ndarray):
+        return _to_cells(v)
+    if v is None or _is_empty(v):
+        return None
+    if isinstance(v, ExcelError):
+        return v.code
+    if type(v).__name__ == "XlError":
+        return str(v)
+    if isinstance(v, (np.floating, np.integer)):
+        return v.item()
+    if isinstance(v, np.bool_):
+        return bool(v)
+    return v
+
+
+def _is_empty(v) -> bool:
+    return type(v).__name__ == "Token" and str(v) == "empty"
+
+
+def _empty():
+    import schedula
+
+    return schedula.EMPTY
+
+
+def to_engine(value):
+    """A plain value (or list of rows) as the engine wants its inputs: a 2-D object array."""
+    if isinstance(value, list):
+        arr = np.empty((len(value), max((len(r) for r in value), default=0)), dtype=object)
+        for i, row in enumerate(value):
+            for j, v in enumerate(row):
+                arr[i, j] = _engine_scalar(v)
+        return arr
+    arr = np.empty((1, 1), dtype=object)
+    arr[0, 0] = _engine_scalar(value)
+    return arr
+
+
+def _engine_scalar(v):
+    if v is None:
+        return _empty()
+    if isinstance(v, ExcelError):
+        return _engine().XlError(v.code) if hasattr(_engine(), "XlError") else v.code
+    return v
+
+
+def from_engine(value):
+    """An engine result as a plain value, or a list of rows for an array result."""
+    if isinstance(value, _Result):
+        return value.rows
+    if isinstance(value, np.ndarray):
+        if value.ndim == 0:
+            return from_engine(value[()])
+        if value.size == 1:
+            return from_engine(value.reshape(-1)[0])
+        if value.ndim == 1:
+            value = value.reshape(1, -1)
+        return [[_plain(v) for v in row] for row in value.tolist()]
+    return _plain(value)
+
+
+def _plain(v):
+    if isinstance(v, _Result):
+        return v.rows
+    if isinstance(v, np.ndarray):
+        return from_engine(v)
+    if v is None or _is_empty(v):
+        return None
+    if type(v).__name__ == "XlError":
+        code = str(v)
+        return ExcelError(code if code in ERROR_LITERALS else "#VALUE!")
+    if isinstance(v, np.bool_):
+        return bool(v)
+    if isinstance(v, (np.floating, np.integer)):
+        v = v.item()
+    if isinstance(v, float) and not np.isfinite(v):
+        return ExcelError("#NUM!")
+    return v
+
+
+@dataclass
+class Compiled:
+    text: str
+    inputs: tuple  # reference texts as the engine names them, e.g. 'A1:B3', "'MY SHEET'!A1", 'E2#'
+    _fn: object
+
+    def __call__(self, *values):
+        try:
+            return from_engine(self._fn(*[to_engine(v) for v in values]))
+        except Exception as exc:  # noqa: BLE001 - the engine's own failures become #VALUE!
+            return ExcelError("#VALUE!") if not isinstance(exc, FormulaError) else ExcelError("#NAME?")
+
+
+_CACHE: dict = {}
+
+
+def function_names(text: str) -> set:
+    """Function names called in a formula (string literals ignored), upper-case."""
+    bare = _STRING_RE.sub('""', text)
+    return {m.group(1).upper() for m in _FUNC_RE.finditer(bare)}
+
+
+def _known(name: str, funcs) -> bool:
+    n = name.upper()
+    for prefix in ("_XLFN._XLWS.", "_XLFN.", "_XLWS."):
+        if n.startswith(prefix):
+            n = n[len(prefix):]
+    return n in funcs or n == "ANCHORARRAY"
+
+
+def compile_formula(text: str) -> Compiled:
+    """Compile a formula ("=...") once; raise FormulaError if it cannot be evaluated here."""
+    hit = _CACHE.get(text)
+    if hit is not None:
+        return hit
+    _register_ours()
+    eng = _engine()
+    funcs = eng.get_functions()
+    unknown = sorted(n for n in function_names(text) if not _known(n, funcs))
+    if unknown:
+        raise FormulaError(f"function {', '.join(unknown)} is not supported by the headless engine")
+    try:
+        fn = eng.Parser().ast(text)[1].compile()
+    except Exception as exc:  # noqa: BLE001
+        raise FormulaError(f"formula {text} cannot be read ({type(exc).__name__}: {exc})") from None
+    out = Compiled(text=text, inputs=tuple(fn.inputs), _fn=fn)
+    _CACHE[text] = out
+    return out
+
+
+def top_level_call(text: str) -> str | None:
+    """The name of our function if it is the formula's top-level call (such a formula spills)."""
+    m = _OURS_RE.match(text)
+    if not m:
+        return None
+    name = m.group(1).upper()
+    if name not in our_function_names():
+        return None
+    # the call's closing parenthesis must end the formula
+    depth = 0
+    body = _STRING_RE.sub('""', text[m.end() - 1:])
+    for i, ch in enumerate(body):
+        if ch == "(":
+            depth += 1
+        elif ch == ")":
+            depth -= 1
+            if depth == 0:
+                return name if body[i + 1:].strip() == "" else None
+    return None

@@ -1,0 +1,466 @@
+"""Recalculate a workbook with no Excel: read, evaluate every formula, write formulas and values.
+
+Array results behave as Excel 365 shows them:
+
+* a plain formula whose top-level call is one of our functions spills over the rows and columns
+  its result needs; if a cell in the way is not empty the anchor shows ``#SPILL!``;
+* a legacy array formula over a fixed range fills that range, padding with ``#N/A``;
+* the spill reference ``E2#`` (stored in files as ``_xlfn.ANCHORARRAY(E2)``) reads the spilled
+  range.
+
+Standard formulas go through the formula engine (:mod:`xlfuncs.headless.engine`); their array
+results, where Excel 365 would spill them too, are reduced to their top-left value here.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import re
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .engine import ExcelError, FormulaError, compile_formula, top_level_call
+
+__all__ = ["RecalcError", "Workbook", "recalc", "RecalcReport"]
+
+_REF_RE = re.compile(
+    r"^(?:(?P<sheet>'(?:[^']|'')+'|[^!']+)!)?"
+    r"(?:(?P<c1>[A-Z]{1,3})?(?P<r1>\d+)?(?::(?P<c2>[A-Z]{1,3})?(?P<r2>\d+)?)?)(?P<spill>#)?$"
+)
+
+
+class RecalcError(Exception):
+    """Bad input for a recalculation: one line, naming the cell where it applies."""
+
+
+def _col_index(letters: str) -> int:
+    n = 0
+    for ch in letters:
+        n = n * 26 + (ord(ch) - 64)
+    return n
+
+
+def _col_letters(n: int) -> str:
+    out = ""
+    while n:
+        n, rem = divmod(n - 1, 26)
+        out = chr(65 + rem) + out
+    return out
+
+
+def cell_name(row: int, col: int) -> str:
+    return f"{_col_letters(col)}{row}"
+
+
+def _parse_cell(ref: str):
+    m = re.fullmatch(r"\$?([A-Z]{1,3})\$?(\d+)", ref.upper())
+    return int(m.group(2)), _col_index(m.group(1))
+
+
+def _parse_range(ref: str):
+    a, _, b = ref.partition(":")
+    r1, c1 = _parse_cell(a)
+    r2, c2 = _parse_cell(b) if b else (r1, c1)
+    return min(r1, r2), min(c1, c2), max(r1, r2), max(c1, c2)
+
+
+@dataclass
+class RecalcReport:
+    error_cells: list = field(default_factory=list)  # (address, shown value)
+    formulas: int = 0
+    spills: int = 0
+
+
+class Workbook:
+    """The cells of a workbook, evaluated on demand."""
+
+    def __init__(self, path):
+        import openpyxl
+        from openpyxl.worksheet.formula import ArrayFormula
+
+        self.path = Path(path)
+        try:
+            self.book = openpyxl.load_workbook(self.path, data_only=False)
+        except Exception as exc:  # noqa: BLE001 - any unreadable file is one line of bad input
+            raise RecalcError(f"{self.path.name} is not a readable .xlsx workbook ({type(exc).__name__}: {exc})") from None
+        self.sheets = {ws.title.upper(): ws.title for ws in self.book.worksheets}
+        from .xlsxpost import dynamic_anchors
+
+        dynamic = dynamic_anchors(self.path)  # spills stored by Excel 365 (or by us)
+        self.inputs: dict = {}  # (sheet, row, col) -> constant value
+        self.formulas: dict = {}  # (sheet, row, col) -> formula text
+        self.arrays: dict = {}  # anchor -> (r1, c1, r2, c2) of a legacy array formula
+        self.max_row: dict = {}
+        self.max_col: dict = {}
+        residue = []
+        for ws in self.book.worksheets:
+            t = ws.title
+            self.max_row[t] = ws.max_row
+            self.max_col[t] = ws.max_column
+            for row in ws.iter_rows():
+                for c in row:
+                    v = c.value
+                    if v is None:
+                        continue
+                    key = (t, c.row, c.column)
+                    if isinstance(v, ArrayFormula):
+                        self.formulas[key] = v.text if v.text.startswith("=") else "=" + v.text
+                        if (t, c.coordinate) in dynamic:
+                            residue.append((t, _parse_range(v.ref), key))
+                        else:
+                            self.arrays[key] = _parse_range(v.ref)
+                    elif isinstance(v, str) and v.startswith("=") and len(v) > 1:
+                        self.formulas[key] = v
+                    else:
+                        self.inputs[key] = _constant(v)
+        # the values a stored spill left in its range are results, not inputs: recomputed here
+        for t, (r1, c1, r2, c2), anchor in residue:
+            for r in range(r1, r2 + 1):
+                for c in range(c1, c2 + 1):
+                    if (t, r, c) != anchor:
+                        self.inputs.pop((t, r, c), None)
+        self.values: dict = {}
+        self.spills: dict = {}  # anchor -> (r1, c1, r2, c2)
+        self.owner: dict = {}  # spilled cell -> anchor
+        self._stack: set = set()
+        self._templates: dict = {}
+        self._anchors = {k for k, f in self.formulas.items() if k not in self.arrays and top_level_call(f)}
+        self.report = RecalcReport(formulas=len(self.formulas))
+
+    # ------------------------------------------------------------------ evaluation
+    def evaluate_all(self):
+        for key in sorted(self.formulas, key=lambda k: (k[0], k[1], k[2])):
+            self.value(key)
+        return self
+
+    def value(self, key):
+        if key in self.values:
+            return self.values[key]
+        if key in self.formulas:
+            return self._evaluate(key)
+        if key in self.inputs:
+            return self.inputs[key]
+        self._settle_spills(key[0])
+        anchor = self.owner.get(key)
+        if anchor is not None:
+            return self.values.get(key)
+        return None
+
+    def _settle_spills(self, sheet):
+        """Evaluate the spilling formulas of a sheet, so that empty cells know if a spill fills them."""
+        for a in sorted(k for k in self._anchors if k[0] == sheet and k not in self.values and k not in self._stack):
+            self._evaluate(a)
+
+    def _evaluate(self, key):
+        sheet, row, col = key
+        where = f"{sheet}!{cell_name(row, col)}"
+        if key in self._stack:
+            self.values[key] = ExcelError("#VALUE!")
+            self.report.error_cells.append((where, "circular reference"))
+            return self.values[key]
+        self._stack.add(key)
+        try:
+            text = self.formulas[key]
+            try:
+                compiled, names = self._compiled_for(key, text)
+            except FormulaError as exc:
+                raise RecalcError(f"{where}: {exc}") from None
+            self._text = text
+            args = [self._read(sheet, name, where) for name in names]
+            result = compiled(*args)
+        finally:
+            self._stack.discard(key)
+        if key in self.arrays:
+            self._fill_array(key, result)
+        elif key in self._anchors:
+            self._spill(key, result)
+        else:
+            self.values[key] = _top_left(result)
+        return self.values[key]
+
+    def _read(self, sheet, name: str, where: str):
+        m = _REF_RE.match(name.replace("$", ""))
+        if not m:
+            raise RecalcError(f"{where}: reference {name} is not understood")
+        target = sheet
+        if m.group("sheet"):
+            s = m.group("sheet")
+            if s.startswith("'"):
+                s = s[1:-1].replace("''", "'")
+            title = self.sheets.get(s.upper())
+            if title is None:
+                m2 = re.search(re.escape(s) + r"'?!", getattr(self, "_text", ""), re.IGNORECASE)
+                s = m2.group(0).rstrip("!").strip("'") if m2 else s
+                raise RecalcError(f"{where}: the formula refers to a sheet named {s} that the workbook does not have")
+            target = title
+        c1, r1, c2, r2 = m.group("c1"), m.group("r1"), m.group("c2"), m.group("r2")
+        if m.group("spill"):
+            anchor = (target, int(r1), _col_index(c1))
+            self.value(anchor)
+            if anchor in self.spills:
+                return self._block(target, *self.spills[anchor])
+            if anchor not in self.formulas:
+                return ExcelError("#REF!")
+            return self.values.get(anchor)
+        # whole columns and whole rows stop at the sheet's used area
+        top = int(r1) if r1 else 1
+        left = _col_index(c1) if c1 else 1
+        if c2 is None and r2 is None:
+            if c1 and r1:
+                return self.value((target, top, left))
+            raise RecalcError(f"{where}: reference {name} is not understood")
+        bottom = int(r2) if r2 else max(self.max_row[target], self._spill_extent(target)[0])
+        right = _col_index(c2) if c2 else max(self.max_col[target], self._spill_extent(target)[1])
+        return self._block(target, top, left, bottom, right)
+
+    def _spill_extent(self, sheet):
+        self._settle_spills(sheet)
+        rows = [ext[2] for a, ext in self.spills.items() if a[0] == sheet]
+        cols = [ext[3] for a, ext in self.spills.items() if a[0] == sheet]
+        return max(rows, default=0), max(cols, default=0)
+
+    def _block(self, sheet, r1, c1, r2, c2):
+        return [[self.value((sheet, r, c)) for c in range(c1, c2 + 1)] for r in range(r1, r2 + 1)]
+
+    def _compiled_for(self, key, text):
+        """Compile once per formula *shape*: a column of =LN(B3/B2)*100, =LN(B4/B3)*100, ...
+        shares one compiled formula, each cell reading its own references."""
+        _, row, col = key
+        tokens = _ref_tokens(text)
+        template = _template(text, tokens, row, col)
+        hit = self._templates.get(template)
+        if hit is not None:
+            compiled, first_names = hit
+            mine = [_engine_name(t) for _, _, t in tokens]
+            mapping = {}
+            for a, b in zip(first_names, mine):
+                if mapping.setdefault(a, b) != b:
+                    break
+            else:
+                if all(n in mapping for n in compiled.inputs):
+                    return compiled, [mapping[n] for n in compiled.inputs]
+        compiled = compile_formula(text)
+        self._templates[template] = (compiled, [_engine_name(t) for _, _, t in tokens])
+        return compiled, list(compiled.inputs)
+
+    # ------------------------------------------------------------------ arrays
+    def _fill_array(self, key, result):
+        sheet, _, _ = key
+        r1, c1, r2, c2 = self.arrays[key]
+        rows = result if isinstance(result, list) else [[result]]
+        single = not isinstance(result, list) or (len(rows) == 1 and len(rows[0]) == 1)
+        for r in range(r1, r2 + 1):
+            for c in range(c1, c2 + 1):
+                i, j = r - r1, c - c1
+                if single:
+                    v = rows[0][0]  # Excel repeats a single value over the array range
+                elif i < len(rows) and j < len(rows[i]):
+                    v = rows[i][j]
+                else:
+                    v = ExcelError("#N/A")
+                self.values[(sheet, r, c)] = _cell_value(v)
+                if (sheet, r, c) != key:
+                    self.owner[(sheet, r, c)] = key
+
+    def _spill(self, key, result):
+        sheet, row, col = key
+        rows = result if isinstance(result, list) else [[result]]
+        height = len(rows)
+        width = max((len(r) for r in rows), default=1)
+        r2, c2 = row + height - 1, col + width - 1
+        if height == 1 and width == 1:
+            self.values[key] = _cell_value(rows[0][0])
+            return
+        blocked = [
+            cell_name(r, c) for r in range(row, r2 + 1) for c in range(col, c2 + 1)
+            if (r, c) != (row, col)
+            and ((sheet, r, c) in self.inputs or (sheet, r, c) in self.formulas or (sheet, r, c) in self.owner)
+        ]
+        if blocked:
+            self.values[key] = ExcelError("#SPILL!")
+            self.report.error_cells.append((f"{sheet}!{cell_name(row, col)}", f"#SPILL! (blocked by {blocked[0]})"))
+            return
+        self.spills[key] = (row, col, r2, c2)
+        self.report.spills += 1
+        for i in range(height):
+            for j in range(width):
+                v = rows[i][j] if j < len(rows[i]) else None
+                self.values[(sheet, row + i, col + j)] = _cell_value(v)
+                if (i, j) != (0, 0):
+                    self.owner[(sheet, row + i, col + j)] = key
+
+    # ------------------------------------------------------------------ report
+    def collect_errors(self):
+        for key, v in self.values.items():
+            shown = None
+            if isinstance(v, ExcelError):
+                shown = v.code
+            elif isinstance(v, str) and v.startswith("ERROR:"):
+                shown = v
+            if shown and not any(a == f"{key[0]}!{cell_name(key[1], key[2])}" for a, _ in self.report.error_cells):
+                self.report.error_cells.append((f"{key[0]}!{cell_name(key[1], key[2])}", shown))
+        return self.report
+
+
+_STRING_RE = re.compile(r'"(?:[^"]|"")*"')
+_TOKEN_RE = re.compile(
+    r"(?<![A-Za-z0-9_.$])((?:'(?:[^']|'')+'|[A-Za-z0-9_.]+)!)?(\$?[A-Za-z]{1,3}\$?\d+(?::\$?[A-Za-z]{1,3}\$?\d+)?)(#?)(?![A-Za-z0-9_(!])"
+)
+
+
+def _ref_tokens(text: str):
+    """(start, end, token) of each cell or range reference outside string literals."""
+    masked = _STRING_RE.sub(lambda m: " " * len(m.group(0)), text)
+    out = []
+    for m in _TOKEN_RE.finditer(masked):
+        token = m.group(0)
+        if masked[: m.start()].rstrip().upper().endswith("ANCHORARRAY(") and not token.endswith("#"):
+            token += "#"  # the engine names a spill reference E2#
+        out.append((m.start(), m.end(), token))
+    return out
+
+
+def _engine_name(token: str) -> str:
+    """A reference token as the engine names its inputs: upper case, no $, E2# for a spill."""
+    sheet, _, ref = token.rpartition("!")
+    ref = ref.replace("$", "").upper()
+    if sheet:
+        return f"{sheet.upper()}!{ref}"
+    return ref
+
+
+def _template(text, tokens, row, col) -> str:
+    parts, pos = [], 0
+    for start, end, token in tokens:
+        parts.append(text[pos:start])
+        sheet, _, ref = token.rpartition("!")
+        sig = []
+        for cell in ref.rstrip("#").split(":"):
+            m = re.fullmatch(r"(\$?)([A-Za-z]{1,3})(\$?)(\d+)", cell)
+            c = _col_index(m.group(2).upper())
+            r = int(m.group(4))
+            sig.append(f"{'C' + str(c) if m.group(1) else 'c' + str(c - col)}{'R' + str(r) if m.group(3) else 'r' + str(r - row)}")
+        parts.append(f"<{sheet.upper()}|{':'.join(sig)}|{'#' if ref.endswith('#') else ''}>")
+        pos = end
+    parts.append(text[pos:])
+    return "".join(parts)
+
+
+def file_formula(text: str) -> str:
+    """A formula as Excel stores it in a file: the spill reference E2# as _xlfn.ANCHORARRAY(E2)."""
+    masked = _STRING_RE.sub(lambda m: " " * len(m.group(0)), text)
+    out, pos = [], 0
+    for m in re.finditer(r"((?:'(?:[^']|'')+'!|[A-Za-z0-9_.]+!)?\$?[A-Za-z]{1,3}\$?\d+)#", masked):
+        out.append(text[pos:m.start()])
+        out.append(f"_xlfn.ANCHORARRAY({text[m.start(1):m.end(1)]})")
+        pos = m.end()
+    out.append(text[pos:])
+    return "".join(out)
+
+
+def _constant(v):
+    if isinstance(v, _dt.datetime) or isinstance(v, _dt.date) or isinstance(v, _dt.time):
+        from openpyxl.utils.datetime import to_excel
+
+        return float(to_excel(v))
+    if isinstance(v, str):
+        if v in ("#N/A", "#VALUE!", "#REF!", "#DIV/0!", "#NUM!", "#NAME?", "#NULL!"):
+            return ExcelError(v)
+        return v
+    if isinstance(v, (bool, int, float)):
+        return v
+    return str(v)
+
+
+def _cell_value(v):
+    if isinstance(v, float) and v != v:
+        return ExcelError("#NUM!")
+    return v
+
+
+def _top_left(result):
+    if isinstance(result, list):
+        if not result or not result[0]:
+            return None
+        return _cell_value(result[0][0])
+    return _cell_value(result)
+
+
+# ---------------------------------------------------------------------- writing
+def recalc(src, dst=None, values_only: bool = False) -> tuple:
+    """Recalculate ``src`` and write ``dst`` (default BOOK.recalc.xlsx beside it); never the input.
+
+    Returns (output path, report).  Writes to a temporary file and renames it into place.
+    """
+    from openpyxl.worksheet.formula import ArrayFormula
+
+    from .xlsxpost import ExcelError as PostError, store_values
+
+    src = Path(src)
+    if not src.exists():
+        raise RecalcError(f"{src}: no such file")
+    if src.suffix.lower() not in (".xlsx", ".xlsm"):
+        raise RecalcError(f"{src.name}: not an .xlsx workbook")
+    dst = Path(dst) if dst else src.with_name(src.stem + ".recalc.xlsx")
+    if dst.suffix.lower() != ".xlsx":
+        raise RecalcError(f"{dst.name}: the output must be an .xlsx file")
+    if dst.exists() and dst.resolve() == src.resolve():
+        raise RecalcError(f"{dst}: refusing to write over the input; choose another output with -o")
+    if dst.resolve() == src.resolve():
+        raise RecalcError(f"{dst}: refusing to write over the input; choose another output with -o")
+
+    wb = Workbook(src).evaluate_all()
+    report = wb.collect_errors()
+    book = wb.book
+    book.calculation.fullCalcOnLoad = False
+    formula_values = {}
+    dynamic = {}
+
+    def plain(v):
+        if isinstance(v, ExcelError):
+            return v.code
+        return v
+
+    for (sheet, row, col), text in wb.formulas.items():
+        ws = book[sheet]
+        text = file_formula(text)
+        if not values_only and (sheet, row, col) not in wb.spills and (sheet, row, col) not in wb.arrays:
+            ws.cell(row=row, column=col).value = text
+        v = wb.values.get((sheet, row, col))
+        if values_only:
+            ws.cell(row=row, column=col).value = plain(v)
+            continue
+        if (sheet, row, col) in wb.arrays:
+            r1, c1, r2, c2 = wb.arrays[(sheet, row, col)]
+            ws.cell(row=row, column=col).value = ArrayFormula(
+                ref=f"{cell_name(r1, c1)}:{cell_name(r2, c2)}", text=text)
+        if (sheet, row, col) in wb.spills:
+            r1, c1, r2, c2 = wb.spills[(sheet, row, col)]
+            ref = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
+            ws.cell(row=row, column=col).value = ArrayFormula(ref=ref, text=text)
+            dynamic[(sheet, cell_name(row, col))] = ref
+        formula_values[(sheet, cell_name(row, col))] = PostError(v.code) if isinstance(v, ExcelError) else v
+    for cell, anchor in wb.owner.items():
+        sheet, row, col = cell
+        if not values_only and anchor in wb.arrays and cell in wb.formulas:
+            continue
+        book[sheet].cell(row=row, column=col).value = plain(wb.values.get(cell))
+
+    dst.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp1 = tempfile.mkstemp(suffix=".xlsx", dir=dst.parent, prefix=".volcast-")
+    os.close(fd)
+    tmp2 = tmp1 + ".post.xlsx"
+    try:
+        book.save(tmp1)
+        if values_only:
+            os.replace(tmp1, dst)
+        else:
+            store_values(tmp1, tmp2, formula_values, dynamic)
+            os.replace(tmp2, dst)
+    finally:
+        for t in (tmp1, tmp2):
+            if os.path.exists(t):
+                os.remove(t)
+    return dst, report
