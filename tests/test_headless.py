@@ -247,3 +247,24 @@ def test_libreoffice_shows_the_stored_values(tmp_path, done):
     data = (tmp_path / "out.csv").read_text().splitlines()
     ws = _vals(out, "Data")
     assert_allclose(float(data[2].split(",")[1]), ws["B3"].value, rtol=1e-9)
+
+
+def test_batched_columns_equal_cell_by_cell_evaluation(tmp_path):
+    """The column batch gives what the engine gives cell by cell, blanks and errors included."""
+    from xlfuncs.headless.recalc import Workbook
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for i in range(1, 41):
+        ws.cell(i, 1, None if i in (7, 20) else (0.0 if i == 30 else 100.0 + i))
+        if i > 1:
+            ws.cell(i, 2, f"=IFERROR(LN(A{i}/A{i - 1})*100, -99)")
+            ws.cell(i, 3, f"=SQRT(ABS(A{i}-$A$1))")
+    wb.save(tmp_path / "b.xlsx")
+    batched = Workbook(tmp_path / "b.xlsx").evaluate_all()
+    single = Workbook(tmp_path / "b.xlsx")
+    single._batch_elementwise = lambda *a, **k: None
+    single.evaluate_all()
+    assert batched.values.keys() == single.values.keys()
+    for k, v in single.values.items():
+        assert batched.values[k] == v, k
