@@ -21,30 +21,7 @@ import numpy as np
 __all__ = ["ExcelError", "Compiled", "compile_formula", "FormulaError", "our_function_names",
            "top_level_call", "ERROR_LITERALS"]
 
-ERROR_LITERALS = ("#NULL!", "#DIV/0!", "#VALUE!", "#REF!", "#NAME?", "#NUM!", "#N/A", "#SPILL!", "#CALC!")
-
-
-class ExcelError:
-    """An Excel error value such as #N/A (compares by its literal)."""
-
-    __slots__ = ("code",)
-
-    def __init__(self, code: str):
-        if code not in ERROR_LITERALS:
-            raise ValueError(f"not an Excel error literal: {code!r}")
-        self.code = code
-
-    def __eq__(self, other):
-        return isinstance(other, ExcelError) and other.code == self.code
-
-    def __hash__(self):
-        return hash(self.code)
-
-    def __repr__(self):
-        return f"ExcelError({self.code!r})"
-
-    def __str__(self):
-        return self.code
+from .xlsxpost import ERROR_LITERALS, ExcelError  # one error value for the engine and the writer
 
 
 class FormulaError(Exception):

@@ -457,7 +457,7 @@ def recalc(src, dst=None, values_only: bool = False) -> tuple:
     """
     from openpyxl.worksheet.formula import ArrayFormula
 
-    from .xlsxpost import ExcelError as PostError, store_values
+    from .xlsxpost import store_values
 
     src = Path(src)
     if not src.exists():
@@ -476,6 +476,10 @@ def recalc(src, dst=None, values_only: bool = False) -> tuple:
     report = wb.collect_errors()
     book = wb.book
     book.calculation.fullCalcOnLoad = False
+    # Excel recalculates a whole file on load when its calcId is older than Excel's own (from
+    # memory: 191029 is the engine of Excel 2019 and 365), which without the add-in would turn
+    # the stored values into #NAME?; openpyxl writes an Excel 2010 value
+    book.calculation.calcId = max(int(book.calculation.calcId or 0), 191029)
     formula_values = {}
     dynamic = {}
 
@@ -502,7 +506,7 @@ def recalc(src, dst=None, values_only: bool = False) -> tuple:
             ref = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
             ws.cell(row=row, column=col).value = ArrayFormula(ref=ref, text=text)
             dynamic[(sheet, cell_name(row, col))] = ref
-        formula_values[(sheet, cell_name(row, col))] = PostError(v.code) if isinstance(v, ExcelError) else v
+        formula_values[(sheet, cell_name(row, col))] = v
     for cell, anchor in wb.owner.items():
         sheet, row, col = cell
         if not values_only and anchor in wb.arrays and cell in wb.formulas:
