@@ -31,6 +31,24 @@ from .spec import ModelSpec
 
 __all__ = ["Likelihood", "LINEAR_VARIANCES"]
 
+try:  # SciPy's C filter without lfilter's argument checks: the recursions call it thousands of times
+    from scipy.signal._sigtools import _linear_filter as _raw_filter
+except ImportError:  # pragma: no cover - a SciPy without it
+    _raw_filter = None
+_ONE = np.array([1.0])
+
+
+def _filter(den, x, zi=None):
+    """lfilter([1], den, x[, zi]) along the last axis; den[0] == 1."""
+    if _raw_filter is not None:
+        try:
+            if zi is None:
+                return _raw_filter(_ONE, den, x, -1)
+            return _raw_filter(_ONE, den, x, -1, zi)[0]
+        except (TypeError, ValueError):  # pragma: no cover - a changed private signature
+            pass
+    return lfilter([1.0], den, x) if zi is None else lfilter([1.0], den, x, zi=zi)[0]
+
 LINEAR_VARIANCES = ("constant", "arch", "garch", "gjr", "igarch")
 _LOG2PI = math.log(2.0 * math.pi)
 
@@ -69,6 +87,10 @@ class Likelihood:
             self.rlag = np.zeros((0, self.n))
         self.y = self.r[self.a:]
         self.linear = spec.variance in LINEAR_VARIANCES
+        self._inv_n = 1.0 / self.n if self.n else math.nan
+        rows = ([-np.ones(self.n)] if spec.has_mu else []) + [-self.rlag[i] for i in range(spec.ar)]
+        self._de_const = np.array(rows) if rows else np.zeros((0, self.n))
+        self._de_const.setflags(write=False)
 
     # ------------------------------------------------------------------ parameter pieces
     def split(self, theta):
@@ -111,6 +133,8 @@ class Likelihood:
             e = y
         if not derivs:
             return e, None
+        if not s.ma:
+            return e, self._de_const  # the AR mean is linear in its parameters
         rows = []
         if s.has_mu:
             rows.append(-np.ones(self.n))
@@ -169,7 +193,7 @@ class Likelihood:
         if q:
             den = np.concatenate([[1.0], -beta])
             zi = sbar * np.cumsum(beta[::-1])[::-1]
-            sig2, _ = lfilter([1.0], den, x, zi=zi)
+            sig2 = _filter(den, x, zi)
         else:
             sig2 = x
         if not want:
@@ -347,7 +371,7 @@ class Likelihood:
         p, q, k = self.p, self.q, self.k
         e, de = self.residuals(theta, derivs=True)
         e2 = e * e
-        sbar = e2.mean()
+        sbar = e2.sum() * self._inv_n
         asym = s.asymmetric
         if asym:
             neg = e < 0
@@ -366,10 +390,10 @@ class Likelihood:
         if q:
             den = np.concatenate([[1.0], -beta])
             tail = np.cumsum(beta[::-1])[::-1]
-            sig2, _ = lfilter([1.0], den, x, zi=sbar * tail)
+            sig2 = _filter(den, x, sbar * tail)
         else:
             sig2 = x
-        if np.any(~(sig2 > 0)):
+        if not sig2.min() > 0:
             return math.nan, np.full(k, np.nan)
         es = e[self.s0:]
         with np.errstate(all="ignore"):
@@ -378,7 +402,7 @@ class Likelihood:
             val = float(np.sum(self.dist.logpdf(z, eta) - np.log(sd)))
             fz = self.dist.dlogpdf_dz(z, eta)
         w = -0.5 * (fz * z + 1.0) / sig2
-        lam = lfilter([1.0], den, w[::-1])[::-1] if q else w
+        lam = _filter(den, np.ascontiguousarray(w[::-1]))[::-1] if q else w
         g = np.zeros(k)
         base = self.idx["omega"]
         g[base] = lam.sum()
@@ -395,7 +419,7 @@ class Likelihood:
         nm = self.n_mean
         if nm:
             dE2 = 2.0 * e * de
-            dsbar = dE2.mean(axis=1)
+            dsbar = dE2.sum(axis=1) * self._inv_n
             if asym:
                 dN2 = np.where(neg, dE2, 0.0)
                 dnbar = dN2.mean(axis=1)
