@@ -794,7 +794,8 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None) -> FitResult:
     n_free = len(problem.free)
     if spec.variance in ("arch", "garch", "gjr") and best[0] > -_PENALTY / 2:
         pers = persistence_of(spec, dist, problem.full(best[1]))
-        if pers > 1.0 - 1e-3:
+        first_ok = math.isfinite(best[3]) and best[3] < _DECREMENT_TOL
+        if pers > 1.0 - 1e-3 or (pers > 0.9 and not first_ok):
             # the maximum lies on the stationarity bound: maximise on the bound itself
             kappa = dist.neg_sq_moment(problem.full(best[1])[lik.k - len(dist.param_names):]) if spec.variance == "gjr" else 0.5
             held = _Problem(lik, options, sum_to=1.0 - _BOUND_GAP, kappa=kappa)
