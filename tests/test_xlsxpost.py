@@ -10,7 +10,6 @@ Packaging Conventions), and the MS-XLSX extension for dynamic arrays.  Section n
 import csv
 import hashlib
 import math
-import re
 import shutil
 import subprocess
 import zipfile

@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 from scipy import optimize, stats
@@ -55,7 +55,6 @@ class FitResult:
     message: str
     estimated: bool = True  # False for a fit built from given parameters
     cov: np.ndarray | None = None
-    extras: dict = field(default_factory=dict)
 
     # ----- derived statistics ------------------------------------------------------------
     def value(self, name: str) -> float:
@@ -549,7 +548,6 @@ def _polish(problem: _Problem, u, scales, sbounds, max_steps=8):
     active = np.zeros(m, dtype=bool)
     H = None
     dec = math.inf
-    f = problem.negll(u)
     taken = 0
     for _ in range(max_steps):
         f_now, g = problem.fun_grad(u)

@@ -286,9 +286,6 @@ _CHOICES = {
 _DEFAULTS = {"presample": "mean", "se": "robust", "target": "no", "missing": "error"}
 _YES = {"yes": "yes", "true": "yes", "1": "yes", "on": "yes", "no": "no", "false": "no", "0": "no", "off": "no"}
 _INT_KEYS = {"periods": (1, 100000), "seed": (0, 2**31 - 1), "paths": (1000, 1_000_000)}
-# keys reserved for later parts of the product (backtests); accepted and kept so a fit table
-# written by a newer workbook still reads
-_EXTRA_KEYS: dict = {}
 
 
 @dataclass(frozen=True)
