@@ -145,6 +145,26 @@ def _cmd_recalc(args) -> int:
     return 0
 
 
+def _cmd_demo(args) -> int:
+    from .demo import run_demo
+
+    out_dir = args.out or "volcast-demo"
+    try:
+        h = run_demo(out_dir)
+    except Exception as exc:  # noqa: BLE001 - one line, as for any bad input
+        raise CliError(f"the demo failed: {exc}") from None
+    print(f"Volcast demo: synthetic Harrowgate Lane Global Equity Composite, monthly, to {h['last_date']}")
+    print(f"model {h['model']} with {h['dist']} shocks")
+    print(f"next month's volatility   {h['vol_1m']:6.2f} %  ({h['vol_1m_annualised']:.2f} % annualised)")
+    print(f"12-month volatility       {h['vol_12m']:6.2f} %  (of the cumulative 12-month return)")
+    print(f"{h['var_level']:.0%} one-month VaR      {h['var_1m']:6.2f} %  of value")
+    print(f"workbook: {h['workbook']}")
+    print("Model estimates, not advice; validate under your model-risk policy.")
+    if h["error_cells"]:
+        print(f"volcast: {len(h['error_cells'])} cells evaluate to errors", file=sys.stderr)
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
     sub = parser.add_subparsers(dest="command", required=True)
@@ -160,6 +180,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--out", help="output workbook (default: BOOK.recalc.xlsx beside the input)")
     p.add_argument("--values-only", action="store_true", help="write plain values instead of formulas with values")
     p.set_defaults(func=_cmd_recalc)
+    p = sub.add_parser("demo", help="the main job on the bundled demo data: refresh the monthly template, print the headline")
+    p.add_argument("--out", help="folder for the workbook (default: ./volcast-demo)")
+    p.set_defaults(func=_cmd_demo)
     return parser
 
 

@@ -1,0 +1,50 @@
+"""The main job on the bundled demo data: `volcast demo` fills the monthly template, recalculates
+it headlessly, and its headline agrees with direct calls of the worksheet functions."""
+
+import math
+
+import openpyxl
+import pytest
+from numpy.testing import assert_allclose
+
+from xlfuncs import VOLFIT, VOLFORECAST, VOLRISK
+from xlfuncs.cli import main
+from xlfuncs.demo import data_file, run_demo, template_file
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    return run_demo(tmp_path_factory.mktemp("demo"))
+
+
+def test_bundled_files_exist():
+    assert data_file().is_file() and template_file().is_file()
+
+
+def test_demo_workbook_has_no_error_cells(demo):
+    assert demo["error_cells"] == []
+    wb = openpyxl.load_workbook(demo["workbook"], data_only=True)
+    bad = [f"{ws.title}!{c.coordinate}" for ws in wb for row in ws.iter_rows() for c in row
+           if isinstance(c.value, str) and (c.value.startswith("ERROR:") or c.value.startswith("#"))]
+    assert bad == []
+
+
+def test_headline_matches_direct_calls(demo):
+    wb = openpyxl.load_workbook(demo["workbook"], data_only=True)
+    data = wb["Data"]
+    cells = [[data.cell(r, 3).value] for r in range(3, data.max_row + 1) if isinstance(data.cell(r, 3).value, float)]
+    fit = VOLFIT(cells, "AR(1)-GJR-GARCH(1,1)", "t", "periods=12")
+    vol = VOLFORECAST(cells, fit, 12, "vol")
+    cum = VOLFORECAST(cells, fit, 12, "cumvol")
+    assert_allclose(demo["vol_1m"], vol[0][0], rtol=1e-10)
+    assert_allclose(demo["vol_1m_annualised"], vol[0][0] * math.sqrt(12), rtol=1e-10)
+    assert_allclose(demo["vol_12m"], cum[-1][0], rtol=1e-10)
+    risk = {r[0]: r[1] for r in VOLRISK(cells, fit, 0.99, 1)}
+    assert_allclose(demo["var_1m"], risk["VaR"], rtol=1e-10)
+
+
+def test_cli_demo(tmp_path, capsys):
+    assert main(["demo", "--out", str(tmp_path)]) == 0
+    out = capsys.readouterr().out
+    assert "next month's volatility" in out and "99% one-month VaR" in out
+    assert (tmp_path / "volcast-demo.xlsx").exists()

@@ -1,0 +1,144 @@
+"""Build the template workbooks (openpyxl).  Run from the repository root:
+
+    python workbook_templates/build_templates.py
+
+Writes ``monthly_variance.xlsx`` beside this script.  The template's formulas read the model
+inputs from labelled cells, and its ranges reach well past the data so that a new month needs no
+formula edits.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from openpyxl import Workbook
+from openpyxl.styles import Alignment, Font, PatternFill
+
+HERE = Path(__file__).resolve().parent
+LAST_ROW = 1200  # data rows the formulas reach (about 100 years of months)
+RET = f"Data!$C$2:$C${LAST_ROW}"
+
+TITLE = Font(bold=True, size=14, color="1F3A5F")
+HEAD = Font(bold=True, color="FFFFFF")
+HEAD_FILL = PatternFill("solid", fgColor="1F3A5F")
+INPUT_FILL = PatternFill("solid", fgColor="FFF2CC")
+NOTE = Font(italic=True, color="555555")
+
+CAUTION = (
+    "Caution: every figure in this workbook is a model estimate, not investment advice and not a "
+    "guarantee of future risk. Forecasts and Value-at-Risk depend on the model, the data and the sample, "
+    "and can be badly wrong in a crisis. Validate any use under your firm's model-risk policy and the "
+    "regulation that applies to you."
+)
+
+
+def _header(ws, row, labels, col=1):
+    for j, text in enumerate(labels):
+        c = ws.cell(row, col + j, text)
+        c.font, c.fill = HEAD, HEAD_FILL
+
+
+def build_monthly(path: Path) -> Path:
+    wb = Workbook()
+    about = wb.active
+    about.title = "About"
+    about["A1"] = "Monthly variance forecast"
+    about["A1"].font = TITLE
+    lines = [
+        "Purpose: estimate an ARCH/GARCH-family model on monthly returns, forecast the variance for the next",
+        "month and out to a year, and turn it into volatility, Value-at-Risk and expected shortfall.",
+        "",
+        "Each month:",
+        "1. Paste the new month-end date and level at the bottom of the Data sheet (columns A and B).",
+        "2. Recalculate: in Excel with the Volcast add-in (F9), or headless: volcast recalc BOOK.xlsx -o OUT.xlsx.",
+        "3. Read the Forecast sheet; check the Model sheet's diagnostics and the comparison of candidates.",
+        "4. Keep the estimate history (volcast refresh appends a row each month).",
+        "",
+        "Model inputs are the yellow cells on the Inputs sheet. Returns are percent log returns.",
+        "",
+        CAUTION,
+    ]
+    for i, text in enumerate(lines, start=3):
+        about.cell(i, 1, text)
+    about.cell(3 + len(lines) - 1, 1).font = Font(bold=True, color="9C0006")
+    about.column_dimensions["A"].width = 110
+
+    data = wb.create_sheet("Data")
+    _header(data, 1, ["date", "level", "return (%)"])
+    for r in range(3, LAST_ROW + 1):
+        data.cell(r, 3, f'=IF(OR(B{r}="",B{r - 1}=""),"",LN(B{r}/B{r - 1})*100)').number_format = "0.000"
+    data.column_dimensions["A"].width = 12
+    data.column_dimensions["C"].width = 12
+    data.freeze_panes = "A2"
+
+    inp = wb.create_sheet("Inputs")
+    inp["A1"] = "Model inputs (yellow cells)"
+    inp["A1"].font = TITLE
+    rows = [
+        ("model", "AR(1)-GJR-GARCH(1,1)", "model string, e.g. GARCH(1,1)"),
+        ("distribution", "t", "normal, t, skewt or ged"),
+        ("options", "periods=12", "e.g. se=hessian; nu=8"),
+        ("forecast horizon (months)", 12, "1 to 600"),
+        ("VaR level", 0.99, "e.g. 0.99"),
+        ("periods per year", 12, "12 for monthly data"),
+    ]
+    for i, (label, value, hint) in enumerate(rows, start=3):
+        inp.cell(i, 1, label)
+        c = inp.cell(i, 2, value)
+        c.fill = INPUT_FILL
+        inp.cell(i, 3, hint).font = NOTE
+    inp.column_dimensions["A"].width = 28
+    inp.column_dimensions["B"].width = 24
+    inp.column_dimensions["C"].width = 30
+
+    model = wb.create_sheet("Model")
+    model["A1"] = "Fit table"
+    model["A1"].font = TITLE
+    model["A3"] = f"=VOLFIT({RET}, Inputs!$B$3, Inputs!$B$4, Inputs!$B$5)"
+    model["H1"] = "Diagnostics of the standardised residuals"
+    model["H1"].font = TITLE
+    model["H3"] = f"=VOLTESTS({RET}, A3#)"
+    model["H14"] = "Candidate models (ranked by BIC)"
+    model["H14"].font = TITLE
+    model["H16"] = f'=VOLCOMPARE({RET}, "GARCH(1,1), GJR-GARCH(1,1), EGARCH(1,1)", "normal, t", Inputs!$B$5)'
+    for col, w in zip("ABCDEFGH", (16, 22, 12, 10, 12, 2, 2, 22)):
+        model.column_dimensions[col].width = w
+
+    fc = wb.create_sheet("Forecast")
+    fc["A1"] = "Variance forecast (returns in percent)"
+    fc["A1"].font = TITLE
+    fc["A3"] = f'=VOLFORECAST({RET}, Model!$A$3#, Inputs!$B$6, "table")'
+    _header(fc, 3, ["annualised vol (%)", "cumulative vol (%)"], col=6)
+    for r in range(4, 4 + 60):
+        fc.cell(r, 6, f'=IF(ISNUMBER(D{r}),D{r}*SQRT(Inputs!$B$8),"")').number_format = "0.00"
+        fc.cell(r, 7, f'=IF(ISNUMBER(E{r}),SQRT(E{r}),"")').number_format = "0.00"
+    fc["I1"] = "Value-at-Risk and expected shortfall (losses, % of value)"
+    fc["I1"].font = TITLE
+    for j, months in enumerate((1, 3, 12)):
+        col = 9 + 3 * j
+        fc.cell(2, col, f"{months} month{'s' if months > 1 else ''}").font = Font(bold=True)
+        fc.cell(3, col, f"=VOLRISK({RET}, Model!$A$3#, Inputs!$B$7, {months})")
+    fc["A70"] = CAUTION
+    fc["A70"].font = NOTE
+    fc["A70"].alignment = Alignment(wrap_text=False)
+
+    vol = wb.create_sheet("Volatility")
+    vol["A1"] = "in-sample conditional volatility (%)"
+    vol["A1"].font = HEAD
+    vol["A1"].fill = HEAD_FILL
+    vol["A2"] = f'=VOLSERIES({RET}, Model!$A$3#, "vol")'
+
+    hist = wb.create_sheet("History")
+    _header(hist, 1, ["run time", "last date", "nobs", "model", "loglik", "vol 1m (%)", "vol 12m (%)", "VaR 1m"])
+
+    path.parent.mkdir(parents=True, exist_ok=True)
+    wb.save(path)
+    return path
+
+
+def main():
+    print(build_monthly(HERE / "monthly_variance.xlsx"))
+
+
+if __name__ == "__main__":
+    main()
