@@ -129,7 +129,9 @@ def build_monthly(path: Path) -> Path:
     vol["A2"] = f'=VOLSERIES({RET}, Model!$A$3#, "vol")'
 
     hist = wb.create_sheet("History")
-    _header(hist, 1, ["run time", "last date", "nobs", "model", "loglik", "vol 1m (%)", "vol 12m (%)", "VaR 1m"])
+    # one row per refresh (volcast refresh); parameter columns are added by name as they appear
+    _header(hist, 1, ["run time", "last date", "nobs", "model", "dist", "loglik", "vol 1m (%)", "vol 12m (%)",
+                      "VaR 1m (%)", "flag"])
 
     path.parent.mkdir(parents=True, exist_ok=True)
     wb.save(path)

@@ -165,6 +165,22 @@ def _cmd_demo(args) -> int:
     return 0
 
 
+def _cmd_refresh(args) -> int:
+    from .headless.recalc import RecalcError
+    from .headless.refresh import refresh
+
+    try:
+        out, row, report, added = refresh(args.book, args.data, args.out)
+    except RecalcError as exc:
+        raise CliError(str(exc)) from None
+    print(f"added {added} new observation(s) to {row['last date']}; wrote {out}")
+    print(f"history: loglik {row['loglik']:.4f}, vol 1m {row['vol 1m (%)']:.3f} %, VaR 1m {row['VaR 1m (%)']:.3f} %"
+          + (f"; {row['flag']}" if row["flag"] else ""))
+    if report.error_cells:
+        print(f"volcast: {len(report.error_cells)} cells evaluate to errors", file=sys.stderr)
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
     sub = parser.add_subparsers(dest="command", required=True)
@@ -180,6 +196,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--out", help="output workbook (default: BOOK.recalc.xlsx beside the input)")
     p.add_argument("--values-only", action="store_true", help="write plain values instead of formulas with values")
     p.set_defaults(func=_cmd_recalc)
+    p = sub.add_parser("refresh", help="append new observations from a CSV, recalculate, add an estimate-history row")
+    p.add_argument("book", help="the workbook (monthly template layout); never written over")
+    p.add_argument("--data", required=True, help="CSV with columns date (YYYY-MM-DD) and level")
+    p.add_argument("-o", "--out", required=True, help="output workbook")
+    p.set_defaults(func=_cmd_refresh)
     p = sub.add_parser("demo", help="the main job on the bundled demo data: refresh the monthly template, print the headline")
     p.add_argument("--out", help="folder for the workbook (default: ./volcast-demo)")
     p.set_defaults(func=_cmd_demo)

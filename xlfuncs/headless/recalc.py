@@ -76,7 +76,7 @@ class RecalcReport:
 class Workbook:
     """The cells of a workbook, evaluated on demand."""
 
-    def __init__(self, path):
+    def __init__(self, path, dynamic_hint=()):
         import openpyxl
         from openpyxl.worksheet.formula import ArrayFormula
 
@@ -88,7 +88,9 @@ class Workbook:
         self.sheets = {ws.title.upper(): ws.title for ws in self.book.worksheets}
         from .xlsxpost import dynamic_anchors
 
-        dynamic = dynamic_anchors(self.path)  # spills stored by Excel 365 (or by us)
+        # spills stored by Excel 365 (or by us); a caller that re-saved the file through openpyxl,
+        # which drops the cell metadata, passes the anchors it read before
+        dynamic = dynamic_anchors(self.path) | set(dynamic_hint)
         self.inputs: dict = {}  # (sheet, row, col) -> constant value
         self.formulas: dict = {}  # (sheet, row, col) -> formula text
         self.arrays: dict = {}  # anchor -> (r1, c1, r2, c2) of a legacy array formula
@@ -450,7 +452,7 @@ def _top_left(result):
 
 
 # ---------------------------------------------------------------------- writing
-def recalc(src, dst=None, values_only: bool = False) -> tuple:
+def recalc(src, dst=None, values_only: bool = False, dynamic_hint=()) -> tuple:
     """Recalculate ``src`` and write ``dst`` (default BOOK.recalc.xlsx beside it); never the input.
 
     Returns (output path, report).  Writes to a temporary file and renames it into place.
@@ -472,7 +474,7 @@ def recalc(src, dst=None, values_only: bool = False) -> tuple:
     if dst.resolve() == src.resolve():
         raise RecalcError(f"{dst}: refusing to write over the input; choose another output with -o")
 
-    wb = Workbook(src).evaluate_all()
+    wb = Workbook(src, dynamic_hint).evaluate_all()
     report = wb.collect_errors()
     book = wb.book
     book.calculation.fullCalcOnLoad = False
