@@ -48,3 +48,12 @@ def test_cli_demo(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "next month's volatility" in out and "99% one-month VaR" in out
     assert (tmp_path / "volcast-demo.xlsx").exists()
+
+
+def test_demo_writes_a_chart_and_keeps_the_native_charts(demo):
+    import zipfile
+
+    png = demo["chart"]
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 10_000
+    with zipfile.ZipFile(demo["workbook"]) as z:
+        assert sum(n.startswith("xl/charts/chart") for n in z.namelist()) == 2

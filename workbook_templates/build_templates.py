@@ -12,6 +12,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from openpyxl import Workbook
+from openpyxl.chart import LineChart, Reference
 from openpyxl.styles import Alignment, Font, PatternFill
 
 HERE = Path(__file__).resolve().parent
@@ -127,6 +128,23 @@ def build_monthly(path: Path) -> Path:
     vol["A1"].font = HEAD
     vol["A1"].fill = HEAD_FILL
     vol["A2"] = f'=VOLSERIES({RET}, Model!$A$3#, "vol")'
+
+    # native charts: the history of conditional volatility, and the forecast term structure
+    chart = LineChart()
+    chart.title = "Conditional volatility (% per month)"
+    chart.y_axis.title = "%"
+    chart.x_axis.number_format = "yyyy"
+    chart.add_data(Reference(vol, min_col=1, min_row=1, max_row=LAST_ROW), titles_from_data=True)
+    chart.set_categories(Reference(data, min_col=1, min_row=2, max_row=LAST_ROW))
+    chart.width, chart.height = 24, 9
+    vol.add_chart(chart, "C2")
+    term = LineChart()
+    term.title = "Forecast term structure: annualised volatility (%)"
+    term.x_axis.title = "months ahead"
+    term.add_data(Reference(fc, min_col=6, min_row=3, max_row=15), titles_from_data=True)
+    term.set_categories(Reference(fc, min_col=1, min_row=4, max_row=15))
+    term.width, term.height = 16, 8
+    fc.add_chart(term, "I13")
 
     hist = wb.create_sheet("History")
     # one row per refresh (volcast refresh); parameter columns are added by name as they appear

@@ -158,7 +158,7 @@ def _cmd_demo(args) -> int:
     print(f"next month's volatility   {h['vol_1m']:6.2f} %  ({h['vol_1m_annualised']:.2f} % annualised)")
     print(f"12-month volatility       {h['vol_12m']:6.2f} %  (of the cumulative 12-month return)")
     print(f"{h['var_level']:.0%} one-month VaR      {h['var_1m']:6.2f} %  of value")
-    print(f"workbook: {h['workbook']}")
+    print(f"workbook: {h['workbook']}   chart: {h['chart']}")
     print("Model estimates, not advice; validate under your model-risk policy.")
     if h["error_cells"]:
         print(f"volcast: {len(h['error_cells'])} cells evaluate to errors", file=sys.stderr)

@@ -61,8 +61,10 @@ def run_demo(out_dir) -> dict:
     risk = {fc.cell(r, 9).value: fc.cell(r, 10).value for r in range(3, 11)}
     vol1 = float(fc["D4"].value)
     cum12 = float(fc["E15"].value) ** 0.5
+    chart = write_chart(out, out_dir / "volcast-demo.png")
     return {
         "workbook": out,
+        "chart": chart,
         "last_date": rows[-1]["date"],
         "model": values["Model"]["B4"].value,
         "dist": values["Model"]["B5"].value,
@@ -73,3 +75,38 @@ def run_demo(out_dir) -> dict:
         "var_level": float(risk["level"]),
         "error_cells": report.error_cells,
     }
+
+
+def write_chart(workbook, png) -> Path:
+    """A PNG of the in-sample conditional volatility with the forecast, annualised (matplotlib)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    import openpyxl
+
+    wb = openpyxl.load_workbook(workbook, data_only=True)
+    data, vol, fc, inp = wb["Data"], wb["Volatility"], wb["Forecast"], wb["Inputs"]
+    scale = float(inp["B8"].value) ** 0.5
+    dates, hist = [], []
+    for r in range(2, data.max_row + 1):
+        d, v = data.cell(r, 1).value, vol.cell(r, 1).value
+        if isinstance(d, dt.datetime) and isinstance(v, (int, float)):
+            dates.append(d)
+            hist.append(v * scale)
+    steps = [fc.cell(r, 6).value for r in range(4, 64) if isinstance(fc.cell(r, 6).value, (int, float))]
+    last = dates[-1]
+    fdates = [dt.datetime(last.year + (last.month + k - 1) // 12, (last.month + k - 1) % 12 + 1, 28)
+              for k in range(1, len(steps) + 1)]
+    fig, ax = plt.subplots(figsize=(10, 4.2), dpi=110)
+    ax.plot(dates, hist, color="#1F3A5F", lw=1.2, label="in-sample conditional volatility")
+    ax.plot([last] + fdates, [hist[-1]] + steps, color="#C0504D", lw=2, label="forecast")
+    ax.set_ylabel("annualised volatility (%)")
+    ax.set_title("Synthetic demo series: conditional volatility and forecast (model estimates, not advice)")
+    ax.grid(alpha=0.3)
+    ax.legend(loc="upper left")
+    fig.tight_layout()
+    png = Path(png)
+    fig.savefig(png)
+    plt.close(fig)
+    return png
