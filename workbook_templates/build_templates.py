@@ -2,7 +2,7 @@
 
     python workbook_templates/build_templates.py
 
-Writes ``monthly_variance.xlsx`` beside this script.  The template's formulas read the model
+Writes ``monthly_variance.xlsx`` and ``daily_variance.xlsx`` beside this script.  The template's formulas read the model
 inputs from labelled cells, and its ranges reach well past the data so that a new month needs no
 formula edits.
 """
@@ -13,11 +13,14 @@ from pathlib import Path
 
 from openpyxl import Workbook
 from openpyxl.chart import LineChart, Reference
-from openpyxl.styles import Alignment, Font, PatternFill
+from openpyxl.styles import Font, PatternFill
 
 HERE = Path(__file__).resolve().parent
-LAST_ROW = 1200  # data rows the formulas reach (about 100 years of months)
-RET = f"Data!$C$2:$C${LAST_ROW}"
+MONTHLY = dict(name="Monthly", last_row=1200, periods=12, horizon=12, risk=(1, 3, 12), unit="month",
+               model="AR(1)-GJR-GARCH(1,1)", note="12 for monthly data")
+# daily data: next month is the next 21 trading days, a year 252
+DAILY = dict(name="Daily", last_row=4000, periods=252, horizon=252, risk=(21, 63, 252), unit="trading day",
+             model="GJR-GARCH(1,1)", note="252 for daily data")
 
 TITLE = Font(bold=True, size=14, color="1F3A5F")
 HEAD = Font(bold=True, color="FFFFFF")
@@ -39,18 +42,21 @@ def _header(ws, row, labels, col=1):
         c.font, c.fill = HEAD, HEAD_FILL
 
 
-def build_monthly(path: Path) -> Path:
+def build(path: Path, cfg: dict) -> Path:
+    LAST_ROW = cfg["last_row"]
+    RET = f"Data!$C$2:$C${LAST_ROW}"
+    unit = cfg["unit"]
     wb = Workbook()
     about = wb.active
     about.title = "About"
-    about["A1"] = "Monthly variance forecast"
+    about["A1"] = f"{cfg['name']} variance forecast"
     about["A1"].font = TITLE
     lines = [
-        "Purpose: estimate an ARCH/GARCH-family model on monthly returns, forecast the variance for the next",
+        f"Purpose: estimate an ARCH/GARCH-family model on {cfg['name'].lower()} returns, forecast the variance for the next",
         "month and out to a year, and turn it into volatility, Value-at-Risk and expected shortfall.",
         "",
         "Each month:",
-        "1. Paste the new month-end date and level at the bottom of the Data sheet (columns A and B).",
+        f"1. Paste the new dates and levels (one row per {unit}) at the bottom of the Data sheet (columns A and B).",
         "2. Recalculate: in Excel with the Volcast add-in (F9), or headless: volcast recalc BOOK.xlsx -o OUT.xlsx.",
         "3. Read the Forecast sheet; check the Model sheet's diagnostics and the comparison of candidates.",
         "4. Keep the estimate history (volcast refresh appends a row each month).",
@@ -76,12 +82,12 @@ def build_monthly(path: Path) -> Path:
     inp["A1"] = "Model inputs (yellow cells)"
     inp["A1"].font = TITLE
     rows = [
-        ("model", "AR(1)-GJR-GARCH(1,1)", "model string, e.g. GARCH(1,1)"),
+        ("model", cfg["model"], "model string, e.g. GARCH(1,1)"),
         ("distribution", "t", "normal, t, skewt or ged"),
-        ("options", "periods=12", "e.g. se=hessian; nu=8"),
-        ("forecast horizon (months)", 12, "1 to 600"),
+        ("options", f"periods={cfg['periods']}", "e.g. se=hessian; nu=8"),
+        (f"forecast horizon ({unit}s)", cfg["horizon"], "1 to 600"),
         ("VaR level", 0.99, "e.g. 0.99"),
-        ("periods per year", 12, "12 for monthly data"),
+        ("periods per year", cfg["periods"], cfg["note"]),
     ]
     for i, (label, value, hint) in enumerate(rows, start=3):
         inp.cell(i, 1, label)
@@ -110,18 +116,26 @@ def build_monthly(path: Path) -> Path:
     fc["A1"].font = TITLE
     fc["A3"] = f'=VOLFORECAST({RET}, Model!$A$3#, Inputs!$B$6, "table")'
     _header(fc, 3, ["annualised vol (%)", "cumulative vol (%)"], col=6)
-    for r in range(4, 4 + 60):
+    for r in range(4, 4 + cfg["horizon"]):
         fc.cell(r, 6, f'=IF(ISNUMBER(D{r}),D{r}*SQRT(Inputs!$B$8),"")').number_format = "0.00"
         fc.cell(r, 7, f'=IF(ISNUMBER(E{r}),SQRT(E{r}),"")').number_format = "0.00"
     fc["I1"] = "Value-at-Risk and expected shortfall (losses, % of value)"
     fc["I1"].font = TITLE
-    for j, months in enumerate((1, 3, 12)):
+    for j, (months, steps) in enumerate(zip((1, 3, 12), cfg["risk"])):
         col = 9 + 3 * j
-        fc.cell(2, col, f"{months} month{'s' if months > 1 else ''}").font = Font(bold=True)
-        fc.cell(3, col, f"=VOLRISK({RET}, Model!$A$3#, Inputs!$B$7, {months})")
-    fc["A70"] = CAUTION
-    fc["A70"].font = NOTE
-    fc["A70"].alignment = Alignment(wrap_text=False)
+        label = f"{months} month{'s' if months > 1 else ''}" + (f" ({steps} {unit}s)" if steps != months else "")
+        fc.cell(2, col, label).font = Font(bold=True)
+        fc.cell(3, col, f"=VOLRISK({RET}, Model!$A$3#, Inputs!$B$7, {steps})")
+    if cfg["risk"][0] != 1:
+        # next month = the cumulative variance of the next trading days
+        n = cfg["risk"][0]
+        fc["I31"] = f"next month's variance ({n} {unit}s, %^2)"
+        fc["L31"] = f"=INDEX(_xlfn.ANCHORARRAY(A3), {n + 1}, 5)"
+        fc["I32"] = "next month's volatility (%)"
+        fc["L32"] = "=SQRT(L31)"
+        fc["I33"] = "annualised (%)"
+        fc["L33"] = f"=L32*SQRT(Inputs!$B$8/{n})"
+    fc.cell(5 + cfg["horizon"], 1, CAUTION).font = NOTE
 
     vol = wb.create_sheet("Volatility")
     vol["A1"] = "in-sample conditional volatility (%)"
@@ -131,7 +145,7 @@ def build_monthly(path: Path) -> Path:
 
     # native charts: the history of conditional volatility, and the forecast term structure
     chart = LineChart()
-    chart.title = "Conditional volatility (% per month)"
+    chart.title = f"Conditional volatility (% per {unit})"
     chart.y_axis.title = "%"
     chart.x_axis.number_format = "yyyy"
     chart.add_data(Reference(vol, min_col=1, min_row=1, max_row=LAST_ROW), titles_from_data=True)
@@ -140,9 +154,9 @@ def build_monthly(path: Path) -> Path:
     vol.add_chart(chart, "C2")
     term = LineChart()
     term.title = "Forecast term structure: annualised volatility (%)"
-    term.x_axis.title = "months ahead"
-    term.add_data(Reference(fc, min_col=6, min_row=3, max_row=15), titles_from_data=True)
-    term.set_categories(Reference(fc, min_col=1, min_row=4, max_row=15))
+    term.x_axis.title = f"{unit}s ahead"
+    term.add_data(Reference(fc, min_col=6, min_row=3, max_row=3 + cfg["horizon"]), titles_from_data=True)
+    term.set_categories(Reference(fc, min_col=1, min_row=4, max_row=3 + cfg["horizon"]))
     term.width, term.height = 16, 8
     fc.add_chart(term, "I13")
 
@@ -157,7 +171,8 @@ def build_monthly(path: Path) -> Path:
 
 
 def main():
-    print(build_monthly(HERE / "monthly_variance.xlsx"))
+    print(build(HERE / "monthly_variance.xlsx", MONTHLY))
+    print(build(HERE / "daily_variance.xlsx", DAILY))
 
 
 if __name__ == "__main__":

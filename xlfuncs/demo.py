@@ -36,6 +36,22 @@ def template_file(name: str = _TEMPLATE) -> Path:
     return _packaged("xlfuncs.workbook_templates", name, "workbook_templates")
 
 
+def load_levels(template, series, book) -> list:
+    """Copy ``template`` to ``book`` with the dates and levels of the CSV ``series`` in its Data sheet."""
+    import openpyxl
+
+    shutil.copyfile(template, book)
+    wb = openpyxl.load_workbook(book)
+    ws = wb["Data"]
+    with open(series, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    for i, row in enumerate(rows, start=2):
+        ws.cell(i, 1, dt.date.fromisoformat(row["date"])).number_format = "yyyy-mm-dd"
+        ws.cell(i, 2, float(row["level"]))
+    wb.save(book)
+    return rows
+
+
 def run_demo(out_dir) -> dict:
     import openpyxl
 
@@ -44,15 +60,7 @@ def run_demo(out_dir) -> dict:
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     book = out_dir / "volcast-demo-input.xlsx"
-    shutil.copyfile(template_file(), book)
-    wb = openpyxl.load_workbook(book)
-    ws = wb["Data"]
-    with open(data_file(), newline="") as fh:
-        rows = list(csv.DictReader(fh))
-    for i, row in enumerate(rows, start=2):
-        ws.cell(i, 1, dt.date.fromisoformat(row["date"])).number_format = "yyyy-mm-dd"
-        ws.cell(i, 2, float(row["level"]))
-    wb.save(book)
+    rows = load_levels(template_file(), data_file(), book)
     out, report = recalc(book, out_dir / "volcast-demo.xlsx")
     book.unlink()
     values = openpyxl.load_workbook(out, data_only=True)

@@ -1,0 +1,76 @@
+"""Every shipped template, filled with its demo series and recalculated headlessly: no error
+cells; the daily template's next-month variance is the cumulative variance of the next 21
+trading days (common practice: 21 trading days a month), as a direct call computes it."""
+
+import openpyxl
+import pytest
+from numpy.testing import assert_allclose
+
+from xlfuncs import VOLFIT, VOLFORECAST
+from xlfuncs.demo import data_file, load_levels, template_file
+from xlfuncs.headless.recalc import recalc
+
+CASES = [("monthly_variance.xlsx", "equity_composite_monthly.csv"),
+         ("daily_variance.xlsx", "commodity_basket_daily.csv")]
+
+
+@pytest.fixture(scope="module", params=CASES, ids=[c[0] for c in CASES])
+def filled(request, tmp_path_factory):
+    template, series = request.param
+    d = tmp_path_factory.mktemp("t")
+    load_levels(template_file(template), data_file(series), d / "in.xlsx")
+    out, report = recalc(d / "in.xlsx", d / "out.xlsx")
+    return template, out, report
+
+
+def test_no_error_cells(filled):
+    _, out, report = filled
+    assert report.error_cells == []
+    wb = openpyxl.load_workbook(out, data_only=True)
+    bad = [f"{ws.title}!{c.coordinate}" for ws in wb for row in ws.iter_rows() for c in row
+           if isinstance(c.value, str) and (c.value.startswith("ERROR:") or c.value.startswith("#"))]
+    assert bad == []
+
+
+def test_daily_next_month_is_21_trading_days(filled):
+    template, out, _ = filled
+    if not template.startswith("daily"):
+        pytest.skip("the monthly template forecasts months directly")
+    wb = openpyxl.load_workbook(out, data_only=True)
+    data = wb["Data"]
+    cells = [[data.cell(r, 3).value] for r in range(3, data.max_row + 1) if isinstance(data.cell(r, 3).value, float)]
+    fit = VOLFIT(cells, "GJR-GARCH(1,1)", "t", "periods=252")
+    cum = VOLFORECAST(cells, fit, 21, "cumvar")
+    assert_allclose(wb["Forecast"]["L31"].value, cum[-1][0], rtol=1e-10)
+    assert_allclose(wb["Forecast"]["L32"].value, cum[-1][0] ** 0.5, rtol=1e-10)
+
+
+@pytest.mark.skipif(__import__("shutil").which("soffice") is None,
+                    reason="LibreOffice (soffice) is not installed here; CI installs it")
+def test_libreoffice_opens_the_values_only_output(filled, tmp_path):
+    """A real spreadsheet application (LibreOffice, headless, one CSV per sheet) shows the same
+    numbers as the workbook and no error cells.  The values-only output is the one for it:
+    LibreOffice recomputes array formulas itself and does not know our functions."""
+    import csv
+    import subprocess
+
+    template, out, _ = filled
+    src = out.parent / "in.xlsx"
+    vout, _ = recalc(src, tmp_path / "values.xlsx", values_only=True)
+    subprocess.run(["soffice", "--headless", "--convert-to",
+                    "csv:Text - txt - csv (StarCalc):44,34,76,1,,0,false,true,false,false,false,-1",
+                    "--outdir", str(tmp_path), str(vout)], check=True, capture_output=True, timeout=300)
+    wb = openpyxl.load_workbook(out, data_only=True)
+    for sheet in ("Model", "Forecast"):
+        rows = list(csv.reader(open(tmp_path / f"values-{sheet}.csv", newline="")))
+        flat = [c for r in rows for c in r]
+        assert not any(c.startswith("#") or c.startswith("Err:") or c.startswith("ERROR:") for c in flat), sheet
+        ws = wb[sheet]
+        checked = 0
+        for i, r in enumerate(rows, start=1):
+            for j, c in enumerate(r, start=1):
+                v = ws.cell(i, j).value
+                if isinstance(v, float) and c:
+                    assert_allclose(float(c), v, rtol=1e-9, atol=1e-12)
+                    checked += 1
+        assert checked > 20
