@@ -168,3 +168,22 @@ def test_property_volcompare_never_raises(returns, models, dist):
                 assert c is None or type(c) in (bool, int, float, str)
                 if type(c) is float:
                     assert math.isfinite(c)
+
+
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")
+@_PROPERTY
+@given(fit=_fits, periods=_small_horizons, paths=_small_horizons, shocks=_returns)
+def test_property_volsim_and_volnews_never_raise(fit, periods, paths, shocks):
+    from xlfuncs import VOLNEWS, VOLSIM
+
+    _check_result(VOLSIM(fit, periods, paths, 3))
+    _check_result(VOLNEWS(fit, shocks))
+
+
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")
+@_PROPERTY
+@given(returns=_returns, var=_returns, level=_levels)
+def test_property_volcoverage_never_raises(returns, var, level):
+    from xlfuncs import VOLCOVERAGE
+
+    _check_result(VOLCOVERAGE(returns, var, level))

@@ -9,7 +9,8 @@ Layers (imports run one way): ``xlfuncs.core`` (estimation, NumPy/SciPy only) <-
 ``xlfuncs.cli`` (the ``volcast`` command).
 """
 
-from .sheet import VOLCOMPARE, VOLFIT, VOLFORECAST, VOLLOGLIK, VOLRISK, VOLSERIES, VOLTESTS
+from .sheet import VOLCOMPARE, VOLCOVERAGE, VOLFIT, VOLFORECAST, VOLLOGLIK, VOLNEWS, VOLRISK, VOLSERIES, VOLSIM, VOLTESTS
 
-__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE"]
+__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE", "VOLCOVERAGE", "VOLSIM",
+           "VOLNEWS"]
 __version__ = "0.1.0"

@@ -83,3 +83,30 @@ def VOLRISK(returns, fit, level=None, horizon=None):
 def VOLCOMPARE(returns, models, dist=None, options=None):
     """Fit candidate models to the same returns and rank them by BIC."""
     return sheet.VOLCOMPARE(returns, models, dist, options)
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("var", ndim=2, doc="VaR series, losses as positive numbers, one per return row")
+@xw.arg("level", doc="Confidence level of the VaR, e.g. 0.99 (default)")
+def VOLCOVERAGE(returns, var, level=None):
+    """Coverage tests of a VaR series: exceptions, Kupiec, Christoffersen, traffic-light zone."""
+    return sheet.VOLCOVERAGE(returns, var, level)
+
+
+@xw.func
+@xw.arg("fit", ndim=2, doc=_FIT)
+@xw.arg("periods", doc="Periods per path")
+@xw.arg("paths", doc="Number of paths, one column each (default 1)")
+@xw.arg("seed", doc="Random seed, for reproducible paths")
+def VOLSIM(fit, periods=None, paths=None, seed=None):
+    """Simulated return paths from a fit, one column per path."""
+    return sheet.VOLSIM(fit, periods, paths, seed)
+
+
+@xw.func
+@xw.arg("fit", ndim=2, doc=_FIT)
+@xw.arg("shocks", ndim=2, doc="Shocks (return surprises) to evaluate, a column or row")
+def VOLNEWS(fit, shocks):
+    """News-impact curve: next-period variance for each shock."""
+    return sheet.VOLNEWS(fit, shocks)

@@ -27,12 +27,16 @@ from ..core.forecast import MAX_HORIZON, forecast as core_forecast, in_sample
 from ..core.spec import parse_model, parse_options
 from .cache import FIT_CACHE
 from ..core.diagnostics import MIN_OBS as MIN_TEST_OBS, default_lags, max_lags, run_tests
+from ..core.coverage import coverage as core_coverage, news_impact
 from ..core.errors import VolcastError
+from ..core.forecast import DEFAULT_SEED
+from ..core.simulate import simulate
 from ..core.risk import risk as core_risk
 from .cells import SheetError, as_rows, float_arg, int_arg, is_blank, is_error_text, returns_column, sheet_function, text_arg
 from .fittable import decode, encode
 
-__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE", "fit_from_cells"]
+__all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE",
+           "VOLCOVERAGE", "VOLSIM", "VOLNEWS", "fit_from_cells"]
 
 _SERIES_WHAT = ("variance", "vol", "resid", "stdresid")
 _FORECAST_WHAT = ("variance", "vol", "cumvar", "cumvol", "mean", "table")
@@ -230,3 +234,54 @@ def VOLRISK(returns, fit, level=None, horizon=None):
         raise SheetError("the risk figures overflow: the fit's parameters make the variance explode")
     return [["measure", "value"], ["VaR", float(rk.var)], ["ES", float(rk.es)], ["mean", float(rk.mean)],
             ["sd", float(rk.sd)], ["level", float(rk.level)], ["horizon", int(rk.horizon)], ["method", rk.method]]
+
+
+@sheet_function
+def VOLCOVERAGE(returns, var, level=None):
+    """Coverage tests of any VaR series (losses positive, one per return row) against the returns."""
+    lv = float_arg(level, "level", 0.99, "0.99")
+    r = returns_column(returns, "returns", "skip")
+    v = returns_column(var, "var", "skip")
+    if r.length != v.length:
+        raise SheetError(f"returns and var must cover the same rows, got {r.length} and {v.length} cells")
+    common = sorted(set(r.positions.tolist()) & set(v.positions.tolist()))
+    if not common:
+        raise SheetError("returns and var have no row where both hold a number")
+    rmap = dict(zip(r.positions.tolist(), r.values.tolist()))
+    vmap = dict(zip(v.positions.tolist(), v.values.tolist()))
+    c = core_coverage([rmap[i] for i in common], [vmap[i] for i in common], lv)
+    rows = [["measure", "value"], ["forecasts", c.forecasts], ["exceptions", c.exceptions],
+            ["exception rate", c.rate], ["expected rate", c.expected_rate],
+            ["Kupiec LR", c.lr_uc], ["Kupiec p_value", c.p_uc],
+            ["independence LR", c.lr_ind], ["independence p_value", c.p_ind],
+            ["conditional coverage LR", c.lr_cc], ["conditional coverage p_value", c.p_cc], ["zone", c.zone]]
+    return [[k, _cell(val) if isinstance(val, float) else val] for k, val in rows]
+
+
+_MAX_SIM_CELLS = 1_000_000
+
+
+@sheet_function
+def VOLSIM(fit, periods=None, paths=None, seed=None):
+    """Simulated return paths from a fit, one column per path, reproducible by seed."""
+    n = int_arg(periods, "periods", 1, _MAX_SIM_CELLS)
+    m = int_arg(paths, "paths", 1, 10_000, default=1)
+    s = int_arg(seed, "seed", 0, 2**31 - 1, default=DEFAULT_SEED)
+    if n * m > _MAX_SIM_CELLS:
+        raise SheetError(f"periods x paths is {n * m} cells; at most {_MAX_SIM_CELLS}")
+    table = decode(fit, "fit")
+    out = simulate(table.spec, table.dist, table.params, n, m, rng=np.random.default_rng(s))
+    if not np.all(np.isfinite(out)):
+        raise SheetError("the simulated paths overflow: the fit's parameters make the variance explode")
+    return out.tolist()
+
+
+@sheet_function
+def VOLNEWS(fit, shocks):
+    """The news-impact curve: next-period variance for each shock, lagged variance at its long-run level."""
+    table = decode(fit, "fit")
+    data = returns_column(shocks, "shocks", "skip")
+    curve = news_impact(table.as_fit_result(), data.values)
+    if not np.all(np.isfinite(curve)):
+        raise SheetError("the news-impact curve overflows at these shocks")
+    return data.spread(curve)
