@@ -187,3 +187,14 @@ def test_property_volcoverage_never_raises(returns, var, level):
     from xlfuncs import VOLCOVERAGE
 
     _check_result(VOLCOVERAGE(returns, var, level))
+
+
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")
+@_PROPERTY
+@given(returns=_returns, fit=st.one_of(_fits, st.sampled_from(["ARCH(1)", "CONST", "FOO", None])),
+       window=st.one_of(st.integers(-1, 70), st.sampled_from([None, 2.5, "x"])),
+       options=st.sampled_from([None, "what=series", "scheme=expanding; refit=7", "scheme=x", "refit=0", "bogus=1"]))
+def test_property_volbacktest_never_raises(returns, fit, window, options):
+    from xlfuncs import VOLBACKTEST
+
+    _check_result(VOLBACKTEST(returns, fit, window, None, options))

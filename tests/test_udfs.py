@@ -20,7 +20,7 @@ from test_package import CATALOGUE  # noqa: E402  (tests/ is on sys.path under p
 SOURCE = Path(udfs.__file__).read_text()
 TREE = ast.parse(SOURCE)
 FUNCS = {node.name: node for node in TREE.body if isinstance(node, ast.FunctionDef)}
-RANGE_ARGS = {"returns", "fit", "models", "var", "shocks"}
+RANGE_ARGS = {"returns", "fit", "models", "var", "shocks", "fit_or_model"}
 
 
 def test_module_exposes_exactly_the_catalogue():

@@ -9,8 +9,8 @@ Layers (imports run one way): ``xlfuncs.core`` (estimation, NumPy/SciPy only) <-
 ``xlfuncs.cli`` (the ``volcast`` command).
 """
 
-from .sheet import VOLCOMPARE, VOLCOVERAGE, VOLFIT, VOLFORECAST, VOLLOGLIK, VOLNEWS, VOLRISK, VOLSERIES, VOLSIM, VOLTESTS
+from .sheet import VOLBACKTEST, VOLCOMPARE, VOLCOVERAGE, VOLFIT, VOLFORECAST, VOLLOGLIK, VOLNEWS, VOLRISK, VOLSERIES, VOLSIM, VOLTESTS
 
 __all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE", "VOLCOVERAGE", "VOLSIM",
-           "VOLNEWS"]
+           "VOLNEWS", "VOLBACKTEST"]
 __version__ = "0.1.0"

@@ -110,3 +110,14 @@ def VOLSIM(fit, periods=None, paths=None, seed=None):
 def VOLNEWS(fit, shocks):
     """News-impact curve: next-period variance for each shock."""
     return sheet.VOLNEWS(fit, shocks)
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("fit_or_model", ndim=2, doc="A fit table (parameters kept) or a model string (re-estimated as it walks)")
+@xw.arg("window", doc="Estimation window: the first forecast is for the next return")
+@xw.arg("level", doc="VaR confidence level, e.g. 0.99 (default)")
+@xw.arg("options", doc='e.g. "scheme=expanding; refit=5; dist=t; what=series"')
+def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None):
+    """Walk-forward backtest: coverage tests, traffic-light zone, QLIKE and MSE."""
+    return sheet.VOLBACKTEST(returns, fit_or_model, window, level, options)

@@ -92,7 +92,7 @@ def coverage(returns, var, level: float) -> Coverage:
         raise InputError(f"returns and var must have one value per row each, got {r.size} and {v.size}")
     hits = (r < -v).astype(int)
     n, x = len(hits), int(hits.sum())
-    p = 1.0 - level
+    p = round(1.0 - level, 12)
     lr_uc, p_uc = kupiec(n, x, p)
     lr_ind, p_ind = christoffersen(hits)
     lr_cc = lr_uc + lr_ind

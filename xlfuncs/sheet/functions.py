@@ -27,6 +27,7 @@ from ..core.forecast import MAX_HORIZON, forecast as core_forecast, in_sample
 from ..core.spec import parse_model, parse_options
 from .cache import FIT_CACHE
 from ..core.diagnostics import MIN_OBS as MIN_TEST_OBS, default_lags, max_lags, run_tests
+from ..core.backtest import backtest as core_backtest
 from ..core.coverage import coverage as core_coverage, news_impact
 from ..core.errors import VolcastError
 from ..core.forecast import DEFAULT_SEED
@@ -36,7 +37,7 @@ from .cells import SheetError, as_rows, float_arg, int_arg, is_blank, is_error_t
 from .fittable import decode, encode
 
 __all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE",
-           "VOLCOVERAGE", "VOLSIM", "VOLNEWS", "fit_from_cells"]
+           "VOLCOVERAGE", "VOLSIM", "VOLNEWS", "VOLBACKTEST", "fit_from_cells"]
 
 _SERIES_WHAT = ("variance", "vol", "resid", "stdresid")
 _FORECAST_WHAT = ("variance", "vol", "cumvar", "cumvol", "mean", "table")
@@ -285,3 +286,66 @@ def VOLNEWS(fit, shocks):
     if not np.all(np.isfinite(curve)):
         raise SheetError("the news-impact curve overflows at these shocks")
     return data.spread(curve)
+
+
+_BACKTEST_KEYS = {"scheme": ("rolling", "expanding"), "what": ("summary", "series")}
+
+
+def _split_backtest_options(text):
+    """The backtest's own keys (scheme, refit, what, dist) and the rest for the fits."""
+    own, rest = {}, []
+    for chunk in (text or "").split(";"):
+        key, sep, value = chunk.partition("=")
+        k = key.strip().lower()
+        if sep and k in ("scheme", "refit", "what", "dist"):
+            v = value.strip().lower()
+            if k in _BACKTEST_KEYS and v not in _BACKTEST_KEYS[k]:
+                raise SheetError(f"options: {k}={value.strip()} is not allowed; use "
+                                 + " or ".join(f"{k}={c}" for c in _BACKTEST_KEYS[k]))
+            if k == "refit":
+                v = int_arg(v, "options: refit", 1, 100_000)
+            own[k] = v
+        elif chunk.strip():
+            rest.append(chunk)
+    return own, "; ".join(rest) or None
+
+
+@sheet_function
+def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None):
+    """Walk-forward backtest of one-step variance and VaR forecasts: coverage tests, zone, losses."""
+    lv = float_arg(level, "level", 0.99, "0.99")
+    own, rest = _split_backtest_options(text_arg(options, "options"))
+    rows = as_rows(fit_or_model)
+    filled = [c for r in rows for c in r if not is_blank(c)]
+    if len(filled) == 1 and isinstance(filled[0], str) and not is_error_text(filled[0]):
+        try:
+            spec = parse_model(filled[0])
+        except VolcastError as exc:
+            raise SheetError(f"fit_or_model must be a fit table or a model string: {exc}") from None
+        dist = get_distribution(own.get("dist", "normal"))
+        opts = parse_options(rest)
+        params = None
+    else:
+        table = decode(fit_or_model, "fit_or_model")
+        spec, dist, opts, params = table.spec, table.dist, table.options, table.params
+    data = returns_column(returns, "returns", opts.missing)
+    w = int_arg(window, "window", 1, max(1, len(data.values) - 1))
+    key = ("backtest",) + FIT_CACHE.key(data.values, spec.canonical, dist.name, opts.estimation_key) + (
+        w, lv, own.get("scheme", "rolling"), own.get("refit", 1), None if params is None else tuple(params))
+    bt = FIT_CACHE.get_or_fit(key, lambda: core_backtest(
+        data.values, spec, dist, opts, w, lv, own.get("scheme", "rolling"), own.get("refit", 1), params))
+    if own.get("what") == "series":
+        out = [["index", "variance", "VaR", "return", "exception"]]
+        for i, v, var, a, x in zip(bt.index, bt.variance, bt.var, bt.actual, bt.exception):
+            out.append([int(data.positions[i]) + 1, float(v), float(var), float(a), bool(x)])
+        return out
+    c = bt.coverage
+    summary = [["measure", "value"], ["forecasts", c.forecasts], ["exceptions", c.exceptions],
+               ["exception rate", c.rate], ["expected rate", c.expected_rate],
+               ["Kupiec LR", c.lr_uc], ["Kupiec p_value", c.p_uc],
+               ["independence LR", c.lr_ind], ["independence p_value", c.p_ind],
+               ["conditional coverage LR", c.lr_cc], ["conditional coverage p_value", c.p_cc],
+               ["zone", c.zone], ["mean QLIKE", bt.qlike], ["mean MSE", bt.mse],
+               ["scheme", own.get("scheme", "rolling")], ["refit every", own.get("refit", 1)],
+               ["estimations", bt.fits]]
+    return [[k, _cell(v) if isinstance(v, float) else v] for k, v in summary]
