@@ -228,3 +228,16 @@ def test_module_run_on_the_demo_file():
     assert lines["model"].split()[1] == "GARCH(1,1)"
     assert lines["converged"].split()[1] in ("TRUE", "FALSE")
 
+
+
+def test_cli_backtest_with_chart(tmp_path, capsys):
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parent.parent / "demo_data" / "demo_returns.csv"
+    png = tmp_path / "bt.png"
+    assert main(["backtest", str(demo), "--window", "300", "--refit", "20", "--png", str(png)]) == 0
+    out = capsys.readouterr().out
+    assert "forecasts 69" in out and "zone" in out and "Kupiec LR" in out
+    assert png.read_bytes()[:4] == b"\x89PNG"
+    assert main(["backtest", str(demo), "--window", "3"]) == 2
+    assert capsys.readouterr().err.startswith("volcast: window must be")

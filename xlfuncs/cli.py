@@ -181,6 +181,75 @@ def _cmd_refresh(args) -> int:
     return 0
 
 
+class _Progress:
+    """A one-line progress bar on standard error (only when it is a terminal, or when forced)."""
+
+    def __init__(self, label: str, force: bool = False):
+        self.label = label
+        self.on = force or sys.stderr.isatty()
+        self.last = -1
+
+    def __call__(self, done: int, total: int):
+        if not self.on or total <= 0:
+            return
+        pct = int(100 * done / total)
+        if pct != self.last:
+            self.last = pct
+            bar = "#" * (pct // 4)
+            print(f"\r{self.label} [{bar:<25}] {pct:3d}% ({done}/{total})", end="", file=sys.stderr, flush=True)
+        if done == total:
+            print(file=sys.stderr)
+
+
+def _cmd_backtest(args) -> int:
+    import numpy as np
+
+    from .core.backtest import backtest
+    from .core.distributions import get_distribution
+    from .core.errors import VolcastError
+    from .core.spec import parse_model
+
+    returns = read_returns_csv(args.file, args.column)
+    try:
+        spec, dist, opts = parse_model(args.model), get_distribution(args.dist), parse_options(args.options)
+        bt = backtest(np.array(returns), spec, dist, opts, args.window, args.level, args.scheme, args.refit,
+                      progress=_Progress("backtest", args.progress))
+    except VolcastError as exc:
+        raise CliError(str(exc)) from None
+    c = bt.coverage
+    print(f"{spec.canonical} with {dist.name} shocks, {args.scheme} window {args.window}, refit every {args.refit}")
+    print(f"forecasts {c.forecasts}  exceptions {c.exceptions} ({c.rate:.2%}, expected {c.expected_rate:.2%})  zone {c.zone}")
+    print(f"Kupiec LR {c.lr_uc:.3f} (p {c.p_uc:.3f})  independence LR {c.lr_ind:.3f} (p {c.p_ind:.3f})  "
+          f"conditional coverage LR {c.lr_cc:.3f} (p {c.p_cc:.3f})")
+    print(f"mean QLIKE {bt.qlike:.4f}  mean MSE {bt.mse:.4g}  estimations {bt.fits}")
+    if args.png:
+        _backtest_png(bt, args.png, f"{spec.canonical}-{dist.name}")
+        print(f"chart: {args.png}")
+    return 0
+
+
+def _backtest_png(bt, path, title):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    import numpy as np
+
+    fig, ax = plt.subplots(figsize=(10, 4), dpi=110)
+    ax.plot(bt.index, np.abs(bt.actual - bt.mean), color="#9AA5B1", lw=0.8, label="|return - mean forecast|")
+    ax.plot(bt.index, np.sqrt(bt.variance), color="#1F3A5F", lw=1.4, label="forecast volatility")
+    ax.plot(bt.index, bt.var, color="#C0504D", lw=1.0, ls="--", label="VaR")
+    x = bt.exception
+    ax.scatter(bt.index[x], np.abs(bt.actual[x] - bt.mean[x]), color="#C0504D", zorder=3, s=18, label="exceptions")
+    ax.set_title(f"Backtest {title}: {bt.coverage.exceptions} exceptions in {bt.coverage.forecasts} (model estimates)")
+    ax.set_xlabel("observation")
+    ax.grid(alpha=0.3)
+    ax.legend(loc="upper left", fontsize=8)
+    fig.tight_layout()
+    fig.savefig(path)
+    plt.close(fig)
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
     sub = parser.add_subparsers(dest="command", required=True)
@@ -201,6 +270,19 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--data", required=True, help="CSV with columns date (YYYY-MM-DD) and level")
     p.add_argument("-o", "--out", required=True, help="output workbook")
     p.set_defaults(func=_cmd_refresh)
+    p = sub.add_parser("backtest", help="walk-forward backtest of one-step variance and VaR forecasts on a CSV column")
+    p.add_argument("file", help="CSV file with a header row")
+    p.add_argument("--column", help="column name or number (default as for fit)")
+    p.add_argument("--model", default="GARCH(1,1)")
+    p.add_argument("--dist", default="normal")
+    p.add_argument("--options", default=None, help="fit options, e.g. nu=8")
+    p.add_argument("--window", type=int, required=True, help="estimation window (observations)")
+    p.add_argument("--level", type=float, default=0.99)
+    p.add_argument("--scheme", choices=("rolling", "expanding"), default="rolling")
+    p.add_argument("--refit", type=int, default=1, help="re-estimate every N periods (default 1)")
+    p.add_argument("--png", help="write a chart of forecast volatility, absolute returns and exceptions")
+    p.add_argument("--progress", action="store_true", help="show the progress bar even when not on a terminal")
+    p.set_defaults(func=_cmd_backtest)
     p = sub.add_parser("demo", help="the main job on the bundled demo data: refresh the monthly template, print the headline")
     p.add_argument("--out", help="folder for the workbook (default: ./volcast-demo)")
     p.set_defaults(func=_cmd_demo)
