@@ -250,6 +250,27 @@ def _backtest_png(bt, path, title):
     plt.close(fig)
 
 
+def _cmd_batch(args) -> int:
+    from .batch import read_panel, run_batch, write_tidy
+
+    try:
+        panel = read_panel(args.panel, args.id, args.value)
+        if not panel:
+            raise ValueError(f"{args.panel}: no series found")
+        parse_options(args.options)
+        rows = run_batch(panel, args.model, args.dist, args.options, args.horizon, args.level,
+                         workers=args.workers, cluster=args.cluster, progress=_Progress("batch", args.progress))
+        out = write_tidy(rows, args.out)
+    except (ValueError, InputError) as exc:
+        raise CliError(str(exc)) from None
+    failed = sorted({r[0] for r in rows if r[1] == "error"})
+    print(f"fitted {len(panel) - len(failed)} of {len(panel)} series; wrote {out}")
+    if failed:
+        shown = ", ".join(failed[:10]) + (f" and {len(failed) - 10} more" if len(failed) > 10 else "")
+        print(f"volcast: {len(failed)} series failed (see their error rows): {shown}", file=sys.stderr)
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
     sub = parser.add_subparsers(dest="command", required=True)
@@ -283,6 +304,20 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--png", help="write a chart of forecast volatility, absolute returns and exceptions")
     p.add_argument("--progress", action="store_true", help="show the progress bar even when not on a terminal")
     p.set_defaults(func=_cmd_backtest)
+    p = sub.add_parser("batch", help="fit many series from one CSV or Parquet panel in parallel; tidy output")
+    p.add_argument("panel", help="CSV or Parquet: wide (a column per series) or long (with --id and --value)")
+    p.add_argument("--id", help="long panel: the series id column")
+    p.add_argument("--value", help="long panel: the returns column")
+    p.add_argument("--model", default="GARCH(1,1)")
+    p.add_argument("--dist", default="normal")
+    p.add_argument("--options", default=None)
+    p.add_argument("--horizon", type=int, default=12)
+    p.add_argument("--level", type=float, default=0.99)
+    p.add_argument("--workers", type=int, default=None, help="processes (default: one per core)")
+    p.add_argument("--cluster", help="address of a Dask scheduler (needs volcast[cluster])")
+    p.add_argument("-o", "--out", required=True, help="output .csv or .parquet")
+    p.add_argument("--progress", action="store_true", help="show the progress bar even when not on a terminal")
+    p.set_defaults(func=_cmd_batch)
     p = sub.add_parser("demo", help="the main job on the bundled demo data: refresh the monthly template, print the headline")
     p.add_argument("--out", help="folder for the workbook (default: ./volcast-demo)")
     p.set_defaults(func=_cmd_demo)
