@@ -251,12 +251,19 @@ def VOLCOVERAGE(returns, var, level=None):
     rmap = dict(zip(r.positions.tolist(), r.values.tolist()))
     vmap = dict(zip(v.positions.tolist(), v.values.tolist()))
     c = core_coverage([rmap[i] for i in common], [vmap[i] for i in common], lv)
-    rows = [["measure", "value"], ["forecasts", c.forecasts], ["exceptions", c.exceptions],
+    return _measure_rows(_coverage_rows(c))
+
+
+def _coverage_rows(c):
+    return [["forecasts", c.forecasts], ["exceptions", c.exceptions],
             ["exception rate", c.rate], ["expected rate", c.expected_rate],
             ["Kupiec LR", c.lr_uc], ["Kupiec p_value", c.p_uc],
             ["independence LR", c.lr_ind], ["independence p_value", c.p_ind],
             ["conditional coverage LR", c.lr_cc], ["conditional coverage p_value", c.p_cc], ["zone", c.zone]]
-    return [[k, _cell(val) if isinstance(val, float) else val] for k, val in rows]
+
+
+def _measure_rows(rows):
+    return [["measure", "value"]] + [[k, _cell(v) if isinstance(v, float) else v] for k, v in rows]
 
 
 _MAX_SIM_CELLS = 1_000_000
@@ -339,13 +346,6 @@ def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None):
         for i, v, var, a, x in zip(bt.index, bt.variance, bt.var, bt.actual, bt.exception):
             out.append([int(data.positions[i]) + 1, float(v), float(var), float(a), bool(x)])
         return out
-    c = bt.coverage
-    summary = [["measure", "value"], ["forecasts", c.forecasts], ["exceptions", c.exceptions],
-               ["exception rate", c.rate], ["expected rate", c.expected_rate],
-               ["Kupiec LR", c.lr_uc], ["Kupiec p_value", c.p_uc],
-               ["independence LR", c.lr_ind], ["independence p_value", c.p_ind],
-               ["conditional coverage LR", c.lr_cc], ["conditional coverage p_value", c.p_cc],
-               ["zone", c.zone], ["mean QLIKE", bt.qlike], ["mean MSE", bt.mse],
-               ["scheme", own.get("scheme", "rolling")], ["refit every", own.get("refit", 1)],
-               ["estimations", bt.fits]]
-    return [[k, _cell(v) if isinstance(v, float) else v] for k, v in summary]
+    return _measure_rows(_coverage_rows(bt.coverage) + [
+        ["mean QLIKE", bt.qlike], ["mean MSE", bt.mse], ["scheme", own.get("scheme", "rolling")],
+        ["refit every", own.get("refit", 1)], ["estimations", bt.fits]])
