@@ -271,15 +271,20 @@ def _cmd_batch(args) -> int:
     return 0
 
 
+def _model_args(p):
+    """--model, --dist and --options, the same for every command that fits."""
+    p.add_argument("--model", default="GARCH(1,1)", help="model string, e.g. AR(1)-GJR-GARCH(1,1) (default GARCH(1,1))")
+    p.add_argument("--dist", default="normal", help="normal, t, skewt or ged (default normal)")
+    p.add_argument("--options", default=None, help='options string, e.g. "se=hessian; nu=8"')
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
     sub = parser.add_subparsers(dest="command", required=True)
     p = sub.add_parser("fit", help="estimate a model on a CSV column and print the fit table")
     p.add_argument("file", help="CSV file with a header row")
     p.add_argument("--column", help='column name or 1-based number (default: a column named "return", else the last numeric one)')
-    p.add_argument("--model", default="GARCH(1,1)", help="model string, e.g. AR(1)-GJR-GARCH(1,1) (default GARCH(1,1))")
-    p.add_argument("--dist", default="normal", help="normal, t, skewt or ged (default normal)")
-    p.add_argument("--options", default=None, help='options string, e.g. "se=hessian; nu=8"')
+    _model_args(p)
     p.set_defaults(func=_cmd_fit)
     p = sub.add_parser("recalc", help="recalculate a workbook with no Excel; keeps formulas, stores values")
     p.add_argument("book", help="the .xlsx workbook to recalculate (never written over)")
@@ -294,9 +299,7 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("backtest", help="walk-forward backtest of one-step variance and VaR forecasts on a CSV column")
     p.add_argument("file", help="CSV file with a header row")
     p.add_argument("--column", help="column name or number (default as for fit)")
-    p.add_argument("--model", default="GARCH(1,1)")
-    p.add_argument("--dist", default="normal")
-    p.add_argument("--options", default=None, help="fit options, e.g. nu=8")
+    _model_args(p)
     p.add_argument("--window", type=int, required=True, help="estimation window (observations)")
     p.add_argument("--level", type=float, default=0.99)
     p.add_argument("--scheme", choices=("rolling", "expanding"), default="rolling")
@@ -308,9 +311,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("panel", help="CSV or Parquet: wide (a column per series) or long (with --id and --value)")
     p.add_argument("--id", help="long panel: the series id column")
     p.add_argument("--value", help="long panel: the returns column")
-    p.add_argument("--model", default="GARCH(1,1)")
-    p.add_argument("--dist", default="normal")
-    p.add_argument("--options", default=None)
+    _model_args(p)
     p.add_argument("--horizon", type=int, default=12)
     p.add_argument("--level", type=float, default=0.99)
     p.add_argument("--workers", type=int, default=None, help="processes (default: one per core)")

@@ -69,7 +69,7 @@ def run_demo(out_dir) -> dict:
     risk = {fc.cell(r, 9).value: fc.cell(r, 10).value for r in range(3, 11)}
     vol1 = float(fc["D4"].value)
     cum12 = float(fc["E15"].value) ** 0.5
-    chart = write_chart(out, out_dir / "volcast-demo.png")
+    chart = write_chart(values, out_dir / "volcast-demo.png")
     return {
         "workbook": out,
         "chart": chart,
@@ -85,15 +85,14 @@ def run_demo(out_dir) -> dict:
     }
 
 
-def write_chart(workbook, png) -> Path:
-    """A PNG of the in-sample conditional volatility with the forecast, annualised (matplotlib)."""
+def write_chart(wb, png) -> Path:
+    """A PNG of the in-sample conditional volatility with the forecast, annualised (matplotlib),
+    from a recalculated workbook opened with data_only=True."""
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
-    import openpyxl
 
-    wb = openpyxl.load_workbook(workbook, data_only=True)
     data, vol, fc, inp = wb["Data"], wb["Volatility"], wb["Forecast"], wb["Inputs"]
     scale = float(inp["B8"].value) ** 0.5
     dates, hist = [], []

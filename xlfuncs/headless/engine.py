@@ -182,8 +182,8 @@ class Compiled:
     def __call__(self, *values):
         try:
             return from_engine(self._fn(*[to_engine(v) for v in values]))
-        except Exception as exc:  # noqa: BLE001 - the engine's own failures become #VALUE!
-            return ExcelError("#VALUE!") if not isinstance(exc, FormulaError) else ExcelError("#NAME?")
+        except Exception:  # noqa: BLE001 - the engine's own failures become #VALUE!
+            return ExcelError("#VALUE!")
 
 
 _CACHE: dict = {}

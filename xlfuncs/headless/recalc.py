@@ -469,8 +469,6 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=()) -> tuple:
     dst = Path(dst) if dst else src.with_name(src.stem + ".recalc.xlsx")
     if dst.suffix.lower() != ".xlsx":
         raise RecalcError(f"{dst.name}: the output must be an .xlsx file")
-    if dst.exists() and dst.resolve() == src.resolve():
-        raise RecalcError(f"{dst}: refusing to write over the input; choose another output with -o")
     if dst.resolve() == src.resolve():
         raise RecalcError(f"{dst}: refusing to write over the input; choose another output with -o")
 
