@@ -452,10 +452,12 @@ def _top_left(result):
 
 
 # ---------------------------------------------------------------------- writing
-def recalc(src, dst=None, values_only: bool = False, dynamic_hint=()) -> tuple:
+def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_write=None) -> tuple:
     """Recalculate ``src`` and write ``dst`` (default BOOK.recalc.xlsx beside it); never the input.
 
     Returns (output path, report).  Writes to a temporary file and renames it into place.
+    ``before_write(workbook)``, if given, runs once every value is computed and may set constant
+    cells of ``workbook.book`` (the estimate history does).
     """
     from openpyxl.worksheet.formula import ArrayFormula
 
@@ -474,6 +476,8 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=()) -> tuple:
 
     wb = Workbook(src, dynamic_hint).evaluate_all()
     report = wb.collect_errors()
+    if before_write is not None:
+        before_write(wb)
     book = wb.book
     book.calculation.fullCalcOnLoad = False
     # Excel recalculates a whole file on load when its calcId is older than Excel's own (from

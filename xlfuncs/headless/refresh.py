@@ -70,24 +70,25 @@ def _read_new(path: Path) -> list:
     return out
 
 
-def _fit_rows(ws):
-    """{name: (estimate, std_error)} and the model/dist from a recalculated fit table at A3."""
+def _fit_rows(cell):
+    """{name: (estimate, std_error)} and the model/dist from a recalculated fit table at A3;
+    ``cell(row, col)`` reads the Model sheet's computed values."""
     params, info = {}, {}
     in_params = False
     for r in range(3, 80):
-        name = ws.cell(r, 1).value
+        name = cell(r, 1)
         if name is None:
             break
         if name in ("model", "dist", "loglik", "nobs"):
-            info[name] = ws.cell(r, 2).value
+            info[name] = cell(r, 2)
         if name == "options":
             in_params = True
             continue
         if name == "loglik":
             in_params = False
         if in_params:
-            se = ws.cell(r, 3).value
-            params[name] = (ws.cell(r, 2).value, se if isinstance(se, (int, float)) else None)
+            se = cell(r, 3)
+            params[name] = (cell(r, 2), se if isinstance(se, (int, float)) else None)
     return params, info
 
 
@@ -135,19 +136,17 @@ def refresh(book, data, out) -> tuple:
         ws.cell(i, 2, v)
     last_date = new[-1][0] if new else last
 
-    out.parent.mkdir(parents=True, exist_ok=True)
-    fd, staged = tempfile.mkstemp(suffix=".xlsx", dir=out.parent, prefix=".volcast-refresh-")
-    os.close(fd)
-    fd, first = tempfile.mkstemp(suffix=".xlsx", dir=out.parent, prefix=".volcast-refresh-")
-    os.close(fd)
-    try:
-        wb.save(staged)
-        recalc(staged, first, dynamic_hint=spills)  # the fit and forecasts for the history row (the second pass reuses them)
-        vals = openpyxl.load_workbook(first, data_only=True)
-        params, info = _fit_rows(vals["Model"])
-        fc = vals["Forecast"]
-        risk = {fc.cell(r, 9).value: fc.cell(r, 10).value for r in range(3, 11)}
-        hist = wb["History"]
+    row: dict = {}
+
+    def add_history(book):
+        """Runs inside the recalculation, with every value computed: one evaluation in all."""
+        params, info = _fit_rows(lambda r, c: book.value(("Model", r, c)))
+
+        def fc(r, c):
+            return book.value(("Forecast", r, c))
+
+        risk = {fc(r, 9): fc(r, 10) for r in range(3, 11)}
+        hist = book.book["History"]
         header = [c.value for c in hist[1]]
         if header[: len(HISTORY_HEADER)] != HISTORY_HEADER:
             for j, h in enumerate(HISTORY_HEADER, start=1):
@@ -155,10 +154,7 @@ def refresh(book, data, out) -> tuple:
             header = HISTORY_HEADER[:]
         header = [h for h in header if h is not None]
         prev_row = hist.max_row if hist.max_row >= 2 and hist.cell(hist.max_row, 1).value else None
-        prev = {}
-        if prev_row:
-            for j, h in enumerate(header, start=1):
-                prev[h] = hist.cell(prev_row, j).value
+        prev = {h: hist.cell(prev_row, j).value for j, h in enumerate(header, start=1)} if prev_row else {}
         moved = []
         for name, (est, se) in params.items():
             old = prev.get(name)
@@ -169,18 +165,19 @@ def refresh(book, data, out) -> tuple:
             if name not in header:
                 header.append(name)
                 hist.cell(1, len(header), name)
-        row = {
+        cum12 = fc(15, 5)
+        row.update({
             "run time": dt.datetime.now().replace(microsecond=0),
             "last date": last_date,
             "nobs": info.get("nobs"),
             "model": info.get("model"),
             "dist": info.get("dist"),
             "loglik": info.get("loglik"),
-            "vol 1m (%)": fc["D4"].value,
-            "vol 12m (%)": math.sqrt(fc["E15"].value) if isinstance(fc["E15"].value, (int, float)) else None,
+            "vol 1m (%)": fc(4, 4),
+            "vol 12m (%)": math.sqrt(cum12) if isinstance(cum12, (int, float)) else None,
             "VaR 1m (%)": risk.get("VaR"),
             "flag": ("moved more than 2 SE: " + "; ".join(moved)) if moved else "",
-        }
+        })
         row.update({name: est for name, (est, _) in params.items()})
         r = (prev_row or 1) + 1
         for j, h in enumerate(header, start=1):
@@ -189,10 +186,14 @@ def refresh(book, data, out) -> tuple:
                 c.number_format = "yyyy-mm-dd"
             elif h == "run time":
                 c.number_format = "yyyy-mm-dd hh:mm"
+
+    out.parent.mkdir(parents=True, exist_ok=True)
+    fd, staged = tempfile.mkstemp(suffix=".xlsx", dir=out.parent, prefix=".volcast-refresh-")
+    os.close(fd)
+    try:
         wb.save(staged)
-        out_path, report = recalc(staged, out, dynamic_hint=spills)
+        out_path, report = recalc(staged, out, dynamic_hint=spills, before_write=add_history)
     finally:
-        for p in (staged, first):
-            if os.path.exists(p):
-                os.remove(p)
+        if os.path.exists(staged):
+            os.remove(staged)
     return out_path, row, report, len(new)
