@@ -33,7 +33,7 @@ def kupiec(n: int, x: int, p: float):
         raise InputError("coverage needs at least one forecast")
     phat = x / n
     lr = -2.0 * (_xlogy(n - x, 1 - p) + _xlogy(x, p)) + 2.0 * (_xlogy(n - x, 1 - phat) + _xlogy(x, phat))
-    lr = max(lr, 0.0)
+    lr = lr if lr > 0 else 0.0  # rounding can leave -0.0
     return lr, float(stats.chi2.sf(lr, 1))
 
 
@@ -53,7 +53,8 @@ def christoffersen(hits):
     pi11 = n11 / (n10 + n11) if n10 + n11 else 0.0
     l0 = _xlogy(n00 + n10, 1 - pi) + _xlogy(n01 + n11, pi)
     l1 = _xlogy(n00, 1 - pi01) + _xlogy(n01, pi01) + _xlogy(n10, 1 - pi11) + _xlogy(n11, pi11)
-    lr = max(-2.0 * (l0 - l1), 0.0)
+    lr = -2.0 * (l0 - l1)
+    lr = lr if lr > 0 else 0.0
     return lr, float(stats.chi2.sf(lr, 1))
 
 
