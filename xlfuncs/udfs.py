@@ -71,7 +71,7 @@ def VOLTESTS(returns, fit, lags=None):
 @xw.arg("level", doc="Confidence level, e.g. 0.99 (default)")
 @xw.arg("horizon", doc="Periods the loss accumulates over, 1 (default) to 600")
 def VOLRISK(returns, fit, level=None, horizon=None):
-    """Value-at-Risk and expected shortfall of the next horizon periods, as positive losses."""
+    """VaR and expected shortfall of the next horizon periods as positive losses; also as % of value if the fit's options set returns=."""
     return sheet.VOLRISK(returns, fit, level, horizon)
 
 

@@ -21,6 +21,24 @@ horizon        how
 The ``mean`` and ``sd`` reported with them are those of R from the analytic forecast (the
 sum of the mean forecasts and the square root of the cumulative variance), not from the
 simulated paths.
+
+Loss as a percentage of the position's value
+--------------------------------------------
+When the fit's options say how the returns are defined (``returns=log100``, ``log``,
+``simple100`` or ``simple``), ``var_value`` and ``es_value`` give the same two measures for
+the change in the position's value over the horizon, V = (value at T+h) / (value at T) - 1,
+as positive percentages of the value:
+
+* log returns (c = 1/100 for ``log100``, 1 for ``log``): V = exp(c R) - 1.  VaR_value =
+  100 (1 - exp(-c VaR)), exact because the map is monotone.  ES_value = 100 E[1 - exp(c R) |
+  R <= -VaR], the mean of the value loss over the tail -- smaller than the transform of ES
+  (Jensen).  At horizon 1, R = m + s z and the tail mean is a one-dimensional integral over
+  the fitted density of z, computed by adaptive quadrature; beyond, it is the mean over the
+  simulated tail paths.
+* simple returns: V = prod_t (1 + c r[T+t]) - 1.  At horizon 1 that is c R, so VaR_value and
+  ES_value are VaR and ES times 100 c.  Beyond, VaR_value and ES_value are the empirical
+  quantile and tail mean of V over the simulated paths (a factor 1 + c r below zero, a loss
+  beyond the whole value, counts as 0: the position is gone).
 """
 
 from __future__ import annotations
@@ -30,12 +48,14 @@ import numbers
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import integrate
 
 from .errors import InputError
 from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
+from .spec import RETURN_DEFINITIONS
 
-__all__ = ["Risk", "risk", "DEFAULT_PATHS", "MIN_PATHS", "MAX_PATHS"]
+__all__ = ["Risk", "risk", "DEFAULT_PATHS", "MIN_PATHS", "MAX_PATHS", "RETURN_DEFINITIONS"]
 
 MIN_PATHS = 1000
 MAX_PATHS = 1_000_000
@@ -53,6 +73,14 @@ class Risk:
     level: float
     horizon: int
     method: str
+    # the same measures as a percentage of the position's value (None when ``returns`` is None)
+    var_value: float | None = None
+    es_value: float | None = None
+    returns: str | None = None  # how the returns are defined: log100, log, simple100, simple
+
+
+#: c in V = exp(c R) - 1 (log) or V = c R (simple, one period): the returns' unit as a fraction
+_UNIT = {"log100": 0.01, "log": 1.0, "simple100": 0.01, "simple": 1.0}
 
 
 def _real(x) -> float | None:
@@ -76,7 +104,26 @@ def _check_level(level) -> float:
     return v
 
 
-def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None) -> Risk:
+def _check_returns(returns) -> str:
+    if not (isinstance(returns, str) and returns.strip().lower() in RETURN_DEFINITIONS):
+        raise InputError(f"returns must be one of {', '.join(RETURN_DEFINITIONS)}, got {returns!r}")
+    return returns.strip().lower()
+
+
+def _log_tail_value_loss(dist, eta, m: float, s: float, c: float, zq: float, a: float) -> float:
+    """E[1 - exp(c (m + s z)) | z <= zq] * P(z <= zq) / a for z with the fitted density.
+
+    The integrand -expm1(c (m + s z)) f(z) is bounded by max(1, exp(c (m + s zq))) times the
+    density on the lower tail, so the integral is finite for every family, Student t included.
+    """
+    def integrand(z: float) -> float:
+        return -math.expm1(c * (m + s * z)) * math.exp(float(dist.logpdf(np.array(z), eta)))
+
+    val, _ = integrate.quad(integrand, -math.inf, zq, epsabs=0.0, epsrel=1e-12, limit=200)
+    return val / a
+
+
+def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> Risk:
     """VaR and expected shortfall of the sum of the next ``horizon`` returns after ``r``.
 
     ``fit`` is a :class:`~xlfuncs.core.estimate.FitResult` and ``r`` the returns it describes
@@ -86,11 +133,20 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None) -> Risk:
     :data:`~xlfuncs.core.forecast.DEFAULT_SEED`), so the same inputs give the same numbers.
     ``mean`` and ``sd`` are always the analytic forecast's (exact for every family but
     EGARCH, whose variance forecast is itself the seeded simulation average).
+
+    ``returns`` (``log100``, ``log``, ``simple100`` or ``simple``; default: the fit's
+    ``options.returns``) says how the returns are defined; when it is known, ``var_value`` and
+    ``es_value`` carry the loss as a percentage of the position's value (module docstring).
     """
     level = _check_level(level)
     horizon = _whole(horizon, "horizon", 1, MAX_HORIZON)
     paths = DEFAULT_PATHS if paths is None else _whole(paths, "paths", MIN_PATHS, MAX_PATHS)
     seed = DEFAULT_SEED if seed is None else _whole(seed, "seed", 0, _MAX_SEED)
+    if returns is None:
+        returns = getattr(getattr(fit, "options", None), "returns", None)
+    defn = None if returns is None else _check_returns(returns)
+    c = _UNIT.get(defn)
+    is_log = defn in ("log100", "log")
 
     nd = len(fit.dist.param_names)
     params = np.asarray(fit.params, dtype=float)
@@ -100,19 +156,43 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None) -> Risk:
     mean = float(np.sum(fc.mean))
     sd = math.sqrt(float(fc.cumvar[-1]))
 
+    var_value = es_value = None
     if horizon == 1:
         q = float(fit.dist.ppf(1.0 - level, eta))
         var = -(mean + sd * q)
         es = -mean + sd * float(fit.dist.expected_shortfall(level, eta))
         method = f"exact (fitted {fit.dist.name} distribution)"
+        if is_log:
+            var_value = -100.0 * math.expm1(-c * var)
+            es_value = 100.0 * _log_tail_value_loss(fit.dist, eta, mean, sd, c, q, 1.0 - level)
+        elif defn == "simple100":  # already percent of value
+            var_value, es_value = var, es
+        elif defn == "simple":
+            var_value, es_value = 100.0 * var, 100.0 * es
     else:
         rng = np.random.default_rng(seed)
         cum = np.zeros(paths)
-        with np.errstate(over="ignore", invalid="ignore"):
+        # log of the value factor prod (1 + c r), for simple returns only
+        log_factor = np.zeros(paths) if defn in ("simple100", "simple") else None
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             for ret, _ in forward_steps(fit, r, horizon, paths, rng):
                 cum += ret
+                if log_factor is not None:
+                    log_factor += np.log1p(np.maximum(c * ret, -1.0))  # a factor below 0 is the value gone
         cut = float(np.quantile(cum, 1.0 - level))
         var = -cut
         es = -float(np.mean(cum[cum <= cut]))
         method = f"simulation ({paths} paths, seed {seed})"
-    return Risk(var=float(var), es=float(es), mean=mean, sd=sd, level=level, horizon=horizon, method=method)
+        if is_log:
+            var_value = -100.0 * math.expm1(-c * var)
+            with np.errstate(over="ignore"):
+                es_value = -100.0 * float(np.mean(np.expm1(c * cum[cum <= cut])))
+        elif log_factor is not None:
+            with np.errstate(invalid="ignore"):
+                change = np.expm1(log_factor)  # V = value(T+h)/value(T) - 1
+            vcut = float(np.quantile(change, 1.0 - level))
+            var_value = -100.0 * vcut
+            es_value = -100.0 * float(np.mean(change[change <= vcut]))
+    return Risk(var=float(var), es=float(es), mean=mean, sd=sd, level=level, horizon=horizon, method=method,
+                var_value=None if var_value is None else float(var_value),
+                es_value=None if es_value is None else float(es_value), returns=defn)

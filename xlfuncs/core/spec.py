@@ -36,6 +36,7 @@ __all__ = [
     "MEAN_KINDS",
     "VARIANCE_KINDS",
     "MAX_ORDER",
+    "RETURN_DEFINITIONS",
 ]
 
 MEAN_KINDS = ("zero", "const", "arma")
@@ -286,6 +287,8 @@ _CHOICES = {
 _DEFAULTS = {"presample": "mean", "se": "robust", "target": "no", "missing": "error"}
 _YES = {"yes": "yes", "true": "yes", "1": "yes", "on": "yes", "no": "no", "false": "no", "0": "no", "off": "no"}
 _INT_KEYS = {"periods": (1, 100000), "seed": (0, 2**31 - 1), "paths": (1000, 1_000_000)}
+#: how the returns are defined (no default: unknown unless said); read by the risk figures only
+RETURN_DEFINITIONS = ("log100", "log", "simple100", "simple")
 
 
 @dataclass(frozen=True)
@@ -298,6 +301,7 @@ class Options:
     seed: int | None = None
     paths: int | None = None
     fixed: tuple = field(default_factory=tuple)  # ((name, value), ...) in the order given
+    returns: str | None = None  # one of RETURN_DEFINITIONS, or None when not said
 
     @property
     def fixed_dict(self) -> dict:
@@ -314,13 +318,15 @@ class Options:
             val = getattr(self, key)
             if val is not None:
                 parts.append(f"{key}={val}")
+        if self.returns is not None:
+            parts.append(f"returns={self.returns}")
         for name, value in self.fixed:
             parts.append(f"{name}={_fmt_number(value)}")
         return "; ".join(parts)
 
     @property
     def estimation_key(self) -> tuple:
-        """What changes the estimate (periods, missing and seed do not)."""
+        """What changes the estimate (periods, missing, seed and returns do not)."""
         return (self.presample, self.se, self.target, tuple(sorted(self.fixed)))
 
 
@@ -363,6 +369,10 @@ def parse_options(text) -> Options:
             if low not in _CHOICES[key]:
                 raise InputError(f'options: {key}={value} is not allowed; use {" or ".join(key + "=" + c for c in _CHOICES[key])}')
             values[key] = low
+        elif key == "returns":
+            if low not in RETURN_DEFINITIONS:
+                raise InputError(f'options: returns={value} is not allowed; use {" or ".join("returns=" + c for c in RETURN_DEFINITIONS)}')
+            values[key] = low
         elif key in _INT_KEYS:
             lo, hi = _INT_KEYS[key]
             try:
@@ -376,8 +386,8 @@ def parse_options(text) -> Options:
             name = normalise_param_name(key)
             if name is None:
                 raise InputError(
-                    f'options: unknown key "{key}"; use presample, se, target, periods, missing, seed, paths '
-                    f"or a parameter name such as nu=8"
+                    f'options: unknown key "{key}"; use presample, se, target, periods, missing, seed, paths, '
+                    f"returns or a parameter name such as nu=8"
                 )
             try:
                 num = float(value)
@@ -397,4 +407,5 @@ def parse_options(text) -> Options:
         seed=ints.get("seed"),
         paths=ints.get("paths"),
         fixed=tuple(fixed.items()),
+        returns=values.get("returns"),
     )

@@ -225,16 +225,30 @@ def _cell(x):
 
 @sheet_function
 def VOLRISK(returns, fit, level=None, horizon=None):
-    """Value-at-Risk and expected shortfall of the next horizon periods' cumulative return."""
+    """Value-at-Risk and expected shortfall of the next horizon periods' cumulative return.
+
+    Losses are positive, in return units.  When the fit's options say how the returns are
+    defined (``returns=log100``, ``log``, ``simple100``, ``simple``), rows ``VaR_value`` and
+    ``ES_value`` follow ``ES``: the loss as a percentage of the position's value, from the
+    distribution of the value change; a last row ``returns`` names the definition.
+    """
     lv = float_arg(level, "level", 0.99, "0.99")
     h = int_arg(horizon, "horizon", 1, MAX_HORIZON, default=1)
     table, data, result = _table_and_returns(returns, fit)
     rk = core_risk(result, data.values, lv, h, paths=table.options.paths, seed=table.options.seed)
     values = [rk.var, rk.es, rk.mean, rk.sd]
+    if rk.returns is not None:
+        values += [rk.var_value, rk.es_value]
     if not all(np.isfinite(v) for v in values):
         raise SheetError("the risk figures overflow: the fit's parameters make the variance explode")
-    return [["measure", "value"], ["VaR", float(rk.var)], ["ES", float(rk.es)], ["mean", float(rk.mean)],
-            ["sd", float(rk.sd)], ["level", float(rk.level)], ["horizon", int(rk.horizon)], ["method", rk.method]]
+    rows = [["measure", "value"], ["VaR", float(rk.var)], ["ES", float(rk.es)]]
+    if rk.returns is not None:
+        rows += [["VaR_value", float(rk.var_value)], ["ES_value", float(rk.es_value)]]
+    rows += [["mean", float(rk.mean)], ["sd", float(rk.sd)], ["level", float(rk.level)],
+             ["horizon", int(rk.horizon)], ["method", rk.method]]
+    if rk.returns is not None:
+        rows.append(["returns", rk.returns])
+    return rows
 
 
 @sheet_function
