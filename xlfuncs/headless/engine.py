@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["ExcelError", "Compiled", "compile_formula", "FormulaError", "our_function_names",
-           "top_level_call", "ERROR_LITERALS"]
+           "top_level_call", "calls_ours", "ERROR_LITERALS"]
 
 from .xlsxpost import ERROR_LITERALS, ExcelError  # one error value for the engine and the writer
 
@@ -30,7 +30,10 @@ class FormulaError(Exception):
 
 _FUNC_RE = re.compile(r"(?<![A-Za-z0-9_.!$:])([A-Za-z_][A-Za-z0-9_.]*)\s*\(")
 _STRING_RE = re.compile(r'"(?:[^"]|"")*"')
-_OURS_RE = re.compile(r"^\s*=\s*(?:_xludf\.)?(VOL[A-Z]+)\s*\(", re.IGNORECASE)
+# our functions as files spell them: any case (LibreOffice writes volfit), with the prefixes
+# Excel and LibreOffice put before add-in and future functions
+_OURS_RE = re.compile(r"^\s*=\s*(?:_xludf\.|_xlfn\.|_xlws\.)*(VOL[A-Z]+)\s*\(", re.IGNORECASE)
+_PREFIXES = ("_XLUDF.", "_XLFN._XLWS.", "_XLFN.", "_XLWS.")
 
 
 def _engine():
@@ -60,7 +63,8 @@ def _register_ours():
         fn = getattr(sheet, name)
         wrapped = _wrap_ours(fn)
         funcs[name] = wrapped
-        funcs[f"_XLUDF.{name}"] = wrapped
+        for prefix in _PREFIXES:
+            funcs[f"{prefix}{name}"] = wrapped
     _REGISTERED = True
 
 
@@ -197,7 +201,7 @@ def function_names(text: str) -> set:
 
 def _known(name: str, funcs) -> bool:
     n = name.upper()
-    for prefix in ("_XLFN._XLWS.", "_XLFN.", "_XLWS."):
+    for prefix in _PREFIXES:
         if n.startswith(prefix):
             n = n[len(prefix):]
     return n in funcs or n == "ANCHORARRAY"
@@ -221,6 +225,18 @@ def compile_formula(text: str) -> Compiled:
     out = Compiled(text=text, inputs=tuple(fn.inputs), _fn=fn)
     _CACHE[text] = out
     return out
+
+
+def calls_ours(text: str) -> bool:
+    """Whether a formula calls one of our functions anywhere (any case, any prefix)."""
+    ours = set(our_function_names())
+    for n in function_names(text):
+        for prefix in _PREFIXES:
+            if n.startswith(prefix):
+                n = n[len(prefix):]
+        if n in ours:
+            return True
+    return False
 
 
 def top_level_call(text: str) -> str | None:

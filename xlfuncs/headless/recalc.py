@@ -21,7 +21,7 @@ import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .engine import ExcelError, FormulaError, compile_formula, top_level_call
+from .engine import ExcelError, FormulaError, calls_ours, compile_formula, top_level_call
 
 __all__ = ["RecalcError", "Workbook", "recalc", "RecalcReport"]
 
@@ -71,6 +71,8 @@ class RecalcReport:
     error_cells: list = field(default_factory=list)  # (address, shown value)
     formulas: int = 0
     spills: int = 0
+    # numbers lying below a range that a formula of ours reads: data left out of a fit
+    unread: list = field(default_factory=list)  # one sentence each
 
 
 class Workbook:
@@ -91,6 +93,13 @@ class Workbook:
         # spills stored by Excel 365 (or by us); a caller that re-saved the file through openpyxl,
         # which drops the cell metadata, passes the anchors it read before
         dynamic = dynamic_anchors(self.path) | set(dynamic_hint)
+        self.names = _defined_names(self.book)
+        # LibreOffice and openpyxl drop the dynamic-array marking and keep each spill as a plain
+        # array formula over its last size.  In a file saved by LibreOffice, or in a workbook of
+        # our templates (built for Excel 365 spills), an unmarked array formula whose top-level
+        # call is ours is read as the spill it was, so its size follows the data again.  Elsewhere
+        # an unmarked array formula is a legacy array over a fixed range.
+        unmarked = not dynamic and ((None, "FIT") in self.names or _saved_by_calc(self.path))
         self.inputs: dict = {}  # (sheet, row, col) -> constant value
         self.formulas: dict = {}  # (sheet, row, col) -> formula text
         self.arrays: dict = {}  # anchor -> (r1, c1, r2, c2) of a legacy array formula
@@ -109,7 +118,7 @@ class Workbook:
                     key = (t, c.row, c.column)
                     if isinstance(v, ArrayFormula):
                         self.formulas[key] = v.text if v.text.startswith("=") else "=" + v.text
-                        if (t, c.coordinate) in dynamic:
+                        if (t, c.coordinate) in dynamic or (unmarked and top_level_call(self.formulas[key])):
                             residue.append((t, _parse_range(v.ref), key))
                         else:
                             self.arrays[key] = _parse_range(v.ref)
@@ -130,6 +139,9 @@ class Workbook:
         self._templates: dict = {}
         self._anchors = {k for k, f in self.formulas.items() if k not in self.arrays and top_level_call(f)}
         self.report = RecalcReport(formulas=len(self.formulas))
+        self._reader = None  # the formula of ours whose arguments are being read
+        self._names_open: set = set()
+        self.reads: list = []  # (formula key, sheet, r1, c1, r2, c2) read by formulas of ours
 
     # ------------------------------------------------------------------ evaluation
     def evaluate_all(self):
@@ -171,7 +183,11 @@ class Workbook:
             except FormulaError as exc:
                 raise RecalcError(f"{where}: {exc}") from None
             self._text = text
-            args = [self._read(sheet, name, where) for name in names]
+            outer, self._reader = self._reader, (key if calls_ours(text) else None)
+            try:
+                args = [self._read(sheet, name, where) for name in names]
+            finally:
+                self._reader = outer
             result = compiled(*args)
         finally:
             self._stack.discard(key)
@@ -184,6 +200,9 @@ class Workbook:
         return self.values[key]
 
     def _read(self, sheet, name: str, where: str):
+        target_name = self._name_target(sheet, name)
+        if target_name is not None:
+            return self._read_name(sheet, name, target_name, where)
         m = _REF_RE.match(name.replace("$", ""))
         if not m:
             raise RecalcError(f"{where}: reference {name} is not understood")
@@ -204,6 +223,8 @@ class Workbook:
             self.value(anchor)
             if anchor in self.spills:
                 return self._block(target, *self.spills[anchor])
+            if anchor in self.arrays:
+                return self._block(target, *self.arrays[anchor])
             if anchor not in self.formulas:
                 return ExcelError("#REF!")
             return self.values.get(anchor)
@@ -218,6 +239,40 @@ class Workbook:
         right = _col_index(c2) if c2 else max(self.max_col[target], self._spill_extent(target)[1])
         return self._block(target, top, left, bottom, right)
 
+    def _name_target(self, sheet, name: str):
+        """The text a defined name stands for (sheet scope first), or None if ``name`` is no name."""
+        if not self.names:
+            return None
+        bare = name.replace("$", "")
+        scope, _, nm = bare.rpartition("!")
+        key = nm.upper()
+        if scope:
+            title = self.sheets.get(scope.strip("'").replace("''", "'").upper())
+            return self.names.get((title, key))
+        return self.names.get((sheet, key), self.names.get((None, key)))
+
+    def _read_name(self, sheet, name, text, where):
+        """The value of a defined name: the range it refers to, or its formula evaluated."""
+        ref = text.strip()
+        if ref.startswith("="):
+            ref = ref[1:].strip()
+        if "#REF!" in ref.upper() or not ref:
+            raise RecalcError(f"{where}: the name {name} refers to {text}, a reference that no longer exists; "
+                              "define the name again (Formulas > Name Manager)")
+        if name.upper() in self._names_open:
+            raise RecalcError(f"{where}: the name {name} refers to itself ({text})")
+        self._names_open.add(name.upper())
+        try:
+            if _REF_RE.match(ref.replace("$", "")) and "!" in ref and not any(ch in ref for ch in "(,&+*/^<>= "):
+                return self._read(sheet, ref, where)
+            try:
+                compiled = compile_formula("=" + ref)
+            except FormulaError as exc:
+                raise RecalcError(f"{where}: the name {name} refers to {text}, which cannot be evaluated here ({exc})") from None
+            return compiled(*[self._read(sheet, n, where) for n in compiled.inputs])
+        finally:
+            self._names_open.discard(name.upper())
+
     def _spill_extent(self, sheet):
         self._settle_spills(sheet)
         rows = [ext[2] for a, ext in self.spills.items() if a[0] == sheet]
@@ -225,6 +280,8 @@ class Workbook:
         return max(rows, default=0), max(cols, default=0)
 
     def _block(self, sheet, r1, c1, r2, c2):
+        if self._reader is not None and (r2 > r1 or c2 > c1):
+            self.reads.append((self._reader, sheet, r1, c1, r2, c2))
         return [[self.value((sheet, r, c)) for c in range(c1, c2 + 1)] for r in range(r1, r2 + 1)]
 
     def _batch_elementwise(self, min_size: int = 16):
@@ -254,16 +311,21 @@ class Workbook:
                 compiled = compile_formula(text0)
             except FormulaError:
                 continue
-            first = [_engine_name(t) for _, _, t in tokens0]
-            if sorted(set(first)) != sorted(compiled.inputs) or len(set(first)) != len(first):
+            # a reference may appear more than once (=IF(B5="","",LN(B5/B4))): one input each
+            first = list(dict.fromkeys(_engine_name(t) for _, _, t in tokens0))
+            if sorted(first) != sorted(compiled.inputs):
                 continue
             order = [first.index(n) for n in compiled.inputs]
             columns = [[] for _ in order]
             ok = True
             for key, _, tokens in members:
                 sheet = key[0]
+                unique = list(dict.fromkeys(t for _, _, t in tokens))
+                if len(unique) != len(first):
+                    ok = False
+                    break
                 for slot, idx in enumerate(order):
-                    ref = tokens[idx][2]
+                    ref = unique[idx]
                     target = sheet
                     if "!" in ref:
                         sname, _, ref = ref.rpartition("!")
@@ -354,6 +416,38 @@ class Workbook:
                     self.owner[(sheet, row + i, col + j)] = key
 
     # ------------------------------------------------------------------ report
+    def check_unread(self):
+        """Numbers below a column range that a formula of ours reads: data the range leaves out.
+
+        For each such range, the column itself and the columns its own formulas read (a return
+        column computed from a level column) are looked at below its last row.  Each finding is
+        one sentence in ``report.unread``.
+        """
+        seen = set()
+        for key, sheet, r1, c1, r2, c2 in self.reads:
+            if c1 != c2 or (sheet, r1, c1, r2) in seen:
+                continue
+            seen.add((sheet, r1, c1, r2))
+            columns = {c1}
+            for r in range(r2, r1 - 1, -1):  # the last formula inside the range says what it reads
+                text = self.formulas.get((sheet, r, c1))
+                if text is not None:
+                    for _, _, token in _ref_tokens(text):
+                        if "!" not in token:
+                            for part in token.rstrip("#").split(":"):
+                                columns.add(_parse_cell(part.replace("$", ""))[1])
+                    break
+            bottom = self.max_row.get(sheet, 0)
+            for col in sorted(columns):
+                rows = [r for r in range(r2 + 1, bottom + 1) if _is_number(self.value((sheet, r, col)))]
+                if rows:
+                    self.report.unread.append(
+                        f"{key[0]}!{cell_name(key[1], key[2])} reads {sheet}!{cell_name(r1, c1)}:{cell_name(r2, c1)}, "
+                        f"but {len(rows)} number(s) lie below it in {sheet}!{cell_name(rows[0], col)}:"
+                        f"{cell_name(rows[-1], col)}; they are left out: extend the range (and its formulas) to row {rows[-1]}")
+                    break
+        return self.report.unread
+
     def collect_errors(self):
         for key, v in self.values.items():
             shown = None
@@ -437,6 +531,41 @@ def _constant(v):
     return str(v)
 
 
+def _is_number(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def _saved_by_calc(path) -> bool:
+    """Whether LibreOffice Calc wrote the package (its workbook part names the application)."""
+    import zipfile
+
+    try:
+        with zipfile.ZipFile(path) as z:
+            names = [n for n in z.namelist() if n.lower() == "xl/workbook.xml"]
+            head = z.read(names[0])[:4096] if names else b""
+    except (zipfile.BadZipFile, OSError, KeyError):
+        return False
+    return b'appName="Calc"' in head
+
+
+def _defined_names(book) -> dict:
+    """{(sheet title or None, NAME): text} of the workbook's defined names (print areas and
+    other built-in names left out)."""
+    out = {}
+    try:
+        items = list(book.defined_names.items())
+    except AttributeError:  # pragma: no cover - older openpyxl
+        items = [(d.name, d) for d in book.defined_names.definedName]
+    for name, dn in items:
+        if not name.startswith("_xlnm") and dn.attr_text:
+            out[(None, name.upper())] = dn.attr_text
+    for ws in book.worksheets:
+        for name, dn in getattr(ws, "defined_names", {}).items():
+            if not name.startswith("_xlnm") and dn.attr_text:
+                out[(ws.title, name.upper())] = dn.attr_text
+    return out
+
+
 def _cell_value(v):
     if isinstance(v, float) and v != v:
         return ExcelError("#NUM!")
@@ -476,6 +605,7 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
 
     wb = Workbook(src, dynamic_hint).evaluate_all()
     report = wb.collect_errors()
+    wb.check_unread()
     if before_write is not None:
         before_write(wb)
     book = wb.book
