@@ -86,7 +86,8 @@ def test_fit_prints_the_table(returns_csv, capsys):
     assert rc == 0
     assert err == ""
     lines = table_lines(out)
-    assert out.splitlines()[0].split() == ["parameter", "estimate", "std_error", "t_stat", "p_value"]
+    assert out.splitlines()[0] == 'column "return" of returns.csv: 300 returns'  # which column, how many numbers
+    assert out.splitlines()[1].split() == ["parameter", "estimate", "std_error", "t_stat", "p_value"]
     for name in ("model", "dist", "options", "mu", "omega", "alpha[1]", "beta[1]", "loglik", "aic", "bic",
                  "nobs", "persistence", "uncond_variance", "half_life", "converged"):
         assert name in lines, name

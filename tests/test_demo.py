@@ -30,17 +30,26 @@ def test_demo_workbook_has_no_error_cells(demo):
 
 
 def test_headline_matches_direct_calls(demo):
+    """The headline, read through the template's defined names, equals direct calls on the
+    returns the `returns` name covers."""
+    from xlfuncs.headless.contract import figures_from_file, name_range
+
     wb = openpyxl.load_workbook(demo["workbook"], data_only=True)
-    data = wb["Data"]
-    cells = [[data.cell(r, 3).value] for r in range(3, data.max_row + 1) if isinstance(data.cell(r, 3).value, float)]
-    fit = VOLFIT(cells, "AR(1)-GJR-GARCH(1,1)", "t", "periods=12")
+    sheet, r1, c, r2, _ = name_range(wb, "returns")
+    cells = [[wb[sheet].cell(r, c).value] for r in range(r1, r2 + 1)]
+    fit = VOLFIT(cells, "AR(1)-GJR-GARCH(1,1)", "t", "periods=12; returns=log100")
     vol = VOLFORECAST(cells, fit, 12, "vol")
     cum = VOLFORECAST(cells, fit, 12, "cumvol")
     assert_allclose(demo["vol_1m"], vol[0][0], rtol=1e-10)
     assert_allclose(demo["vol_1m_annualised"], vol[0][0] * math.sqrt(12), rtol=1e-10)
     assert_allclose(demo["vol_12m"], cum[-1][0], rtol=1e-10)
     risk = {r[0]: r[1] for r in VOLRISK(cells, fit, 0.99, 1)}
-    assert_allclose(demo["var_1m"], risk["VaR"], rtol=1e-10)
+    assert_allclose(demo["var_1m"], risk["VaR_value"], rtol=1e-10)
+    assert_allclose(demo["es_1m"], risk["ES_value"], rtol=1e-10)
+    # "% of value" is the value loss of the log-return quantile (common practice), below it
+    assert_allclose(demo["var_1m"], 100 * (1 - math.exp(-risk["VaR"] / 100)), rtol=1e-12)
+    assert demo["var_1m"] < risk["VaR"]
+    assert figures_from_file(demo["workbook"])["nobs"] == 369 == demo["nobs"]  # 370 levels
 
 
 def test_cli_demo(tmp_path, capsys):

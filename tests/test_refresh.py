@@ -1,89 +1,343 @@
-"""`volcast refresh`: new months appended, duplicates skipped, conflicts refused with nothing
-written, and an estimate-history row with the two-standard-error flag."""
+"""`volcast refresh`: true or refuses.
 
+Figures are found through the template contract (DESIGN.md, "Templates": defined names) and
+checked against direct calls of the worksheet functions on the same returns.  The series are
+seeded simulations from the fitted-model simulator (xlfuncs.core.simulate), turned into levels;
+the percent log return 100 ln(P[t]/P[t-1]) is the templates' stated convention (common practice).
+"""
+
+import calendar
 import csv
 import datetime as dt
 import hashlib
+import math
+import shutil
+import subprocess
 
+import numpy as np
 import openpyxl
 import pytest
+from numpy.testing import assert_allclose
 
+from xlfuncs import VOLFIT, VOLFORECAST, VOLRISK
 from xlfuncs.cli import main
-from xlfuncs.demo import data_file, run_demo
-from xlfuncs.headless.recalc import RecalcError
+from xlfuncs.core.distributions import get_distribution
+from xlfuncs.core.simulate import simulate
+from xlfuncs.core.spec import parse_model
+from xlfuncs.demo import load_levels, template_file
+from xlfuncs.headless.contract import HISTORY_HEADER, figures_from_file, name_range
+from xlfuncs.headless.recalc import RecalcError, recalc
 from xlfuncs.headless.refresh import refresh
+
+MONTHLY_MODEL = ("AR(1)-GJR-GARCH(1,1)", "t")
+ROWS = 300  # the return formulas of the test's monthly template reach this row
 
 
 @pytest.fixture(scope="module")
-def book(tmp_path_factory):
-    return run_demo(tmp_path_factory.mktemp("r"))["workbook"]
+def short_template(tmp_path_factory):
+    """The monthly template from the shipped builder, with its return formulas to row 300 rather
+    than 1,200, so that growing past them stays cheap to test."""
+    import importlib.util
+    from pathlib import Path
+
+    spec = importlib.util.spec_from_file_location(
+        "build_templates", Path(__file__).resolve().parent.parent / "workbook_templates" / "build_templates.py")
+    builder = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(builder)
+    return builder.build(tmp_path_factory.mktemp("tpl") / "monthly_short.xlsx", dict(builder.MONTHLY, last_row=ROWS))
 
 
-def _last(path=None):
-    rows = list(csv.DictReader(open(data_file())))
-    return dt.date.fromisoformat(rows[-1]["date"]), float(rows[-1]["level"])
+def _levels(model, params, n, seed, start=100.0):
+    spec, dist = parse_model(model), get_distribution("t")
+    r = simulate(spec, dist, params, n - 1, 1, rng=np.random.default_rng(seed))[:, 0]
+    return start * np.exp(np.concatenate([[0.0], np.cumsum(r / 100.0)]))
 
 
-def _csv(path, rows):
-    path.write_text("date,level\n" + "".join(f"{d},{v}\n" for d, v in rows))
+def _month_ends(n, year=1920):
+    out, y, m = [], year, 1
+    for _ in range(n):
+        out.append(dt.date(y, m, calendar.monthrange(y, m)[1]))
+        y, m = (y + 1, 1) if m == 12 else (y, m + 1)
+    return out
+
+
+def _business_days(n, start=dt.date(2008, 1, 1)):
+    out, d = [], start
+    while len(out) < n:
+        if d.weekday() < 5:
+            out.append(d)
+        d += dt.timedelta(days=1)
+    return out
+
+
+def _csv(path, dates, levels):
+    path.write_text("date,level\n" + "".join(f"{d},{v:.6f}\n" for d, v in zip(dates, levels)))
     return path
 
 
-def test_new_months_are_appended_and_history_grows(book, tmp_path):
-    d0, v0 = _last()
-    new = _csv(tmp_path / "n.csv", [(d0, v0), ("2026-11-30", v0 * 1.01), ("2026-12-31", v0 * 0.99)])
-    before = hashlib.sha256(book.read_bytes()).hexdigest()
-    out, row, report, added = refresh(book, new, tmp_path / "o.xlsx")
-    assert hashlib.sha256(book.read_bytes()).hexdigest() == before
-    assert added == 2 and report.error_cells == []
-    wb = openpyxl.load_workbook(out, data_only=True)
-    data = wb["Data"]
-    dates = [data.cell(r, 1).value for r in range(2, data.max_row + 1) if data.cell(r, 1).value]
-    assert dates[-1].date() == dt.date(2026, 12, 31) and len(dates) == len(set(dates))
-    hist = list(wb["History"].iter_rows(values_only=True))
-    assert hist[0][:10] == ("run time", "last date", "nobs", "model", "dist", "loglik", "vol 1m (%)",
-                            "vol 12m (%)", "VaR 1m (%)", "flag")
-    assert len(hist) == 2 and hist[1][2] == len(dates) - 1  # one return fewer than levels
-    assert {"mu", "omega", "beta[1]", "nu"} <= set(hist[0])
-    # a second refresh with the same file adds nothing new but another history row
-    out2, row2, _, added2 = refresh(out, new, tmp_path / "o2.xlsx")
-    assert added2 == 0
-    assert len(list(openpyxl.load_workbook(out2)["History"].iter_rows())) == 3
-    assert not row2["flag"]  # the same data: no parameter moved
+def _returns(book):
+    """The returns column the workbook's `returns` name covers, as cells for a direct call."""
+    wb = openpyxl.load_workbook(book, data_only=True)
+    sheet, r1, c, r2, _ = name_range(wb, "returns")
+    return [[wb[sheet].cell(r, c).value] for r in range(r1, r2 + 1)]
 
 
-def test_a_parameter_that_moved_is_flagged(book, tmp_path):
-    d0, v0 = _last()
-    out, _, _, _ = refresh(book, _csv(tmp_path / "a.csv", [("2026-11-30", v0)]), tmp_path / "a.xlsx")
-    wb = openpyxl.load_workbook(out)
+def _direct(cells, model, dist, periods, month, year, level=0.99):
+    fit = VOLFIT(cells, model, dist, f"periods={periods}; returns=log100")
+    cum = [row[0] for row in VOLFORECAST(cells, fit, year, "cumvar")]
+    risk = {row[0]: row[1] for row in VOLRISK(cells, fit, level, month)}
+    fit_rows = {row[0]: row for row in fit}
+    return fit_rows, cum, risk
+
+
+def _history(book):
+    rows = list(openpyxl.load_workbook(book, data_only=True)["History"].iter_rows(values_only=True))
+    header = [h for h in rows[0] if h is not None]
+    return header, [dict(zip(header, r)) for r in rows[1:] if r[0] is not None]
+
+
+# --------------------------------------------------------------------------- monthly, past the template's rows
+@pytest.fixture(scope="module")
+def monthly(tmp_path_factory, short_template):
+    """A first load of 320 month-ends into the empty monthly template whose return formulas
+    reach row 300."""
+    d = tmp_path_factory.mktemp("monthly")
+    dates = _month_ends(320)
+    levels = _levels("AR(1)-GJR-GARCH(1,1)", [0.5, 0.1, 0.5, 0.05, 0.1, 0.85, 8.0], 320, seed=11)
+    data = _csv(d / "history.csv", dates, levels)
+    res = refresh(short_template, data, d / "first.xlsx")
+    return d, dates, levels, res
+
+
+def test_first_load_past_the_template_rows_keeps_every_return(monthly):
+    d, dates, levels, res = monthly
+    assert res.added == 320 and res.report.error_cells == [] and res.report.unread == []
+    figures = figures_from_file(res.out)
+    assert figures["nobs"] == 319  # every return of 320 levels
+    assert figures["last_date"].date() == dates[-1]
+    cells = _returns(res.out)
+    numbers = [c[0] for c in cells if isinstance(c[0], float)]
+    # common practice: percent log returns from the levels (the CSV holds them to 6 decimals)
+    expected = 100 * np.diff(np.log(np.round(levels, 6)))
+    assert_allclose(numbers, expected, rtol=1e-9)
+    check = openpyxl.load_workbook(res.out, data_only=True)
+    sheet, r, c, _, _ = name_range(check, "data_check")
+    assert check[sheet].cell(r, c).value.startswith("OK: all 319 returns")
+    assert name_range(check, "returns")[3] > 320  # the returns range grew with the data
+
+
+def test_monthly_figures_equal_direct_calls(monthly):
+    _, _, _, res = monthly
+    figures = figures_from_file(res.out)
+    fit, cum, risk = _direct(_returns(res.out), *MONTHLY_MODEL, 12, 1, 12)
+    assert_allclose(figures["vol_1m"], math.sqrt(cum[0]), rtol=1e-10)
+    assert_allclose(figures["vol_1m_ann"], math.sqrt(cum[0]) * math.sqrt(12), rtol=1e-10)
+    assert_allclose(figures["vol_12m"], math.sqrt(cum[11]), rtol=1e-10)
+    assert_allclose(figures["var_1m"], risk["VaR_value"], rtol=1e-10)
+    assert_allclose(figures["es_1m"], risk["ES_value"], rtol=1e-10)
+    # the loss as % of value of a log-return VaR: 100 (1 - exp(-VaR/100)) (common practice)
+    assert_allclose(figures["var_1m"], 100 * (1 - math.exp(-risk["VaR"] / 100)), rtol=1e-12)
+    assert figures["var_1m"] < risk["VaR"]
+    assert figures["converged"] is fit["converged"][1] is True
+
+
+def test_history_row_follows_the_contract(monthly):
+    _, dates, _, res = monthly
+    header, rows = _history(res.out)
+    assert header[: len(HISTORY_HEADER)] == HISTORY_HEADER
+    assert len(rows) == 1
+    row = rows[0]
+    figures = figures_from_file(res.out)
+    for name in ("nobs", "vol_1m", "vol_12m", "var_1m", "es_1m"):
+        assert_allclose(row[name], figures[name], rtol=1e-12)
+    assert row["last_date"].date() == dates[-1] and row["converged"] is True
+    fit = {r[0]: r for r in VOLFIT(_returns(res.out), *MONTHLY_MODEL, "periods=12; returns=log100")}
+    for name in ("mu", "phi[1]", "omega", "alpha[1]", "gamma[1]", "beta[1]", "nu"):
+        assert_allclose(row[name], fit[name][1], rtol=1e-12)
+        assert_allclose(row[f"se_{name}"], fit[name][2], rtol=1e-12)
+
+
+def test_refresh_with_nothing_new_adds_no_history_row(monthly, tmp_path, capsys):
+    d, dates, levels, res = monthly
+    again = refresh(res.out, d / "history.csv", tmp_path / "again.xlsx")
+    assert again.added == 0 and again.history is None
+    assert len(_history(again.out)[1]) == 1
+    header_only = tmp_path / "empty.csv"
+    header_only.write_text("date,level\n")
+    assert main(["refresh", str(res.out), "--data", str(header_only), "-o", str(tmp_path / "h.xlsx")]) == 0
+    assert "no History row added" in capsys.readouterr().out
+    assert len(_history(tmp_path / "h.xlsx")[1]) == 1
+
+
+def test_next_month_appends_and_flags_moves(monthly, tmp_path):
+    d, dates, levels, res = monthly
+    nxt = _csv(tmp_path / "next.csv", [dates[-1], dt.date(1946, 9, 30)], [round(levels[-1], 6), levels[-1] * 1.01])
+    before = hashlib.sha256(res.out.read_bytes()).hexdigest()
+    out = refresh(res.out, nxt, tmp_path / "next.xlsx")
+    assert hashlib.sha256(res.out.read_bytes()).hexdigest() == before  # the input is never written over
+    assert out.added == 1 and figures_from_file(out.out)["nobs"] == 320
+    _, rows = _history(out.out)
+    assert len(rows) == 2 and rows[1]["last_date"].date() == dt.date(1946, 9, 30)
+    # pretend last month's beta was far away: the new row names it
+    wb = openpyxl.load_workbook(out.out)
     hist = wb["History"]
     header = [c.value for c in hist[1]]
-    hist.cell(2, header.index("beta[1]") + 1, 0.2)  # pretend last month's beta was far away
+    hist.cell(3, header.index("beta[1]") + 1, 0.2)
     wb.save(tmp_path / "edited.xlsx")
-    _, row, _, _ = refresh(tmp_path / "edited.xlsx", _csv(tmp_path / "b.csv", [("2026-12-31", v0)]),
-                           tmp_path / "b.xlsx")
-    assert row["flag"].startswith("moved more than 2 SE") and "beta[1]" in row["flag"]
+    moved = refresh(tmp_path / "edited.xlsx", _csv(tmp_path / "n2.csv", [dt.date(1946, 10, 31)], [levels[-1]]),
+                    tmp_path / "moved.xlsx")
+    assert "beta[1]" in moved.history["moved"]
+
+
+# --------------------------------------------------------------------------- round trips
+def _next_month_figures(book, dates, levels, tmp_path, tag):
+    nxt = _csv(tmp_path / f"{tag}.csv", [dt.date(1946, 9, 30)], [levels[-1] * 0.97])
+    return figures_from_file(refresh(book, nxt, tmp_path / f"{tag}.xlsx").out)
+
+
+def test_openpyxl_resave_refreshes_to_the_same_figures(monthly, tmp_path):
+    d, dates, levels, res = monthly
+    wb = openpyxl.load_workbook(res.out)  # openpyxl drops the dynamic-array metadata
+    wb.save(tmp_path / "resaved.xlsx")
+    a = _next_month_figures(res.out, dates, levels, tmp_path, "plain")
+    b = _next_month_figures(tmp_path / "resaved.xlsx", dates, levels, tmp_path, "after_resave")
+    for k in a:
+        assert a[k] == b[k], k
+
+
+@pytest.mark.skipif(shutil.which("soffice") is None, reason="LibreOffice (soffice) is not installed here; CI installs it")
+def test_libreoffice_resave_refreshes_to_the_same_figures(monthly, tmp_path):
+    """A workbook opened and saved by LibreOffice (function names lower-cased, spills written as
+    plain array formulas, _xlfn.anchorarray) refreshes next month to the figures of the route
+    without LibreOffice, and those equal direct calls."""
+    d, dates, levels, res = monthly
+    subprocess.run(["soffice", "--headless", "--convert-to", "xlsx", "--outdir", str(tmp_path / "lo"), str(res.out)],
+                   check=True, capture_output=True, timeout=300)
+    lo = tmp_path / "lo" / res.out.name
+    text = openpyxl.load_workbook(lo)["Model"]["A3"].value
+    assert "volfit" in getattr(text, "text", text)  # LibreOffice's spelling, which must be understood
+    a = _next_month_figures(res.out, dates, levels, tmp_path, "plain")
+    b = _next_month_figures(lo, dates, levels, tmp_path, "lo")
+    for k in a:
+        assert a[k] == b[k], k
+    fit, cum, risk = _direct(_returns(tmp_path / "lo.xlsx"), *MONTHLY_MODEL, 12, 1, 12)
+    assert_allclose(b["vol_1m"], math.sqrt(cum[0]), rtol=1e-10)
+    assert_allclose(b["var_1m"], risk["VaR_value"], rtol=1e-10)
+
+
+# --------------------------------------------------------------------------- refusals
+def test_values_only_workbook_is_refused(monthly, tmp_path, capsys):
+    _, dates, levels, res = monthly
+    vo, _ = recalc(res.out, tmp_path / "vo.xlsx", values_only=True)
+    nxt = _csv(tmp_path / "n.csv", [dt.date(1946, 9, 30)], [levels[-1]])
+    assert main(["refresh", str(vo), "--data", str(nxt), "-o", str(tmp_path / "out.xlsx")]) == 2
+    err = capsys.readouterr().err
+    assert "holds values where its formulas should be" in err and "Traceback" not in err
+    assert not (tmp_path / "out.xlsx").exists()
+
+
+def test_a_workbook_without_the_contract_is_refused(tmp_path):
+    wb = openpyxl.Workbook()
+    wb.active.title = "Data"
+    wb.save(tmp_path / "plain.xlsx")
+    with pytest.raises(RecalcError, match="lacks the template's defined name"):
+        refresh(tmp_path / "plain.xlsx", _csv(tmp_path / "a.csv", _month_ends(3), [1, 2, 3]), tmp_path / "o.xlsx")
+
+
+@pytest.fixture(scope="module")
+def small(tmp_path_factory):
+    d = tmp_path_factory.mktemp("small")
+    dates = _month_ends(240, 1990)
+    levels = _levels("AR(1)-GJR-GARCH(1,1)", [0.5, 0.1, 0.5, 0.05, 0.1, 0.85, 8.0], 240, seed=11)
+    res = refresh(template_file(), _csv(d / "h.csv", dates, levels), d / "book.xlsx")
+    return res.out, dates, levels
+
+
+def _bad(small, tmp_path, rows, *flags):
+    book, dates, levels = small
+    path = tmp_path / "bad.csv"
+    path.write_text("date,level\n" + "".join(f"{a},{b}\n" for a, b in rows))
+    out = tmp_path / "x.xlsx"
+    code = main(["refresh", str(book), "--data", str(path), "-o", str(out), *flags])
+    return code, out
 
 
 @pytest.mark.parametrize("rows,pattern", [
-    ([("2026-10-30", 1.0)], "already in the workbook with level"),
-    ([("1990-01-31", 100.0)], "older than the workbook's last date"),
-    ([("2026-12-31", 100.0), ("2026-11-30", 100.0)], "not after the previous new date"),
-    ([("30/11/2026", 100.0)], "line 2: cannot read a date"),
-    ([("2026-11-30", -5)], "line 2: cannot read a date"),
+    # a misplaced decimal point: the level x 10,000
+    (lambda L, D: [(dt.date(2010, 1, 31), f"{L[-1] * 1e4:.4f}")], "robust standard deviations"),
+    (lambda L, D: [(dt.date(2010, 1, 31), "1e300")], "robust standard deviations"),
+    # five months missing, taken as one return
+    (lambda L, D: [(dt.date(2010, 6, 30), f"{L[-1]:.4f}")], "days after"),
+    (lambda L, D: [(dt.date(2010, 1, 31), "-5")], "must be a positive finite number"),
+    (lambda L, D: [(dt.date(2010, 1, 31), "inf")], "must be a positive finite number"),
+    (lambda L, D: [(D[-1], f"{L[-1] * 2:.4f}")], "already in the workbook with level"),
+    (lambda L, D: [(dt.date(1980, 1, 31), "100")], "older than the workbook's last date"),
+    (lambda L, D: [(dt.date(2010, 2, 28), "100"), (dt.date(2010, 1, 31), "100")], "not after the previous new date"),
+    (lambda L, D: [("31/01/2010", "100")], "cannot read a date"),
 ])
-def test_bad_rows_are_refused_and_nothing_is_written(book, tmp_path, rows, pattern):
-    out = tmp_path / "x.xlsx"
-    with pytest.raises(RecalcError, match=pattern):
-        refresh(book, _csv(tmp_path / "bad.csv", rows), out)
+def test_suspicious_or_bad_rows_stop_the_run(small, tmp_path, capsys, rows, pattern):
+    book, dates, levels = small
+    code, out = _bad(small, tmp_path, rows(levels, dates))
+    err = capsys.readouterr().err
+    assert code == 2 and pattern in err and ("line 2" in err or "line 3" in err), err
+    assert err.startswith("volcast: ") and "Traceback" not in err and err.count("\n") == 1
     assert not out.exists()
 
 
-def test_cli_refresh(book, tmp_path, capsys):
-    d0, v0 = _last()
-    assert main(["refresh", str(book), "--data", str(_csv(tmp_path / "c.csv", [("2026-11-30", v0)])),
-                 "-o", str(tmp_path / "c.xlsx")]) == 0
-    assert "added 1 new observation" in capsys.readouterr().out
-    assert main(["refresh", str(book), "--data", str(_csv(tmp_path / "d.csv", [("2026-10-30", 1.0)])),
-                 "-o", str(tmp_path / "d.xlsx")]) == 2
-    assert capsys.readouterr().err.startswith("volcast: ")
+def test_a_decimal_comma_gets_a_hint(small, tmp_path, capsys):
+    book, _, _ = small
+    path = tmp_path / "semi.csv"
+    path.write_text("date;level\n2010-01-31;12,5\n")  # a semicolon file from a decimal-comma locale
+    assert main(["refresh", str(book), "--data", str(path), "-o", str(tmp_path / "x.xlsx")]) == 2
+    err = capsys.readouterr().err
+    assert "line 2" in err and "decimal comma" in err and "Traceback" not in err
+
+
+def test_accept_flags_take_what_was_checked(small, tmp_path, capsys):
+    book, dates, levels = small
+    code, out = _bad(small, tmp_path, [(dt.date(2010, 6, 30), f"{levels[-1]:.4f}")], "--accept-gaps")
+    assert code == 0 and out.exists()
+    assert "accepted" in capsys.readouterr().err
+    code, out = _bad(small, tmp_path, [(dt.date(2010, 1, 31), f"{levels[-1] * 1.8:.4f}")], "--accept-jumps")
+    assert code == 0
+
+
+def test_recalc_reports_rows_below_the_returns_range(tmp_path, capsys, short_template):
+    """Levels pasted below the template's return formulas (as a person would in a spreadsheet)
+    are reported on standard error and in the workbook's visible data check."""
+    dates = _month_ends(ROWS + 11, 1900)
+    levels = _levels("AR(1)-GJR-GARCH(1,1)", [0.5, 0.1, 0.5, 0.05, 0.1, 0.85, 8.0], ROWS + 11, seed=5)
+    load_levels(short_template, _csv(tmp_path / "p.csv", dates, levels), tmp_path / "pasted.xlsx")
+    assert main(["recalc", str(tmp_path / "pasted.xlsx"), "-o", str(tmp_path / "out.xlsx")]) == 0
+    err = capsys.readouterr().err
+    assert "data left out" in err and f"Data!B{ROWS + 1}:B{ROWS + 12}" in err
+    wb = openpyxl.load_workbook(tmp_path / "out.xlsx", data_only=True)
+    sheet, r, c, _, _ = name_range(wb, "data_check")
+    assert wb[sheet].cell(r, c).value.startswith("WARNING: 12 level(s)")
+    # the next refresh extends the return formulas over the pasted rows: none is left out
+    nxt = dates[-1] + dt.timedelta(days=31)
+    res = refresh(tmp_path / "pasted.xlsx", _csv(tmp_path / "n.csv", [nxt], [levels[-1]]), tmp_path / "r.xlsx")
+    assert res.report.unread == [] and figures_from_file(res.out)["nobs"] == ROWS + 11
+    wb = openpyxl.load_workbook(res.out, data_only=True)
+    assert wb[sheet].cell(r, c).value.startswith(f"OK: all {ROWS + 11} returns")
+
+
+# --------------------------------------------------------------------------- daily
+def test_daily_first_load_of_4100_levels(tmp_path):
+    """4,100 daily levels into the empty daily template: every return in the fit, and the
+    next month is the cumulative variance of the next 21 trading days (common practice: 21
+    trading days a month, 252 a year)."""
+    dates = _business_days(4100)
+    levels = _levels("GJR-GARCH(1,1)", [0.03, 0.02, 0.05, 0.08, 0.88, 7.0], 4100, seed=7)
+    assert main(["template", "daily", "-o", str(tmp_path / "empty.xlsx")]) == 0
+    res = refresh(tmp_path / "empty.xlsx", _csv(tmp_path / "d.csv", dates, levels), tmp_path / "daily.xlsx")
+    figures = figures_from_file(res.out)
+    assert figures["nobs"] == 4099 and res.report.unread == []
+    fit, cum, risk = _direct(_returns(res.out), "GJR-GARCH(1,1)", "t", 252, 21, 252)
+    assert_allclose(figures["vol_1m"], math.sqrt(cum[20]), rtol=1e-10)
+    assert_allclose(figures["vol_1m_ann"], math.sqrt(cum[20]) * math.sqrt(252 / 21), rtol=1e-10)
+    assert_allclose(figures["vol_12m"], math.sqrt(cum[251]), rtol=1e-10)
+    assert_allclose(figures["var_1m"], risk["VaR_value"], rtol=1e-10)
+    assert risk["horizon"] == 21
+    with open(tmp_path / "d.csv") as fh:
+        assert len(list(csv.reader(fh))) == 4101

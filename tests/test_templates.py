@@ -32,17 +32,32 @@ def test_no_error_cells(filled):
     assert bad == []
 
 
-def test_daily_next_month_is_21_trading_days(filled):
+def test_headline_is_21_and_252_trading_days_in_the_daily_template(filled):
     template, out, _ = filled
-    if not template.startswith("daily"):
-        pytest.skip("the monthly template forecasts months directly")
+    from xlfuncs.headless.contract import figures_from_file, name_range
+
     wb = openpyxl.load_workbook(out, data_only=True)
-    data = wb["Data"]
-    cells = [[data.cell(r, 3).value] for r in range(3, data.max_row + 1) if isinstance(data.cell(r, 3).value, float)]
-    fit = VOLFIT(cells, "GJR-GARCH(1,1)", "t", "periods=252")
-    cum = VOLFORECAST(cells, fit, 21, "cumvar")
-    assert_allclose(wb["Forecast"]["L31"].value, cum[-1][0], rtol=1e-10)
-    assert_allclose(wb["Forecast"]["L32"].value, cum[-1][0] ** 0.5, rtol=1e-10)
+    sheet, r1, c, r2, _ = name_range(wb, "returns")
+    cells = [[wb[sheet].cell(r, c).value] for r in range(r1, r2 + 1)]
+    daily = template.startswith("daily")
+    model, periods, month, year = ("GJR-GARCH(1,1)", 252, 21, 252) if daily else ("AR(1)-GJR-GARCH(1,1)", 12, 1, 12)
+    fit = VOLFIT(cells, model, "t", f"periods={periods}; returns=log100")
+    cum = VOLFORECAST(cells, fit, year, "cumvar")
+    f = figures_from_file(out)
+    assert_allclose(f["vol_1m"], cum[month - 1][0] ** 0.5, rtol=1e-10)
+    assert_allclose(f["vol_1m_ann"], (cum[month - 1][0] * periods / month) ** 0.5, rtol=1e-10)
+    assert_allclose(f["vol_12m"], cum[year - 1][0] ** 0.5, rtol=1e-10)
+    assert f["nobs"] == sum(isinstance(x[0], float) for x in cells)
+
+
+def test_every_template_carries_the_contract():
+    from xlfuncs.headless.contract import HISTORY_HEADER, missing_names
+
+    for template, _ in CASES:
+        wb = openpyxl.load_workbook(template_file(template))
+        assert missing_names(wb) == []
+        assert [c.value for c in wb["History"][1]] == HISTORY_HEADER
+        assert wb.sheetnames[0] == "Summary"
 
 
 @pytest.mark.skipif(__import__("shutil").which("soffice") is None,

@@ -10,67 +10,129 @@ from __future__ import annotations
 import argparse
 import csv
 import math
+import os
+import shlex
 import sys
+from dataclasses import dataclass
 
 from .core.errors import InputError
 from .core.spec import parse_options
 from .sheet import VOLFIT
 
-__all__ = ["main", "read_returns_csv"]
+__all__ = ["main", "read_returns_csv", "load_returns_csv"]
 
 
 class CliError(Exception):
     """Bad input: printed as one line, exit status 2."""
 
 
-def read_returns_csv(path: str, column: str | None = None, skip_blanks: bool = False) -> list:
-    """The chosen numeric column of a CSV file (header row required), as a list of floats.
+RETURN_NAMES = ("return", "returns", "ret", "r")
+
+
+@dataclass
+class CsvReturns:
+    """The returns read from one CSV column, and the line that says how they were taken."""
+
+    returns: list
+    column: str
+    note: str
+
+
+def read_returns_csv(path: str, column: str | None = None, skip_blanks: bool = False, levels: bool = False) -> list:
+    """The returns of the chosen CSV column as a list of floats; see ``load_returns_csv``."""
+    return load_returns_csv(path, column, skip_blanks, levels).returns
+
+
+def load_returns_csv(path: str, column: str | None = None, skip_blanks: bool = False,
+                     levels: bool = False) -> CsvReturns:
+    """The returns of one numeric column of a CSV file (header row required).
 
     Blank cells before the first and after the last number are ignored (a return column computed
-    from prices starts blank); blank cells in between are refused unless ``skip_blanks``.
+    from prices starts blank); blank cells in between are refused unless ``skip_blanks``.  With
+    ``levels`` the column holds price levels p, all above zero, and the returns are
+    100 ln(p[t]/p[t-1]); a skipped blank level leaves out the returns on both sides of it.  Without
+    it, a column chosen by default that looks like price levels is refused; a column the caller
+    named is taken as returns.
     """
+    from .batch import lag1_autocorrelation, looks_like_levels
+
+    rows = _csv_rows(path)
+    header = [h.strip() for h in rows[0]]
+    col = _choose_column(path, header, rows, column, levels)
+    name = header[col]
+    cells = [(lineno, r[col].strip() if col < len(r) else "") for lineno, r in enumerate(rows[1:], start=2)]
+    filled = [i for i, (_, c) in enumerate(cells) if c]
+    if not filled:
+        raise CliError(f'{path}: column "{name}" holds no numbers')
+    values, skipped = [], 0  # (line, number) or None for a skipped blank
+    for lineno, cell in cells[filled[0]: filled[-1] + 1]:
+        if not cell:
+            if skip_blanks:
+                skipped += 1
+                values.append(None)
+                continue
+            raise CliError(f'{path} line {lineno}: column "{name}" is blank; fill it or pass --options "missing=skip"')
+        if not _is_number(cell):
+            raise CliError(f'{path} line {lineno}: "{cell}" in column "{name}" is not a number')
+        values.append((lineno, float(cell)))
+    numbers = [v for _, v in filter(None, values)]
+    where = f'column "{name}" of {os.path.basename(path)}'
+    if levels:
+        for lineno, v in filter(None, values):
+            if v <= 0:
+                raise CliError(f'{path} line {lineno}: the level {v:g} in column "{name}" is not above zero; '
+                               "--levels needs price levels above zero")
+        returns = [100.0 * (math.log(b[1]) - math.log(a[1])) for a, b in zip(values, values[1:]) if a and b]
+        if not returns:
+            raise CliError(f'{path}: column "{name}" needs at least two levels in a row for --levels')
+        note = f"{where}: {len(returns)} log returns in percent from {len(numbers)} levels"
+    else:
+        returns = numbers
+        level_like = looks_like_levels(returns)
+        if level_like and column is None:
+            raise CliError(f'{path}: column "{name}" looks like price levels, not returns (all above zero, lag-1 '
+                           f"autocorrelation {lag1_autocorrelation(returns):.2f}); pass --levels to fit its log "
+                           f"returns in percent, or --column {shlex.quote(name)} to take it as returns")
+        note = f"{where}: {len(returns)} returns"
+        if level_like:
+            note += " (taken as returns as named, though they look like price levels; --levels converts them)"
+    if skipped:
+        note += f"; {skipped} blank cell{'s' if skipped > 1 else ''} skipped"
+    return CsvReturns(returns, name, note)
+
+
+def _csv_rows(path: str) -> list:
+    """The non-blank rows of a CSV file; at least a header and one row of data."""
     try:
         with open(path, newline="", encoding="utf-8-sig") as fh:
             rows = list(csv.reader(fh))
     except FileNotFoundError:
         raise CliError(f"{path}: no such file") from None
-    except (OSError, UnicodeDecodeError) as exc:
+    except (OSError, UnicodeDecodeError, csv.Error) as exc:
         raise CliError(f"{path}: cannot be read as a CSV text file ({exc})") from None
     rows = [r for r in rows if any(c.strip() for c in r)] if rows else rows
     if len(rows) < 2:
         raise CliError(f"{path}: needs a header row and at least one row of data")
-    header = [h.strip() for h in rows[0]]
+    return rows
+
+
+def _choose_column(path: str, header: list, rows: list, column: str | None, levels: bool) -> int:
+    """The index of the named column; by default one named like "return", else the last numeric one
+    (with ``levels``, the last numeric one not named like "return")."""
     if column is not None:
         if column in header:
-            col = header.index(column)
-        elif column.isdigit() and 1 <= int(column) <= len(header):
-            col = int(column) - 1
-        else:
-            raise CliError(f'{path}: no column "{column}"; the columns are {", ".join(header)}')
-    else:
-        lowered = [h.lower() for h in header]
-        named = [i for i, h in enumerate(lowered) if h in ("return", "returns", "ret", "r")]
-        if named:
-            col = named[0]
-        else:
-            numeric = [i for i in range(len(header)) if all(_is_number(r[i]) for r in rows[1:] if i < len(r) and r[i].strip())]
-            if not numeric:
-                raise CliError(f"{path}: no numeric column found; name one with --column")
-            col = numeric[-1]
-    cells = [(lineno, r[col].strip() if col < len(r) else "") for lineno, r in enumerate(rows[1:], start=2)]
-    filled = [i for i, (_, c) in enumerate(cells) if c]
-    if not filled:
-        raise CliError(f'{path}: column "{header[col]}" holds no numbers')
-    out = []
-    for lineno, cell in cells[filled[0]: filled[-1] + 1]:
-        if not cell:
-            if skip_blanks:
-                continue
-            raise CliError(f'{path} line {lineno}: column "{header[col]}" is blank; fill it or pass --options "missing=skip"')
-        if not _is_number(cell):
-            raise CliError(f'{path} line {lineno}: "{cell}" in column "{header[col]}" is not a number')
-        out.append(float(cell))
-    return out
+            return header.index(column)
+        if column.isdigit() and 1 <= int(column) <= len(header):
+            return int(column) - 1
+        raise CliError(f'{path}: no column "{column}"; the columns are {", ".join(header)}')
+    lowered = [h.lower() for h in header]
+    named = [i for i, h in enumerate(lowered) if h in RETURN_NAMES]
+    if named and not levels:
+        return named[0]
+    numeric = [i for i in range(len(header)) if all(_is_number(r[i]) for r in rows[1:] if i < len(r) and r[i].strip())]
+    if not numeric:
+        raise CliError(f"{path}: no numeric column found; name one with --column")
+    return ([i for i in numeric if lowered[i] not in RETURN_NAMES] or numeric)[-1]
 
 
 def _is_number(s: str) -> bool:
@@ -115,10 +177,11 @@ def _cmd_fit(args) -> int:
         skip = parse_options(args.options).missing == "skip"
     except InputError as exc:
         raise CliError(str(exc)) from None
-    returns = read_returns_csv(args.file, args.column, skip_blanks=skip)
-    rows = VOLFIT([[v] for v in returns], args.model, args.dist, args.options)
+    series = load_returns_csv(args.file, args.column, skip_blanks=skip, levels=args.levels)
+    rows = VOLFIT([[v] for v in series.returns], args.model, args.dist, args.options)
     if len(rows) == 1 and isinstance(rows[0][0], str) and rows[0][0].startswith("ERROR:"):
         raise CliError(rows[0][0][len("ERROR:"):].strip())
+    print(series.note)
     print(format_table(rows))
     return 0
 
@@ -138,6 +201,8 @@ def _cmd_recalc(args) -> int:
     except RecalcError as exc:
         raise CliError(str(exc)) from None
     print(f"recalculated {report.formulas} formulas ({report.spills} spilled results) into {out}")
+    for line in report.unread:
+        print(f"volcast: WARNING: data left out: {line}", file=sys.stderr)
     if report.error_cells:
         shown = ", ".join(f"{a} {v if len(v) < 80 else v[:77] + '...'}" for a, v in report.error_cells[:10])
         more = f" and {len(report.error_cells) - 10} more" if len(report.error_cells) > 10 else ""
@@ -154,10 +219,11 @@ def _cmd_demo(args) -> int:
     except Exception as exc:  # noqa: BLE001 - one line, as for any bad input
         raise CliError(f"the demo failed: {exc}") from None
     print(f"Volcast demo: synthetic Harrowgate Lane Global Equity Composite, monthly, to {h['last_date']}")
-    print(f"model {h['model']} with {h['dist']} shocks")
+    print(f"model {h['model']} with {h['dist']} shocks, {h['nobs']} monthly log returns, "
+          f"converged {'TRUE' if h['converged'] else 'FALSE'}")
     print(f"next month's volatility   {h['vol_1m']:6.2f} %  ({h['vol_1m_annualised']:.2f} % annualised)")
-    print(f"12-month volatility       {h['vol_12m']:6.2f} %  (of the cumulative 12-month return)")
-    print(f"{h['var_level']:.0%} one-month VaR      {h['var_1m']:6.2f} %  of value")
+    print(f"12-month volatility       {h['vol_12m']:6.2f} %  (of the cumulative 12-month log return)")
+    print(f"{h['var_level']:.0%} one-month VaR      {h['var_1m']:6.2f} %  of value (ES {h['es_1m']:.2f} % of value)")
     print(f"workbook: {h['workbook']}   chart: {h['chart']}")
     print("Model estimates, not advice; validate under your model-risk policy.")
     if h["error_cells"]:
@@ -170,14 +236,46 @@ def _cmd_refresh(args) -> int:
     from .headless.refresh import refresh
 
     try:
-        out, row, report, added = refresh(args.book, args.data, args.out)
+        res = refresh(args.book, args.data, args.out, accept_jumps=args.accept_jumps, accept_gaps=args.accept_gaps)
     except RecalcError as exc:
         raise CliError(str(exc)) from None
-    print(f"added {added} new observation(s) to {row['last date']}; wrote {out}")
-    print(f"history: loglik {row['loglik']:.4f}, vol 1m {row['vol 1m (%)']:.3f} %, VaR 1m {row['VaR 1m (%)']:.3f} %"
-          + (f"; {row['flag']}" if row["flag"] else ""))
-    if report.error_cells:
-        print(f"volcast: {len(report.error_cells)} cells evaluate to errors", file=sys.stderr)
+    for w in res.warnings:
+        print(f"volcast: warning: {w}", file=sys.stderr)
+    f = res.figures
+    if res.history is None:
+        print(f"nothing new after {res.last_date}: no History row added; wrote {res.out} (recalculated)")
+    else:
+        print(f"added {res.added} observation(s), data to {res.last_date}; wrote {res.out}")
+        h = res.history
+        print(f"{h['model']} with {h['dist']} shocks on {f['nobs']} returns: vol 1m {f['vol_1m']:.3f} %, "
+              f"vol 12m {f['vol_12m']:.3f} %, {f['var_level']:.0%} VaR 1m {f['var_1m']:.3f} % of value, "
+              f"ES 1m {f['es_1m']:.3f} % of value" + (f"; moved: {h['moved']}" if h["moved"] else ""))
+    if not f.get("converged", True):
+        print("volcast: WARNING: the fit did NOT converge; its figures are not reliable (see the Model sheet; "
+              "the History row says NOT CONVERGED)", file=sys.stderr)
+    if res.report.error_cells:
+        print(f"volcast: {len(res.report.error_cells)} cells evaluate to errors, e.g. "
+              f"{res.report.error_cells[0][0]} {res.report.error_cells[0][1][:80]}", file=sys.stderr)
+    return 0
+
+
+def _cmd_template(args) -> int:
+    import shutil
+    from pathlib import Path
+
+    from .demo import template_file
+
+    out = Path(args.out)
+    if out.suffix.lower() != ".xlsx":
+        raise CliError(f"{out.name}: the output must be an .xlsx file")
+    if out.exists() and not args.force:
+        raise CliError(f"{out} exists; choose another name or pass --force")
+    try:
+        shutil.copyfile(template_file(f"{args.kind}_variance.xlsx"), out)
+    except OSError as exc:
+        raise CliError(f"{out}: cannot write there ({exc.strerror or exc})") from None
+    print(f"wrote the empty {args.kind} template to {out}; load your history with: "
+          f"volcast refresh {out} --data HISTORY.csv -o BOOK.xlsx")
     return 0
 
 
@@ -209,21 +307,29 @@ def _cmd_backtest(args) -> int:
     from .core.errors import VolcastError
     from .core.spec import parse_model
 
-    returns = read_returns_csv(args.file, args.column)
     try:
         spec, dist, opts = parse_model(args.model), get_distribution(args.dist), parse_options(args.options)
-        bt = backtest(np.array(returns), spec, dist, opts, args.window, args.level, args.scheme, args.refit,
+    except VolcastError as exc:
+        raise CliError(str(exc)) from None
+    series = load_returns_csv(args.file, args.column, skip_blanks=opts.missing == "skip", levels=args.levels)
+    try:
+        bt = backtest(np.array(series.returns), spec, dist, opts, args.window, args.level, args.scheme, args.refit,
                       progress=_Progress("backtest", args.progress))
     except VolcastError as exc:
         raise CliError(str(exc)) from None
+    if args.png:
+        try:
+            _backtest_png(bt, args.png, f"{spec.canonical}-{dist.name}")
+        except (OSError, ValueError) as exc:
+            raise CliError(f"{args.png}: the chart cannot be written ({exc})") from None
     c = bt.coverage
+    print(series.note)
     print(f"{spec.canonical} with {dist.name} shocks, {args.scheme} window {args.window}, refit every {args.refit}")
     print(f"forecasts {c.forecasts}  exceptions {c.exceptions} ({c.rate:.2%}, expected {c.expected_rate:.2%})  zone {c.zone}")
     print(f"Kupiec LR {c.lr_uc:.3f} (p {c.p_uc:.3f})  independence LR {c.lr_ind:.3f} (p {c.p_ind:.3f})  "
           f"conditional coverage LR {c.lr_cc:.3f} (p {c.p_cc:.3f})")
     print(f"mean QLIKE {bt.qlike:.4f}  mean MSE {bt.mse:.4g}  estimations {bt.fits}")
     if args.png:
-        _backtest_png(bt, args.png, f"{spec.canonical}-{dist.name}")
         print(f"chart: {args.png}")
     return 0
 
@@ -251,24 +357,70 @@ def _backtest_png(bt, path, title):
 
 
 def _cmd_batch(args) -> int:
-    from .batch import read_panel, run_batch, write_tidy
+    from pathlib import Path
 
+    from .batch import LEVELS_AUTOCORRELATION, level_like_series, levels_to_returns, read_panel, run_batch, write_tidy
+
+    if not Path(args.out).resolve().parent.is_dir():
+        raise CliError(f"{args.out}: the folder {Path(args.out).resolve().parent} does not exist")
+    if args.workers is not None and args.workers < 1:
+        raise CliError(f"--workers must be 1 or more, got {args.workers}")
+    if args.horizon < 1:
+        raise CliError(f"--horizon must be 1 or more, got {args.horizon}")
+    if not 0.5 <= args.level < 1:  # as the risk core requires
+        raise CliError(f"--level must be between 0.5 and 1, e.g. 0.99, got {args.level:g}")
     try:
-        panel = read_panel(args.panel, args.id, args.value)
+        panel, data_rows = read_panel(args.panel, args.id, args.value, with_rows=True)
         if not panel:
             raise ValueError(f"{args.panel}: no series found")
         parse_options(args.options)
+        name = Path(args.panel).name
+        where = f'long panel {name} (ids "{args.id}", values "{args.value}")' if args.id else f"wide panel {name}"
+        if args.levels:
+            panel = levels_to_returns(panel, data_rows, args.panel)
+            how = "levels converted to log returns in percent, 100*ln(p[t]/p[t-1]), series by series"
+        else:
+            like = [] if args.as_returns else level_like_series(panel)
+            if like:
+                more = f" and {len(like) - 3} more" if len(like) > 3 else ""
+                shown = ", ".join(f'"{sid}"' for sid in like[:3]) + more
+                raise ValueError(f"{args.panel}: {len(like)} of {len(panel)} series look like price levels, not "
+                                 f"returns ({shown}: all above zero, lag-1 autocorrelation above "
+                                 f"{LEVELS_AUTOCORRELATION:g}); pass --levels to fit their log returns in percent, "
+                                 "or --as-returns to take them as they are")
+            how = "taken as returns"
+        print(f"{where}: {len(panel)} series, {how}", flush=True)
         rows = run_batch(panel, args.model, args.dist, args.options, args.horizon, args.level,
                          workers=args.workers, cluster=args.cluster, progress=_Progress("batch", args.progress))
         out = write_tidy(rows, args.out)
-    except (ValueError, InputError) as exc:
-        raise CliError(str(exc)) from None
+    except (ValueError, InputError, OSError, ImportError) as exc:
+        raise CliError(str(exc) or type(exc).__name__) from None
     failed = sorted({r[0] for r in rows if r[1] == "error"})
     print(f"fitted {len(panel) - len(failed)} of {len(panel)} series; wrote {out}")
     if failed:
         shown = ", ".join(failed[:10]) + (f" and {len(failed) - 10} more" if len(failed) > 10 else "")
         print(f"volcast: {len(failed)} series failed (see their error rows): {shown}", file=sys.stderr)
     return 0
+
+
+def _column_choice(what: str) -> str:
+    """The help description of fit and backtest: how the column is chosen."""
+    from .batch import LEVELS_AUTOCORRELATION
+
+    return (f'{what}. The column is the one given with --column, else one named "return", else the last numeric '
+            f"one. A column chosen by default that looks like price levels (all above zero, lag-1 autocorrelation "
+            f"above {LEVELS_AUTOCORRELATION:g}) is refused: pass --levels to use its log returns in percent, or "
+            "name it with --column to take it as returns.")
+
+
+def _column_args(p):
+    """--column and --levels, the same for fit and backtest."""
+    p.add_argument("--column", help='column name or 1-based number (default: a column named "return", else the last '
+                                    'numeric one; with --levels, the last numeric one not named "return"). A column '
+                                    "named here is taken as asked, even when it looks like price levels")
+    p.add_argument("--levels", action="store_true",
+                   help="the column holds price levels p (all above zero): use their log returns in percent, "
+                        "100*ln(p[t]/p[t-1])")
 
 
 def _model_args(p):
@@ -281,9 +433,11 @@ def _model_args(p):
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
     sub = parser.add_subparsers(dest="command", required=True)
-    p = sub.add_parser("fit", help="estimate a model on a CSV column and print the fit table")
+    p = sub.add_parser("fit", help="estimate a model on a CSV column and print the fit table",
+                       description=_column_choice("Estimates a model on one column of a CSV file and prints "
+                                                  "the fit table"))
     p.add_argument("file", help="CSV file with a header row")
-    p.add_argument("--column", help='column name or 1-based number (default: a column named "return", else the last numeric one)')
+    _column_args(p)
     _model_args(p)
     p.set_defaults(func=_cmd_fit)
     p = sub.add_parser("recalc", help="recalculate a workbook with no Excel; keeps formulas, stores values")
@@ -292,13 +446,24 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--values-only", action="store_true", help="write plain values instead of formulas with values")
     p.set_defaults(func=_cmd_recalc)
     p = sub.add_parser("refresh", help="append new observations from a CSV, recalculate, add an estimate-history row")
-    p.add_argument("book", help="the workbook (monthly template layout); never written over")
-    p.add_argument("--data", required=True, help="CSV with columns date (YYYY-MM-DD) and level")
+    p.add_argument("book", help="a workbook made from a shipped template (an empty one for the first load); never written over")
+    p.add_argument("--data", required=True, help="CSV with a header row naming columns date (YYYY-MM-DD) and level")
     p.add_argument("-o", "--out", required=True, help="output workbook")
+    p.add_argument("--accept-jumps", action="store_true",
+                   help="take new returns beyond the outlier bound (checked by default: a misplaced decimal point)")
+    p.add_argument("--accept-gaps", action="store_true",
+                   help="take calendar gaps much longer than the series' usual spacing (checked by default: missing rows)")
     p.set_defaults(func=_cmd_refresh)
-    p = sub.add_parser("backtest", help="walk-forward backtest of one-step variance and VaR forecasts on a CSV column")
+    p = sub.add_parser("template", help="write an empty shipped template, to load a history into with refresh")
+    p.add_argument("kind", choices=("monthly", "daily"), help="monthly, or daily (a month is 21 trading days)")
+    p.add_argument("-o", "--out", required=True, help="output workbook")
+    p.add_argument("--force", action="store_true", help="write over an existing file")
+    p.set_defaults(func=_cmd_template)
+    p = sub.add_parser("backtest", help="walk-forward backtest of one-step variance and VaR forecasts on a CSV column",
+                       description=_column_choice("Walk-forward backtest of one-step variance and VaR "
+                                                  "forecasts on one column of a CSV file"))
     p.add_argument("file", help="CSV file with a header row")
-    p.add_argument("--column", help="column name or number (default as for fit)")
+    _column_args(p)
     _model_args(p)
     p.add_argument("--window", type=int, required=True, help="estimation window (observations)")
     p.add_argument("--level", type=float, default=0.99)
@@ -310,7 +475,14 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("batch", help="fit many series from one CSV or Parquet panel in parallel; tidy output")
     p.add_argument("panel", help="CSV or Parquet: wide (a column per series) or long (with --id and --value)")
     p.add_argument("--id", help="long panel: the series id column")
-    p.add_argument("--value", help="long panel: the returns column")
+    p.add_argument("--value", help="long panel: the column of values; values that look like price levels are still "
+                                   "refused unless --levels or --as-returns is given")
+    how = p.add_mutually_exclusive_group()
+    how.add_argument("--levels", action="store_true",
+                     help="the series are price levels (above zero): fit each one's log returns in percent, "
+                          "100*ln(p[t]/p[t-1])")
+    how.add_argument("--as-returns", action="store_true",
+                     help="take every series as returns even when it looks like price levels")
     _model_args(p)
     p.add_argument("--horizon", type=int, default=12)
     p.add_argument("--level", type=float, default=0.99)

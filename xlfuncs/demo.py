@@ -37,51 +37,56 @@ def template_file(name: str = _TEMPLATE) -> Path:
 
 
 def load_levels(template, series, book) -> list:
-    """Copy ``template`` to ``book`` with the dates and levels of the CSV ``series`` in its Data sheet."""
+    """Copy ``template`` to ``book`` with the dates and levels of the CSV ``series`` typed into its
+    Data sheet, as a person pasting them would (no recalculation); returns the CSV rows."""
     import openpyxl
+
+    from .headless.contract import name_range
 
     shutil.copyfile(template, book)
     wb = openpyxl.load_workbook(book)
-    ws = wb["Data"]
+    sheet, r1, col, _, _ = name_range(wb, "returns")
+    ws = wb[sheet]
     with open(series, newline="") as fh:
         rows = list(csv.DictReader(fh))
-    for i, row in enumerate(rows, start=2):
-        ws.cell(i, 1, dt.date.fromisoformat(row["date"])).number_format = "yyyy-mm-dd"
-        ws.cell(i, 2, float(row["level"]))
+    for i, row in enumerate(rows, start=max(r1, 2)):
+        ws.cell(i, col - 2, dt.date.fromisoformat(row["date"])).number_format = "yyyy-mm-dd"
+        ws.cell(i, col - 1, float(row["level"]))
     wb.save(book)
     return rows
 
 
 def run_demo(out_dir) -> dict:
+    """The monthly template refreshed with the demo series' whole history (a first load), headless;
+    the headline read through the template's defined names."""
     import openpyxl
 
-    from .headless.recalc import recalc
+    from .headless.contract import figures_from_file
+    from .headless.refresh import refresh
 
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
-    book = out_dir / "volcast-demo-input.xlsx"
-    rows = load_levels(template_file(), data_file(), book)
-    out, report = recalc(book, out_dir / "volcast-demo.xlsx")
-    book.unlink()
-    values = openpyxl.load_workbook(out, data_only=True)
-    fc, inp = values["Forecast"], values["Inputs"]
-    periods = float(inp["B8"].value)
-    risk = {fc.cell(r, 9).value: fc.cell(r, 10).value for r in range(3, 11)}
-    vol1 = float(fc["D4"].value)
-    cum12 = float(fc["E15"].value) ** 0.5
+    res = refresh(template_file(), data_file(), out_dir / "volcast-demo.xlsx")
+    values = openpyxl.load_workbook(res.out, data_only=True)
+    figures = figures_from_file(res.out)
     chart = write_chart(values, out_dir / "volcast-demo.png")
+    hist = res.history or {}
     return {
-        "workbook": out,
+        "workbook": res.out,
         "chart": chart,
-        "last_date": rows[-1]["date"],
-        "model": values["Model"]["B4"].value,
-        "dist": values["Model"]["B5"].value,
-        "vol_1m": vol1,
-        "vol_1m_annualised": vol1 * periods ** 0.5,
-        "vol_12m": cum12,
-        "var_1m": float(risk["VaR"]),
-        "var_level": float(risk["level"]),
-        "error_cells": report.error_cells,
+        "last_date": res.last_date.isoformat(),
+        "model": hist.get("model"),
+        "dist": hist.get("dist"),
+        "converged": figures["converged"],
+        "nobs": figures["nobs"],
+        "vol_1m": figures["vol_1m"],
+        "vol_1m_annualised": figures["vol_1m_ann"],
+        "vol_12m": figures["vol_12m"],
+        "var_1m": figures["var_1m"],
+        "es_1m": figures["es_1m"],
+        "var_level": figures["var_level"],
+        "error_cells": res.report.error_cells,
+        "unread": res.report.unread,
     }
 
 

@@ -1,34 +1,63 @@
 """``volcast refresh BOOK.xlsx --data NEW.csv -o OUT.xlsx``: the monthly refresh, headless.
 
-Appends the observations of NEW.csv dated after the workbook's last date, recalculates, and adds
-a row to the estimate history.  Rows of NEW.csv on dates the workbook already has are skipped when
-their level is the same and refused when it differs; an older date missing from the workbook, a
-date out of order or an unparseable row is refused with the line named, and nothing is written.
-The history row flags every parameter that moved by more than two standard errors since the
-previous row.
+A refresh is true or refuses; it never records a stale or wrong number.
 
-Works on workbooks laid out as the monthly template: a Data sheet with dates in column A and
-levels in column B from row 2, the fit table spilled from Model!A3, the forecast table from
-Forecast!A3, the one-month risk table from Forecast!I3, and a History sheet.
+* BOOK carries the template contract (``contract.NAMES``); figures are found through the names.
+  An empty shipped template is a valid BOOK: the first load of a user's whole history.
+* The observations of NEW.csv dated after BOOK's last date are appended.  Rows on dates BOOK has
+  are skipped when their level is the same and refused when it differs; an older date missing
+  from BOOK, a date out of order or an unreadable row is refused with the line named.
+* Suspicious new data stops the run unless accepted: a return beyond a robust bound of the
+  series (``JUMP_BOUND`` robust standard deviations from the median; a misplaced decimal point),
+  a calendar gap much longer than the series' usual spacing (rows missing).
+* The return formulas and every range that ends with them grow with the data, so no row is left
+  out of the fit; a recalculation that still finds numbers below a range a formula of ours reads
+  is refused.
+* A workbook whose formulas are gone (a values-only copy) is refused: it would record last
+  month's figures under this month's date.
+* With nothing new, no History row is added.  Otherwise the History sheet gains one row: run time,
+  last date, nobs, model, dist, converged, loglik, the headline figures, the parameters that moved
+  by more than two standard errors since the previous row, each estimate and its standard error.
+
+Nothing is written when a refresh is refused.
 """
 
 from __future__ import annotations
 
 import csv
 import datetime as dt
+import io
 import math
 import os
+import re
 import tempfile
+from dataclasses import dataclass, field
 from pathlib import Path
 
-from .recalc import RecalcError, recalc
-from .xlsxpost import dynamic_anchors
+from .contract import FIGURES, HISTORY_HEADER, missing_names, name_range
+from .recalc import RecalcError, cell_name, recalc
+from .xlsxpost import ExcelError, dynamic_anchors
 
-__all__ = ["refresh", "HISTORY_HEADER"]
+__all__ = ["refresh", "RefreshResult", "HISTORY_HEADER", "JUMP_BOUND", "suspicious"]
 
-HISTORY_HEADER = ["run time", "last date", "nobs", "model", "dist", "loglik", "vol 1m (%)", "vol 12m (%)",
-                  "VaR 1m (%)", "flag"]
 _TOL = 1e-9
+# a new return further than this many robust standard deviations (1.4826 x the median absolute
+# deviation) from the median of the series is taken for a typo: our own rule, chosen so that a
+# misplaced decimal point is always caught and genuine crash days of ordinary series are rare
+# enough to confirm by hand (--accept-jumps)
+JUMP_BOUND = 10.0
+_MAX_CSV_BYTES = 64 * 1024 * 1024
+
+
+@dataclass
+class RefreshResult:
+    out: Path
+    added: int
+    last_date: dt.date
+    history: dict | None  # the History row written, or None when nothing was new
+    report: object
+    figures: dict = field(default_factory=dict)
+    warnings: list = field(default_factory=list)
 
 
 def _date(v):
@@ -39,121 +68,341 @@ def _date(v):
     return None
 
 
-def _read_new(path: Path) -> list:
+def _read_text(path: Path) -> str:
     try:
-        with open(path, newline="", encoding="utf-8-sig") as fh:
-            rows = list(csv.reader(fh))
+        size = path.stat().st_size
+        if size > _MAX_CSV_BYTES:
+            raise RecalcError(f"{path}: {size:,} bytes is too large for a file of dates and levels")
+        raw = path.read_bytes()
     except OSError as exc:
-        raise RecalcError(f"{path}: cannot be read ({exc})") from None
-    if not rows:
-        raise RecalcError(f"{path}: empty file; expected columns date,level")
+        raise RecalcError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    for enc in ("utf-8-sig", "cp1252"):
+        try:
+            return raw.decode(enc)
+        except UnicodeDecodeError:
+            continue
+    raise RecalcError(f"{path}: not a text file")  # pragma: no cover - cp1252 decodes most bytes
+
+
+def _read_new(path: Path) -> list:
+    """[(line number, date, level)] from a CSV with a header naming columns date and level."""
+    text = _read_text(path)
+    first = text.splitlines()[0] if text.strip() else ""
+    delim = max((",", ";", "\t"), key=first.count) if first else ","
+    try:
+        csv.field_size_limit(1 << 20)
+        rows = list(csv.reader(io.StringIO(text), delimiter=delim))
+    except csv.Error as exc:
+        raise RecalcError(f"{path}: cannot be read as CSV ({exc})") from None
+    if not rows or not any(c.strip() for c in rows[0]):
+        raise RecalcError(f"{path}: empty file; expected a header row with columns date and level")
     header = [h.strip().lower() for h in rows[0]]
-    if "date" in header and "level" in header:
-        di, li = header.index("date"), header.index("level")
-        body = rows[1:]
-        first = 2
-    else:
-        raise RecalcError(f"{path}: needs a header row with columns date and level")
+    if "date" not in header or "level" not in header:
+        shown = ", ".join(h for h in header if h)[:120]
+        raise RecalcError(f"{path}: needs a header row with columns date and level (found: {shown})")
+    di, li = header.index("date"), header.index("level")
     out = []
-    for lineno, r in enumerate(body, start=first):
+    for lineno, r in enumerate(rows[1:], start=2):
         if not any(c.strip() for c in r):
             continue
+        raw_d = r[di].strip() if di < len(r) else ""
+        raw_v = r[li].strip() if li < len(r) else ""
         try:
-            d = dt.date.fromisoformat(r[di].strip())
-            v = float(r[li])
-            if not math.isfinite(v) or v <= 0:
-                raise ValueError
-        except (ValueError, IndexError):
-            raise RecalcError(f"{path} line {lineno}: cannot read a date (YYYY-MM-DD) and a positive level "
-                              f"from {','.join(r)!r}") from None
+            d = dt.date.fromisoformat(raw_d)
+        except ValueError:
+            raise RecalcError(f"{path} line {lineno}: cannot read a date (YYYY-MM-DD) from {raw_d[:40]!r}") from None
+        hint = " (a decimal comma? write 1234.5)" if re.fullmatch(r"-?\d+,\d+", raw_v) else ""
+        try:
+            v = float(raw_v)
+        except ValueError:
+            raise RecalcError(f"{path} line {lineno}: the level {raw_v[:40]!r} on {d} is not a number{hint}") from None
+        if not math.isfinite(v) or v <= 0:
+            raise RecalcError(f"{path} line {lineno}: the level on {d} must be a positive finite number, got {raw_v[:40]}")
         out.append((lineno, d, v))
     return out
 
 
-def _fit_rows(cell):
-    """{name: (estimate, std_error)} and the model/dist from a recalculated fit table at A3;
-    ``cell(row, col)`` reads the Model sheet's computed values."""
+def suspicious(dates, levels, first_new: int, where) -> tuple:
+    """(jumps, gaps): messages for the observations from index ``first_new`` on that look wrong.
+
+    ``dates`` and ``levels`` are the whole series, old then new; ``where(i)`` names observation i
+    for the user (the CSV line).  The scale comes from the old observations when there are
+    enough of them (24 returns, 6 spacings), else from the whole series."""
+    n = len(levels)
+    rets = [100.0 * math.log(levels[i] / levels[i - 1]) for i in range(1, n)]
+    old = rets[: max(first_new - 1, 0)]
+    ref = old if len(old) >= 24 else rets
+    jumps, gaps = [], []
+    if len(ref) >= 8:
+        med = _median(ref)
+        scale = 1.4826 * _median([abs(x - med) for x in ref])
+        if scale > 0:
+            for i in range(max(first_new, 1), n):
+                z = (rets[i - 1] - med) / scale
+                if abs(z) > JUMP_BOUND:
+                    jumps.append(
+                        f"{where(i)}: the level {levels[i]:g} on {dates[i]} makes a return of {rets[i - 1]:+.2f} % since "
+                        f"{dates[i - 1]} (level {levels[i - 1]:g}), {abs(z):.0f} robust standard deviations from the "
+                        f"series' median (bound {JUMP_BOUND:g}); check the level (a misplaced decimal point?) "
+                        "or pass --accept-jumps to take it")
+    spans = [(dates[i] - dates[i - 1]).days for i in range(1, n)]
+    old_spans = spans[: max(first_new - 1, 0)]
+    ref_spans = old_spans if len(old_spans) >= 6 else spans
+    if len(ref_spans) >= 3:
+        usual = _median(ref_spans)
+        # our own rule: one and a half usual spacings plus three days, at least six days, so
+        # long weekends and holidays of daily data pass and a missing month or week does not
+        bound = max(1.5 * usual + 3, 6)
+        for i in range(max(first_new, 1), n):
+            if spans[i - 1] > bound:
+                gaps.append(
+                    f"{where(i)}: {dates[i]} comes {spans[i - 1]} days after {dates[i - 1]}, while the series is usually "
+                    f"{usual:g} days apart; the gap would be taken as one return (rows missing?); add the missing "
+                    "dates or pass --accept-gaps to take it")
+    return jumps, gaps
+
+
+def _median(xs):
+    s = sorted(xs)
+    m = len(s) // 2
+    return s[m] if len(s) % 2 else 0.5 * (s[m - 1] + s[m])
+
+
+def _is_formula(v) -> bool:
+    from openpyxl.worksheet.formula import ArrayFormula
+
+    return isinstance(v, ArrayFormula) or (isinstance(v, str) and v.startswith("="))
+
+
+def _check_formulas(book, name: str, wb) -> None:
+    """Refuse a workbook whose formulas are gone (a values-only copy)."""
+    ranges = {n: name_range(wb, n) for n in ("fit",) + FIGURES}
+    gone = [f"{n} ({r[0]}!{cell_name(r[1], r[2])})" for n, r in ranges.items()
+            if not _is_formula(wb[r[0]].cell(r[1], r[2]).value)]
+    sheet, r1, c1, r2, _ = name_range(wb, "returns")
+    ws = wb[sheet]
+    cells = [ws.cell(r, c1).value for r in range(r1, r2 + 1)]
+    if any(v is not None for v in cells) and not any(_is_formula(v) for v in cells):
+        gone.append(f"returns ({sheet}!{cell_name(r1, c1)}:{cell_name(r2, c1)})")
+    if gone:
+        raise RecalcError(
+            f"{name} holds values where its formulas should be ({', '.join(gone[:3])}"
+            f"{' and more' if len(gone) > 3 else ''}), as in a --values-only copy: refreshing it would record "
+            "stale figures. Refresh the workbook saved with its formulas, or start again from a shipped "
+            "template (volcast template) with your whole history")
+
+
+def _translate(formula: str, src: str, dst: str) -> str:
+    from openpyxl.formula.translate import Translator
+
+    return Translator(formula, origin=src).translate_formula(dst)
+
+
+_END_RE = r"(\$?[A-Za-z]{{1,3}}\$?[123]:\$?[A-Za-z]{{1,3}}\$?){end}(?!\d)"
+
+
+def _grow(wb, sheet: str, col: int, first: int, end: int, new_end: int) -> None:
+    """Extend the formulas of ``sheet`` column ``col`` from row ``end`` down to ``new_end``, and
+    every range in the workbook that starts in rows 1-3 and ends at ``end`` (the names, the
+    formulas, the charts' series) to ``new_end``."""
+    ws = wb[sheet]
+    last = ws.cell(end, col)
+    text = last.value.text if hasattr(last.value, "text") else last.value
+    if not (isinstance(text, str) and text.startswith("=")):
+        raise RecalcError(f"{sheet}!{cell_name(end, col)}, the last cell of the returns range, holds no formula "
+                          "to extend; copy the return formula down to the last level and define returns over it")
+    src = cell_name(end, col)
+    for r in range(end + 1, new_end + 1):
+        c = ws.cell(r, col, _translate(text, src, cell_name(r, col)))
+        c.number_format = last.number_format
+    pattern = re.compile(_END_RE.format(end=end))
+
+    def fix(s):
+        return pattern.sub(lambda m: m.group(1) + str(new_end), s) if isinstance(s, str) else s
+
+    for dn in wb.defined_names.values():
+        dn.attr_text = fix(dn.attr_text)
+    for w in wb.worksheets:
+        for row in w.iter_rows():
+            for c in row:
+                v = c.value
+                if isinstance(v, str) and v.startswith("="):
+                    c.value = fix(v)
+                elif hasattr(v, "text") and isinstance(getattr(v, "text", None), str):
+                    v.text = fix(v.text)
+        for chart in getattr(w, "_charts", []):
+            for s in chart.series:
+                for part in (s.val, s.cat, s.tx):
+                    for refname in ("numRef", "strRef"):
+                        ref = getattr(part, refname, None) if part is not None else None
+                        if ref is not None and ref.f:
+                            ref.f = fix(ref.f)
+
+
+def _fit_rows(rows) -> tuple:
+    """{name: (estimate, std_error)} and {model, dist, loglik, converged, message} from the
+    computed fit table (a list of rows)."""
     params, info = {}, {}
     in_params = False
-    for r in range(3, 80):
-        name = cell(r, 1)
-        if name is None:
-            break
-        if name in ("model", "dist", "loglik", "nobs"):
-            info[name] = cell(r, 2)
+    for row in rows:
+        name = row[0] if row else None
+        if not isinstance(name, str):
+            continue
+        if name in ("model", "dist", "loglik", "nobs", "converged"):
+            info[name] = row[1]
+            if name == "converged":
+                info["message"] = row[2] if len(row) > 2 else None
         if name == "options":
             in_params = True
             continue
         if name == "loglik":
             in_params = False
         if in_params:
-            se = cell(r, 3)
-            params[name] = (cell(r, 2), se if isinstance(se, (int, float)) else None)
+            se = row[2] if len(row) > 2 else None
+            params[name] = (row[1], se if isinstance(se, (int, float)) and not isinstance(se, bool) else None)
     return params, info
 
 
-def refresh(book, data, out) -> tuple:
-    """Refresh ``book`` with ``data`` into ``out``; returns (out, history row as a dict, report)."""
+def _shown(v) -> str:
+    if isinstance(v, ExcelError):
+        return v.code
+    if v is None:
+        return "an empty cell"
+    return str(v)[:120]
+
+
+def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = False) -> RefreshResult:
+    """Refresh ``book`` with the dates and levels of ``data`` into ``out``."""
     import openpyxl
 
     book, data, out = Path(book), Path(data), Path(out)
-    if out.resolve() == book.resolve():
+    if not book.exists():
+        raise RecalcError(f"{book}: no such file")
+    if out.exists() and out.resolve() == book.resolve():
         raise RecalcError(f"{out}: refusing to write over the input; choose another output with -o")
+    if out.suffix.lower() != ".xlsx":
+        raise RecalcError(f"{out.name}: the output must be an .xlsx file")
     try:
         wb = openpyxl.load_workbook(book)
-    except Exception as exc:  # noqa: BLE001
-        raise RecalcError(f"{book.name} is not a readable .xlsx workbook ({type(exc).__name__}: {exc})") from None
+    except Exception as exc:  # noqa: BLE001 - any unreadable file is one line of bad input
+        raise RecalcError(f"{book.name} is not a readable .xlsx workbook ({type(exc).__name__}: {str(exc)[:200]})") from None
+    missing = missing_names(wb)
+    if missing:
+        raise RecalcError(
+            f"{book.name} lacks the template's defined name(s) {', '.join(missing[:4])}: refresh works on workbooks "
+            "made from a shipped template; start from one (volcast template monthly -o book.xlsx) and load your "
+            "whole history into it with volcast refresh")
+    _check_formulas(book, book.name, wb)
     spills = dynamic_anchors(book)  # openpyxl drops this marking when it saves
-    for name in ("Data", "Model", "Forecast", "History"):
-        if name not in wb.sheetnames:
-            raise RecalcError(f"{book.name} has no {name} sheet; refresh works on the monthly template's layout")
-    ws = wb["Data"]
-    have, last_row = {}, 1
-    for r in range(2, ws.max_row + 1):
-        d = _date(ws.cell(r, 1).value)
-        if d is None:
+
+    sheet, r1, rcol, r2, _ = name_range(wb, "returns")
+    ws = wb[sheet]
+    dcol, lcol = rcol - 2, rcol - 1
+    if dcol < 1:
+        raise RecalcError(f"{book.name}: the returns range {sheet}!{cell_name(r1, rcol)} needs dates and levels in the two columns to its left")
+    first_row = max(r1, 2)
+    have, order, last_row = {}, [], first_row - 1
+    for r in range(first_row, ws.max_row + 1):
+        a, b = ws.cell(r, dcol).value, ws.cell(r, lcol).value
+        if a is None and b is None:
             break
-        have[d] = ws.cell(r, 2).value
+        d = _date(a)
+        if d is None or not isinstance(b, (int, float)) or isinstance(b, bool):
+            raise RecalcError(f"{book.name}: {sheet}!{cell_name(r, dcol)}:{cell_name(r, lcol)} should hold a date and a level, "
+                              f"found {_shown(a)} and {_shown(b)}; fix the row, then refresh again")
+        if order and d <= order[-1][0]:
+            raise RecalcError(f"{book.name}: {sheet}!{cell_name(r, dcol)} ({d}) is not after the row above it; "
+                              "the Data sheet must run oldest first")
+        have[d] = float(b)
+        order.append((d, float(b)))
         last_row = r
-    if not have:
-        raise RecalcError(f"{book.name}: the Data sheet has no dates in column A from row 2")
-    last = max(have)
+    below = [r for r in range(last_row + 2, ws.max_row + 1)
+             if ws.cell(r, dcol).value is not None or ws.cell(r, lcol).value is not None]
+    if below:
+        raise RecalcError(f"{book.name}: {sheet}!{cell_name(last_row + 1, dcol)} is blank but row {below[0]} below it holds "
+                          "data; remove the blank row so every observation is read")
+    last = order[-1][0] if order else None
+
     new = []
     for lineno, d, v in _read_new(data):
         if d in have:
-            if abs(float(have[d]) - v) > _TOL * max(1.0, abs(v)):
-                raise RecalcError(f"{data} line {lineno}: {d} is already in the workbook with level {have[d]}, "
-                                  f"but the file says {v}; nothing was written")
+            if abs(have[d] - v) > _TOL * max(1.0, abs(v)):
+                raise RecalcError(f"{data} line {lineno}: {d} is already in the workbook with level {have[d]:g}, "
+                                  f"but the file says {v:g}; nothing was written")
             continue
-        if d < last:
+        if last is not None and d < last:
             raise RecalcError(f"{data} line {lineno}: {d} is older than the workbook's last date {last} and not in it; "
                               "nothing was written")
-        if new and d <= new[-1][0]:
-            raise RecalcError(f"{data} line {lineno}: {d} is not after the previous new date {new[-1][0]}; nothing was written")
-        new.append((d, v))
-    for i, (d, v) in enumerate(new, start=last_row + 1):
-        ws.cell(i, 1, d).number_format = "yyyy-mm-dd"
-        ws.cell(i, 2, v)
-    last_date = new[-1][0] if new else last
+        if new and d <= new[-1][1]:
+            raise RecalcError(f"{data} line {lineno}: {d} is not after the previous new date {new[-1][1]}; nothing was written")
+        new.append((lineno, d, v))
+    if not order and len(new) < 2:
+        raise RecalcError(f"{data}: a first load needs the history, at least two dated levels; found {len(new)}")
 
-    row: dict = {}
+    dates = [d for d, _ in order] + [d for _, d, _ in new]
+    levels = [v for _, v in order] + [v for _, _, v in new]
+    lines = {len(order) + i: ln for i, (ln, _, _) in enumerate(new)}
+    jumps, gaps = suspicious(dates, levels, len(order), lambda i: f"{data} line {lines[i]}")
+    problems = ([] if accept_jumps else jumps) + ([] if accept_gaps else gaps)
+    if problems:
+        more = f" ({len(problems) - 1} more such row(s))" if len(problems) > 1 else ""
+        raise RecalcError(problems[0] + more + "; nothing was written")
+    warnings = [m.split(": ", 1)[1].split(";")[0] + " (accepted)" for m in jumps + gaps]
 
-    def add_history(book):
+    for i, (_, d, v) in enumerate(new, start=last_row + 1):
+        ws.cell(i, dcol, d).number_format = "yyyy-mm-dd"
+        ws.cell(i, lcol, v)
+    data_end = last_row + len(new)
+    if data_end > r2:
+        _grow(wb, sheet, rcol, r1, r2, data_end + max(120, (r2 - r1) // 5))
+    last_date = dates[-1]
+
+    result = RefreshResult(out=out, added=len(new), last_date=last_date, history=None, report=None, warnings=warnings)
+
+    def add_history(calc):
         """Runs inside the recalculation, with every value computed: one evaluation in all."""
-        params, info = _fit_rows(lambda r, c: book.value(("Model", r, c)))
+        if calc.report.unread:
+            raise RecalcError(calc.report.unread[0] + "; nothing was written")
+        figures = {}
+        for n in FIGURES + ("data_check",):
+            ref = name_range(calc.book, n)
+            if ref is None:
+                continue
+            v = calc.value((ref[0], ref[1], ref[2]))
+            where = f"{ref[0]}!{cell_name(ref[1], ref[2])}"
+            if n == "data_check":
+                if isinstance(v, str) and v.upper().startswith("WARNING"):
+                    raise RecalcError(f"{where}: {v}; nothing was written")
+                continue
+            ok = isinstance(v, bool) if n == "converged" else (isinstance(v, (int, float)) and not isinstance(v, bool))
+            if n == "last_date" and ok:
+                from openpyxl.utils.datetime import from_excel
 
-        def fc(r, c):
-            return book.value(("Forecast", r, c))
-
-        risk = {fc(r, 9): fc(r, 10) for r in range(3, 11)}
-        hist = book.book["History"]
-        header = [c.value for c in hist[1]]
-        if header[: len(HISTORY_HEADER)] != HISTORY_HEADER:
-            for j, h in enumerate(HISTORY_HEADER, start=1):
-                hist.cell(1, j, h)
-            header = HISTORY_HEADER[:]
+                v = from_excel(v).date()
+            if not ok or (isinstance(v, float) and not math.isfinite(v)):
+                raise RecalcError(f"{n} ({where}) evaluates to {_shown(v)}, not a {'TRUE/FALSE' if n == 'converged' else 'number'}; "
+                                  "nothing was written (check the Model sheet's fit table and the Inputs)")
+            figures[n] = v
+        if figures.get("last_date") != last_date:
+            raise RecalcError(f"last_date reads {figures.get('last_date')} but the data end on {last_date}; nothing was written")
+        result.figures = figures
+        if not new:
+            return
+        fs, fr, fc, _, _ = name_range(calc.book, "fit")
+        anchor = (fs, fr, fc)
+        calc.value(anchor)
+        r1_, c1_, r2_, c2_ = calc.spills.get(anchor, (fr, fc, fr, fc))
+        table = [[calc.value((fs, r, c)) for c in range(c1_, c2_ + 1)] for r in range(r1_, r2_ + 1)]
+        params, info = _fit_rows(table)
+        hist = calc.book["History"] if "History" in calc.book.sheetnames else calc.book.create_sheet("History")
+        header = [c.value for c in hist[1]] if hist.max_row >= 1 else []
         header = [h for h in header if h is not None]
-        prev_row = hist.max_row if hist.max_row >= 2 and hist.cell(hist.max_row, 1).value else None
+        if header[: len(HISTORY_HEADER)] != HISTORY_HEADER:
+            if any(hist.cell(r, 1).value is not None for r in range(2, hist.max_row + 1)):
+                raise RecalcError("the History sheet's header is not the template's "
+                                  f"({', '.join(HISTORY_HEADER[:4])}, ...); nothing was written")
+            header = HISTORY_HEADER[:]
+        prev_row = max((r for r in range(2, hist.max_row + 1) if hist.cell(r, 1).value is not None), default=None)
         prev = {h: hist.cell(prev_row, j).value for j, h in enumerate(header, start=1)} if prev_row else {}
         moved = []
         for name, (est, se) in params.items():
@@ -162,38 +411,51 @@ def refresh(book, data, out) -> tuple:
                 if abs(est - old) > 2 * se:
                     moved.append(f"{name} {(est - old) / se:+.1f} SE")
         for name in params:
-            if name not in header:
-                header.append(name)
-                hist.cell(1, len(header), name)
-        cum12 = fc(15, 5)
-        row.update({
-            "run time": dt.datetime.now().replace(microsecond=0),
-            "last date": last_date,
-            "nobs": info.get("nobs"),
+            for col in (name, f"se_{name}"):
+                if col not in header:
+                    header.append(col)
+        row = {
+            "run_at": dt.datetime.now().replace(microsecond=0),
+            "last_date": last_date,
+            "nobs": figures["nobs"],
             "model": info.get("model"),
             "dist": info.get("dist"),
+            "converged": figures["converged"],
             "loglik": info.get("loglik"),
-            "vol 1m (%)": fc(4, 4),
-            "vol 12m (%)": math.sqrt(cum12) if isinstance(cum12, (int, float)) else None,
-            "VaR 1m (%)": risk.get("VaR"),
-            "flag": ("moved more than 2 SE: " + "; ".join(moved)) if moved else "",
-        })
-        row.update({name: est for name, (est, _) in params.items()})
+            "vol_1m": figures["vol_1m"],
+            "vol_12m": figures["vol_12m"],
+            "var_1m": figures["var_1m"],
+            "es_1m": figures["es_1m"],
+            "moved": "; ".join(moved),
+        }
+        if not figures["converged"]:
+            msg = info.get("message") or ""
+            row["moved"] = ("NOT CONVERGED: " + str(msg)[:200] + ("; " + row["moved"] if row["moved"] else "")).strip()
+        for name, (est, se) in params.items():
+            row[name] = est
+            row[f"se_{name}"] = se
+        for j, h in enumerate(header, start=1):
+            hist.cell(1, j, h)
         r = (prev_row or 1) + 1
         for j, h in enumerate(header, start=1):
             c = hist.cell(r, j, row.get(h))
-            if h == "last date":
+            if h == "last_date":
                 c.number_format = "yyyy-mm-dd"
-            elif h == "run time":
+            elif h == "run_at":
                 c.number_format = "yyyy-mm-dd hh:mm"
+        result.history = row
 
-    out.parent.mkdir(parents=True, exist_ok=True)
-    fd, staged = tempfile.mkstemp(suffix=".xlsx", dir=out.parent, prefix=".volcast-refresh-")
+    try:
+        out.parent.mkdir(parents=True, exist_ok=True)
+        fd, staged = tempfile.mkstemp(suffix=".xlsx", dir=out.parent, prefix=".volcast-refresh-")
+    except OSError as exc:
+        raise RecalcError(f"{out}: cannot write there ({exc.strerror or exc})") from None
     os.close(fd)
     try:
         wb.save(staged)
-        out_path, report = recalc(staged, out, dynamic_hint=spills, before_write=add_history)
+        _, report = recalc(staged, out, dynamic_hint=spills, before_write=add_history)
     finally:
         if os.path.exists(staged):
             os.remove(staged)
-    return out_path, row, report, len(new)
+    result.report = report
+    return result
