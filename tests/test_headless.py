@@ -12,6 +12,7 @@ import zipfile
 import numpy as np
 import openpyxl
 import pytest
+from hypothesis import HealthCheck, given, settings, strategies as st
 from numpy.testing import assert_allclose
 from openpyxl.worksheet.formula import ArrayFormula
 
@@ -268,3 +269,46 @@ def test_batched_columns_equal_cell_by_cell_evaluation(tmp_path):
     assert batched.values.keys() == single.values.keys()
     for k, v in single.values.items():
         assert batched.values[k] == v, k
+
+
+_SHAPES = [
+    '=IF(ISNUMBER({r}),{r}*2,"")',  # the reference twice, as the templates' columns read a spill
+    "=IFERROR({r}*2+{r}/{r},-1)",
+    '=IF({r}="","",ABS({r}))',
+    "={r}*2",
+]
+
+
+@given(periods=st.integers(16, 40), spill_col=st.integers(4, 8), gap=st.integers(1, 3),
+       shape=st.sampled_from(_SHAPES), offset=st.integers(0, 5), seed=st.integers(0, 1000))
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+def test_columns_reading_a_spill_equal_direct_values(periods, spill_col, gap, shape, offset, seed):
+    """Generated layouts: a column of element-wise formulas reads the cells a spill fills.  Each
+    cell equals the same expression on the direct call's values, however the column is batched
+    (found by trying layouts: a batched column once read the spilled cells as blanks)."""
+    import tempfile
+    from pathlib import Path
+
+    from xlfuncs import VOLSIM
+    from xlfuncs.headless.recalc import Workbook, cell_name
+
+    fit = [["model", "GARCH(1,1)"], ["dist", "normal"], ["mu", 0.1], ["omega", 0.2], ["alpha[1]", 0.1],
+           ["beta[1]", 0.8]]
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for i, (k, v) in enumerate(fit, start=1):
+        ws.cell(i, 1, k)
+        ws.cell(i, 2, v)
+    ws.cell(1, spill_col, f"=VOLSIM(A1:B6, {periods}, 1, {seed})")
+    out_col = spill_col + gap
+    for r in range(1 + offset, periods + 1):
+        ws.cell(r, out_col, shape.format(r=cell_name(r, spill_col)))
+    with tempfile.TemporaryDirectory() as d:
+        path = Path(d) / "g.xlsx"
+        wb.save(path)
+        book = Workbook(path).evaluate_all()
+    direct = [row[0] for row in VOLSIM(fit, periods, 1, seed)]
+    for r in range(1 + offset, periods + 1):
+        x = direct[r - 1]
+        expected = {0: x * 2, 1: x * 2 + 1, 2: abs(x), 3: x * 2}[_SHAPES.index(shape)]
+        assert_allclose(book.values[(ws.title, r, out_col)], expected, rtol=1e-14)

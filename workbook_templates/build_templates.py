@@ -85,11 +85,11 @@ def build(path: Path, cfg: dict) -> Path:
         (None, "model", f'=VLOOKUP("model", {FIT}, 2, FALSE)', None, ""),
         (None, "distribution", f'=VLOOKUP("dist", {FIT}, 2, FALSE)', None, ""),
         ("nobs", "returns in the fit", f'=VLOOKUP("nobs", {FIT}, 2, FALSE)', "0", ""),
-        ("converged", "estimation converged", f'=VLOOKUP("converged", {FIT}, 2, FALSE)', None,
+        ("converged", "estimation converged", f'=VLOOKUP("converged", {FIT}, 2, FALSE)', '"TRUE";"TRUE";"FALSE"',
          "must be TRUE; otherwise see the Model sheet"),
         ("vol_1m", f"volatility of the next {month_words}, %", None, "0.00",
          "standard deviation of the cumulative log return, not annualised"),
-        ("vol_1m_ann", "  the same, annualised, %", None, "0.00", f"x sqrt({cfg['periods']}/{month})"),
+        ("vol_1m_ann", "  the same, annualised, %", None, "0.00", f"x sqrt({cfg['periods']})" if month == 1 else f"x sqrt({cfg['periods']}/{month})"),
         ("vol_12m", f"volatility of the next {year_words}, %", None, "0.00",
          "standard deviation of the cumulative log return"),
         ("var_level", "VaR confidence level", "=Inputs!$B$7", "0.0%", "set on the Inputs sheet"),
@@ -116,7 +116,8 @@ def build(path: Path, cfg: dict) -> Path:
         if fmt:
             c.number_format = fmt
         c.alignment = Alignment(horizontal="right") if name != "data_check" else Alignment(horizontal="left")
-        summ.cell(i, 3, note).font = NOTE
+        if note:
+            summ.cell(i, 3, note).font = NOTE
         if name:
             _name(wb, name, f"Summary!$B${i}")
     summ.cell(len(rows) + 4, 1, CAUTION).font = WARN
@@ -126,6 +127,9 @@ def build(path: Path, cfg: dict) -> Path:
     summ.column_dimensions["A"].width = 44
     summ.column_dimensions["B"].width = 24
     summ.column_dimensions["C"].width = 60
+    summ.page_setup.orientation = "landscape"
+    summ.page_setup.fitToWidth, summ.page_setup.fitToHeight = 1, 1
+    summ.sheet_properties.pageSetUpPr.fitToPage = True
 
     # ------------------------------------------------------------------ About
     about = wb.create_sheet("About")

@@ -293,6 +293,7 @@ class Workbook:
         """
         from .engine import function_names
 
+        spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
         groups: dict = {}
         for key, text in self.formulas.items():
             if key in self.arrays or key in self._anchors:
@@ -334,7 +335,9 @@ class Workbook:
                             ok = False
                             break
                     cell = (target, *_parse_cell(ref.replace("$", "")))
-                    if cell in self.formulas:
+                    # only constants: a formula, or an empty cell that a spill may fill, is
+                    # evaluated cell by cell
+                    if cell in self.formulas or (cell not in self.inputs and target in spilling):
                         ok = False
                         break
                     columns[slot].append([self.inputs.get(cell)])
