@@ -429,8 +429,8 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
             "moved": "; ".join(moved),
         }
         if not figures["converged"]:
-            msg = info.get("message") or ""
-            row["moved"] = ("NOT CONVERGED: " + str(msg)[:200] + ("; " + row["moved"] if row["moved"] else "")).strip()
+            msg = re.sub(r"^\s*not converged\s*[:;,-]?\s*", "", str(info.get("message") or ""), flags=re.IGNORECASE)
+            row["moved"] = ("NOT CONVERGED: " + msg[:200] + ("; " + row["moved"] if row["moved"] else "")).strip()
         for name, (est, se) in params.items():
             row[name] = est
             row[f"se_{name}"] = se
