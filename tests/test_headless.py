@@ -312,3 +312,68 @@ def test_columns_reading_a_spill_equal_direct_values(periods, spill_col, gap, sh
         x = direct[r - 1]
         expected = {0: x * 2, 1: x * 2 + 1, 2: abs(x), 3: x * 2}[_SHAPES.index(shape)]
         assert_allclose(book.values[(ws.title, r, out_col)], expected, rtol=1e-14)
+
+
+def _returns_book(levels, path, extra):
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for i, r in enumerate(_returns(levels), start=1):
+        ws.cell(i, 1, r)
+    for cell, value in extra.items():
+        ws[cell] = value
+    wb.save(path)
+    return ws.title
+
+
+def test_a_spill_that_feeds_its_own_input_is_a_circular_reference(tmp_path, levels, capsys):
+    """C1's fit reads A1:A300, and A300 reads D5 inside C1's own spill: Excel calls this a
+    circular reference; it must never be a fit of 299 numbers shown calmly."""
+    n = len(_returns(levels))
+    extra = {"C1": f"=VOLFIT(A1:A{n + 1})", f"A{n + 1}": "=D5"}
+    _returns_book(levels, tmp_path / "c.xlsx", extra)
+    out, report = recalc(tmp_path / "c.xlsx", tmp_path / "o.xlsx")
+    assert any("circular reference" in what and where.endswith("!C1") for where, what in report.error_cells)
+    assert openpyxl.load_workbook(out, data_only=True).active["C1"].value == "#VALUE!"
+
+
+def test_nested_calls_receive_the_whole_table(tmp_path, levels):
+    from xlfuncs import VOLSIM
+
+    cells = [[r] for r in _returns(levels)]
+    n = len(cells)
+    extra = {"C1": f"=VOLSIM(VOLFIT(A1:A{n}), 5, 2, 7)", "F1": f"=VOLFORECAST(A1:A{n}, VOLFIT(A1:A{n}), 3)",
+             "H1": f"=INDEX(VOLFIT(A1:A{n}), 5, 2)"}
+    title = _returns_book(levels, tmp_path / "n.xlsx", extra)
+    out, report = recalc(tmp_path / "n.xlsx", tmp_path / "o.xlsx")
+    assert report.error_cells == []
+    ws = openpyxl.load_workbook(out, data_only=True)[title]
+    fit = VOLFIT(cells)
+    sim = VOLSIM(fit, 5, 2, 7)
+    assert_allclose([[ws.cell(i, j).value for j in (3, 4)] for i in range(1, 6)], sim, rtol=1e-14)
+    assert_allclose([ws.cell(i, 6).value for i in range(1, 4)], [r[0] for r in VOLFORECAST(cells, fit, 3)], rtol=1e-14)
+    assert_allclose(ws["H1"].value, fit[4][1], rtol=1e-14)  # a file stores 17 digits or fewer
+
+
+@pytest.mark.parametrize("values_only", [False, True])
+def test_results_a_cell_cannot_hold_are_stored_safely(tmp_path, levels, capsys, values_only):
+    """Excel's limit is 32,767 characters a cell (common practice); XML forbids control
+    characters.  Such results are stored cut or cleaned, and the command says so."""
+    n = len(_returns(levels))
+    extra = {"C1": '=REPT("x",40000)', "D1": f'=VOLFIT(A1:A{n},"GARCH"&CHAR(1))', "E1": '="a"&CHAR(7)&"b"'}
+    title = _returns_book(levels, tmp_path / "t.xlsx", extra)
+    args = ["recalc", str(tmp_path / "t.xlsx"), "-o", str(tmp_path / "o.xlsx")] + (["--values-only"] if values_only else [])
+    assert main(args) == 0
+    err = capsys.readouterr().err
+    assert "cut from 40,000 to 32,767 characters" in err and "control characters" in err
+    ws = openpyxl.load_workbook(tmp_path / "o.xlsx", data_only=True)[title]
+    assert len(ws["C1"].value) == 32767 and ws["C1"].value.endswith("[cut: 40,000 characters]")
+    assert ws["E1"].value == "a\ufffdb"
+    assert ws["D1"].value.startswith("ERROR:") and len(ws["D1"].value) < 400
+
+
+def test_output_where_it_cannot_be_written_is_one_line(tmp_path, capsys, done):
+    src, _, _ = done
+    (tmp_path / "a_file").write_text("x")
+    assert main(["recalc", str(src), "-o", str(tmp_path / "a_file" / "o.xlsx")]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("volcast: ") and err.count("\n") == 1 and "cannot write there" in err

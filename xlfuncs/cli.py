@@ -203,11 +203,19 @@ def _cmd_recalc(args) -> int:
     print(f"recalculated {report.formulas} formulas ({report.spills} spilled results) into {out}")
     for line in report.unread:
         print(f"volcast: WARNING: data left out: {line}", file=sys.stderr)
+    for where, what in report.altered[:10]:
+        print(f"volcast: {where}: the result does not fit in a cell as it is: {what}", file=sys.stderr)
     if report.error_cells:
-        shown = ", ".join(f"{a} {v if len(v) < 80 else v[:77] + '...'}" for a, v in report.error_cells[:10])
+        shown = ", ".join(f"{a} {_one_line(v, 80)}" for a, v in report.error_cells[:10])
         more = f" and {len(report.error_cells) - 10} more" if len(report.error_cells) > 10 else ""
         print(f"volcast: {len(report.error_cells)} cells evaluate to errors: {shown}{more}", file=sys.stderr)
     return 0
+
+
+def _one_line(text, limit: int) -> str:
+    """A cell's text for one line of the terminal: control characters as spaces, cut to ``limit``."""
+    text = "".join(" " if ord(ch) < 32 or ord(ch) == 127 else ch for ch in str(text))
+    return text if len(text) <= limit else text[: limit - 3] + "..."
 
 
 def _cmd_demo(args) -> int:
@@ -255,7 +263,7 @@ def _cmd_refresh(args) -> int:
               "the History row says NOT CONVERGED)", file=sys.stderr)
     if res.report.error_cells:
         print(f"volcast: {len(res.report.error_cells)} cells evaluate to errors, e.g. "
-              f"{res.report.error_cells[0][0]} {res.report.error_cells[0][1][:80]}", file=sys.stderr)
+              f"{res.report.error_cells[0][0]} {_one_line(res.report.error_cells[0][1], 80)}", file=sys.stderr)
     return 0
 
 

@@ -68,21 +68,27 @@ def _register_ours():
     _REGISTERED = True
 
 
-class _Result:
-    """Carries a worksheet function's list-of-rows result through the engine untouched."""
-
-    __slots__ = ("rows",)
-
-    def __init__(self, rows):
-        self.rows = rows
-
-
 def _wrap_ours(fn):
+    """Our function as the engine calls it.  Its rows come back as a 2-D object array, the
+    engine's own array value, so that a call nested in another (=VOLFORECAST(R, VOLFIT(R), 3),
+    =INDEX(VOLFIT(R), 5, 2)) receives the whole table, as in Excel."""
     def call(*args):
-        return _Result(fn(*[_to_cells(a) for a in args]))
+        return _as_array(fn(*[_to_cells(a) for a in args]))
 
     call.__name__ = fn.__name__
     return call
+
+
+def _as_array(rows):
+    if not isinstance(rows, list):
+        rows = [[rows]]
+    width = max((len(r) for r in rows), default=1) or 1
+    arr = np.empty((max(len(rows), 1), width), dtype=object)
+    arr[:] = None
+    for i, row in enumerate(rows):
+        for j, v in enumerate(row):
+            arr[i, j] = v
+    return arr
 
 
 def _to_cells(value):
@@ -145,8 +151,6 @@ def _engine_scalar(v):
 
 def from_engine(value):
     """An engine result as a plain value, or a list of rows for an array result."""
-    if isinstance(value, _Result):
-        return value.rows
     if isinstance(value, np.ndarray):
         if value.ndim == 0:
             return from_engine(value[()])
@@ -159,8 +163,6 @@ def from_engine(value):
 
 
 def _plain(v):
-    if isinstance(v, _Result):
-        return v.rows
     if isinstance(v, np.ndarray):
         return from_engine(v)
     if v is None or _is_empty(v):

@@ -26,13 +26,17 @@ from .engine import ExcelError, FormulaError, calls_ours, compile_formula, top_l
 __all__ = ["RecalcError", "Workbook", "recalc", "RecalcReport"]
 
 _REF_RE = re.compile(
-    r"^(?:(?P<sheet>'(?:[^']|'')+'|[^!']+)!)?"
+    r"^(?:(?P<sheet>'(?:[^']|'')+'|[^!]+)!)?"
     r"(?:(?P<c1>[A-Z]{1,3})?(?P<r1>\d+)?(?::(?P<c2>[A-Z]{1,3})?(?P<r2>\d+)?)?)(?P<spill>#)?$"
 )
 
 
 class RecalcError(Exception):
     """Bad input for a recalculation: one line, naming the cell where it applies."""
+
+
+class _Deferred(Exception):
+    """A spill looked at only to know its extent needs a formula still being computed."""
 
 
 def _col_index(letters: str) -> int:
@@ -73,6 +77,8 @@ class RecalcReport:
     spills: int = 0
     # numbers lying below a range that a formula of ours reads: data left out of a fit
     unread: list = field(default_factory=list)  # one sentence each
+    # results a cell cannot hold as they are (too long, control characters), stored cut or cleaned
+    altered: list = field(default_factory=list)  # (address, what was done)
 
 
 class Workbook:
@@ -82,7 +88,13 @@ class Workbook:
         import openpyxl
         from openpyxl.worksheet.formula import ArrayFormula
 
+        from .xlsxpost import check_package
+
         self.path = Path(path)
+        try:  # refused from the zip directory, before openpyxl unpacks a package too large for memory
+            check_package(self.path)
+        except ValueError as exc:
+            raise RecalcError(str(exc)) from None
         try:
             self.book = openpyxl.load_workbook(self.path, data_only=False)
         except Exception as exc:  # noqa: BLE001 - any unreadable file is one line of bad input
@@ -140,7 +152,11 @@ class Workbook:
         self._anchors = {k for k, f in self.formulas.items() if k not in self.arrays and top_level_call(f)}
         self.report = RecalcReport(formulas=len(self.formulas))
         self._reader = None  # the formula of ours whose arguments are being read
-        self._names_open: set = set()
+        self._names_open: list = []  # the names being resolved, outermost first
+        self._settled: set = set()  # sheets whose spills are all computed
+        self._settling = 0  # depth of spill settling in progress
+        self._open_reads: dict = {}  # anchor -> empty cells read while it was being computed
+        self._reported: set = set()  # addresses already in report.error_cells
         self.reads: list = []  # (formula key, sheet, r1, c1, r2, c2) read by formulas of ours
 
     # ------------------------------------------------------------------ evaluation
@@ -157,23 +173,51 @@ class Workbook:
             return self._evaluate(key)
         if key in self.inputs:
             return self.inputs[key]
-        self._settle_spills(key[0])
+        self._settle_spills(key[0], key[1:])
         anchor = self.owner.get(key)
         if anchor is not None:
             return self.values.get(key)
+        # an empty cell read while a spill of its sheet is being computed: if that spill turns
+        # out to cover it, the spill depends on itself (a circular reference, as Excel says)
+        for a in self._stack:
+            if a in self._anchors and a[0] == key[0] and a[1] <= key[1] and a[2] <= key[2]:
+                self._open_reads.setdefault(a, []).append(key)
         return None
 
-    def _settle_spills(self, sheet):
-        """Evaluate the spilling formulas of a sheet, so that empty cells know if a spill fills them."""
-        for a in sorted(k for k in self._anchors if k[0] == sheet and k not in self.values and k not in self._stack):
-            self._evaluate(a)
+    def _settle_spills(self, sheet, cell=None):
+        """Evaluate the spilling formulas of a sheet that could fill ``cell`` (those above and to
+        the left of it; all of them without ``cell``), so that an empty cell knows if a spill
+        fills it.
+
+        An anchor may be evaluated by the recursion of an earlier one: each is checked again
+        before it is evaluated, so none is evaluated twice (which would block its own spill).
+        An anchor that turns out to need a formula still being computed is left for later
+        (``_Deferred``): it cannot be part of what that formula reads."""
+        if sheet in self._settled:
+            return
+        todo = sorted(k for k in self._anchors if k[0] == sheet and k not in self.values and k not in self._stack
+                      and (cell is None or (k[1] <= cell[0] and k[2] <= cell[1])))
+        for a in todo:
+            if a in self.values or a in self._stack:
+                continue
+            self._settling += 1
+            try:
+                self._evaluate(a)
+            except _Deferred:
+                pass
+            finally:
+                self._settling -= 1
+        if not any(k[0] == sheet and k not in self.values for k in self._anchors):
+            self._settled.add(sheet)
 
     def _evaluate(self, key):
         sheet, row, col = key
         where = f"{sheet}!{cell_name(row, col)}"
         if key in self._stack:
+            if self._settling:
+                raise _Deferred(key)
             self.values[key] = ExcelError("#VALUE!")
-            self.report.error_cells.append((where, "circular reference"))
+            self._error(where, "circular reference")
             return self.values[key]
         self._stack.add(key)
         try:
@@ -259,9 +303,9 @@ class Workbook:
         if "#REF!" in ref.upper() or not ref:
             raise RecalcError(f"{where}: the name {name} refers to {text}, a reference that no longer exists; "
                               "define the name again (Formulas > Name Manager)")
-        if name.upper() in self._names_open:
-            raise RecalcError(f"{where}: the name {name} refers to itself ({text})")
-        self._names_open.add(name.upper())
+        if len(self._names_open) > 20:  # a chain of names that never reaches a reference
+            raise RecalcError(f"{where}: the name {name} refers to itself, through a chain of names ({text})")
+        self._names_open.append(name.upper())
         try:
             if _REF_RE.match(ref.replace("$", "")) and "!" in ref and not any(ch in ref for ch in "(,&+*/^<>= "):
                 return self._read(sheet, ref, where)
@@ -271,7 +315,7 @@ class Workbook:
                 raise RecalcError(f"{where}: the name {name} refers to {text}, which cannot be evaluated here ({exc})") from None
             return compiled(*[self._read(sheet, n, where) for n in compiled.inputs])
         finally:
-            self._names_open.discard(name.upper())
+            self._names_open.pop()
 
     def _spill_extent(self, sheet):
         self._settle_spills(sheet)
@@ -400,6 +444,13 @@ class Workbook:
         if height == 1 and width == 1:
             self.values[key] = _cell_value(rows[0][0])
             return
+        circular = [c for c in self._open_reads.pop(key, []) if row <= c[1] <= r2 and col <= c[2] <= c2]
+        if circular:
+            self.values[key] = ExcelError("#VALUE!")
+            self._error(f"{sheet}!{cell_name(row, col)}",
+                        f"circular reference: its spill would cover {cell_name(*circular[0][1:])}, which its own "
+                        "inputs read")
+            return
         blocked = [
             cell_name(r, c) for r in range(row, r2 + 1) for c in range(col, c2 + 1)
             if (r, c) != (row, col)
@@ -407,7 +458,7 @@ class Workbook:
         ]
         if blocked:
             self.values[key] = ExcelError("#SPILL!")
-            self.report.error_cells.append((f"{sheet}!{cell_name(row, col)}", f"#SPILL! (blocked by {blocked[0]})"))
+            self._error(f"{sheet}!{cell_name(row, col)}", f"#SPILL! (blocked by {blocked[0]})")
             return
         self.spills[key] = (row, col, r2, c2)
         self.report.spills += 1
@@ -451,15 +502,21 @@ class Workbook:
                     break
         return self.report.unread
 
+    def _error(self, where: str, shown: str):
+        if where not in self._reported:
+            self._reported.add(where)
+            self.report.error_cells.append((where, shown))
+
     def collect_errors(self):
+        """Every cell that shows an error, once each (linear in the cells computed)."""
         for key, v in self.values.items():
             shown = None
             if isinstance(v, ExcelError):
                 shown = v.code
             elif isinstance(v, str) and v.startswith("ERROR:"):
                 shown = v
-            if shown and not any(a == f"{key[0]}!{cell_name(key[1], key[2])}" for a, _ in self.report.error_cells):
-                self.report.error_cells.append((f"{key[0]}!{cell_name(key[1], key[2])}", shown))
+            if shown:
+                self._error(f"{key[0]}!{cell_name(key[1], key[2])}", shown)
         return self.report
 
 
@@ -532,6 +589,27 @@ def _constant(v):
     if isinstance(v, (bool, int, float)):
         return v
     return str(v)
+
+
+# a cell holds at most 32,767 characters (Excel's specification limit, common practice) and no
+# control characters other than tab, line feed and carriage return (the file format's XML)
+MAX_CELL_TEXT = 32767
+_CONTROL_RE = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f\ufffe\uffff]")
+
+
+def _cell_text(text: str, where, report) -> str:
+    """``text`` as a cell can hold it; what was changed is recorded in ``report.altered``."""
+    done = []
+    if _CONTROL_RE.search(text):
+        text = _CONTROL_RE.sub("\ufffd", text)
+        done.append("control characters replaced by \ufffd")
+    if len(text) > MAX_CELL_TEXT:
+        note = f" ...[cut: {len(text):,} characters]"
+        done.append(f"cut from {len(text):,} to {MAX_CELL_TEXT:,} characters")
+        text = text[: MAX_CELL_TEXT - len(note)] + note
+    if done and where is not None and report is not None:
+        report.altered.append((where, "; ".join(done)))
+    return text
 
 
 def _is_number(v) -> bool:
@@ -620,9 +698,11 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
     formula_values = {}
     dynamic = {}
 
-    def plain(v):
+    def plain(v, where=None):
         if isinstance(v, ExcelError):
             return v.code
+        if isinstance(v, str):
+            return _cell_text(v, where, report)
         return v
 
     for (sheet, row, col), text in wb.formulas.items():
@@ -630,7 +710,8 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
         text = file_formula(text)
         if not values_only and (sheet, row, col) not in wb.spills and (sheet, row, col) not in wb.arrays:
             ws.cell(row=row, column=col).value = text
-        v = wb.values.get((sheet, row, col))
+        raw = wb.values.get((sheet, row, col))
+        v = raw if isinstance(raw, ExcelError) else plain(raw, f"{sheet}!{cell_name(row, col)}")
         if values_only:
             ws.cell(row=row, column=col).value = plain(v)
             continue
@@ -648,10 +729,13 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
         sheet, row, col = cell
         if not values_only and anchor in wb.arrays and cell in wb.formulas:
             continue
-        book[sheet].cell(row=row, column=col).value = plain(wb.values.get(cell))
+        book[sheet].cell(row=row, column=col).value = plain(wb.values.get(cell), f"{sheet}!{cell_name(row, col)}")
 
-    dst.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp1 = tempfile.mkstemp(suffix=".xlsx", dir=dst.parent, prefix=".volcast-")
+    try:
+        dst.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp1 = tempfile.mkstemp(suffix=".xlsx", dir=dst.parent, prefix=".volcast-")
+    except OSError as exc:
+        raise RecalcError(f"{dst}: cannot write there ({exc.strerror or type(exc).__name__})") from None
     os.close(fd)
     tmp2 = tmp1 + ".post.xlsx"
     try:
