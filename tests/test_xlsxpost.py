@@ -7,12 +7,18 @@ Packaging Conventions), and the MS-XLSX extension for dynamic arrays.  Section n
 "from memory" were not checked against the text.
 """
 
+import contextlib
 import csv
 import hashlib
 import math
+import re
 import shutil
+import struct
 import subprocess
+import time
+import tracemalloc
 import zipfile
+import zlib
 import xml.etree.ElementTree as ET
 
 import openpyxl
@@ -21,7 +27,8 @@ from openpyxl.styles import Font
 from openpyxl.worksheet.formula import ArrayFormula
 
 from xlfuncs.headless import xlsxpost
-from xlfuncs.headless.xlsxpost import ERROR_LITERALS, ExcelError, dynamic_anchors, store_values
+from xlfuncs.headless.recalc import RecalcError, Workbook
+from xlfuncs.headless.xlsxpost import ERROR_LITERALS, ExcelError, check_package, dynamic_anchors, store_values
 
 MAIN = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
 XDA = "{http://schemas.microsoft.com/office/spreadsheetml/2017/dynamicarray}"
@@ -409,7 +416,372 @@ def test_error_literals():
 
 
 def test_module_exports():
-    assert set(xlsxpost.__all__) == {"ERROR_LITERALS", "ExcelError", "dynamic_anchors", "store_values"}
+    assert set(xlsxpost.__all__) == {"ERROR_LITERALS", "ExcelError", "check_package", "dynamic_anchors",
+                                     "store_values"}
+
+
+# ----------------------------------------------------------------------------- package size and honesty
+#
+# Zip layout: PKWARE's APPNOTE.TXT (the .ZIP File Format Specification), 4.3.7 local file header,
+# 4.3.12 central directory header, 4.3.16 end of central directory record (field offsets from
+# memory; _patch_entry checks them by reading the patched file back through zipfile).
+
+MiB = 2**20
+SHEET_HEAD = (b'<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n<worksheet '
+              b'xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main"><sheetData>')
+SHEET_TAIL = b"</sheetData></worksheet>"
+
+
+def _copy_package(src, dst, replace=None, add=None, method=None):
+    """Copy a package member by member; ``replace`` maps a member to a function of its bytes or to an
+    iterable of byte blocks streamed into the copy, ``add`` maps new members to byte blocks, and
+    ``method`` is the compression of every member (else each keeps its own)."""
+    replace, add = replace or {}, add or {}
+    with zipfile.ZipFile(src) as z, zipfile.ZipFile(dst, "w", zipfile.ZIP_DEFLATED) as out:
+        items = [(i.filename, i.compress_type) for i in z.infolist()] + [(n, zipfile.ZIP_DEFLATED) for n in add]
+        for name, kind in items:
+            info = zipfile.ZipInfo(name, (2020, 1, 1, 0, 0, 0))
+            info.compress_type = kind if method is None else method
+            how = replace.get(name, add.get(name))
+            if how is None or callable(how):
+                data = z.read(name)
+                out.writestr(info, how(data) if how else data)
+            else:
+                with out.open(info, "w") as fh:
+                    for block in how:
+                        fh.write(block)
+
+
+def _patch_entry(path, name, *, size=None, crc=None):
+    """Overwrite the declared unpacked size and CRC-32 of one member, in its central directory entry
+    and its local header."""
+    data = bytearray(path.read_bytes())
+    eocd = data.rfind(b"PK\x05\x06")
+    (count,) = struct.unpack_from("<H", data, eocd + 10)
+    (pos,) = struct.unpack_from("<I", data, eocd + 16)
+    for _ in range(count):
+        assert data[pos:pos + 4] == b"PK\x01\x02"
+        n, m, k = struct.unpack_from("<HHH", data, pos + 28)
+        (local,) = struct.unpack_from("<I", data, pos + 42)
+        if data[pos + 46:pos + 46 + n].decode() == name:
+            assert data[local:local + 4] == b"PK\x03\x04"
+            if crc is not None:
+                struct.pack_into("<I", data, pos + 16, crc)
+                struct.pack_into("<I", data, local + 14, crc)
+            if size is not None:
+                struct.pack_into("<I", data, pos + 24, size)
+                struct.pack_into("<I", data, local + 22, size)
+        pos += 46 + n + m + k
+    path.write_bytes(data)
+    with zipfile.ZipFile(path) as z:  # the patch landed where zipfile reads it
+        info = z.getinfo(name)
+        assert (size is None or info.file_size == size) and (crc is None or info.CRC == crc)
+
+
+def _repeated(total, unit=b"<row><c><v>0</v></c></row>"):
+    """``total`` bytes or a little more of one repeated row, a megabyte at a time (the bomb's body)."""
+    block = unit * (MiB // len(unit))
+    for _ in range(-(-total // len(block))):
+        yield block
+
+
+def _member_digest(path, name):
+    h = hashlib.sha256()
+    with zipfile.ZipFile(path) as z, z.open(name) as fh:
+        while block := fh.read(MiB):
+            h.update(block)
+    return h.hexdigest()
+
+
+@contextlib.contextmanager
+def _traced():
+    """Yields a dict that holds, once the block ends (or raises), the peak bytes Python allocated in
+    it; tracemalloc also sees zlib's buffers, which CPython's zlib module allocates through Python's
+    allocator (from memory)."""
+    seen: dict = {}
+    tracemalloc.start()
+    try:
+        yield seen
+    finally:
+        seen["peak"] = tracemalloc.get_traced_memory()[1]
+        tracemalloc.stop()
+
+
+@pytest.fixture(scope="module")
+def bomb(books):
+    """A workbook whose first sheet unpacks to 300 MB of one repeated row from well under 1 MB: built
+    by streaming, never held in memory."""
+    path = books["dir"] / "bomb.xlsx"
+    body = [SHEET_HEAD, *_repeated(300 * 10**6), SHEET_TAIL]
+    _copy_package(books["src"], path, replace={"xl/worksheets/sheet1.xml": body})
+    return path
+
+
+def test_a_normal_workbook_passes_and_the_limit_is_inclusive(books):
+    with zipfile.ZipFile(books["dst"]) as z:
+        total = sum(i.file_size for i in z.infolist())
+    assert check_package(books["dst"]) == total
+    assert check_package(books["dst"], max_inflated=total) == total
+    # below a kilobyte apart the sizes would print alike, so they are given in bytes
+    with pytest.raises(ValueError, match=rf"^dst.xlsx unpacks to {total:,} bytes \(limit {total - 1:,} bytes\); "
+                                         "a workbook that large cannot be recalculated here$"):
+        check_package(books["dst"], max_inflated=total - 1)
+    assert xlsxpost.MAX_INFLATED == 256 * MiB  # the stated default
+
+
+def test_a_zip_bomb_is_refused_from_its_directory(bomb):
+    with zipfile.ZipFile(bomb) as z:
+        packed = bomb.stat().st_size
+        total = sum(i.file_size for i in z.infolist())
+        sheet = z.getinfo("xl/worksheets/sheet1.xml").file_size
+    assert total > 300 * 10**6 and packed < MiB  # the bomb is one, so the check below can fail
+    # powers of 1024 and one decimal, as file managers show sizes (common practice); no ".0"
+    shown = f"{total / MiB:.1f}".removesuffix(".0") + " MB"
+    message = rf"^bomb.xlsx unpacks to {shown} \(limit 256 MB\); a workbook that large cannot be recalculated here$"
+    t0 = time.perf_counter()
+    with _traced() as mem, pytest.raises(ValueError, match=message):
+        check_package(bomb)
+    # the directory only: unpacking 300 MB would take seconds, and hold megabytes at least
+    assert time.perf_counter() - t0 < 1.0 and mem["peak"] < MiB
+    with pytest.raises(RecalcError, match=message):
+        Workbook(bomb)
+    # the functions that stream refuse it for its packing, with no limit on the total
+    shown = f"{sheet / MiB:.1f}".removesuffix(".0") + " MB"
+    with pytest.raises(ValueError, match=rf"sheet1.xml unpacks from .* to {shown}, more than 200 times"):
+        check_package(bomb, max_inflated=None)
+    with pytest.raises(ValueError, match=r"more than 200 times its packed size"):
+        store_values(bomb, bomb.with_name("bomb.out.xlsx"), {(FIRST, "B3"): 1.0})
+    assert not bomb.with_name("bomb.out.xlsx").exists()
+    assert dynamic_anchors(bomb) == set()
+
+
+@pytest.mark.parametrize("size, refused", [(20 * MiB, True), (9 * MiB, False)])
+def test_a_part_packed_over_200_times_is_refused_above_10_mib(books, tmp_path, size, refused):
+    path = tmp_path / "tight.xlsx"
+    _copy_package(books["src"], path, add={"xl/media/blank.bin": [b"\0" * size]})
+    with zipfile.ZipFile(path) as z:
+        info = z.getinfo("xl/media/blank.bin")
+        assert info.file_size > 200 * info.compress_size  # zeros deflate about 1000:1 (zlib FAQ, from memory)
+    if refused:
+        with pytest.raises(ValueError, match=r"^tight.xlsx: the part xl/media/blank.bin unpacks from [\d.]+ KB to "
+                                             r"20 MB, more than 200 times its packed size"):
+            check_package(path)
+    else:
+        assert check_package(path) == sum(i.file_size for i in zipfile.ZipFile(path).infolist())
+
+
+def test_a_part_packed_with_another_method_is_refused(books, tmp_path):
+    # zipfile unpacks a bzip2 member without bounding its output by the size read (ZipExtFile._read1,
+    # Python 3.11), so it is refused; ECMA-376 Part 2 allows stored and deflated parts only (from memory)
+    path = tmp_path / "bz.xlsx"
+    _copy_package(books["dst"], path, method=zipfile.ZIP_BZIP2)
+    assert openpyxl.load_workbook(path)[FIRST]["B3"].value  # readable, so the refusal is a choice
+    with pytest.raises(ValueError, match=r"^bz.xlsx: the part .* is packed with bzip2, which an .xlsx"):
+        check_package(path)
+    assert dynamic_anchors(path) == set()
+    with pytest.raises(ValueError, match=r"packed with bzip2"):
+        store_values(path, tmp_path / "out.xlsx", {(FIRST, "B3"): 1.0})
+
+
+def test_check_package_refuses_what_is_not_a_zip(tmp_path):
+    fake = tmp_path / "fake.xlsx"
+    fake.write_text("price\n100\n")
+    with pytest.raises(ValueError, match=r"^fake.xlsx is not a readable .xlsx workbook \(not a zip archive\)$"):
+        check_package(fake)
+    with pytest.raises(ValueError, match=r"^gone.xlsx cannot be read \(No such file or directory\)$"):
+        check_package(tmp_path / "gone.xlsx")
+
+
+def _liars(data, n):
+    """(declared size, CRC-32, the reason given) for a member whose real bytes are ``data``, declaring ``n``."""
+    return {
+        "declares half, with the CRC of all": (n, zlib.crc32(data), "Bad CRC-32"),
+        # read to the declared size only, this one would pass, cut short
+        "declares half, with the CRC of that half": (n, zlib.crc32(data[:n]), "Bad CRC-32"),
+        # zipfile's own check passes when one byte more is read: the count refuses it
+        "declares half, with the CRC of one byte more": (n, zlib.crc32(data[:n + 1]), "it holds more"),
+        "declares twice its size": (2 * len(data), zlib.crc32(data), f"it holds {len(data):,} bytes"),
+    }
+
+
+@pytest.mark.parametrize("case", list(_liars(b"xy", 1)))
+def test_a_part_that_lies_about_its_size_is_refused(books, tmp_path, case):
+    for name in ("xl/styles.xml", "xl/worksheets/sheet1.xml"):  # one copied untouched, one scanned
+        path = tmp_path / "liar.xlsx"
+        shutil.copyfile(books["dst"], path)
+        data = _members(path)[name]
+        size, crc, reason = _liars(data, len(data) // 2)[case]
+        _patch_entry(path, name, size=size, crc=crc)
+        check_package(path, verify=False)  # the directory alone cannot tell
+        lie = (rf"^liar.xlsx: the part {name} does not unpack to the .* its zip directory declares "
+               rf"\({reason}.*\); the file is damaged or was made to mislead, and is refused$")
+        with pytest.raises(ValueError, match=lie):
+            check_package(path)
+        out = tmp_path / "out.xlsx"
+        with pytest.raises(ValueError, match=lie):
+            store_values(path, out, {(FIRST, "B3"): 1.0})
+        assert not out.exists()
+        assert dynamic_anchors(path) == (set() if name.endswith("sheet1.xml") else {(FIRST, "G2"), (SECOND, "C1")})
+
+
+def test_a_part_holding_more_than_it_declares_is_read_no_further(books, tmp_path):
+    # 100 MB behind a directory entry that declares the original sheet's few kilobytes
+    path = tmp_path / "liar.xlsx"
+    name = "xl/worksheets/sheet1.xml"
+    real = _members(books["src"])[name]
+    head = real[:real.index(b"</sheetData>")]
+    body = [head, *_repeated(100 * 10**6), SHEET_TAIL]
+    _copy_package(books["src"], path, replace={name: body})
+    _patch_entry(path, name, size=len(real), crc=zlib.crc32(real))
+    assert check_package(path, verify=False) < MiB
+    # zipfile reading a member whole (as openpyxl reads every part) unpacks all it holds before
+    # cutting it to the declared size: the hazard the verification pass of check_package removes
+    with _traced() as mem, zipfile.ZipFile(path) as z, pytest.raises(zipfile.BadZipFile, match="Bad CRC-32"):
+        z.read(name)
+    assert mem["peak"] > 100 * 10**6
+    declared = f"{len(real) / 1024:.1f}".removesuffix(".0") + " KB"
+    lie = rf"^liar.xlsx: the part {name} does not unpack to the {declared} its zip directory declares \("
+    for call in (check_package, lambda p: store_values(p, tmp_path / "out.xlsx", {(FIRST, "B3"): 1.0}),
+                 dynamic_anchors, Workbook):
+        with _traced() as mem:
+            if call is dynamic_anchors:
+                assert call(path) == set()
+            else:
+                with pytest.raises(RecalcError if call is Workbook else ValueError, match=lie):
+                    call(path)
+        assert mem["peak"] < 4 * MiB, (call, mem)  # read one chunk past the declared size, no further
+
+
+def test_parts_read_whole_are_bounded(books, tmp_path, monkeypatch):
+    monkeypatch.setattr(xlsxpost, "_MAX_WHOLE", 300)
+    with pytest.raises(ValueError, match=r"^src.xlsx: the part _rels/.rels unpacks to 534 bytes; a part of this "
+                                         r"kind is read whole and may hold at most 300 bytes$"):
+        store_values(books["src"], tmp_path / "out.xlsx", {(FIRST, "B3"): 1.0})
+
+
+@pytest.mark.parametrize("cut, match", [
+    (b"</sheetData>", "ends inside its cell table"),
+    (b"<sheetData>", r"not formula cells: Prices!B3;"),  # no cell table: no formula cells
+])
+def test_a_sheet_cut_short_is_refused(books, tmp_path, cut, match):
+    path = tmp_path / "short.xlsx"
+    name = "xl/worksheets/sheet1.xml"
+    _copy_package(books["src"], path, replace={name: lambda data: data[:data.index(cut)]})
+    with pytest.raises(ValueError, match=match):
+        store_values(path, tmp_path / "out.xlsx", {(FIRST, "B3"): 1.0})
+    assert not (tmp_path / "out.xlsx").exists()
+
+
+@pytest.mark.parametrize("chunk", [1, 2, 7, 64, 1000])
+def test_the_result_does_not_depend_on_the_chunk_size(books, tmp_path, monkeypatch, chunk):
+    # tags, rows and the closing </sheetData> split across chunks at every position
+    monkeypatch.setattr(xlsxpost, "_CHUNK", chunk)
+    out = tmp_path / "out.xlsx"
+    store_values(books["src"], out, VALUES, DYNAMIC)
+    assert _members(out) == _members(books["dst"])
+    assert dynamic_anchors(books["dst"]) == {(FIRST, "G2"), (SECOND, "C1")}
+    with pytest.raises(ValueError, match=r"Prices!B4 holds a formula inside the spill range B3:B4"):
+        store_values(books["src"], out.with_name("x.xlsx"), {}, {(FIRST, "B3"): "B3:B4"})
+
+
+def test_a_sheet_is_held_a_row_at_a_time(tmp_path, monkeypatch):
+    # A row without cells may be written self-closed, <row r="2" ht="20" customHeight="1"/>
+    # (ECMA-376 Part 1, 18.3.1.73 row: its cells are optional; section number from memory), as
+    # other writers than openpyxl do (common practice).  The blocks are cut where a row starts, so
+    # 400 such rows never pile up, while one row larger than the bound is refused.
+    built, src, out = tmp_path / "built.xlsx", tmp_path / "rows.xlsx", tmp_path / "out.xlsx"
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for r in range(1, 400):
+        ws.row_dimensions[r].height = 20
+    ws["A400"] = "=1+1"
+    ws["A401"] = "=" + "+".join(["1"] * 1500)  # one row of about 3 KB
+    wb.save(built)
+    _copy_package(built, src, replace={"xl/worksheets/sheet1.xml":
+                                       lambda d: re.sub(rb"(<row [^>]*?) ?></row>", rb"\1/>", d)})
+    raw = _members(src)["xl/worksheets/sheet1.xml"]
+    assert raw.count(b"<row ") == 401 and b"</row>" not in raw[:raw.index(b'r="A400"')] and len(raw) > 10_000
+    monkeypatch.setattr(xlsxpost, "_CHUNK", 64)
+    monkeypatch.setattr(xlsxpost, "_MAX_WHOLE", 4000)  # above the long row, below the empty rows together
+    store_values(src, out, {(ws.title, "A400"): 2})
+    assert openpyxl.load_workbook(out, data_only=True).active["A400"].value == 2
+    monkeypatch.setattr(xlsxpost, "_MAX_WHOLE", 2000)
+    with pytest.raises(ValueError, match=r"^sheet 'Sheet' \(xl/worksheets/sheet1.xml\) holds a row of more than 2 KB"):
+        store_values(src, out, {(ws.title, "A401"): 2})
+
+
+BIG = "xl/worksheets/sheet99.xml"
+BIG_ROWS = 700_000
+
+
+@pytest.fixture(scope="module")
+def big(books):
+    """``dst`` with a third sheet, Big, of 1.4 million numbers (about 67 MiB unpacked, packed about
+    five times as ordinary sheets are), its last cell marked as a dynamic-array anchor."""
+    path = books["dir"] / "big.xlsx"
+
+    def rows():
+        yield SHEET_HEAD
+        for start in range(1, BIG_ROWS + 1, 10_000):
+            yield "".join(f'<row r="{r}"><c r="A{r}"><v>{r * 0.7071067811865476!r}</v></c>'
+                          f'<c r="B{r}" s="1"><v>{r * 7919 % 10007}</v></c></row>'
+                          for r in range(start, min(start + 10_000, BIG_ROWS + 1))).encode()
+        last = BIG_ROWS + 1
+        yield (f'<row r="{last}"><c r="C{last}" cm="1"><f t="array" ref="C{last}">A1</f><v>1</v></c></row>'
+               ).encode()
+        yield SHEET_TAIL
+
+    rel = ('<Relationship Id="rId99" Type="http://schemas.openxmlformats.org/officeDocument/2006/'
+           'relationships/worksheet" Target="worksheets/sheet99.xml"/></Relationships>').encode()
+    ct = ('<Override PartName="/xl/worksheets/sheet99.xml" ContentType="application/vnd.openxmlformats-'
+          'officedocument.spreadsheetml.worksheet+xml"/></Types>').encode()
+    _copy_package(books["dst"], path, add={BIG: rows()}, replace={
+        "xl/workbook.xml": lambda d: d.replace(b"</sheets>", b'<sheet name="Big" sheetId="99" r:id="rId99"/></sheets>'),
+        "xl/_rels/workbook.xml.rels": lambda d: d.replace(b"</Relationships>", rel),
+        "[Content_Types].xml": lambda d: d.replace(b"</Types>", ct)})
+    return path
+
+
+def test_the_big_sheet_is_what_the_memory_checks_need(big):
+    with zipfile.ZipFile(big) as z:
+        info = z.getinfo(BIG)
+    assert info.file_size > 64 * MiB and info.file_size < 10 * info.compress_size
+
+
+def test_store_values_streams_an_untouched_part(big, tmp_path):
+    # The part is copied a chunk at a time: the peak is a few chunks (256 KiB each) and zlib's
+    # state (about 256 KiB to deflate and 40 KiB to inflate with the default settings; zconf.h,
+    # from memory); 1.6 to 2.5 MiB was measured here.  8 MiB bounds that with room to spare and is
+    # an eighth of the part, which a whole read would hold at least once.
+    out = tmp_path / "big.out.xlsx"
+    with _traced() as mem:
+        store_values(big, out, {(FIRST, "B3"): 1.0}, {(FIRST, "G2"): "G2:H4"})
+    assert mem["peak"] < 8 * MiB, mem
+    with zipfile.ZipFile(big) as a, zipfile.ZipFile(out) as b:
+        old, new = a.getinfo(BIG), b.getinfo(BIG)
+        assert [i.filename for i in b.infolist()] == [i.filename for i in a.infolist()]
+    assert (new.file_size, new.CRC, new.compress_type) == (old.file_size, old.CRC, old.compress_type)
+    assert _member_digest(out, BIG) == _member_digest(big, BIG)
+    with zipfile.ZipFile(out) as z:  # not through openpyxl, which would load the 1.4 million cells
+        assert _cell(ET.fromstring(z.read("xl/worksheets/sheet1.xml")), "B3").findtext(f"{MAIN}v") == "1.0"
+
+
+def test_a_big_sheet_is_edited_and_scanned_a_few_rows_at_a_time(big, tmp_path):
+    last = BIG_ROWS + 1
+    with _traced() as mem:
+        found = dynamic_anchors(big)
+    assert found == {(FIRST, "G2"), (SECOND, "C1"), ("Big", f"C{last}")}  # the last cell of 67 MiB
+    assert mem["peak"] < 8 * MiB, mem
+    out = tmp_path / "edited.xlsx"
+    with _traced() as mem:
+        store_values(big, out, {("Big", f"C{last}"): 2.5})
+    assert mem["peak"] < 8 * MiB, mem
+    with zipfile.ZipFile(out) as z, z.open(BIG) as fh:
+        fh.seek(z.getinfo(BIG).file_size - 200)
+        tail = fh.read().decode()
+    assert f'<c r="C{last}" cm="1"><f t="array" ref="C{last}">A1</f><v>2.5</v></c></row></sheetData>' in tail
+    with zipfile.ZipFile(big) as a, zipfile.ZipFile(out) as b:
+        assert b.getinfo(BIG).file_size == a.getinfo(BIG).file_size + 2  # only <v>1</v> became <v>2.5</v>
 
 
 # ----------------------------------------------------------------------------- LibreOffice

@@ -36,7 +36,7 @@ from pathlib import Path
 
 from .contract import FIGURES, HISTORY_HEADER, missing_names, name_range
 from .recalc import RecalcError, cell_name, recalc
-from .xlsxpost import ExcelError, dynamic_anchors
+from .xlsxpost import ExcelError, check_package, dynamic_anchors
 
 __all__ = ["refresh", "RefreshResult", "HISTORY_HEADER", "JUMP_BOUND", "suspicious"]
 
@@ -282,6 +282,10 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
         raise RecalcError(f"{out}: refusing to write over the input; choose another output with -o")
     if out.suffix.lower() != ".xlsx":
         raise RecalcError(f"{out.name}: the output must be an .xlsx file")
+    try:
+        check_package(book)  # bounded: refuses before openpyxl inflates a package past the limit
+    except ValueError as exc:
+        raise RecalcError(str(exc)) from None
     try:
         wb = openpyxl.load_workbook(book)
     except Exception as exc:  # noqa: BLE001 - any unreadable file is one line of bad input

@@ -8,6 +8,7 @@ module edits the XML of such a package; every other part is copied unchanged.
 =========================  ====================================================================
 :func:`store_values`       copy a package, storing each formula's value and marking spilled anchors
 :func:`dynamic_anchors`    the cells of a package that carry dynamic-array cell metadata
+:func:`check_package`      refuse a package too large, too tightly packed or not a zip, before loading
 :class:`ExcelError`        an error value to store, such as ``ExcelError("#N/A")``
 ``ERROR_LITERALS``         the error literals a cell can hold
 =========================  ====================================================================
@@ -45,10 +46,19 @@ ExcelError('#N/A')
 The editing is done on the text of the parts, on the regular, unprefixed XML that openpyxl
 writes; parts are read with :mod:`xml.etree.ElementTree` only to look things up, never written
 back through it, so no namespace prefix is renamed and nothing else in a part moves.
+
+Memory stays small whatever the size of a sheet: sheet parts are read in chunks (a sheet being
+edited a few rows at a time), untouched parts are copied chunk by chunk, and only the small
+parts that describe the package (relationships, content types, the workbook part, the metadata
+part) are read whole, each within ``_MAX_WHOLE``.  Every part is read no further than one byte
+past the size its zip directory entry declares, so a part that lies about its size is refused
+before it can fill memory.
 """
 
 from __future__ import annotations
 
+import codecs
+import copy
 import math
 import numbers
 import os
@@ -56,10 +66,11 @@ import posixpath
 import re
 import tempfile
 import zipfile
+import zlib
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
-__all__ = ["ERROR_LITERALS", "ExcelError", "dynamic_anchors", "store_values"]
+__all__ = ["ERROR_LITERALS", "ExcelError", "check_package", "dynamic_anchors", "store_values"]
 
 #: The error values a cell can hold (ECMA-376 Part 1, 18.18.11 ``e``; #SPILL! and #CALC! are the
 #: dynamic-array additions).
@@ -89,6 +100,30 @@ _METADATA_XML = (
 
 _MAX_TEXT = 32767  # characters a cell's text may hold (Excel's specification limits, from memory)
 _MAX_ROW, _MAX_COL = 1048576, 16384
+
+#: The most a package may hold once unpacked, in bytes: 256 MiB, the default of
+#: :func:`check_package`.  Memory sets it, not disk.  openpyxl holds about ten bytes for each
+#: unpacked byte of sheet XML and a recalculation about twenty-five (measured here: 445 MiB to
+#: load a sheet of a million cells, 44.6 MB unpacked; 311 MiB to recalculate 200,000 cells,
+#: 8.8 MB), so 256 MiB already means several GiB and many minutes.  It still admits the largest
+#: workbook this program is for with room to spare: a series filling all 1,048,576 rows of a
+#: sheet with its date, level and return formula unpacks to about 140 MB as openpyxl writes it
+#: (about 45 bytes a cell, measured), a century of daily data to about 12 MB.
+MAX_INFLATED = 256 * 2**20
+#: A part over ``_RATIO_FROM`` bytes that unpacks to more than ``_MAX_RATIO`` times its packed size
+#: is refused.  Sheet XML packs 5 to 20 times (measured on openpyxl's output and on repetitive
+#: sheets: constant formulas, styled blanks, empty rows), deflate can reach about 1,000 times
+#: (common practice), and only a file built to exhaust memory comes near that.  Small parts may
+#: pack tighter: whatever their ratio, they cannot hurt.
+_MAX_RATIO, _RATIO_FROM = 200, 10 * 2**20
+#: Parts read whole (relationships, content types, the workbook and metadata parts) are
+#: kilobytes in practice; this bounds them.
+_MAX_WHOLE = 64 * 2**20
+#: Bytes read from a part at a time.
+_CHUNK = 256 * 2**10
+_METHODS = {zipfile.ZIP_STORED, zipfile.ZIP_DEFLATED}  # ECMA-376 Part 2 allows only these (from memory)
+_METHOD_NAMES = {1: "shrink", 6: "implode", 8: "deflate", 9: "deflate64", 12: "bzip2", 14: "LZMA",
+                 93: "Zstandard", 95: "XZ", 99: "AES encryption"}  # PKWARE APPNOTE 4.4.5, from memory
 
 
 class ExcelError:
@@ -214,6 +249,139 @@ def _encode_value(where: str, value) -> tuple[str | None, str | None]:
                     "give a number, text, True/False, None or an ExcelError")
 
 
+# ----------------------------------------------------------------------------- reading a package
+def _size(n: int) -> str:
+    """A byte count as a file manager shows it, in powers of 1024: ``1.5 GB``, ``256 MB``, ``820 KB``."""
+    for unit, scale in (("GB", 2**30), ("MB", 2**20), ("KB", 2**10)):
+        if n >= scale:
+            return f"{n / scale:.1f}".removesuffix(".0") + f" {unit}"
+    return f"{n} byte" + ("" if n == 1 else "s")
+
+
+def _sizes(n: int, limit: int) -> tuple[str, str]:
+    """``n`` and ``limit`` in words, exact when rounding would show them equal."""
+    a, b = _size(n), _size(limit)
+    return (a, b) if a != b else (f"{n:,} bytes", f"{limit:,} bytes")
+
+
+def _check_infos(label: str, infos: list, max_inflated: int | None) -> int:
+    """The total unpacked size the zip directory ``infos`` declares; ValueError if it is refused."""
+    total = 0
+    for info in infos:
+        if info.compress_type not in _METHODS:
+            method = _METHOD_NAMES.get(info.compress_type, f"method {info.compress_type}")
+            raise ValueError(f"{label}: the part {info.filename} is packed with {method}, which an .xlsx "
+                             "file does not use; save the workbook again from the spreadsheet application")
+        total += info.file_size
+    if max_inflated is not None and total > max_inflated:
+        size, limit = _sizes(total, max_inflated)
+        raise ValueError(f"{label} unpacks to {size} (limit {limit}); a workbook that large cannot be "
+                         "recalculated here")
+    for info in infos:
+        if info.file_size > _RATIO_FROM and info.file_size > _MAX_RATIO * info.compress_size:
+            raise ValueError(f"{label}: the part {info.filename} unpacks from {_size(info.compress_size)} to "
+                             f"{_size(info.file_size)}, more than {_MAX_RATIO} times its packed size, as "
+                             "no real workbook does; the file is refused as damaged or built to exhaust memory")
+    return total
+
+
+def check_package(path: str | Path, max_inflated: int | None = MAX_INFLATED, *, verify: bool = True) -> int:
+    """Refuse a package that could not be loaded within memory, before a reader unpacks it whole.
+
+    Raises ValueError, in one line, when ``path`` is not a zip archive, when its parts unpack to
+    more than ``max_inflated`` bytes together (256 MiB by default; ``None`` sets no total), when
+    a part over 10 MiB unpacks to more than 200 times its packed size, or when a part is packed
+    with a method other than deflate or none: all read from the zip directory alone, so a zip
+    bomb is refused at once.  Then, unless ``verify`` is false, every part is unpacked a chunk at
+    a time and discarded, and one that holds more or less than its directory entry declares, or
+    fails its checksum, is refused: a reader that trusts the directory (openpyxl reads each part
+    whole) would otherwise unpack all that a lying part holds.  That pass holds a few hundred KiB
+    and takes about a second for 256 MiB.  Returns the total unpacked size.
+    """
+    path = Path(path)
+    try:
+        z = zipfile.ZipFile(path)
+    except (zipfile.BadZipFile, EOFError, ValueError):
+        raise ValueError(f"{path.name} is not a readable .xlsx workbook (not a zip archive)") from None
+    except OSError as exc:
+        raise ValueError(f"{path.name} cannot be read ({exc.strerror or exc})") from None
+    with z:
+        total = _check_infos(path.name, z.infolist(), max_inflated)
+        if verify:
+            try:
+                for info in z.infolist():
+                    for _ in _chunks(z, info, path.name):
+                        pass
+            except OSError as exc:
+                raise ValueError(f"{path.name} cannot be read ({exc.strerror or exc})") from None
+    return total
+
+
+def _damaged(label: str, info: zipfile.ZipInfo, why: str = "") -> ValueError:
+    return ValueError(f"{label}: the part {info.filename} does not unpack to the {_size(info.file_size)} its "
+                      f"zip directory declares{why}; the file is damaged or was made to mislead, and is refused")
+
+
+def _chunks(z: zipfile.ZipFile, info: zipfile.ZipInfo, label: str):
+    """The unpacked bytes of one part in chunks of up to ``_CHUNK``.
+
+    zipfile stops reading a member at the size its directory entry declares and then checks its
+    CRC-32.  The entry is read here as if it declared one byte more, so a part that holds more
+    than it declares fails the checksum or yields that byte, and is refused at its end, instead of
+    being cut silently; so is a part that holds less.  Reading a chunk at a time matters: zipfile
+    unpacks as much as it is asked for before it cuts a member to its declared size.
+    """
+    probe = copy.copy(info)
+    probe.file_size = info.file_size + 1
+    got = 0
+    try:
+        with z.open(probe) as fh:
+            while block := fh.read(_CHUNK):
+                got += len(block)
+                yield block
+    except (zipfile.BadZipFile, EOFError, zlib.error, NotImplementedError, RuntimeError) as exc:
+        raise _damaged(label, info, f" ({exc})") from None
+    if got != info.file_size:
+        raise _damaged(label, info, " (it holds more)" if got > info.file_size else f" (it holds {got:,} bytes)")
+
+
+def _texts(blocks):
+    """UTF-8 text, in pieces, of the bytes in ``blocks``."""
+    decoder = codecs.getincrementaldecoder("utf-8")()
+    for block in blocks:
+        text = decoder.decode(block)
+        if text:
+            yield text
+    text = decoder.decode(b"", final=True)
+    if text:
+        yield text
+
+
+class _Package:
+    """The parts of an open package, by name: ``name in pkg``, ``pkg[name]`` (the whole part, for the
+    small parts that describe the package) and ``pkg.chunks(name)`` (for sheets and the rest)."""
+
+    def __init__(self, z: zipfile.ZipFile, label: str):
+        self.z, self.label = z, label
+        self.infos = {i.filename: i for i in z.infolist() if not i.is_dir()}
+        self._whole: dict = {}
+
+    def __contains__(self, name) -> bool:
+        return name in self.infos
+
+    def __getitem__(self, name: str) -> bytes:
+        if name not in self._whole:
+            info = self.infos[name]
+            if info.file_size > _MAX_WHOLE:
+                raise ValueError(f"{self.label}: the part {name} unpacks to {_size(info.file_size)}; a part of "
+                                 f"this kind is read whole and may hold at most {_size(_MAX_WHOLE)}")
+            self._whole[name] = b"".join(_chunks(self.z, info, self.label))
+        return self._whole[name]
+
+    def chunks(self, name: str):
+        return _chunks(self.z, self.infos[name], self.label)
+
+
 # ----------------------------------------------------------------------------- package lookups
 def _parse_xml(name: str, data: bytes) -> ET.Element:
     try:
@@ -234,7 +402,7 @@ def _resolve(source_part: str, target: str) -> str:
     return posixpath.normpath(posixpath.join(posixpath.dirname(source_part), target))
 
 
-def _relationships(members: dict, part: str) -> list[dict]:
+def _relationships(members: _Package | dict, part: str) -> list[dict]:
     name = _rels_name(part)
     if name not in members:
         return []
@@ -242,7 +410,7 @@ def _relationships(members: dict, part: str) -> list[dict]:
     return [dict(r.attrib) for r in root.findall(f"{{{_PKG_RELS}}}Relationship")]
 
 
-def _workbook_part(members: dict) -> str:
+def _workbook_part(members: _Package | dict) -> str:
     for rel in _relationships(members, ""):
         if rel.get("Type") == _OFFICE_DOC and rel.get("TargetMode") != "External":
             part = _resolve("", rel.get("Target", ""))
@@ -251,7 +419,7 @@ def _workbook_part(members: dict) -> str:
     raise ValueError("the package has no workbook part (no officeDocument relationship in _rels/.rels)")
 
 
-def _sheet_parts(members: dict, wb_part: str) -> dict[str, str]:
+def _sheet_parts(members: _Package | dict, wb_part: str) -> dict[str, str]:
     """Sheet title -> zip member of its part, through the workbook's r:id relationships."""
     targets = {r.get("Id"): _resolve(wb_part, r.get("Target", "")) for r in _relationships(members, wb_part)
                if r.get("TargetMode") != "External"}
@@ -294,7 +462,8 @@ def _dynamic_cm_indices(name: str, data: bytes) -> set[int]:
 
 # ----------------------------------------------------------------------------- sheet editing
 _ATTR_RE = re.compile(r"""([A-Za-z_][\w.:-]*)\s*=\s*(?:"([^"]*)"|'([^']*)')""")
-_SHEET_DATA_RE = re.compile(r"<sheetData\b[^>]*?(?:/>|>(.*?)</sheetData>)", re.S)
+_SHEET_DATA_OPEN_RE = re.compile(r"<sheetData\b[^>]*?(/?)>")
+_SHEET_DATA_CLOSE, _ROW_OPEN = "</sheetData>", "<row"
 _CELL_RE = re.compile(r"<c(?=[\s/>])([^>]*?)(?:/>|>(.*?)</c>)", re.S)
 _F_RE = re.compile(r"<f(?=[\s/>])([^>]*?)(?:/>|>(.*?)</f>)", re.S)
 _V_RE = re.compile(r"<v(?=[\s/>])[^>]*?(?:/>|>.*?</v>)", re.S)
@@ -315,28 +484,57 @@ def _attrs_text(attrs: dict[str, str]) -> str:
     return "".join(f' {k}="{v}"' for k, v in attrs.items())
 
 
-def _edit_sheet(title: str, part: str, xml: str, values: dict, dynamic: dict) -> tuple[str, set]:
-    """The sheet XML with ``values`` stored and ``dynamic`` anchors marked; also the cells not found.
+def _edit_sheet(title: str, part: str, texts, values: dict, dynamic: dict, absent: set):
+    """The sheet XML, in pieces, with ``values`` stored and ``dynamic`` anchors marked.
 
-    ``values`` maps "B3" to an encoded (type, text) pair; ``dynamic`` maps "E2" to (ref, bounds).
+    ``texts`` is the part's text in pieces; ``values`` maps "B3" to an encoded (type, text) pair,
+    ``dynamic`` maps "E2" to (ref, bounds).  The cells not found are added to ``absent`` once the
+    pieces are all taken.  The cells are edited a block of whole rows at a time, cut where a row
+    starts (a cell lies in its row, so no cell spans two blocks; the cell table holds nothing but
+    rows): a few rows are held at once, however large the sheet.
     """
-    if not _ROOT_RE.search(xml):
+    texts = iter(texts)
+    head, m = "", None
+    for text in texts:
+        start = max(0, head.rfind("<"))
+        head += text
+        m = _SHEET_DATA_OPEN_RE.search(head, start)
+        if m or len(head) > _MAX_WHOLE:
+            break
+    if not _ROOT_RE.search(head if m is None else head[:m.start()]):
         raise ValueError(f"sheet {title!r} ({part}) is not SpreadsheetML in the unprefixed form openpyxl "
                          "writes; save the workbook with openpyxl first")
-    data = _SHEET_DATA_RE.search(xml)
-    if data is None or data.group(1) is None:
-        return xml, set(values) | set(dynamic)
+    if m is None and len(head) > _MAX_WHOLE:
+        raise ValueError(f"sheet {title!r} ({part}) has no cell table in its first {_size(_MAX_WHOLE)}")
+    if m is None or m.group(1):
+        absent |= set(values) | set(dynamic)
+        yield head
+        yield from texts
+        return
     done: set = set()
-    formula_cells: list = []
+    # the first formula cell inside each spill range: anchor -> ((row, order in the sheet), cell)
+    inside: dict = {}
+    order = 0
+    top = min((b[0] for _, b in dynamic.values()), default=0)
+    bottom = max((b[2] for _, b in dynamic.values()), default=0)
 
     def edit(m: re.Match) -> str:
+        nonlocal order
         inner = m.group(2)
         fm = _F_RE.search(inner) if inner else None
-        attrs = _attrs(m.group(1))
-        ref = attrs.get("r", "").upper()
         if fm is None:
             return m.group(0)
-        formula_cells.append(ref)
+        attrs = _attrs(m.group(1))
+        ref = attrs.get("r", "").upper()
+        if dynamic and _REF_RE.fullmatch(ref):
+            row, col = _parse_ref(ref)
+            order += 1
+            if top <= row <= bottom:
+                for anchor, (spill, (r1, c1, r2, c2)) in dynamic.items():
+                    if r1 <= row <= r2 and c1 <= col <= c2:
+                        cell = _ref_name(row, col)
+                        if cell != anchor and (anchor not in inside or (row, order) < inside[anchor][0]):
+                            inside[anchor] = ((row, order), cell)
         if ref not in values and ref not in dynamic:
             return m.group(0)
         done.add(ref)
@@ -370,24 +568,38 @@ def _edit_sheet(title: str, part: str, xml: str, values: dict, dynamic: dict) ->
                 v_xml = existing.group(0)
         return f"<c{_attrs_text(attrs)}>{f_xml}{v_xml}{rest}</c>"
 
-    body = _CELL_RE.sub(edit, data.group(1))
-    if dynamic:
-        by_row: dict = {}
-        for cell in formula_cells:
-            if _REF_RE.fullmatch(cell):
-                row, col = _parse_ref(cell)
-                by_row.setdefault(row, []).append(col)
-        for anchor, (ref, (r1, c1, r2, c2)) in dynamic.items():
-            for row in range(r1, r2 + 1) if r2 - r1 < len(by_row) else sorted(by_row):
-                if not r1 <= row <= r2:
-                    continue
-                for col in by_row.get(row, ()):
-                    cell = _ref_name(row, col)
-                    if c1 <= col <= c2 and cell != anchor:
-                        raise ValueError(f"{title}!{cell} holds a formula inside the spill range {ref} of "
-                                         f"{title}!{anchor}; the spilled cells must hold plain values")
-    start, end = data.span(1)
-    return xml[:start] + body + xml[end:], (set(values) | set(dynamic)) - done
+    def edit_rows(block: str) -> str:
+        return _CELL_RE.sub(edit, block) if "<f" in block else block  # only formula cells change
+
+    yield head[:m.end()]
+    buf = head[m.end():]
+    del head
+    scanned = 0  # where </sheetData> and a row start not yet cut at may begin
+    while True:
+        end = buf.find(_SHEET_DATA_CLOSE, scanned)
+        if end >= 0:
+            yield edit_rows(buf[:end])
+            break
+        cut = buf.rfind(_ROW_OPEN, scanned)
+        if cut > 0:
+            yield edit_rows(buf[:cut])
+            buf = buf[cut:]
+        if len(buf) > _MAX_WHOLE:
+            raise ValueError(f"sheet {title!r} ({part}) holds a row of more than {_size(_MAX_WHOLE)}, which "
+                             "cannot be edited here")
+        scanned = max(0, len(buf) - len(_SHEET_DATA_CLOSE) + 1)
+        text = next(texts, None)
+        if text is None:
+            raise ValueError(f"sheet {title!r} ({part}) ends inside its cell table (no </sheetData>); the part "
+                             "is damaged")
+        buf += text
+    for anchor, (spill, _) in dynamic.items():
+        if anchor in inside:
+            raise ValueError(f"{title}!{inside[anchor][1]} holds a formula inside the spill range {spill} of "
+                             f"{title}!{anchor}; the spilled cells must hold plain values")
+    absent |= (set(values) | set(dynamic)) - done
+    yield buf[end:]
+    yield from texts
 
 
 def _with_type(attrs: dict, kind: str) -> dict:
@@ -421,7 +633,7 @@ def _insert_before_close(name: str, xml: str, tag: str, element: str) -> str:
     return xml[:at] + element + xml[at:]
 
 
-def _ensure_metadata(members: dict, wb_part: str, changed: dict) -> None:
+def _ensure_metadata(members: _Package | dict, wb_part: str, changed: dict) -> None:
     """Add the dynamic-array metadata part, its content type and its relationship where missing."""
     rels_name = _rels_name(wb_part)
     if rels_name not in members:
@@ -489,8 +701,15 @@ def _umask() -> int:
     return mask
 
 
-def _write_zip(src: zipfile.ZipFile, dst: Path, changed: dict) -> None:
-    """Copy every member in order with its compression, replacing changed ones; new ones at the end."""
+def _write_zip(pkg: _Package, dst: Path, changed: dict, edited: dict, finish) -> None:
+    """Copy every member in order with its compression, replacing changed ones; new ones at the end.
+
+    ``changed`` maps a part to its new bytes; ``edited`` maps a part to a function that turns the
+    part's chunks into the chunks of its new content.  Untouched parts are copied a chunk at a
+    time.  ``finish()`` runs once everything is written, before the file is renamed into place;
+    nothing is left behind when it, or anything else, raises.
+    """
+    src = pkg.z
     infos = src.infolist()
     names = {i.filename for i in infos}
     like = next((i for i in infos if i.filename.endswith(".xml")), infos[0] if infos else None)
@@ -499,13 +718,24 @@ def _write_zip(src: zipfile.ZipFile, dst: Path, changed: dict) -> None:
     try:
         with zipfile.ZipFile(tmp, "w") as out:
             for info in infos:
-                copy = zipfile.ZipInfo(info.filename, info.date_time)
-                copy.compress_type = info.compress_type
-                copy.external_attr = info.external_attr
-                copy.create_system = info.create_system
-                copy.comment = info.comment
+                entry = zipfile.ZipInfo(info.filename, info.date_time)
+                entry.compress_type = info.compress_type
+                entry.external_attr = info.external_attr
+                entry.create_system = info.create_system
+                entry.comment = info.comment
                 data = changed.get(info.filename)
-                out.writestr(copy, src.read(info.filename) if data is None else data)
+                edit = edited.get(info.filename)
+                if data is None and edit is None and info.file_size == 0:  # empty parts, folders
+                    data = b"".join(_chunks(src, info, pkg.label))
+                if data is not None:
+                    out.writestr(entry, data)
+                    continue
+                blocks = _chunks(src, info, pkg.label)
+                # the size tells zipfile whether the entry needs zip64 fields; an edited sheet may grow
+                entry.file_size = info.file_size if edit is None else 2 * info.file_size + 2**20
+                with out.open(entry, "w") as fh:
+                    for block in (blocks if edit is None else edit(blocks)):
+                        fh.write(block)
             for name, data in changed.items():
                 if name not in names:
                     new = zipfile.ZipInfo(name, like.date_time if like else (1980, 1, 1, 0, 0, 0))
@@ -513,6 +743,7 @@ def _write_zip(src: zipfile.ZipFile, dst: Path, changed: dict) -> None:
                     new.external_attr = like.external_attr if like else 0o600 << 16
                     out.writestr(new, data)
             out.comment = src.comment
+        finish()
         os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes the file private; give it the usual mode
         os.replace(tmp, dst)
     except BaseException:
@@ -535,7 +766,11 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
     Raises ValueError for a value that cannot be stored (nan, infinities), an unknown sheet, a bad
     reference, a cell that holds no formula (write plain values with openpyxl instead), or a
     spill range that does not start at its anchor or covers another formula, and for a value of
-    another type (a list, a date).  Nothing is written when it raises.
+    another type (a list, a date).  Raises it too for a package :func:`check_package` refuses for
+    its packing (the total unpacked size is not limited here) and for a part that does not unpack
+    to the size its zip directory declares.  Nothing is written when it raises.
+
+    Parts are streamed: memory stays at a few MiB whatever the size of the sheets.
     """
     src, dst = Path(src), Path(dst)
     if dst.resolve() == src.resolve() or (dst.exists() and os.path.samefile(src, dst)):
@@ -549,57 +784,93 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
     except zipfile.BadZipFile:
         raise ValueError(f"{src.name} is not an .xlsx package (not a zip archive)") from None
     with z:
-        members = {i.filename: z.read(i.filename) for i in z.infolist() if not i.is_dir()}
-        wb_part = _workbook_part(members)
-        parts = _sheet_parts(members, wb_part)
+        # no limit on the total: sheets are streamed, and the parts read whole are bounded one by one
+        _check_infos(src.name, z.infolist(), None)
+        pkg = _Package(z, src.name)
+        wb_part = _workbook_part(pkg)
+        parts = _sheet_parts(pkg, wb_part)
         by_sheet = _check_keys(encoded, "values", parts)
         spills = {sheet: {anchor: _parse_range(anchor, ref) for anchor, ref in cells.items()}
                   for sheet, cells in _check_keys(dynamic, "dynamic", parts).items()}
+        titles = sorted(set(by_sheet) | set(spills), key=list(parts).index)
+        for title in titles:
+            if parts[title] not in pkg:
+                raise ValueError(f"sheet {title!r} names the part {parts[title]}, which the package lacks")
         changed: dict = {}
-        missing = []
-        for title in sorted(set(by_sheet) | set(spills), key=list(parts).index):
-            part = parts[title]
-            if part not in members:
-                raise ValueError(f"sheet {title!r} names the part {part}, which the package lacks")
-            xml = members[part].decode("utf-8")
-            new, absent = _edit_sheet(title, part, xml, by_sheet.get(title, {}), spills.get(title, {}))
-            missing += [f"{title}!{ref}" for ref in sorted(absent, key=_parse_ref)]
-            changed[part] = new.encode("utf-8")
-        if missing:
-            shown = ", ".join(missing[:10]) + (f" and {len(missing) - 10} more" if len(missing) > 10 else "")
-            raise ValueError(f"not formula cells: {shown}; write plain values through openpyxl instead")
-        wb_xml = members[wb_part].decode("utf-8")
+        wb_xml = pkg[wb_part].decode("utf-8")
         calc = _drop_full_calc(wb_xml)
         if calc != wb_xml:
             changed[wb_part] = calc.encode("utf-8")
         if spills:
-            _ensure_metadata(members, wb_part, changed)
-        _write_zip(z, dst, changed)
+            _ensure_metadata(pkg, wb_part, changed)
+
+        absent: dict = {title: set() for title in titles}
+
+        def editor(title):
+            def edit(blocks):
+                part = parts[title]
+                for text in _edit_sheet(title, part, _texts(blocks), by_sheet.get(title, {}),
+                                        spills.get(title, {}), absent[title]):
+                    yield text.encode("utf-8")
+            return edit
+
+        def finish():
+            missing = [f"{title}!{ref}" for title in titles for ref in sorted(absent[title], key=_parse_ref)]
+            if missing:
+                shown = ", ".join(missing[:10]) + (f" and {len(missing) - 10} more" if len(missing) > 10 else "")
+                raise ValueError(f"not formula cells: {shown}; write plain values through openpyxl instead")
+
+        _write_zip(pkg, dst, changed, {parts[title]: editor(title) for title in titles}, finish)
+
+
+_START_C_RE = re.compile(r"<c(?=[\s/>])([^>]*?)/?>")
+
+
+def _marked_cells(texts, marks: set):
+    """The ``r`` of every ``<c>`` start tag whose ``cm`` is in ``marks``, from the part's text in pieces.
+
+    A tag holds no ``<`` (W3C XML 1.0, 3.1: attribute values cannot contain it), so text is
+    scanned up to its last ``<``, and only an unfinished tag is carried into the next piece.
+    """
+    carry = ""
+    for text in texts:
+        buf = carry + text
+        cut = buf.rfind("<")
+        if cut >= 0 and buf.find(">", cut) < 0:
+            buf, carry = buf[:cut], buf[cut:]
+        else:
+            carry = ""
+        if "cm" in buf:
+            for m in _START_C_RE.finditer(buf):
+                attrs = _attrs(m.group(1))
+                if attrs.get("cm") in marks and attrs.get("r"):
+                    yield attrs["r"].upper()
 
 
 def dynamic_anchors(path: str | Path) -> set[tuple[str, str]]:
     """(sheet title, "E2") of every cell whose cell metadata marks a dynamic-array anchor.
 
-    An unreadable package, or one without dynamic-array metadata, gives an empty set.
+    An unreadable package, or one without dynamic-array metadata, gives an empty set, and so does
+    one :func:`check_package` refuses for its packing (its total size is not limited here: the
+    sheets are scanned a chunk at a time).
     """
     found: set = set()
     try:
+        label = Path(path).name
         with zipfile.ZipFile(path) as z:
-            members = {i.filename: z.read(i.filename) for i in z.infolist() if not i.is_dir()}
-        wb_part = _workbook_part(members)
-        meta = [_resolve(wb_part, r.get("Target", "")) for r in _relationships(members, wb_part)
-                if r.get("Type") == _META_REL]
-        if not meta or meta[0] not in members:
-            return found
-        marks = {str(i) for i in _dynamic_cm_indices(meta[0], members[meta[0]])}
-        if not marks:
-            return found
-        for title, part in _sheet_parts(members, wb_part).items():
-            xml = members.get(part, b"").decode("utf-8")
-            for m in re.finditer(r"<c(?=[\s/>])([^>]*?)/?>", xml):
-                attrs = _attrs(m.group(1))
-                if attrs.get("cm") in marks and attrs.get("r"):
-                    found.add((title, attrs["r"].upper()))
+            _check_infos(label, z.infolist(), None)
+            pkg = _Package(z, label)
+            wb_part = _workbook_part(pkg)
+            meta = [_resolve(wb_part, r.get("Target", "")) for r in _relationships(pkg, wb_part)
+                    if r.get("Type") == _META_REL]
+            if not meta or meta[0] not in pkg:
+                return found
+            marks = {str(i) for i in _dynamic_cm_indices(meta[0], pkg[meta[0]])}
+            if not marks:
+                return found
+            for title, part in _sheet_parts(pkg, wb_part).items():
+                if part in pkg:
+                    found.update((title, ref) for ref in _marked_cells(_texts(pkg.chunks(part)), marks))
     except (zipfile.BadZipFile, OSError, ValueError, UnicodeDecodeError):
         return set()
     return found
