@@ -347,7 +347,7 @@ def _file(tmp_path, name, data):
 
 
 BAD = [
-    ("huge_field", lambda tp: ["fit", _file(tp, "huge.csv", b"level\n" + b"1" * 200_000 + b"\n2\n")],
+    ("huge_field", lambda tp: ["fit", _file(tp, "huge.csv", b"level\n" + b"1" * 1_100_000 + b"\n2\n")],
      r"cannot be read as a CSV"),
     ("one_level", lambda tp: ["fit", _file(tp, "one.csv", b"level\n100\n"), "--levels"], r"at least two levels"),
     ("both_flags", lambda tp: ["batch", RETURNS_FILE, "--levels", "--as-returns", "-o", tp / "o.csv"],

@@ -8,22 +8,29 @@ Exit status 0 on success, 2 on bad input with a one-line reason on standard erro
 from __future__ import annotations
 
 import argparse
-import csv
 import math
 import os
 import shlex
 import sys
+import warnings
+from contextlib import contextmanager
 from dataclasses import dataclass
 
-from .core.errors import InputError
+from .batch import decimal_comma_hint
+from .core.errors import InputError, excerpt
 from .core.spec import parse_options
-from .sheet import VOLFIT
 
 __all__ = ["main", "read_returns_csv", "load_returns_csv"]
 
 
 class CliError(Exception):
     """Bad input: printed as one line, exit status 2."""
+
+
+#: the longest reason printed on standard error (echoes of input inside it are short excerpts)
+_MAX_REASON_CHARS = 1000
+#: the most worker processes ``batch`` starts (a typo such as --workers 10000 is refused)
+_MAX_WORKERS = max(64, os.cpu_count() or 1)
 
 
 RETURN_NAMES = ("return", "returns", "ret", "r")
@@ -47,23 +54,24 @@ def load_returns_csv(path: str, column: str | None = None, skip_blanks: bool = F
                      levels: bool = False) -> CsvReturns:
     """The returns of one numeric column of a CSV file (header row required).
 
-    Blank cells before the first and after the last number are ignored (a return column computed
-    from prices starts blank); blank cells in between are refused unless ``skip_blanks``.  With
-    ``levels`` the column holds price levels p, all above zero, and the returns are
-    100 ln(p[t]/p[t-1]); a skipped blank level leaves out the returns on both sides of it.  Without
-    it, a column chosen by default that looks like price levels is refused; a column the caller
-    named is taken as returns.
+    The file may be UTF-8 (with or without BOM), UTF-16 with a BOM or Windows-1252, separated by
+    commas, semicolons or tabs (found from the header line).  Blank cells before the first and after
+    the last number are ignored (a return column computed from prices starts blank); blank cells in
+    between are refused unless ``skip_blanks``.  With ``levels`` the column holds price levels p,
+    all above zero, and the returns are 100 ln(p[t]/p[t-1]); a skipped blank level leaves out the
+    returns on both sides of it.  Without it, a column chosen by default that looks like price
+    levels is refused; a column the caller named is taken as returns.
     """
     from .batch import lag1_autocorrelation, looks_like_levels
 
-    rows = _csv_rows(path)
-    header = [h.strip() for h in rows[0]]
-    col = _choose_column(path, header, rows, column, levels)
+    header, records = _csv_rows(path)
+    col = _choose_column(path, header, records, column, levels)
     name = header[col]
-    cells = [(lineno, r[col].strip() if col < len(r) else "") for lineno, r in enumerate(rows[1:], start=2)]
+    shown_name = excerpt(name)
+    cells = [(lineno, r[col] if col < len(r) else "") for lineno, r in records]
     filled = [i for i, (_, c) in enumerate(cells) if c]
     if not filled:
-        raise CliError(f'{path}: column "{name}" holds no numbers')
+        raise CliError(f'{path}: column "{shown_name}" holds no numbers')
     values, skipped = [], 0  # (line, number) or None for a skipped blank
     for lineno, cell in cells[filled[0]: filled[-1] + 1]:
         if not cell:
@@ -71,26 +79,28 @@ def load_returns_csv(path: str, column: str | None = None, skip_blanks: bool = F
                 skipped += 1
                 values.append(None)
                 continue
-            raise CliError(f'{path} line {lineno}: column "{name}" is blank; fill it or pass --options "missing=skip"')
+            raise CliError(f'{path} line {lineno}: column "{shown_name}" is blank; fill it or pass --options "missing=skip"')
         if not _is_number(cell):
-            raise CliError(f'{path} line {lineno}: "{cell}" in column "{name}" is not a number')
+            what = "is not a finite number" if _is_float(cell) else "is not a number"
+            raise CliError(f'{path} line {lineno}: "{excerpt(cell)}" in column "{shown_name}" {what}'
+                           f"{decimal_comma_hint(cell)}")
         values.append((lineno, float(cell)))
     numbers = [v for _, v in filter(None, values)]
-    where = f'column "{name}" of {os.path.basename(path)}'
+    where = f'column "{shown_name}" of {os.path.basename(path)}'
     if levels:
         for lineno, v in filter(None, values):
             if v <= 0:
-                raise CliError(f'{path} line {lineno}: the level {v:g} in column "{name}" is not above zero; '
+                raise CliError(f'{path} line {lineno}: the level {v:g} in column "{shown_name}" is not above zero; '
                                "--levels needs price levels above zero")
         returns = [100.0 * (math.log(b[1]) - math.log(a[1])) for a, b in zip(values, values[1:]) if a and b]
         if not returns:
-            raise CliError(f'{path}: column "{name}" needs at least two levels in a row for --levels')
+            raise CliError(f'{path}: column "{shown_name}" needs at least two levels in a row for --levels')
         note = f"{where}: {len(returns)} log returns in percent from {len(numbers)} levels"
     else:
         returns = numbers
         level_like = looks_like_levels(returns)
         if level_like and column is None:
-            raise CliError(f'{path}: column "{name}" looks like price levels, not returns (all above zero, lag-1 '
+            raise CliError(f'{path}: column "{shown_name}" looks like price levels, not returns (all above zero, lag-1 '
                            f"autocorrelation {lag1_autocorrelation(returns):.2f}); pass --levels to fit its log "
                            f"returns in percent, or --column {shlex.quote(name)} to take it as returns")
         note = f"{where}: {len(returns)} returns"
@@ -101,38 +111,54 @@ def load_returns_csv(path: str, column: str | None = None, skip_blanks: bool = F
     return CsvReturns(returns, name, note)
 
 
-def _csv_rows(path: str) -> list:
-    """The non-blank rows of a CSV file; at least a header and one row of data."""
+def _csv_rows(path: str) -> tuple:
+    """(header, [(line number, cells)] of the data rows) of a CSV file: a header and at least one
+    row of data.  Rows with more filled fields than the header are refused (a decimal comma in a
+    comma-separated file would shift the columns)."""
+    from .batch import PanelError, check_row_widths, read_csv_records
+
+    if str(path).lower().endswith((".parquet", ".pq")):
+        raise CliError(f"{path}: fit and backtest read a CSV file; save the column as CSV (volcast batch reads Parquet)")
     try:
-        with open(path, newline="", encoding="utf-8-sig") as fh:
-            rows = list(csv.reader(fh))
-    except FileNotFoundError:
-        raise CliError(f"{path}: no such file") from None
-    except (OSError, UnicodeDecodeError, csv.Error) as exc:
-        raise CliError(f"{path}: cannot be read as a CSV text file ({exc})") from None
-    rows = [r for r in rows if any(c.strip() for c in r)] if rows else rows
-    if len(rows) < 2:
+        records = read_csv_records(path)
+        check_row_widths(path, records)
+    except PanelError as exc:
+        raise CliError(str(exc)) from None
+    if len(records) < 2:
         raise CliError(f"{path}: needs a header row and at least one row of data")
-    return rows
+    return records[0][1], records[1:]
 
 
-def _choose_column(path: str, header: list, rows: list, column: str | None, levels: bool) -> int:
+def _choose_column(path: str, header: list, records: list, column: str | None, levels: bool) -> int:
     """The index of the named column; by default one named like "return", else the last numeric one
     (with ``levels``, the last numeric one not named like "return")."""
     if column is not None:
         if column in header:
             return header.index(column)
-        if column.isdigit() and 1 <= int(column) <= len(header):
+        if column.strip() in header:
+            return header.index(column.strip())
+        if column.isascii() and column.isdigit() and 1 <= int(column) <= len(header):
             return int(column) - 1
-        raise CliError(f'{path}: no column "{column}"; the columns are {", ".join(header)}')
+        shown = ", ".join(excerpt(h) for h in header[:20]) + (f" and {len(header) - 20} more" if len(header) > 20 else "")
+        raise CliError(f'{path}: no column "{excerpt(column)}"; the columns are {shown}')
     lowered = [h.lower() for h in header]
     named = [i for i, h in enumerate(lowered) if h in RETURN_NAMES]
     if named and not levels:
         return named[0]
-    numeric = [i for i in range(len(header)) if all(_is_number(r[i]) for r in rows[1:] if i < len(r) and r[i].strip())]
+    numeric = [i for i in range(len(header))
+               if all(_is_number(r[i]) for _, r in records if i < len(r) and r[i])
+               and any(i < len(r) and r[i] for _, r in records)]
     if not numeric:
         raise CliError(f"{path}: no numeric column found; name one with --column")
     return ([i for i in numeric if lowered[i] not in RETURN_NAMES] or numeric)[-1]
+
+
+def _is_float(s: str) -> bool:
+    try:
+        float(s)
+    except ValueError:
+        return False
+    return True
 
 
 def _is_number(s: str) -> bool:
@@ -172,15 +198,39 @@ def format_table(rows) -> str:
     return "\n".join(lines)
 
 
+@contextmanager
+def _quiet():
+    """No NumPy or Python warnings on the terminal: standard error carries at most the one line."""
+    import numpy as np
+
+    with np.errstate(all="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        yield
+
+
+def _core_error(exc) -> CliError:
+    """A core or worksheet-layer refusal as the one line of exit status 2."""
+    return CliError(excerpt(str(exc), _MAX_REASON_CHARS))
+
+
 def _cmd_fit(args) -> int:
+    from .core.errors import VolcastError
+    from .sheet.fittable import encode
+    from .sheet.functions import fit_from_cells
+
     try:
         skip = parse_options(args.options).missing == "skip"
     except InputError as exc:
-        raise CliError(str(exc)) from None
+        raise _core_error(exc) from None
     series = load_returns_csv(args.file, args.column, skip_blanks=skip, levels=args.levels)
-    rows = VOLFIT([[v] for v in series.returns], args.model, args.dist, args.options)
-    if len(rows) == 1 and isinstance(rows[0][0], str) and rows[0][0].startswith("ERROR:"):
-        raise CliError(rows[0][0][len("ERROR:"):].strip())
+    try:
+        with _quiet():
+            # the worksheet's own cleaning and fit table, without the worksheet's time bounds
+            result, _ = fit_from_cells([[v] for v in series.returns], args.model, args.dist, args.options,
+                                       bounded=False)
+            rows = encode(result)
+    except VolcastError as exc:
+        raise _core_error(exc) from None
     print(series.note)
     print(format_table(rows))
     return 0
@@ -318,18 +368,26 @@ def _cmd_backtest(args) -> int:
     try:
         spec, dist, opts = parse_model(args.model), get_distribution(args.dist), parse_options(args.options)
     except VolcastError as exc:
-        raise CliError(str(exc)) from None
+        raise _core_error(exc) from None
+    if not 0.5 <= args.level < 1:  # as the core requires; said before the file is read
+        raise CliError(f"--level must be at least 0.5 and below 1, e.g. 0.99, got {args.level:g}")
+    if args.refit < 1:
+        raise CliError(f"--refit must be 1 or more, got {args.refit}")
+    if args.png:
+        _check_chart_path(args.png, args.file)
     series = load_returns_csv(args.file, args.column, skip_blanks=opts.missing == "skip", levels=args.levels)
     try:
-        bt = backtest(np.array(series.returns), spec, dist, opts, args.window, args.level, args.scheme, args.refit,
-                      progress=_Progress("backtest", args.progress))
+        with _quiet():
+            bt = backtest(np.array(series.returns), spec, dist, opts, args.window, args.level, args.scheme,
+                          args.refit, progress=_Progress("backtest", args.progress))
     except VolcastError as exc:
-        raise CliError(str(exc)) from None
+        raise _core_error(exc) from None
     if args.png:
         try:
-            _backtest_png(bt, args.png, f"{spec.canonical}-{dist.name}")
+            with _quiet():
+                _backtest_png(bt, args.png, f"{spec.canonical}-{dist.name}")
         except (OSError, ValueError) as exc:
-            raise CliError(f"{args.png}: the chart cannot be written ({exc})") from None
+            raise CliError(f"{args.png}: the chart cannot be written ({excerpt(exc, 120)})") from None
     c = bt.coverage
     print(series.note)
     print(f"{spec.canonical} with {dist.name} shocks, {args.scheme} window {args.window}, refit every {args.refit}")
@@ -340,6 +398,25 @@ def _cmd_backtest(args) -> int:
     if args.png:
         print(f"chart: {args.png}")
     return 0
+
+
+_CHART_SUFFIXES = (".png", ".svg", ".pdf", ".jpg", ".jpeg")
+
+
+def _check_chart_path(png: str, source: str) -> None:
+    """The chart's path, checked before the backtest runs: a known image type, in a folder that
+    exists, and not the input file."""
+    from pathlib import Path
+
+    out = Path(png)
+    if out.suffix.lower() not in _CHART_SUFFIXES:
+        raise CliError(f"{png}: the chart cannot be written (give a file ending in {', '.join(_CHART_SUFFIXES)})")
+    if out.is_dir():
+        raise CliError(f"{png}: the chart cannot be written (a folder of that name exists)")
+    if out.resolve() == Path(source).resolve():
+        raise CliError(f"{png}: the chart cannot be written over the input file")
+    if not out.resolve().parent.is_dir():
+        raise CliError(f"{png}: the chart cannot be written (no folder {out.resolve().parent})")
 
 
 def _backtest_png(bt, path, title):
@@ -367,46 +444,51 @@ def _backtest_png(bt, path, title):
 def _cmd_batch(args) -> int:
     from pathlib import Path
 
-    from .batch import LEVELS_AUTOCORRELATION, level_like_series, levels_to_returns, read_panel, run_batch, write_tidy
+    from .batch import (LEVELS_AUTOCORRELATION, PanelError, check_arguments, check_output, level_like_series,
+                        levels_to_returns, load_panel, run_batch, write_tidy)
 
-    if not Path(args.out).resolve().parent.is_dir():
-        raise CliError(f"{args.out}: the folder {Path(args.out).resolve().parent} does not exist")
-    if args.workers is not None and args.workers < 1:
-        raise CliError(f"--workers must be 1 or more, got {args.workers}")
-    if args.horizon < 1:
-        raise CliError(f"--horizon must be 1 or more, got {args.horizon}")
-    if not 0.5 <= args.level < 1:  # as the risk core requires
-        raise CliError(f"--level must be between 0.5 and 1, e.g. 0.99, got {args.level:g}")
     try:
-        panel, data_rows = read_panel(args.panel, args.id, args.value, with_rows=True)
-        if not panel:
-            raise ValueError(f"{args.panel}: no series found")
-        parse_options(args.options)
+        # everything that would fail the whole run is said before any fitting
+        out = check_output(args.out, [args.panel])
+        if args.workers is not None and not 1 <= args.workers <= _MAX_WORKERS:
+            raise PanelError(f"--workers must be from 1 to {_MAX_WORKERS}, got {args.workers}")
+        with _quiet():
+            check_arguments(args.model, args.dist, args.options, args.horizon, args.level)
+        panel = load_panel(args.panel, args.id, args.value)
         name = Path(args.panel).name
-        where = f'long panel {name} (ids "{args.id}", values "{args.value}")' if args.id else f"wide panel {name}"
+        where = (f'long panel {name} (ids "{excerpt(args.id)}", values "{excerpt(args.value)}")' if args.id
+                 else f"wide panel {name}")
         if args.levels:
-            panel = levels_to_returns(panel, data_rows, args.panel)
+            panel = levels_to_returns(panel, None, args.panel)
             how = "levels converted to log returns in percent, 100*ln(p[t]/p[t-1]), series by series"
         else:
             like = [] if args.as_returns else level_like_series(panel)
             if like:
                 more = f" and {len(like) - 3} more" if len(like) > 3 else ""
-                shown = ", ".join(f'"{sid}"' for sid in like[:3]) + more
-                raise ValueError(f"{args.panel}: {len(like)} of {len(panel)} series look like price levels, not "
+                shown = ", ".join(f'"{excerpt(sid)}"' for sid in like[:3]) + more
+                raise PanelError(f"{args.panel}: {len(like)} of {len(panel)} series look like price levels, not "
                                  f"returns ({shown}: all above zero, lag-1 autocorrelation above "
                                  f"{LEVELS_AUTOCORRELATION:g}); pass --levels to fit their log returns in percent, "
                                  "or --as-returns to take them as they are")
             how = "taken as returns"
+        if args.skip_bad:
+            how += "; cells that are not numbers left out"
         print(f"{where}: {len(panel)} series, {how}", flush=True)
-        rows = run_batch(panel, args.model, args.dist, args.options, args.horizon, args.level,
-                         workers=args.workers, cluster=args.cluster, progress=_Progress("batch", args.progress))
-        out = write_tidy(rows, args.out)
-    except (ValueError, InputError, OSError, ImportError) as exc:
-        raise CliError(str(exc) or type(exc).__name__) from None
-    failed = sorted({r[0] for r in rows if r[1] == "error"})
+        with _quiet():
+            rows = run_batch(panel, args.model, args.dist, args.options, args.horizon, args.level,
+                             workers=args.workers, cluster=args.cluster, progress=_Progress("batch", args.progress),
+                             skip_bad=args.skip_bad)
+        out = write_tidy(rows, out)
+    except PanelError as exc:
+        raise CliError(str(exc)) from None
+    except OSError as exc:
+        raise CliError(f"{args.out}: cannot be written ({exc.strerror or excerpt(exc, 120)})") from None
+    except ImportError as exc:
+        raise CliError(f"a module the batch needs is missing ({excerpt(exc, 120)})") from None
+    failed = [sid for sid in panel if any(r[0] == sid and r[1] == "error" for r in rows)]
     print(f"fitted {len(panel) - len(failed)} of {len(panel)} series; wrote {out}")
     if failed:
-        shown = ", ".join(failed[:10]) + (f" and {len(failed) - 10} more" if len(failed) > 10 else "")
+        shown = ", ".join(excerpt(sid) for sid in failed[:10]) + (f" and {len(failed) - 10} more" if len(failed) > 10 else "")
         print(f"volcast: {len(failed)} series failed (see their error rows): {shown}", file=sys.stderr)
     return 0
 
@@ -496,7 +578,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--level", type=float, default=0.99)
     p.add_argument("--workers", type=int, default=None, help="processes (default: one per core)")
     p.add_argument("--cluster", help="address of a Dask scheduler (needs volcast[cluster])")
-    p.add_argument("-o", "--out", required=True, help="output .csv or .parquet")
+    p.add_argument("--skip-bad", action="store_true",
+                   help="leave out the cells inside a series that are not numbers (text, n/a, inf, blanks) instead "
+                        "of giving that series an error row; each series' tidy rows say how many were left out")
+    p.add_argument("-o", "--out", required=True, help="output .csv or .parquet (never the panel itself)")
     p.add_argument("--progress", action="store_true", help="show the progress bar even when not on a terminal")
     p.set_defaults(func=_cmd_batch)
     p = sub.add_parser("demo", help="the main job on the bundled demo data: refresh the monthly template, print the headline")
@@ -505,13 +590,25 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _one_reason(text) -> str:
+    """The reason as one line: line breaks and other control characters escaped, cut when huge."""
+    return excerpt(text, _MAX_REASON_CHARS)
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
         return args.func(args)
     except CliError as exc:
-        print(f"volcast: {exc}", file=sys.stderr)
+        print(f"volcast: {_one_reason(exc)}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("volcast: interrupted", file=sys.stderr)
+        return 130
+    except Exception as exc:  # noqa: BLE001 - never a traceback; each case found is fixed at its source
+        print(f"volcast: internal error: {type(exc).__name__}: {excerpt(exc, 200)}; please report it",
+              file=sys.stderr)
         return 2
 
 

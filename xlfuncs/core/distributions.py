@@ -40,7 +40,7 @@ import math
 import numpy as np
 from scipy import special
 
-from xlfuncs.core.errors import InputError
+from xlfuncs.core.errors import InputError, excerpt
 
 __all__ = [
     "Distribution",
@@ -612,10 +612,10 @@ def get_distribution(name):
         return name
     if not isinstance(name, str):
         raise InputError(
-            f"distribution must be a name such as normal, t, skewt or ged, got {name!r}"
+            f"distribution must be a name such as normal, t, skewt or ged, got {excerpt(repr(name))}"
         )
     key = "".join(name.split()).lower()
     canonical = _ALIASES.get(key.replace("-", "").replace("_", "").replace("'", ""))
     if canonical is None:
-        raise InputError(f'unknown distribution "{name.strip()}"; use normal, t, skewt or ged')
+        raise InputError(f'unknown distribution "{excerpt(name.strip())}"; use normal, t, skewt or ged')
     return _INSTANCES[canonical]

@@ -25,7 +25,7 @@ import math
 import re
 from dataclasses import dataclass, field
 
-from .errors import InputError
+from .errors import InputError, excerpt
 
 __all__ = [
     "ModelSpec",
@@ -150,7 +150,7 @@ class ModelSpec:
 
 
 def _bad_model(text: str, why: str) -> InputError:
-    return InputError(f'model "{text}" is not understood: {why}; {_EXAMPLES}')
+    return InputError(f'model "{excerpt(text)}" is not understood: {why}; {_EXAMPLES}')
 
 
 def _orders(text: str, word: str, args: str | None, n_args: int, default: tuple) -> tuple:
@@ -171,7 +171,7 @@ def parse_model(text) -> ModelSpec:
     if text is None or (isinstance(text, str) and not text.strip()):
         return ModelSpec(mean="const", variance="garch", p=1, q=1)
     if not isinstance(text, str):
-        raise InputError(f"model must be text such as GARCH(1,1), got {text!r}")
+        raise InputError(f"model must be text such as GARCH(1,1), got {excerpt(repr(text))}")
     raw = text
     s = re.sub(r"\s+", "", text).upper()
     if s.count("(") != s.count(")"):
@@ -182,12 +182,12 @@ def parse_model(text) -> ModelSpec:
     while pos < len(s):
         m = token.match(s, pos)
         if not m or m.end() == pos:
-            raise _bad_model(raw, f'unexpected "{s[pos:]}"')
+            raise _bad_model(raw, f'unexpected "{excerpt(s[pos:])}"')
         parts.append((m.group(1), m.group(2)))
         pos = m.end()
         if pos < len(s):
             if s[pos] != "-":
-                raise _bad_model(raw, f'expected "-" between mean and variance parts, found "{s[pos:]}"')
+                raise _bad_model(raw, f'expected "-" between mean and variance parts, found "{excerpt(s[pos:])}"')
             pos += 1
             if pos == len(s):
                 raise _bad_model(raw, "it ends with a dash")
@@ -198,9 +198,9 @@ def parse_model(text) -> ModelSpec:
     if len(parts) == 2:
         mean_part, variance_part = parts
         if mean_part[0] not in _MEAN_WORDS:
-            raise _bad_model(raw, f'"{mean_part[0]}" is not a mean (use ZERO, CONST, AR(p), MA(q) or ARMA(p,q))')
+            raise _bad_model(raw, f'"{excerpt(mean_part[0])}" is not a mean (use ZERO, CONST, AR(p), MA(q) or ARMA(p,q))')
         if variance_part[0] not in _VARIANCE_WORDS:
-            raise _bad_model(raw, f'"{variance_part[0]}" is not a variance model (use ARCH, GARCH, GJR-GARCH, EGARCH or IGARCH)')
+            raise _bad_model(raw, f'"{excerpt(variance_part[0])}" is not a variance model (use ARCH, GARCH, GJR-GARCH, EGARCH or IGARCH)')
     else:
         word = parts[0][0]
         if word in _MEAN_WORDS:
@@ -208,7 +208,7 @@ def parse_model(text) -> ModelSpec:
         elif word in _VARIANCE_WORDS:
             variance_part = parts[0]
         else:
-            raise _bad_model(raw, f'"{word}" is not a model name')
+            raise _bad_model(raw, f'"{excerpt(word)}" is not a model name')
 
     mean, ar, ma = "const", 0, 0
     if mean_part is not None:
@@ -343,7 +343,7 @@ def parse_options(text) -> Options:
     if not isinstance(text, str):
         if isinstance(text, (int, float)) and not isinstance(text, bool):
             raise InputError(f"options must be text such as \"se=hessian; nu=8\", got the number {text}")
-        raise InputError(f"options must be text such as \"se=hessian; nu=8\", got {text!r}")
+        raise InputError(f"options must be text such as \"se=hessian; nu=8\", got {excerpt(repr(text))}")
     values = dict(_DEFAULTS)
     ints: dict = {}
     fixed: dict = {}
@@ -353,25 +353,26 @@ def parse_options(text) -> Options:
         if not chunk:
             continue
         if "=" not in chunk:
-            raise InputError(f'options: "{chunk}" is not key=value; write for example se=hessian')
+            raise InputError(f'options: "{excerpt(chunk)}" is not key=value; write for example se=hessian')
         key, _, value = chunk.partition("=")
         key = re.sub(r"\s+", "", key).lower()
         value = value.strip()
+        shown_key, shown_value = excerpt(key), excerpt(value)
         low = value.lower()
         if not value:
-            raise InputError(f'options: {key}= has no value')
+            raise InputError(f'options: {shown_key}= has no value')
         if key in seen:
-            raise InputError(f"options: {key} is given twice; keep one value")
+            raise InputError(f"options: {shown_key} is given twice; keep one value")
         seen.add(key)
         if key in _CHOICES:
             if key == "target":
                 low = _YES.get(low, low)
             if low not in _CHOICES[key]:
-                raise InputError(f'options: {key}={value} is not allowed; use {" or ".join(key + "=" + c for c in _CHOICES[key])}')
+                raise InputError(f'options: {key}={shown_value} is not allowed; use {" or ".join(key + "=" + c for c in _CHOICES[key])}')
             values[key] = low
         elif key == "returns":
             if low not in RETURN_DEFINITIONS:
-                raise InputError(f'options: returns={value} is not allowed; use {" or ".join("returns=" + c for c in RETURN_DEFINITIONS)}')
+                raise InputError(f'options: returns={shown_value} is not allowed; use {" or ".join("returns=" + c for c in RETURN_DEFINITIONS)}')
             values[key] = low
         elif key in _INT_KEYS:
             lo, hi = _INT_KEYS[key]
@@ -380,21 +381,21 @@ def parse_options(text) -> Options:
             except ValueError:
                 num = math.nan
             if not (math.isfinite(num) and num.is_integer() and lo <= num <= hi):
-                raise InputError(f"options: {key} must be a whole number from {lo} to {hi}, got {value}")
+                raise InputError(f"options: {key} must be a whole number from {lo} to {hi}, got {shown_value}")
             ints[key] = int(num)
         else:
             name = normalise_param_name(key)
             if name is None:
                 raise InputError(
-                    f'options: unknown key "{key}"; use presample, se, target, periods, missing, seed, paths, '
+                    f'options: unknown key "{shown_key}"; use presample, se, target, periods, missing, seed, paths, '
                     f"returns or a parameter name such as nu=8"
                 )
             try:
                 num = float(value)
             except ValueError:
-                raise InputError(f"options: {key} must be a number to hold the parameter fixed, got {value}") from None
+                raise InputError(f"options: {shown_key} must be a number to hold the parameter fixed, got {shown_value}") from None
             if not math.isfinite(num):
-                raise InputError(f"options: {key} must be a finite number, got {value}")
+                raise InputError(f"options: {shown_key} must be a finite number, got {shown_value}")
             if name in fixed:
                 raise InputError(f"options: {name} is given twice; keep one value")
             fixed[name] = num

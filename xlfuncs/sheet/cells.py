@@ -9,6 +9,7 @@ a traceback).
 
 from __future__ import annotations
 
+import datetime as dt
 import functools
 import math
 import warnings
@@ -16,7 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..core.errors import InputError, VolcastError
+from ..core.errors import EXCERPT_CHARS, InputError, VolcastError, excerpt
 
 __all__ = [
     "SheetError",
@@ -30,7 +31,17 @@ __all__ = [
     "int_arg",
     "float_arg",
     "is_error_text",
+    "shown",
+    "describe",
+    "excerpt",
+    "CHAINED_ERROR_CHARS",
+    "MAX_ERROR_CHARS",
 ]
+
+#: the longest ERROR text a cell shows (a safety net: echoes of input are already excerpts)
+MAX_ERROR_CHARS = 1000
+#: how much of another cell's ERROR text a message quotes (its reason is worth reading)
+CHAINED_ERROR_CHARS = 120
 
 
 class SheetError(InputError):
@@ -39,7 +50,41 @@ class SheetError(InputError):
 
 def error_cell(message: str) -> list:
     text = message if message.startswith("ERROR:") else f"ERROR: {message}"
-    return [[text]]
+    return [[excerpt(text, MAX_ERROR_CHARS)]]
+
+
+def shown(value, limit: int = EXCERPT_CHARS) -> str:
+    """A cell's value in a spreadsheet user's words, short enough for a message.
+
+    The one helper through which the worksheet layer echoes input: text in double quotes, cut to
+    ``limit`` characters with "..." and its control characters escaped; TRUE/FALSE for logical
+    values; a date as 2020-01-31 (with the time only when it is not midnight); NaN, infinity and
+    -infinity for the numbers that are not finite; an error value as Excel writes it (#N/A).
+    """
+    if value is None:
+        return "a blank cell"
+    if isinstance(value, (bool, np.bool_)):
+        return "TRUE" if value else "FALSE"
+    if _is_excel_error(value):
+        return excerpt(str(value).strip(), limit)
+    if isinstance(value, dt.datetime):
+        if value.time() == dt.time(0, 0) and value.tzinfo is None:
+            return value.date().isoformat()
+        return excerpt(value.isoformat(sep=" "), limit)
+    if isinstance(value, (dt.date, dt.time)):
+        return value.isoformat()
+    if isinstance(value, (int, np.integer)):
+        return excerpt(str(int(value)), limit)
+    if isinstance(value, (float, np.floating)):
+        x = float(value)
+        if math.isnan(x):
+            return "NaN"
+        if math.isinf(x):
+            return "infinity" if x > 0 else "-infinity"
+        return f"{x:.15g}"
+    if isinstance(value, str):
+        return f'"{excerpt(value, limit)}"'
+    return f"{type(value).__name__} {excerpt(repr(value), limit)}"
 
 
 def is_error_text(value) -> bool:
@@ -61,7 +106,7 @@ def sheet_function(func):
             return error_cell(f"{func.__name__}: input too deeply nested")
         except Exception as exc:  # noqa: BLE001 - a cell must never see a traceback
             return error_cell(
-                f"{func.__name__} hit an internal problem ({type(exc).__name__}: {exc}); "
+                f"{func.__name__} hit an internal problem ({type(exc).__name__}: {excerpt(exc, 200)}); "
                 "please report it with the inputs that caused it"
             )
 
@@ -114,15 +159,26 @@ class Returns:
         return [[v] for v in out]
 
 
-def _describe(v) -> str:
-    if isinstance(v, bool):
-        return f"the logical value {'TRUE' if v else 'FALSE'}"
+def describe(v) -> str:
+    """What a cell holds, for "returns row 3 holds ...": the value's kind and ``shown`` value."""
+    if isinstance(v, (bool, np.bool_)):
+        return f"the logical value {shown(v)}"
     if _is_excel_error(v):
-        return f"the error {v}"
+        return f"the error {shown(v)}"
+    if is_error_text(v):
+        return f"an error from another cell: {excerpt(v.strip()[6:].strip(), CHAINED_ERROR_CHARS)}"
     if isinstance(v, str):
-        s = v if len(v) <= 30 else v[:27] + "..."
-        return f'text "{s}"'
-    return f"{type(v).__name__} {v!r}"
+        return f"text {shown(v)}"
+    if isinstance(v, dt.datetime) or isinstance(v, dt.date):
+        return f"the date {shown(v)}"
+    if isinstance(v, (int, float, np.integer, np.floating)):
+        return f"the number {shown(v)}"
+    return shown(v)
+
+
+def _chained(value) -> str:
+    """The reason of another cell's ERROR text, as a message quotes it."""
+    return excerpt(str(value).strip()[6:].strip(), CHAINED_ERROR_CHARS)
 
 
 def returns_column(value, arg: str = "returns", missing: str = "error") -> Returns:
@@ -132,7 +188,7 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
     ``missing='skip'``; text, logical values and error values are errors naming the row.
     """
     if is_error_text(value):
-        raise SheetError(f"{arg} holds an error from another cell: {str(value).strip()[6:].strip()}")
+        raise SheetError(f"{arg} holds an error from another cell: {_chained(value)}")
     rows = as_rows(value)
     lengths = set(map(len, rows))
     if not rows or lengths == {0}:
@@ -161,14 +217,14 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
             raise SheetError(
                 f"{arg} {unit} {i + 1} is blank inside the data; fill it, or add missing=skip to the options"
             )
-        if isinstance(v, bool) or _is_excel_error(v) or isinstance(v, str) and not _number_text(v):
-            raise SheetError(f"{arg} {unit} {i + 1} holds {_describe(v)}; numbers only")
+        if isinstance(v, (bool, np.bool_)) or _is_excel_error(v) or isinstance(v, str) and not _number_text(v):
+            raise SheetError(f"{arg} {unit} {i + 1} holds {describe(v)}; numbers only")
         try:
             x = float(v)
         except (TypeError, ValueError):
-            raise SheetError(f"{arg} {unit} {i + 1} holds {_describe(v)}; numbers only") from None
+            raise SheetError(f"{arg} {unit} {i + 1} holds {describe(v)}; numbers only") from None
         if not math.isfinite(x):
-            raise SheetError(f"{arg} {unit} {i + 1} is not a finite number ({v}); numbers only")
+            raise SheetError(f"{arg} {unit} {i + 1} is not a finite number ({shown(x)}); numbers only")
         vals.append(x)
         pos.append(i)
     return Returns(np.array(vals), np.array(pos, dtype=int), n, orientation)
@@ -221,12 +277,12 @@ def _one_cell(value, arg: str):
 
 def _number(v, arg: str, wanted: str) -> float:
     """A cell's number, or a SheetError saying what was ``wanted`` instead."""
-    if isinstance(v, bool) or _is_excel_error(v) or is_error_text(v):
-        raise SheetError(f"{arg} must be {wanted}, got {_describe(v)}")
+    if isinstance(v, (bool, np.bool_)) or _is_excel_error(v) or is_error_text(v):
+        raise SheetError(f"{arg} must be {wanted}, got {describe(v)}")
     try:
         return float(v)
     except (TypeError, ValueError):
-        raise SheetError(f"{arg} must be {wanted}, got {_describe(v)}") from None
+        raise SheetError(f"{arg} must be {wanted}, got {describe(v)}") from None
 
 
 def text_arg(value, arg: str, default=None):
@@ -234,10 +290,12 @@ def text_arg(value, arg: str, default=None):
     v = _one_cell(value, arg)
     if v is _MISSING:
         return default
-    if is_error_text(v) or _is_excel_error(v):
-        raise SheetError(f"{arg} holds an error from another cell: {v}")
-    if isinstance(v, bool) or not isinstance(v, str):
-        raise SheetError(f"{arg} must be text, got {_describe(v)}")
+    if is_error_text(v):
+        raise SheetError(f"{arg} holds an error from another cell: {_chained(v)}")
+    if _is_excel_error(v):
+        raise SheetError(f"{arg} holds an error from another cell: {shown(v)}")
+    if isinstance(v, (bool, np.bool_)) or not isinstance(v, str):
+        raise SheetError(f"{arg} must be text, got {describe(v)}")
     return v.strip()
 
 
@@ -251,8 +309,8 @@ def int_arg(value, arg: str, lo: int, hi: int, default=None) -> int:
         return default
     x = _number(v, arg, wanted)
     if not math.isfinite(x) or not x.is_integer() or not lo <= x <= hi:
-        shown = int(x) if math.isfinite(x) and x.is_integer() else v
-        raise SheetError(f"{arg} must be {wanted}, got {shown}")
+        whole = math.isfinite(x) and x.is_integer() and abs(x) < 1e15
+        raise SheetError(f"{arg} must be {wanted}, got {shown(int(x) if whole else v)}")
     return int(x)
 
 
@@ -266,5 +324,5 @@ def float_arg(value, arg: str, default=None, example: str = "") -> float:
         return default
     x = _number(v, arg, wanted)
     if not math.isfinite(x):
-        raise SheetError(f"{arg} must be a finite number, got {v}")
+        raise SheetError(f"{arg} must be a finite number, got {shown(x)}")
     return x

@@ -17,7 +17,7 @@ from ..core.distributions import get_distribution
 from ..core.errors import InputError
 from ..core.estimate import FitResult, check_params
 from ..core.spec import normalise_param_name, parse_model, parse_options
-from .cells import SheetError, as_rows, is_blank, is_error_text
+from .cells import CHAINED_ERROR_CHARS, SheetError, as_rows, describe, excerpt, is_blank, is_error_text
 
 __all__ = ["HEADER", "encode", "decode", "TableFit"]
 
@@ -77,17 +77,10 @@ class TableFit:
         return evaluate(r, self.spec, self.dist, self.names, self.params, self.options)
 
 
-def _shown(v) -> str:
-    if isinstance(v, bool):
-        return "TRUE" if v else "FALSE"
-    if isinstance(v, str):
-        return f'text "{v}"'
-    return str(v)
-
-
 def decode(value, arg: str = "fit") -> TableFit:
     if is_error_text(value):
-        raise SheetError(f"{arg} holds an error from another cell: {str(value).strip()[6:].strip()}")
+        raise SheetError(f"{arg} holds an error from another cell: "
+                         f"{excerpt(str(value).strip()[6:].strip(), CHAINED_ERROR_CHARS)}")
     rows = as_rows(value)
     fields = {}
     params = {}
@@ -97,7 +90,8 @@ def decode(value, arg: str = "fit") -> TableFit:
             continue
         key = row[0]
         if is_error_text(key):
-            raise SheetError(f"{arg} holds an error from another cell: {str(key).strip()[6:].strip()}")
+            raise SheetError(f"{arg} holds an error from another cell: "
+                             f"{excerpt(str(key).strip()[6:].strip(), CHAINED_ERROR_CHARS)}")
         if not isinstance(key, str):
             continue
         k = key.strip().lower()
@@ -108,14 +102,15 @@ def decode(value, arg: str = "fit") -> TableFit:
         name = normalise_param_name(k)
         if name is None:
             continue  # header, statistics and unknown rows
+        row_name = excerpt(key.strip())
         if is_blank(val):
-            raise SheetError(f"{arg}: the row {key.strip()} has no value in its second column")
+            raise SheetError(f"{arg}: the row {row_name} has no value in its second column")
         if isinstance(val, bool) or isinstance(val, str) and is_error_text(val):
-            raise SheetError(f"{arg}: the row {key.strip()} must hold a number, got {_shown(val)}")
+            raise SheetError(f"{arg}: the row {row_name} must hold a number, got {describe(val)}")
         try:
             x = float(val)
         except (TypeError, ValueError):
-            raise SheetError(f"{arg}: the row {key.strip()} must hold a number, got {_shown(val)}") from None
+            raise SheetError(f"{arg}: the row {row_name} must hold a number, got {describe(val)}") from None
         if name in params:
             raise SheetError(f"{arg}: the parameter {name} appears twice")
         params[name] = x

@@ -30,10 +30,13 @@ from ..core.diagnostics import MIN_OBS as MIN_TEST_OBS, default_lags, max_lags, 
 from ..core.backtest import backtest as core_backtest
 from ..core.coverage import coverage as core_coverage, news_impact
 from ..core.errors import VolcastError
-from ..core.forecast import DEFAULT_SEED
+from ..core.forecast import DEFAULT_PATHS, DEFAULT_SEED
 from ..core.simulate import simulate
 from ..core.risk import risk as core_risk
-from .cells import SheetError, as_rows, float_arg, int_arg, is_blank, is_error_text, returns_column, sheet_function, text_arg
+from .cells import (SheetError, as_rows, describe, excerpt, float_arg, int_arg, is_blank, is_error_text,
+                    returns_column, sheet_function, shown, text_arg)
+from .bounds import (SIM_PATHS, SIM_PERIODS, check_backtest, check_compare, check_draws, check_fit,
+                     check_sim)
 from .fittable import decode, encode
 
 __all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE",
@@ -47,15 +50,21 @@ def _choice(value, arg, choices, default):
     s = text_arg(value, arg, default)
     s = s.lower()
     if s not in choices:
-        raise SheetError(f'{arg} must be one of {", ".join(choices)}; got "{s}"')
+        raise SheetError(f'{arg} must be one of {", ".join(choices)}; got {shown(s)}')
     return s
 
 
-def fit_from_cells(returns, model=None, dist=None, options=None):
-    """Clean the arguments of VOLFIT and return (FitResult, Returns), using the fit cache."""
+def fit_from_cells(returns, model=None, dist=None, options=None, bounded=True):
+    """Clean the arguments of VOLFIT and return (FitResult, Returns), using the fit cache.
+
+    ``bounded``: refuse a model larger than a worksheet call estimates (``bounds.check_fit``);
+    the command line passes False.
+    """
     spec = parse_model(text_arg(model, "model"))
     dname = text_arg(dist, "dist", "normal")
     d = get_distribution(dname)
+    if bounded:
+        check_fit(spec, d)
     opts = parse_options(text_arg(options, "options"))
     data = returns_column(returns, "returns", opts.missing)
     key = FIT_CACHE.key(data.values, spec.canonical, d.name, opts.estimation_key)
@@ -106,6 +115,8 @@ def VOLFORECAST(returns, fit, horizon=None, what=None):
     h = int_arg(horizon, "horizon", 1, MAX_HORIZON)
     w = _choice(what, "what", _FORECAST_WHAT, "variance")
     table, data, result = _table_and_returns(returns, fit)
+    if table.spec.variance == "egarch":
+        check_draws(_paths(table.options), h, "VOLFORECAST of an EGARCH model")
     fc = core_forecast(result, data.values, h, seed=table.options.seed, paths=table.options.paths)
     if not (np.all(np.isfinite(fc.variance)) and np.all(np.isfinite(fc.cumvar)) and np.all(np.isfinite(fc.mean))):
         bad = int(np.flatnonzero(~np.isfinite(fc.cumvar))[0]) + 1 if not np.all(np.isfinite(fc.cumvar)) else 1
@@ -132,8 +143,12 @@ def VOLLOGLIK(returns, fit):
     return [[float(ll)]]
 
 
+def _paths(opts) -> int:
+    """The simulated paths a fit's options ask for (the core's default when they do not say)."""
+    return opts.paths or DEFAULT_PATHS
+
+
 _COMPARE_HEADER = ["model", "dist", "loglik", "params", "aic", "bic", "persistence", "converged", "rank_bic"]
-_MAX_CANDIDATES = 60
 
 
 def _split_list(value, arg: str) -> list:
@@ -145,7 +160,7 @@ def _split_list(value, arg: str) -> list:
             if is_blank(cell):
                 continue
             if is_error_text(cell) or not isinstance(cell, str):
-                raise SheetError(f"{arg} must be text such as GARCH(1,1), got {cell!r}")
+                raise SheetError(f"{arg} must be text such as GARCH(1,1), got {describe(cell)}")
             depth, start = 0, 0
             for i, ch in enumerate(cell + ","):
                 if ch == "(":
@@ -167,8 +182,14 @@ def VOLCOMPARE(returns, models, dist=None, options=None):
     if not model_list:
         raise SheetError("models is empty; give model strings such as GARCH(1,1), GJR-GARCH(1,1)")
     dist_list = _split_list(dist, "dist") or ["normal"]
-    if len(model_list) * len(dist_list) > _MAX_CANDIDATES:
-        raise SheetError(f"models x dist gives {len(model_list) * len(dist_list)} candidates; at most {_MAX_CANDIDATES}")
+    parsed = []
+    for m in model_list:
+        for d in dist_list:
+            try:
+                parsed.append((parse_model(m), get_distribution(d)))
+            except VolcastError:
+                pass  # not counted: its row says what is wrong
+    check_compare(len(model_list) * len(dist_list), parsed)
     opts_text = text_arg(options, "options")
     parse_options(opts_text)  # a bad options string is one error for the whole call
     rows, bics = [], []
@@ -235,6 +256,8 @@ def VOLRISK(returns, fit, level=None, horizon=None):
     lv = float_arg(level, "level", 0.99, "0.99")
     h = int_arg(horizon, "horizon", 1, MAX_HORIZON, default=1)
     table, data, result = _table_and_returns(returns, fit)
+    if h > 1 or table.spec.variance == "egarch":
+        check_draws(_paths(table.options), h, "VOLRISK")
     rk = core_risk(result, data.values, lv, h, paths=table.options.paths, seed=table.options.seed)
     values = [rk.var, rk.es, rk.mean, rk.sd]
     if rk.returns is not None:
@@ -280,17 +303,13 @@ def _measure_rows(rows):
     return [["measure", "value"]] + [[k, _cell(v) if isinstance(v, float) else v] for k, v in rows]
 
 
-_MAX_SIM_CELLS = 1_000_000
-
-
 @sheet_function
 def VOLSIM(fit, periods=None, paths=None, seed=None):
     """Simulated return paths from a fit, one column per path, reproducible by seed."""
-    n = int_arg(periods, "periods", 1, _MAX_SIM_CELLS)
-    m = int_arg(paths, "paths", 1, 10_000, default=1)
+    n = int_arg(periods, "periods", 1, SIM_PERIODS)
+    m = int_arg(paths, "paths", 1, SIM_PATHS, default=1)
     s = int_arg(seed, "seed", 0, 2**31 - 1, default=DEFAULT_SEED)
-    if n * m > _MAX_SIM_CELLS:
-        raise SheetError(f"periods x paths is {n * m} cells; at most {_MAX_SIM_CELLS}")
+    check_sim(n, m)
     table = decode(fit, "fit")
     out = simulate(table.spec, table.dist, table.params, n, m, rng=np.random.default_rng(s))
     if not np.all(np.isfinite(out)):
@@ -321,7 +340,7 @@ def _split_backtest_options(text):
         if sep and k in ("scheme", "refit", "what", "dist"):
             v = value.strip().lower()
             if k in _BACKTEST_KEYS and v not in _BACKTEST_KEYS[k]:
-                raise SheetError(f"options: {k}={value.strip()} is not allowed; use "
+                raise SheetError(f"options: {k}={excerpt(value.strip())} is not allowed; use "
                                  + " or ".join(f"{k}={c}" for c in _BACKTEST_KEYS[k]))
             if k == "refit":
                 v = int_arg(v, "options: refit", 1, 100_000)
@@ -351,8 +370,11 @@ def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None):
         spec, dist, opts, params = table.spec, table.dist, table.options, table.params
     data = returns_column(returns, "returns", opts.missing)
     w = int_arg(window, "window", 1, max(1, len(data.values) - 1))
+    check_backtest(spec, dist, len(data.values), w, own.get("scheme", "rolling"), own.get("refit", 1),
+                   estimating=params is None, paths=_paths(opts))
     key = ("backtest",) + FIT_CACHE.key(data.values, spec.canonical, dist.name, opts.estimation_key) + (
-        w, lv, own.get("scheme", "rolling"), own.get("refit", 1), None if params is None else tuple(params))
+        w, lv, own.get("scheme", "rolling"), own.get("refit", 1), None if params is None else tuple(params),
+        opts.paths, opts.seed)
     bt = FIT_CACHE.get_or_fit(key, lambda: core_backtest(
         data.values, spec, dist, opts, w, lv, own.get("scheme", "rolling"), own.get("refit", 1), params))
     if own.get("what") == "series":

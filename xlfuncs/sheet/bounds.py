@@ -1,0 +1,131 @@
+"""How much work one worksheet call may ask for: every bound in one place.
+
+A worksheet call answers in about ten seconds or refuses with an ``ERROR:`` cell that names the
+bound.  The figures beside each bound are CPU seconds from ``benchmarks/bounds_timing.py`` on 2,500
+simulated returns, on a 2-core machine shared with other work, where the same case varied by up to
+about half from run to run (the README's "Bounds" lists them).  The command line is not bounded
+here: ``volcast fit``, ``backtest`` and ``batch`` take any model the model string allows.
+
+Time grows with the number of returns; the bounds are set for about 2,500 (ten years of daily
+data).
+"""
+
+from __future__ import annotations
+
+from ..core.errors import InputError
+
+__all__ = [
+    "BoundError", "FIT_PARAMS", "EGARCH_FIT_PARAMS", "COMPARE_CANDIDATES", "COMPARE_WORK", "EGARCH_WEIGHT",
+    "BACKTEST_WORK",
+    "SIM_PERIODS", "SIM_PATHS",
+    "SIM_CELLS", "SIM_DRAWS", "weight", "check_fit", "check_compare", "check_backtest", "check_sim", "check_draws",
+]
+
+#: parameters (mean, variance and distribution together) of a model a worksheet call estimates;
+#: the slowest allowed measured 1.6-1.8 s (ARMA(6,6)-GARCH(1,1), 16); past it ARMA(12,12)-GARCH(1,1)
+#: (28) took 6-8 s and ARMA(12,12)-GARCH(12,12) (50) 8.6 s, and cost grows with the returns
+FIT_PARAMS = 16
+#: the same for EGARCH, whose recursion is a loop with numerical derivatives: the slowest 6-parameter
+#: fit measured 8-10 s (ZERO-EGARCH(1,2), t shocks), 7-parameter ones up to 18 s (ARMA(1,1)-EGARCH(1,1))
+EGARCH_FIT_PARAMS = 6
+#: VOLCOMPARE candidates (models x distributions) in one call: 24 of the usual kind took 1.2 s,
+#: 60 took 5.4 s
+COMPARE_CANDIDATES = 24
+#: VOLCOMPARE's work in units: a candidate with k parameters weighs k x k, an EGARCH one
+#: EGARCH_WEIGHT x k x k.  The templates' comparison (GARCH, GJR-GARCH and EGARCH, normal and t)
+#: weighs 1,627 and took 5.6 s; 7 models of 16 parameters (1,792) 5.0 s; two 6-parameter EGARCH
+#: models (1,800) 13 s, which this bound refuses
+COMPARE_WORK = 1_700
+EGARCH_WEIGHT = 25
+#: VOLBACKTEST's work in the units of COMPARE_WORK: each estimation weighs its returns times the
+#: model's weight; for an EGARCH model each forecast also weighs window x (2 + p + q) / 2 for
+#: evaluating the model and paths x (3 + p + q) / 100 for its simulated one-step variance.
+#: Measured: 500 GARCH(1,1) estimations on 500 returns (4,000,000) 3.8-4.1 s; 16 EGARCH(1,1)
+#: estimations on 500 returns with 500 forecasts (6,000,000) 7.3-12 s; 1,200 forecasts of an
+#: EGARCH(12,12) table on 250 returns (10,380,000) 11.4 s
+BACKTEST_WORK = 5_000_000
+#: VOLSIM periods (the simulation steps one period at a time): 25,000 periods took at most 6.4 s
+#: (GJR-GARCH(12,12)); 100,000 took 4.0 s for GARCH(1,1) and 23 s for GJR-GARCH(12,12)
+SIM_PERIODS = 25_000
+#: VOLSIM paths (columns)
+SIM_PATHS = 10_000
+#: VOLSIM cells, periods x paths: 1,000 x 1,000 took at most 0.7 s
+SIM_CELLS = 1_000_000
+#: simulated draws (paths x horizon) behind VOLRISK beyond one period and VOLFORECAST of an EGARCH
+#: model; 1,000,000 paths x 20 periods took 0.8 s for GARCH(1,1), 2.7 s for EGARCH(1,1) and
+#: 5.5-10 s for EGARCH(12,12) (VOLRISK; 54 s at 100 periods)
+SIM_DRAWS = 20_000_000
+
+
+class BoundError(InputError):
+    """A worksheet call asked for more work than a bound allows; the message names the bound."""
+
+
+def _n_params(spec, dist) -> int:
+    return len(spec.param_names) + len(dist.param_names)
+
+
+def check_fit(spec, dist) -> None:
+    """A model a worksheet call may estimate: at most FIT_PARAMS parameters (EGARCH_FIT_PARAMS)."""
+    k = _n_params(spec, dist)
+    egarch = spec.variance == "egarch"
+    limit = EGARCH_FIT_PARAMS if egarch else FIT_PARAMS
+    if k > limit:
+        kind = "EGARCH models" if egarch else "models"
+        raise BoundError(f"{spec.canonical} with {dist.name} shocks has {k} parameters; a worksheet call estimates "
+                         f"{kind} of at most {limit} (a larger one can take well over ten seconds); "
+                         "fit it with the volcast fit command instead")
+
+
+def weight(spec, dist) -> int:
+    """The work units of estimating one candidate: k x k, EGARCH_WEIGHT x k x k for EGARCH."""
+    k = _n_params(spec, dist)
+    return k * k * (EGARCH_WEIGHT if spec.variance == "egarch" else 1)
+
+
+def check_compare(n: int, candidates) -> None:
+    """One VOLCOMPARE call: ``n`` candidates, of which ``candidates`` (spec, dist) parse."""
+    if n > COMPARE_CANDIDATES:
+        raise BoundError(f"models x dist gives {n} candidates; at most {COMPARE_CANDIDATES} in one call "
+                         "(split the comparison over several cells)")
+    work = sum(weight(spec, dist) for spec, dist in candidates)
+    if work > COMPARE_WORK:
+        egarch = sum(1 for spec, _ in candidates if spec.variance == "egarch")
+        raise BoundError(f"the candidates weigh {work:,} units of work ({egarch} EGARCH among them); at most "
+                         f"{COMPARE_WORK:,} in one call, about ten seconds (a model with k parameters weighs k x k, "
+                         f"an EGARCH one {EGARCH_WEIGHT} x k x k); split the comparison over several cells")
+
+
+def check_backtest(spec, dist, n: int, window: int, scheme: str, refit: int, estimating: bool, paths: int) -> None:
+    """The work of one VOLBACKTEST call on ``n`` returns (``paths``: of the EGARCH forecasts)."""
+    steps = max(n - window, 0)
+    estimations = evaluations = draws = 0
+    if estimating:
+        check_fit(spec, dist)
+        starts = range(0, steps, max(refit, 1))
+        estimations = sum(window if scheme == "rolling" else window + i for i in starts) * weight(spec, dist)
+    if spec.variance == "egarch":
+        lags = spec.p + spec.q
+        evaluations = sum((window if scheme == "rolling" else window + i) for i in range(steps)) * (2 + lags) // 2
+        draws = steps * paths * (3 + lags) // 100
+    work = estimations + evaluations + draws
+    if work > BACKTEST_WORK:
+        parts = f"estimations {estimations:,}"
+        if spec.variance == "egarch":
+            parts += f", EGARCH evaluations {evaluations:,}, simulated draws {draws:,}"
+        raise BoundError(f"this backtest weighs {work:,} units of work ({parts}); a worksheet call does at most "
+                         f"{BACKTEST_WORK:,}, about ten seconds; raise refit=, shorten the window or the returns, "
+                         "lower paths=, or run volcast backtest")
+
+
+def check_sim(periods: int, paths: int) -> None:
+    """VOLSIM's cells (its periods and paths are read as whole numbers up to SIM_PERIODS, SIM_PATHS)."""
+    if periods * paths > SIM_CELLS:
+        raise BoundError(f"periods x paths is {periods * paths:,} cells; at most {SIM_CELLS:,}")
+
+
+def check_draws(paths: int, horizon: int, what: str) -> None:
+    """A simulation of ``paths`` paths over ``horizon`` periods behind ``what``."""
+    if paths * horizon > SIM_DRAWS:
+        raise BoundError(f"{what} simulates {paths:,} paths x {horizon} periods = {paths * horizon:,} draws; at most "
+                         f"{SIM_DRAWS:,} in a worksheet call (lower paths= in the fit's options or the horizon)")
