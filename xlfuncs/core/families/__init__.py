@@ -23,6 +23,7 @@ _REGISTRY = (
     "gjr:Gjr",
     "egarch:Egarch",
     "igarch:Igarch",
+    "ewma:Ewma",
 )
 
 
