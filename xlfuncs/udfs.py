@@ -14,7 +14,7 @@ from . import sheet
 
 _RETURNS = "Returns: one column (or row) of numbers, most recent last; blanks before and after are ignored"
 _FIT = "Fit table from VOLFIT (or one typed with rows model, dist and the parameters)"
-_MODEL = 'Model string, e.g. "GARCH(1,1)", "AR(1)-GJR-GARCH(1,1)", "EGARCH(1,1)" (default GARCH(1,1))'
+_MODEL = 'Model string, e.g. "GARCH(1,1)", "AR(1)-GJR-GARCH(1,1)", "EGARCH(1,1)", "EWMA" (default GARCH(1,1))'
 _DIST = 'Shock distribution: "normal" (default), "t", "skewt" or "ged"'
 _OPTIONS = 'Options, e.g. "se=hessian; nu=8; presample=drop" (optional)'
 

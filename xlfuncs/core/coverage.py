@@ -103,27 +103,11 @@ def coverage(returns, var, level: float) -> Coverage:
 
 def news_impact(fit, shocks) -> np.ndarray:
     """Next-period variance as a function of this period's shock e, with the lagged variance at
-    its unconditional level (Engle & Ng 1993); the other lagged shocks are at their expectation."""
+    its unconditional level (Engle & Ng 1993); the other lagged shocks are at their expectation.
+    Each variance family computes its own curve (``news_impact`` of :mod:`xlfuncs.core.families`)."""
     spec, dist = fit.spec, fit.dist
     d = dict(zip(fit.names, fit.params))
-    e = np.asarray(shocks, dtype=float)
-    v = spec.variance
-    omega = d["omega"]
-    if v == "constant":
-        return np.full(e.shape, omega)
-    p, q = spec.p, spec.q
-    alpha = np.array([d[f"alpha[{i}]"] for i in range(1, p + 1)])
-    beta = np.array([d[f"beta[{j}]"] for j in range(1, q + 1)])
-    gamma = np.array([d[f"gamma[{i}]"] for i in range(1, p + 1)]) if spec.asymmetric else np.zeros(p)
-    eta = np.array([d[n] for n in dist.param_names])
-    if v == "egarch":
-        level = omega / (1.0 - beta.sum())  # unconditional mean of the log-variance
-        z = e / math.exp(0.5 * level)
-        lv = omega + alpha[0] * (np.abs(z) - dist.abs_moment(eta)) + gamma[0] * z + beta.sum() * level
-        return np.exp(lv)
-    s2 = fit.uncond_variance
-    if s2 is None:
-        raise InputError("the news-impact curve needs a stationary model (persistence below 1)")
-    kappa = dist.neg_sq_moment(eta) if spec.asymmetric else 0.5
-    rest = float(np.sum(alpha[1:] + kappa * gamma[1:])) * s2  # later lags at their expectation
-    return omega + (alpha[0] + gamma[0] * (e < 0)) * e ** 2 + rest + beta.sum() * s2
+    fam = spec.family
+    vp = np.array([d[n] for n in fam.param_names], dtype=float)
+    eta = np.array([d[n] for n in dist.param_names], dtype=float)
+    return fam.news_impact(vp, eta, dist, np.asarray(shocks, dtype=float))

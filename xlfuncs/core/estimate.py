@@ -4,12 +4,14 @@
 ``FitResult`` from given parameters (a fit table a person typed) without estimating.
 
 The optimiser works on the *free* parameters: the full vector less the fixed ones (option
-``name=value``), less the one an IGARCH constraint implies (the last beta, or the last alpha
-when there is no beta) and less a variance-targeted omega.  It runs L-BFGS-B with box bounds
-(positivity, distribution domains) on parameters scaled to order one, with the likelihood
-returning a large finite penalty outside the admissible region (persistence >= 1, a negative
-GJR news coefficient, a non-stationary AR or non-invertible MA part), so a line search simply
-backs off.  It then polishes by Newton steps on a central-difference Hessian of the analytic
+``name=value``), less the one a variance family's sum rule implies (IGARCH: the last beta, or
+the last alpha when there is no beta) and less a variance-targeted omega.  It runs L-BFGS-B with
+box bounds (positivity, distribution domains; each family gives its own) on parameters scaled to
+order one, with the likelihood returning a large finite penalty outside the admissible region
+(the family's: persistence >= 1, a negative GJR news coefficient; and a non-stationary AR or
+non-invertible MA part), so a line search simply backs off.  Everything that depends on the
+variance family -- start values, bounds, admissibility, the implied weight, variance targeting --
+comes from :mod:`xlfuncs.core.families`; this module holds no branch on a family's name.  It then polishes by Newton steps on a central-difference Hessian of the analytic
 gradient until the Newton decrement is below 1e-10, which pins every estimate far beyond its
 seventh significant digit.  ``converged`` is TRUE only if that test passes.
 """
@@ -25,6 +27,7 @@ from scipy import optimize, stats
 
 from .distributions import Distribution, get_distribution
 from .errors import ConvergenceError, InputError
+from .families import FAMILIES, stationary
 from .likelihood import Likelihood
 from .spec import ModelSpec, Options, parse_model, parse_options
 
@@ -91,79 +94,29 @@ class FitResult:
 
     @property
     def half_life(self) -> float | None:
-        pers = self.persistence
-        if pers is None or not (0.0 < pers < 1.0):
-            return None
-        return math.log(0.5) / math.log(pers)
+        vp, eta = _variance_part(self.spec, self.dist, self.params)
+        return self.spec.family.half_life(vp, eta, self.dist)
 
 
 # ---------------------------------------------------------------------------------------
-def _parts(spec: ModelSpec, params, names):
-    d = dict(zip(names, params))
-    alpha = np.array([d[f"alpha[{i}]"] for i in range(1, spec.p + 1)]) if spec.variance != "constant" else np.zeros(0)
-    gamma = np.array([d[f"gamma[{i}]"] for i in range(1, spec.p + 1)]) if spec.asymmetric else np.zeros(0)
-    beta = np.array([d[f"beta[{j}]"] for j in range(1, spec.q + 1)]) if spec.variance != "constant" else np.zeros(0)
-    return d, alpha, gamma, beta
+def _variance_part(spec: ModelSpec, dist: Distribution, params):
+    """(variance parameters, distribution parameters) of a full parameter vector."""
+    params = np.asarray(params, dtype=float)
+    nm, nv, nd = len(spec.mean_names), len(spec.variance_names), len(dist.param_names)
+    if len(params) != nm + nv + nd:
+        raise ValueError(f"{spec.canonical} with {dist.name} shocks takes {nm + nv + nd} parameters, got {len(params)}")
+    return params[nm: nm + nv], params[nm + nv:]
 
 
 def persistence_of(spec: ModelSpec, dist: Distribution, params) -> float | None:
     """Sum of the variance recursion's own-lag weights; None for a constant variance."""
-    if spec.variance == "constant":
-        return None
-    names = tuple(spec.param_names) + tuple(dist.param_names)
-    d, alpha, gamma, beta = _parts(spec, params, names)
-    if spec.variance == "egarch":
-        return float(beta.sum())
-    pers = float(alpha.sum() + beta.sum())
-    if spec.variance == "gjr":
-        eta = np.array([d[n] for n in dist.param_names])
-        pers += float(gamma.sum()) * dist.neg_sq_moment(eta)
-    return pers
+    vp, eta = _variance_part(spec, dist, params)
+    return spec.family.persistence(vp, eta, dist)
 
 
 def uncond_variance_of(spec: ModelSpec, dist: Distribution, params) -> float | None:
-    names = tuple(spec.param_names) + tuple(dist.param_names)
-    d, alpha, gamma, beta = _parts(spec, params, names)
-    omega = d["omega"]
-    if spec.variance == "constant":
-        return float(omega)
-    pers = persistence_of(spec, dist, params)
-    if spec.variance == "egarch":
-        return _egarch_uncond(spec, dist, d, alpha, gamma, beta)
-    if pers is None or pers >= 1.0:
-        return None
-    return float(omega / (1.0 - pers))
-
-
-def _egarch_uncond(spec, dist, d, alpha, gamma, beta):
-    """E[sigma^2] of an EGARCH(1,1): exp(omega/(1-beta)) prod_i E exp(beta^i g(z)) (Nelson 1991).
-
-    Defined only where the shock has exponential moments (normal, GED with nu >= 1); blank
-    otherwise and for higher orders.
-    """
-    if spec.p != 1 or spec.q != 1 or not abs(beta[0]) < 1:
-        return None
-    eta = np.array([d[n] for n in dist.param_names])
-    if dist.name in ("t", "skewt") or (dist.name == "ged" and eta[0] < 1.0):
-        return None
-    from scipy import integrate
-
-    a, g, b = float(alpha[0]), float(gamma[0]), float(beta[0])
-    kappa = dist.abs_moment(eta)
-    logval = d["omega"] / (1.0 - b)
-    c = 1.0
-    for _ in range(200):
-        def integrand(z, c=c):
-            return math.exp(c * (a * (abs(z) - kappa) + g * z) + float(dist.logpdf(np.array([z]), eta)[0]))
-        val = integrate.quad(integrand, -np.inf, 0, limit=200)[0] + integrate.quad(integrand, 0, np.inf, limit=200)[0]
-        if not (val > 0 and math.isfinite(val)):
-            return None
-        logval += math.log(val)
-        c *= b
-        if abs(c) < 1e-12:
-            break
-    out = math.exp(logval)
-    return out if math.isfinite(out) else None
+    vp, eta = _variance_part(spec, dist, params)
+    return spec.family.uncond_variance(vp, eta, dist)
 
 
 def check_params(spec: ModelSpec, dist: Distribution, names, params) -> None:
@@ -174,34 +127,18 @@ def check_params(spec: ModelSpec, dist: Distribution, names, params) -> None:
             raise InputError(f"parameter {n} must be a finite number, got {v}")
     eta = np.array([d[n] for n in dist.param_names])
     dist.check(eta)
-    if spec.variance in ("constant", "arch", "garch", "gjr", "igarch"):
-        if not d["omega"] > 0:
-            raise InputError(f"omega must be greater than 0, got {d['omega']:g}")
-    if spec.variance in ("arch", "garch", "gjr", "igarch"):
-        for n, v in d.items():
-            if (n.startswith("alpha") or n.startswith("beta")) and v < 0:
-                raise InputError(f"{n} must be 0 or more, got {v:g}")
-        if spec.variance == "gjr":
-            for i in range(1, spec.p + 1):
-                if d[f"alpha[{i}]"] + d[f"gamma[{i}]"] < 0:
-                    raise InputError(f"alpha[{i}] + gamma[{i}] must be 0 or more, got {d[f'alpha[{i}]'] + d[f'gamma[{i}]']:g}")
-    if spec.variance == "egarch":
-        beta = [d[f"beta[{j}]"] for j in range(1, spec.q + 1)]
-        if not _stationary(beta):
-            raise InputError(f"EGARCH betas must keep the log-variance stationary (|beta| < 1), got {', '.join(f'{b:g}' for b in beta)}")
-    if spec.variance == "igarch":
-        total = sum(v for n, v in d.items() if n.startswith("alpha") or n.startswith("beta"))
-        if abs(total - 1.0) > 1e-6:
-            raise InputError(f"IGARCH alphas and betas must sum to 1, got {total:.6g}")
+    vp = np.array([d[n] for n in spec.variance_names], dtype=float)
+    spec.family.check(vp, eta, dist)
 
 
 # ---------------------------------------------------------------------------------------
 class _Problem:
     """Free-parameter view of a likelihood: mapping, bounds, objective and gradient."""
 
-    def __init__(self, lik: Likelihood, options: Options, sum_to: float | None = None, kappa: float = 0.5):
+    def __init__(self, lik: Likelihood, options: Options, sum_to: float | None = None, eta=None):
         self.lik = lik
         self.spec = spec = lik.spec
+        self.family = fam = spec.family
         self.dist = lik.dist
         self.options = options
         names = lik.names
@@ -217,20 +154,23 @@ class _Problem:
         # a sum constraint on the variance weights: IGARCH (sum 1), or a fit held at the
         # stationarity bound (sum just below 1); the last beta (or last alpha) is implied
         self.implied = None
-        self.sum_to = 1.0 if spec.variance == "igarch" else sum_to
+        self.sum_to = 1.0 if fam.integrated else sum_to
+        rule = None
         if self.sum_to is not None:
-            last = f"beta[{spec.q}]" if spec.q else f"alpha[{spec.p}]"
+            rule = fam.sum_rule(lik.dist.start() if eta is None else eta, lik.dist)
+            last = rule[0]
             if last in fixed:
                 raise InputError(f"options: {last} is implied by the others (the alphas and betas of an IGARCH model sum to 1); fix another parameter")
             self.implied = lik.idx[last]
             status[self.implied] = "implied"
         self.target = options.target
         if self.target:
-            if spec.variance in ("egarch", "igarch"):
-                raise InputError(f"options: target=yes works with ARCH, GARCH and GJR-GARCH variances, not {spec.variance_canonical}")
-            if "omega" in fixed:
-                raise InputError("options: target=yes implies omega; do not also fix omega")
-            status[lik.idx["omega"]] = "target"
+            tname = fam.targeted
+            if tname is None:
+                raise InputError(f"options: target=yes works with {_targeting_families()} variances, not {spec.variance_canonical}")
+            if tname in fixed:
+                raise InputError(f"options: target=yes implies {tname}; do not also fix {tname}")
+            status[lik.idx[tname]] = "target"
         self.status = status
         self.free = np.array([i for i, s in enumerate(status) if s == "free"], dtype=int)
         if len(self.free) == 0:
@@ -242,9 +182,7 @@ class _Problem:
         A = np.zeros((k, len(self.free)))
         A[self.free, np.arange(len(self.free))] = 1.0
         if self.implied is not None:
-            weights = {lik.idx[n]: 1.0 for n in names if n.startswith("alpha") or n.startswith("beta")}
-            if spec.variance == "gjr":
-                weights.update({lik.idx[n]: kappa for n in names if n.startswith("gamma")})
+            weights = {lik.idx[n]: w for n, w in rule[1].items()}
             weights.pop(self.implied)
             self.base[self.implied] = self.sum_to - sum(w * self.base[i] for i, w in weights.items() if status[i] == "fixed")
             for col, i in enumerate(self.free):
@@ -259,17 +197,14 @@ class _Problem:
         if self.target:
             e, _ = self.lik.residuals(theta)
             vbar = float(np.mean(e * e))
-            iomega = self.lik.idx["omega"]
-            theta[iomega] = 0.0
-            pers = persistence_of(self.spec, self.dist, theta) if self.spec.variance != "constant" else 0.0
-            theta[iomega] = vbar * (1.0 - pers)
+            _, _, _, vp, eta = self.lik.split(theta)
+            self.family.target(vp, vbar, eta, self.dist)  # vp is a view: theta changes in place
         return theta
 
     # ----- admissible region (beyond box bounds) ---------------------------------------
     def admissible(self, theta) -> bool:
         spec = self.spec
-        lik = self.lik
-        mu, phi, tht, omega, alpha, gamma, beta, eta = lik.split(theta)
+        mu, phi, tht, vp, eta = self.lik.split(theta)
         lo_hi = self.dist.bounds()
         for v, (lo, hi) in zip(eta, lo_hi):
             if not (lo < v < hi):
@@ -278,23 +213,7 @@ class _Problem:
             return False
         if spec.ma and not _stationary(-np.asarray(tht)):
             return False
-        v = spec.variance
-        if v == "constant":
-            return omega > 0
-        if v == "egarch":
-            return _stationary(beta)
-        if not omega > 0 or np.any(alpha < 0) or np.any(beta < 0):
-            return False
-        if v == "gjr" and np.any(alpha + gamma < 0):
-            return False
-        if v == "igarch":
-            return True
-        if self.sum_to is not None:
-            return True  # held on the bound by construction
-        pers = float(alpha.sum() + beta.sum())
-        if v == "gjr":
-            pers += float(gamma.sum()) * self.dist.neg_sq_moment(eta)
-        return pers < 1.0
+        return self.family.admissible(vp, eta, self.dist, held=self.sum_to is not None)
 
     # ----- objective -------------------------------------------------------------------
     def negll(self, u):
@@ -387,15 +306,12 @@ class _Problem:
         return 0.5 * (H + H.T)
 
 
-def _stationary(coefs) -> bool:
-    """True if 1 - sum c_i L^i has all roots outside the unit circle."""
-    c = np.asarray(coefs, dtype=float)
-    if c.size == 0:
-        return True
-    if c.size == 1:
-        return abs(c[0]) < 1.0
-    roots = np.roots(np.concatenate([[1.0], -c]))  # z^n - c1 z^(n-1) - ... ; need |z| < 1
-    return bool(np.all(np.abs(roots) < 1.0))
+_stationary = stationary  # the AR and MA checks use the families' helper
+
+
+def _targeting_families() -> str:
+    words = [cls.words[0] for cls in FAMILIES.values() if cls.targeted and cls.varies]
+    return ", ".join(words[:-1]) + " and " + words[-1] if len(words) > 1 else "".join(words)
 
 
 # ---------------------------------------------------------------------------------------
@@ -404,23 +320,15 @@ def _scale_and_bounds(problem: _Problem, r):
     spec = problem.spec
     sd = float(np.std(r)) or 1.0
     var = sd * sd
+    vbox = dict(zip(spec.variance_names, problem.family.box(var)))
     scales, bounds = [], []
     for n in lik.names:
         if n == "mu":
             s, b = 0.1 * sd, (None, None)
         elif n.startswith("phi") or n.startswith("theta"):
             s, b = 0.1, (-0.9999, 0.9999) if (spec.ar if n.startswith("phi") else spec.ma) == 1 else (None, None)
-        elif n == "omega":
-            if spec.variance == "egarch":
-                s, b = 0.1, (None, None)
-            else:
-                s, b = 0.05 * var, (var * 1e-9, None)
-        elif n.startswith("alpha"):
-            s, b = 0.05, ((None, None) if spec.variance == "egarch" else (0.0, 1.0))
-        elif n.startswith("gamma"):
-            s, b = 0.05, ((None, None) if spec.variance == "egarch" else (-1.0, 1.0))
-        elif n.startswith("beta"):
-            s, b = 0.05, ((-0.9999, 0.9999) if spec.variance == "egarch" else (0.0, 1.0))
+        elif n in vbox:
+            s, b = vbox[n]
         elif n == "nu":
             s = 1.0
             lo = problem.dist.bounds()[0][0]
@@ -468,44 +376,11 @@ def _start_candidates(problem: _Problem, r) -> list:
         th[idx[n]] = val
     for n, val in problem.options.fixed_dict.items():
         th[idx[n]] = val
-    p, q = spec.p, spec.q
     cands = []
-    kind = spec.variance
-    if kind == "constant":
-        grid = [()]
-    elif kind == "arch":
-        grid = [(a, 0.0, 0.0) for a in (0.1, 0.3, 0.6)]
-    elif kind == "egarch":
-        grid = [(a, g, b) for a in (0.1, 0.25) for g in (0.0, -0.05) for b in (0.9, 0.97)]
-    elif kind == "igarch":
-        grid = [(a, 0.0, 1.0 - a) for a in (0.05, 0.1, 0.2)]
-    else:
-        grid = [(a, 0.0, b) for a, b in ((0.05, 0.9), (0.1, 0.8), (0.2, 0.6), (0.3, 0.3))]
-        if kind == "gjr":
-            grid = [(0.5 * a, a, b) for a, _, b in grid]
-    for g in grid:
+    vs = lik._vs
+    for vp in problem.family.starts(v):
         t = th.copy()
-        if kind == "constant":
-            t[idx["omega"]] = v
-        else:
-            a_tot, g_tot, b_tot = g
-            for i in range(1, p + 1):
-                t[idx[f"alpha[{i}]"]] = a_tot / p
-                if spec.asymmetric:
-                    t[idx[f"gamma[{i}]"]] = g_tot / p
-            for j in range(1, q + 1):
-                t[idx[f"beta[{j}]"]] = b_tot / q if q else 0.0
-            if kind == "arch" or q == 0:
-                if kind == "igarch":
-                    for i in range(1, p + 1):
-                        t[idx[f"alpha[{i}]"]] = 1.0 / p
-            if kind == "egarch":
-                t[idx["omega"]] = math.log(v) * (1.0 - b_tot)
-            else:
-                pers = a_tot + 0.5 * g_tot + (b_tot if q else 0.0)
-                if kind == "igarch":
-                    pers = 0.9
-                t[idx["omega"]] = v * max(1.0 - pers, 0.02)
+        t[vs] = vp
         for n, val in problem.options.fixed_dict.items():
             t[idx[n]] = val
         cands.append(t)
@@ -786,17 +661,17 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None) -> FitResult:
             eta = dist.start().copy()
             eta[dist.param_names.index(n)] = v
             dist.check(eta)
-        elif n == "omega" and spec.variance != "egarch" and v <= 0:
-            raise InputError(f"options: omega must be greater than 0, got {v:g}")
+        elif n in spec.variance_names:
+            spec.family.check_fixed(n, v)
     best = _run(problem, r, _start_candidates(problem, r))
     n_free = len(problem.free)
-    if spec.variance in ("arch", "garch", "gjr") and best[0] > -_PENALTY / 2:
+    if spec.family.holds_at_bound and best[0] > -_PENALTY / 2:
         pers = persistence_of(spec, dist, problem.full(best[1]))
         first_ok = math.isfinite(best[3]) and best[3] < _DECREMENT_TOL
         if pers > 1.0 - 1e-3 or (pers > 0.9 and not first_ok):
             # the maximum lies on the stationarity bound: maximise on the bound itself
-            kappa = dist.neg_sq_moment(problem.full(best[1])[lik.k - len(dist.param_names):]) if spec.variance == "gjr" else 0.5
-            held = _Problem(lik, options, sum_to=1.0 - _BOUND_GAP, kappa=kappa)
+            eta = problem.full(best[1])[lik.k - len(dist.param_names):]
+            held = _Problem(lik, options, sum_to=1.0 - _BOUND_GAP, eta=eta)
             t0 = problem.full(best[1])
             alt = _run(held, r, [t0])
             if alt[0] >= best[0] - 1e-9:
@@ -835,7 +710,7 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None) -> FitResult:
         held_names = [lik.names[problem.free[c]] for c in np.flatnonzero(active)]
         if held_names:
             msg += "; at a bound: " + ", ".join(held_names)
-        if problem.sum_to is not None and spec.variance != "igarch":
+        if problem.sum_to is not None and not spec.family.integrated:
             msg += f"; persistence held at the stationarity bound {1 - _BOUND_GAP:.6f} (the data favour IGARCH)"
     else:
         msg = f"NOT converged: {res.message if isinstance(res.message, str) else res.message!s}; Newton decrement {dec:.2g} (tolerance {_DECREMENT_TOL:g})"

@@ -1,10 +1,11 @@
 """Multi-step forecasts of the mean and the conditional variance.
 
 * ``variance[h]`` is the forecast made at the end of the sample of the conditional variance
-  sigma^2 of the shock h steps ahead.  ARCH, GARCH, GJR-GARCH and IGARCH use the analytic
-  recursion with E[e^2] = sigma^2 and E[1(e<0) e^2] = kappa sigma^2, where kappa = E[z^2 1(z<0)]
-  of the fitted distribution (1/2 for the symmetric ones); EGARCH, whose forecast has no
-  simple closed form, averages seeded simulated paths.
+  sigma^2 of the shock h steps ahead, as the model's variance family computes it: the
+  families linear in lagged squares by the analytic recursion with E[e^2] = sigma^2 and
+  E[1(e<0) e^2] = kappa sigma^2, where kappa = E[z^2 1(z<0)] of the fitted distribution (1/2
+  for the symmetric ones); a family with no simple closed form (EGARCH) by averaging seeded
+  simulated paths.
 * ``mean[h]`` is the ARMA mean forecast (future shocks at zero).
 * ``cumvar[h]`` is the variance of the sum of the next h returns, the ARMA propagation of each
   shock included: with psi_j the MA(infinity) weights and Psi_n = psi_0 + ... + psi_n,
@@ -19,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
+from .families import History
 from .likelihood import Likelihood
 
 __all__ = ["Forecast", "forecast", "in_sample", "psi_weights", "DEFAULT_SEED", "DEFAULT_PATHS", "MAX_HORIZON"]
@@ -75,7 +77,7 @@ def forecast(fit, r, horizon: int, seed: int | None = None, paths: int | None = 
     spec = fit.spec
     resid, var, lik = in_sample(fit, r)
     r = np.asarray(r, dtype=float)
-    mu, phi, tht, omega, alpha, gamma, beta, eta = lik.split(fit.params)
+    mu, phi, tht, vp, eta = lik.split(np.asarray(fit.params, dtype=float))
     T = len(r)
     H = int(horizon)
 
@@ -93,72 +95,15 @@ def forecast(fit, r, horizon: int, seed: int | None = None, paths: int | None = 
         rr.append(v)
         mean[h] = v
 
-    # ---- variance
-    method = "analytic"
-    if spec.variance == "constant":
-        fvar = np.full(H, float(omega))
-    elif spec.variance == "egarch":
-        fvar = _egarch_sim(fit, lik, resid, var, H, seed, paths)
-        method = f"simulation ({paths or DEFAULT_PATHS} paths, seed {DEFAULT_SEED if seed is None else seed})"
-    else:
-        p, q = spec.p, spec.q
-        kappa = fit.dist.neg_sq_moment(eta) if spec.asymmetric else 0.5
-        e_obs = resid[lik.a:]
-        e2 = list(e_obs ** 2)
-        n2 = list(np.where(e_obs < 0, e_obs ** 2, 0.0))
-        s2 = list(var[lik.a + lik.s0:])
-        n_e = len(e2)
-        n_s = len(s2)
-        out = []
-        for h in range(H):
-            v = omega
-            for i in range(1, p + 1):
-                k = h + 1 - i  # steps ahead of the lagged shock (<= 0: observed)
-                if k <= 0:
-                    v += alpha[i - 1] * e2[n_e - 1 + k]
-                    if spec.asymmetric:
-                        v += gamma[i - 1] * n2[n_e - 1 + k]
-                else:
-                    v += (alpha[i - 1] + (kappa * gamma[i - 1] if spec.asymmetric else 0.0)) * out[k - 1]
-            for j in range(1, q + 1):
-                k = h + 1 - j
-                v += beta[j - 1] * (s2[n_s - 1 + k] if k <= 0 else out[k - 1])
-            out.append(v)
-        fvar = np.array(out)
+    # ---- variance: the family's h-step forecasts from the end of the sample
+    history = History(resid[lik.a:], var[lik.a + lik.s0:], lik.s0)
+    n_paths = paths or DEFAULT_PATHS
+    the_seed = DEFAULT_SEED if seed is None else seed
+    fvar, simulated = spec.family.forecast(vp, eta, fit.dist, history, H, np.random.default_rng(the_seed), n_paths)
+    method = f"simulation ({n_paths} paths, seed {the_seed})" if simulated else "analytic"
 
     # ---- cumulative variance with ARMA propagation
     psi = psi_weights(phi, tht, H)
     Psi = np.cumsum(psi)
     cum = np.array([np.sum(fvar[:h] * Psi[h - 1::-1][:h] ** 2) for h in range(1, H + 1)])
     return Forecast(mean=mean, variance=fvar, cumvar=cum, method=method)
-
-
-def _egarch_sim(fit, lik, resid, var, H, seed, paths):
-    spec = fit.spec
-    _, _, _, omega, alpha, gamma, beta, eta = lik.split(fit.params)
-    p, q = spec.p, spec.q
-    kappa = fit.dist.abs_moment(eta)
-    rng = np.random.default_rng(DEFAULT_SEED if seed is None else seed)
-    n = paths or DEFAULT_PATHS
-    e_obs = resid[lik.a + lik.s0:]
-    s_obs = var[lik.a + lik.s0:]
-    z_obs = e_obs / np.sqrt(s_obs)
-    lv_hist = [np.full(n, math.log(s)) for s in s_obs[-q:]] if q else []
-    z_hist = [np.full(n, z) for z in z_obs[-p:]]
-    out = np.empty(H)
-    for h in range(H):
-        v = np.full(n, float(omega))
-        for i in range(1, p + 1):
-            z = z_hist[-i]
-            v += alpha[i - 1] * (np.abs(z) - kappa) + gamma[i - 1] * z
-        for j in range(1, q + 1):
-            v += beta[j - 1] * lv_hist[-j]
-        v = np.clip(v, -700, 700)
-        out[h] = float(np.mean(np.exp(v)))
-        lv_hist.append(v)
-        z_hist.append(fit.dist.rvs(n, eta, rng))
-        if len(lv_hist) > q:
-            lv_hist = lv_hist[-q:] if q else []
-        if len(z_hist) > p:
-            z_hist = z_hist[-p:]
-    return out

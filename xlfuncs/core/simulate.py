@@ -12,6 +12,7 @@ import numpy as np
 
 from .distributions import Distribution
 from .errors import InputError
+from .families import History
 from .forecast import in_sample
 from .spec import ModelSpec
 
@@ -23,59 +24,28 @@ def simulate(spec: ModelSpec, dist: Distribution, params, n: int, paths: int = 1
     """Simulate ``paths`` independent paths of ``n`` returns; array of shape (n, paths).
 
     ``params`` is the full vector in ``spec.param_names + dist.param_names`` order.  Each
-    path starts ``burn`` periods before the first kept observation from the unconditional
-    variance (or the residual variance for EGARCH and IGARCH, from omega).
+    path starts ``burn`` periods before the first kept observation from the level its variance
+    family starts fresh paths at (the unconditional variance where it is defined; see the
+    family's ``_sim_start``); a family with no level to forget starts at the first kept one.
     """
     rng = rng or np.random.default_rng()
+    fam = spec.family
     names = tuple(spec.param_names) + tuple(dist.param_names)
+    params = np.asarray(params, dtype=float)
     d = dict(zip(names, params))
     eta = np.array([d[k] for k in dist.param_names])
     mu = d.get("mu", 0.0)
     phi = np.array([d[f"phi[{i}]"] for i in range(1, spec.ar + 1)])
     tht = np.array([d[f"theta[{j}]"] for j in range(1, spec.ma + 1)])
-    p, q = (spec.p, spec.q) if spec.variance != "constant" else (0, 0)
-    alpha = np.array([d[f"alpha[{i}]"] for i in range(1, p + 1)])
-    gamma = np.array([d[f"gamma[{i}]"] for i in range(1, p + 1)]) if spec.asymmetric else np.zeros(p)
-    beta = np.array([d[f"beta[{j}]"] for j in range(1, q + 1)])
-    omega = d["omega"]
+    vp = np.array([d[k] for k in fam.param_names])
+    if not fam.burn_in:
+        burn = 0
     total = n + burn
     z = dist.rvs((total, paths), eta, rng).reshape(total, paths)
-    sig2 = np.empty((total, paths))
     e = np.empty((total, paths))
-    v = spec.variance
-    if v == "constant":
-        sig2[:] = omega
-        e[:] = np.sqrt(omega) * z
-    elif v == "egarch":
-        kappa = dist.abs_moment(eta)
-        lv0 = omega / (1.0 - beta.sum()) if q else omega
-        lv = np.full((total, paths), lv0)
-        for t in range(total):
-            x = np.full(paths, omega)
-            for i in range(1, p + 1):
-                if t - i >= 0:
-                    x += alpha[i - 1] * (np.abs(z[t - i]) - kappa) + gamma[i - 1] * z[t - i]
-            for j in range(1, q + 1):
-                x += beta[j - 1] * (lv[t - j] if t - j >= 0 else lv0)
-            lv[t] = x
-        sig2 = np.exp(lv)
-        e = np.sqrt(sig2) * z
-    else:
-        kappa = dist.neg_sq_moment(eta) if spec.asymmetric else 0.5
-        pers = alpha.sum() + kappa * gamma.sum() + beta.sum()
-        s0 = omega / (1.0 - pers) if pers < 1 else omega * 100.0
-        for t in range(total):
-            x = np.full(paths, omega)
-            for i in range(1, p + 1):
-                if t - i >= 0:
-                    e2 = e[t - i] ** 2
-                    x += alpha[i - 1] * e2 + gamma[i - 1] * np.where(e[t - i] < 0, e2, 0.0)
-                else:
-                    x += (alpha[i - 1] + kappa * gamma[i - 1]) * s0
-            for j in range(1, q + 1):
-                x += beta[j - 1] * (sig2[t - j] if t - j >= 0 else s0)
-            sig2[t] = x
-            e[t] = np.sqrt(x) * z[t]
+    state = fam.sim_start(vp, eta, dist, paths)
+    for t in range(total):
+        _, e[t] = fam.sim_step(state, vp, eta, dist, z[t])
     # ARMA mean
     r = np.empty((total, paths))
     for t in range(total):
@@ -100,77 +70,34 @@ def forward_steps(fit, r, horizon: int, paths: int, rng: np.random.Generator):
     """
     spec = fit.spec
     dist = fit.dist
+    fam = spec.family
     resid, var, lik = in_sample(fit, r)
     r = np.asarray(r, dtype=float)
-    mu, phi, tht, omega, alpha, gamma, beta, eta = lik.split(np.asarray(fit.params, dtype=float))
+    mu, phi, tht, vp, eta = lik.split(np.asarray(fit.params, dtype=float))
     mu = float(mu) if spec.has_mu else 0.0
-    omega = float(omega)
-    kind = spec.variance
-    p, q = (spec.p, spec.q) if kind != "constant" else (0, 0)
-    asym = spec.asymmetric
 
     # the end of the sample, newest last; every list holds scalars, then arrays as paths grow
-    e_obs = resid[lik.a:]  # residuals the variance recursion saw
-    s_obs = var[lik.a + lik.s0:]  # its conditional variances
     r_hist = list(r[len(r) - spec.ar:]) if spec.ar else []
     e_ma = list(np.nan_to_num(resid)[len(resid) - spec.ma:]) if spec.ma else []
-    if kind == "egarch":
-        kappa = dist.abs_moment(eta)
-        z_obs = e_obs[lik.s0:] / np.sqrt(s_obs)
-        z_hist = list(z_obs[len(z_obs) - p:])
-        lv_hist = list(np.log(s_obs[len(s_obs) - q:])) if q else []
-    else:
-        e_hist = list(e_obs[len(e_obs) - p:]) if p else []
-        s_hist = list(s_obs[len(s_obs) - q:]) if q else []
+    state = fam.sim_continue(vp, eta, dist, History(resid[lik.a:], var[lik.a + lik.s0:], lik.s0))
 
     for _ in range(int(horizon)):
-        # ---- variance of the next shock, from the newest lags
-        if kind == "constant":
-            s2 = np.full(paths, omega)
-        elif kind == "egarch":
-            v = np.full(paths, omega)
-            for i in range(1, p + 1):
-                z = z_hist[-i]
-                v = v + alpha[i - 1] * (np.abs(z) - kappa) + gamma[i - 1] * z
-            for j in range(1, q + 1):
-                v = v + beta[j - 1] * lv_hist[-j]
-            v = np.clip(v, -700.0, 700.0)  # as the forecast's simulation does
-            s2 = np.exp(v)
-        else:
-            v = np.full(paths, omega)
-            for i in range(1, p + 1):
-                e = e_hist[-i]
-                e2 = e * e
-                v = v + alpha[i - 1] * e2
-                if asym:
-                    v = v + gamma[i - 1] * np.where(e < 0, e2, 0.0)
-            for j in range(1, q + 1):
-                v = v + beta[j - 1] * s_hist[-j]
-            s2 = v
-        # ---- the shock and the return
+        # ---- the variance of the next shock from the newest lags, the shock and the return
         z = dist.rvs(paths, eta, rng)
-        e = np.sqrt(s2) * z
+        s2, e = fam.sim_step(state, vp, eta, dist, z)
+        if np.ndim(s2) == 0:
+            s2 = np.full(paths, float(s2))
         ret = np.full(paths, mu)
         for i in range(1, spec.ar + 1):
             ret = ret + phi[i - 1] * r_hist[-i]
         for j in range(1, spec.ma + 1):
             ret = ret + tht[j - 1] * e_ma[-j]
         ret = ret + e
-        # ---- roll the lags
+        # ---- roll the mean's lags
         if spec.ar:
             r_hist = r_hist[1:] + [ret]
         if spec.ma:
             e_ma = e_ma[1:] + [e]
-        if kind == "egarch":
-            if p:
-                z_hist = z_hist[1:] + [z]
-            if q:
-                lv_hist = lv_hist[1:] + [v]
-        elif kind != "constant":
-            if p:
-                e_hist = e_hist[1:] + [e]
-            if q:
-                s_hist = s_hist[1:] + [s2]
         yield ret, s2
 
 
@@ -184,7 +111,8 @@ def simulate_forward(fit, r, horizon: int, paths: int, rng: np.random.Generator 
     Each path continues the fitted mean and variance recursions from the last in-sample
     residuals, variances and returns (the values :func:`xlfuncs.core.forecast.in_sample`
     gives), with standardised shocks drawn from the fit's distribution: the ARMA mean
-    r = mu + sum phi_i r[t-i] + sum theta_j e[t-j] + e; for ARCH, GARCH, GJR-GARCH and IGARCH
+    r = mu + sum phi_i r[t-i] + sum theta_j e[t-j] + e, and the variance family's recursion one
+    step at a time (``sim_step``): for ARCH, GARCH, GJR-GARCH and IGARCH
     sigma2 = omega + sum (alpha_i + gamma_i 1(e[t-i] < 0)) e[t-i]^2 + sum beta_j sigma2[t-j];
     for EGARCH (Nelson 1991) ln sigma2 = omega + sum alpha_i (|z[t-i]| - E|z|) + gamma_i z[t-i]
     + sum beta_j ln sigma2[t-j].  The first step's variance is therefore the exact one-step

@@ -26,6 +26,7 @@ import re
 from dataclasses import dataclass, field
 
 from .errors import InputError, excerpt
+from .families import FAMILIES, WORDS, family_for
 
 __all__ = [
     "ModelSpec",
@@ -40,19 +41,19 @@ __all__ = [
 ]
 
 MEAN_KINDS = ("zero", "const", "arma")
-VARIANCE_KINDS = ("constant", "arch", "garch", "gjr", "egarch", "igarch")
+VARIANCE_KINDS = tuple(FAMILIES)
 MAX_ORDER = 12  # highest lag order accepted in any part of a model string
 
-_VARIANCE_WORDS = {
-    "ARCH": "arch",
-    "GARCH": "garch",
-    "GJR-GARCH": "gjr",
-    "GJRGARCH": "gjr",
-    "GJR": "gjr",
-    "EGARCH": "egarch",
-    "IGARCH": "igarch",
-}
 _MEAN_WORDS = ("ZERO", "CONST", "AR", "MA", "ARMA")
+# words with a dash inside (GJR-GARCH) first, longest first, so that the dash is not read as a separator
+_DASHED = sorted((w for w in WORDS if "-" in w), key=len, reverse=True)
+_TOKEN = re.compile("(" + "".join(re.escape(w) + "|" for w in _DASHED) + r"[A-Z]+)(?:\(([^()]*)\))?")
+
+
+def _variance_list() -> str:
+    words = [cls.words[0] for cls in FAMILIES.values() if cls.words]
+    return ", ".join(words[:-1]) + " or " + words[-1] if len(words) > 1 else "".join(words)
+
 
 _EXAMPLES = "e.g. GARCH(1,1), AR(1)-GJR-GARCH(1,1), ZERO-EGARCH(1,1) or CONST"
 
@@ -85,14 +86,13 @@ class ModelSpec:
         return f"ARMA({self.ar},{self.ma})"
 
     @property
+    def family(self):
+        """The variance family at this model's orders (:mod:`xlfuncs.core.families`)."""
+        return family_for(self.variance, self.p, self.q)
+
+    @property
     def variance_canonical(self) -> str:
-        v = self.variance
-        if v == "constant":
-            return ""
-        if v == "arch":
-            return f"ARCH({self.p})"
-        word = {"garch": "GARCH", "gjr": "GJR-GARCH", "egarch": "EGARCH", "igarch": "IGARCH"}[v]
-        return f"{word}({self.p},{self.q})"
+        return self.family.canonical
 
     @property
     def canonical(self) -> str:
@@ -112,10 +112,6 @@ class ModelSpec:
         return self.mean != "zero"
 
     @property
-    def asymmetric(self) -> bool:
-        return self.variance in ("gjr", "egarch")
-
-    @property
     def mean_names(self) -> tuple:
         names = ["mu"] if self.has_mu else []
         names += [f"phi[{i}]" for i in range(1, self.ar + 1)]
@@ -124,14 +120,7 @@ class ModelSpec:
 
     @property
     def variance_names(self) -> tuple:
-        names = ["omega"]
-        if self.variance == "constant":
-            return tuple(names)
-        names += [f"alpha[{i}]" for i in range(1, self.p + 1)]
-        if self.asymmetric:
-            names += [f"gamma[{i}]" for i in range(1, self.p + 1)]
-        names += [f"beta[{j}]" for j in range(1, self.q + 1)]
-        return tuple(names)
+        return self.family.param_names
 
     @property
     def param_names(self) -> tuple:
@@ -140,7 +129,7 @@ class ModelSpec:
 
     @property
     def arch_lags(self) -> int:
-        return self.p if self.variance != "constant" else 0
+        return self.family.arch_lags
 
     @property
     def min_obs(self) -> int:
@@ -176,7 +165,7 @@ def parse_model(text) -> ModelSpec:
     s = re.sub(r"\s+", "", text).upper()
     if s.count("(") != s.count(")"):
         raise _bad_model(raw, "its parentheses do not match")
-    token = re.compile(r"(GJR-GARCH|[A-Z]+)(?:\(([^()]*)\))?")
+    token = _TOKEN
     parts = []
     pos = 0
     while pos < len(s):
@@ -199,13 +188,13 @@ def parse_model(text) -> ModelSpec:
         mean_part, variance_part = parts
         if mean_part[0] not in _MEAN_WORDS:
             raise _bad_model(raw, f'"{excerpt(mean_part[0])}" is not a mean (use ZERO, CONST, AR(p), MA(q) or ARMA(p,q))')
-        if variance_part[0] not in _VARIANCE_WORDS:
-            raise _bad_model(raw, f'"{excerpt(variance_part[0])}" is not a variance model (use ARCH, GARCH, GJR-GARCH, EGARCH or IGARCH)')
+        if variance_part[0] not in WORDS:
+            raise _bad_model(raw, f'"{excerpt(variance_part[0])}" is not a variance model (use {_variance_list()})')
     else:
         word = parts[0][0]
         if word in _MEAN_WORDS:
             mean_part = parts[0]
-        elif word in _VARIANCE_WORDS:
+        elif word in WORDS:
             variance_part = parts[0]
         else:
             raise _bad_model(raw, f'"{excerpt(word)}" is not a model name')
@@ -229,26 +218,25 @@ def parse_model(text) -> ModelSpec:
     variance, p, q = "constant", 0, 0
     if variance_part is not None:
         word, args = variance_part
-        variance = _VARIANCE_WORDS[word]
-        if variance == "arch":
-            (p,) = _orders(raw, "ARCH", args, 1, (1,))
-            if p < 1:
-                raise _bad_model(raw, "ARCH needs at least one lag, ARCH(1) or more")
+        cls = WORDS[word]
+        if cls.n_orders == 0:
+            if args is not None:
+                raise _bad_model(raw, f"{word} takes no order")
+            orders = tuple(cls.default_orders)
         else:
-            p, q = _orders(raw, word, args, 2, (1, 1))
-            if p < 1:
-                raise _bad_model(raw, f"{word} needs at least one ARCH term (its first order must be 1 or more)")
-            if variance == "garch" and q == 0:
-                variance = "arch"
-            if variance == "igarch" and p + q < 1:
-                raise _bad_model(raw, "IGARCH needs at least one term")
+            orders = _orders(raw, word, args, cls.n_orders, tuple(cls.default_orders))
+        try:
+            variance, p, q = cls.resolve(word, orders)
+        except ValueError as exc:
+            raise _bad_model(raw, str(exc)) from None
     return ModelSpec(mean=mean, ar=ar, ma=ma, variance=variance, p=p, q=q)
 
 
 # ----------------------------------------------------------------------------------------
 # parameter names
-_NAME_RE = re.compile(r"^(mu|phi|theta|omega|alpha|gamma|beta|nu|lambda)(?:\[(\d+)\]|(\d+))?$")
-_INDEXED = {"phi", "theta", "alpha", "gamma", "beta"}
+_STEMS = ("mu", "phi", "theta") + tuple(dict.fromkeys(st for cls in FAMILIES.values() for st in cls.stems)) + ("nu", "lambda")
+_NAME_RE = re.compile(r"^(" + "|".join(_STEMS) + r")(?:\[(\d+)\]|(\d+))?$")
+_INDEXED = {"phi", "theta"} | {st for cls in FAMILIES.values() for st in cls.indexed}
 
 
 def normalise_param_name(name) -> str | None:

@@ -87,7 +87,7 @@ def _table_and_returns(returns, fit):
     spec = table.spec
     if len(data.values) < spec.ar + spec.arch_lags + 2:
         raise SheetError(f"returns: {spec.canonical} needs at least {spec.ar + spec.arch_lags + 2} numbers, got {len(data.values)}")
-    if np.ptp(data.values) == 0 and spec.variance != "constant":
+    if np.ptp(data.values) == 0 and spec.family.varies:
         raise SheetError("returns are all the same number; a constant series has no variance to model")
     result = evaluate(data.values, table.spec, table.dist, table.names, table.params, table.options)
     return table, data, result
@@ -228,7 +228,7 @@ def VOLTESTS(returns, fit, lags=None):
     if n < MIN_TEST_OBS:
         raise SheetError(f"returns: the tests need at least {MIN_TEST_OBS} standardised residuals, got {n}")
     spec = table.spec
-    var_order = 0 if spec.variance == "constant" else spec.p + spec.q
+    var_order = spec.family.diagnostic_order
     L = int_arg(lags, "lags", 1, max_lags(n), default=default_lags(n, max(spec.ar + spec.ma, var_order)))
     out = [["test", "statistic", "df", "p_value"]]
     for t in run_tests(z, L, spec.ar + spec.ma, var_order):

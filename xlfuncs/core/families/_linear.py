@@ -1,0 +1,418 @@
+"""Shared mathematics of the variance recursions linear in lagged squares.
+
+    sigma2[t] = omega + sum_i (alpha_i e2[t-i] + gamma_i N[t-i]) + sum_j beta_j sigma2[t-j],
+
+with e2 = e^2 and N = 1(e < 0) e^2 (the GJR news term; no gamma in the symmetric families).  The
+recursion runs through ``scipy.signal.lfilter``; its derivatives (forward) run through the same
+filter, and the gradient of sum_t w_t sigma2_t runs the filter once backwards (the adjoint).
+
+A family of this kind says how its own parameters give the *linear coefficients*
+(omega, alpha[1..p], gamma[1..p], beta[1..q]) by an affine map: :meth:`LinearFamily._coefficients`
+and its constant Jacobian :meth:`LinearFamily._jacobian` (None where the parameters are the
+coefficients themselves).  Derivatives in the coefficients are carried back to the parameters
+through that Jacobian.
+
+Presample (``presample=mean``): lagged squares and variances before the first observation equal
+the mean squared residual at the trial parameters (the GJR term the mean of N); ``drop``: the
+first p residuals are lags only and variance lags before the start take the mean squared residual.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.signal import lfilter
+
+from ..errors import InputError
+from .base import VarianceFamily
+
+try:  # SciPy's C filter without lfilter's argument checks: the recursions call it thousands of times
+    from scipy.signal._sigtools import _linear_filter as _raw_filter
+except ImportError:  # pragma: no cover - a SciPy without it
+    _raw_filter = None
+_ONE = np.array([1.0])
+
+
+def linear_filter(den, x, zi=None):
+    """lfilter([1], den, x[, zi]) along the last axis; den[0] == 1."""
+    if _raw_filter is not None:
+        try:
+            if zi is None:
+                return _raw_filter(_ONE, den, x, -1)
+            return _raw_filter(_ONE, den, x, -1, zi)[0]
+        except (TypeError, ValueError):  # pragma: no cover - a changed private signature
+            pass
+    return lfilter([1.0], den, x) if zi is None else lfilter([1.0], den, x, zi=zi)[0]
+
+
+class _State:
+    """What the forward recursion leaves for the adjoint."""
+
+    __slots__ = ("e", "sig2", "P", "N", "neg", "sbar", "den", "tail", "omega", "alpha", "gamma", "beta", "mean_mode", "m")
+
+
+class _SimState:
+    """Lagged squares, negative-part squares and variances of simulated paths, newest last."""
+
+    __slots__ = ("e2", "n2", "s2")
+
+    def __init__(self, e2, n2, s2):
+        self.e2, self.n2, self.s2 = e2, n2, s2
+
+
+class LinearFamily(VarianceFamily):
+    """Base of the families whose recursion is linear in lagged squares."""
+
+    analytic = True
+    has_adjoint = True
+    #: the recursion carries the GJR news term gamma_i 1(e<0) e^2
+    asymmetric = False
+
+    # ------------------------------------------------------------------ coefficients
+    def _coefficients(self, vp):
+        """(omega, alpha, gamma, beta) from the family's parameters (default: they are the same)."""
+        p, q = self.p, self.q
+        omega = vp[0]
+        alpha = vp[1: 1 + p]
+        i = 1 + p
+        gamma = np.zeros(0)
+        if self.asymmetric:
+            gamma = vp[i: i + p]
+            i += p
+        beta = vp[i: i + q]
+        return omega, alpha, gamma, beta
+
+    def _jacobian(self):
+        """d(omega, alpha, gamma, beta) / d(parameters), constant; None for the identity."""
+        return None
+
+    def _linear_names(self):
+        names = ["omega"] + [f"alpha[{i}]" for i in range(1, self.p + 1)]
+        if self.asymmetric:
+            names += [f"gamma[{i}]" for i in range(1, self.p + 1)]
+        return names + [f"beta[{j}]" for j in range(1, self.q + 1)]
+
+    def _names(self):
+        return self._linear_names()
+
+    def _kappa(self, eta, dist):
+        """E[z^2 1(z<0)] of the shocks, the weight of gamma in the persistence."""
+        return dist.neg_sq_moment(eta) if self.asymmetric else 0.5
+
+    # ------------------------------------------------------------------ recursion
+    def _inputs(self, e, presample, mean_of):
+        """Lagged squares P and negative-part squares N with their presample, and sbar."""
+        p = self.p
+        e2 = e * e
+        sbar = mean_of(e2)
+        neg = n2 = N = None
+        if self.asymmetric:
+            neg = e < 0
+            n2 = np.where(neg, e2, 0.0)
+            nbar = n2.mean()
+        if presample == "mean":
+            P = np.concatenate([np.full(p, sbar), e2])
+            if self.asymmetric:
+                N = np.concatenate([np.full(p, nbar), n2])
+        else:
+            P = e2
+            if self.asymmetric:
+                N = n2
+        return e2, sbar, neg, P, N
+
+    def _run(self, omega, alpha, gamma, beta, P, N, sbar):
+        p, q = self.p, self.q
+        m = len(P) - p
+        x = np.full(m, omega)
+        for i in range(1, p + 1):
+            x += alpha[i - 1] * P[p - i: p - i + m]
+            if self.asymmetric:
+                x += gamma[i - 1] * N[p - i: p - i + m]
+        if q:
+            den = np.concatenate([[1.0], -beta])
+            tail = np.cumsum(beta[::-1])[::-1]
+            return linear_filter(den, x, sbar * tail), den, tail, m
+        return x, None, None, m
+
+    def _variance(self, vp, e, presample, eta, dist):
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        _, sbar, _, P, N = self._inputs(e, presample, np.mean)
+        return self._run(omega, alpha, gamma, beta, P, N, sbar)[0]
+
+    def _derivatives(self, vp, e, de, presample):
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        p, q = self.p, self.q
+        asym = self.asymmetric
+        e2, sbar, neg, P, N = self._inputs(e, presample, np.mean)
+        sig2, den, tail, m = self._run(omega, alpha, gamma, beta, P, N, sbar)
+        # D_t = RHS_t + sum_j beta_j D_{t-j}; rows: mean parameters, then the linear coefficients
+        nm = de.shape[0]
+        n_lin = 1 + p * (2 if asym else 1) + q
+        RHS = np.zeros((nm + n_lin, m))
+        ZI = np.zeros((nm + n_lin, q)) if q else None
+        if nm:
+            dE2 = 2.0 * e * de  # (nm x n)
+            dsbar = dE2.mean(axis=1)
+            if asym:
+                dN2 = np.where(neg, dE2, 0.0)
+                dnbar = dN2.mean(axis=1)
+            if presample == "mean":
+                dP = np.concatenate([np.repeat(dsbar[:, None], p, axis=1), dE2], axis=1)
+                if asym:
+                    dN = np.concatenate([np.repeat(dnbar[:, None], p, axis=1), dN2], axis=1)
+            else:
+                dP = dE2
+                if asym:
+                    dN = dN2
+            for i in range(1, p + 1):
+                RHS[:nm] += alpha[i - 1] * dP[:, p - i: p - i + m]
+                if asym:
+                    RHS[:nm] += gamma[i - 1] * dN[:, p - i: p - i + m]
+            if q:
+                ZI[:nm] = dsbar[:, None] * tail[None, :]
+        base = nm
+        RHS[base] = 1.0
+        for i in range(1, p + 1):
+            RHS[base + i] = P[p - i: p - i + m]
+        off = base + p + 1
+        if asym:
+            for i in range(1, p + 1):
+                RHS[base + p + i] = N[p - i: p - i + m]
+            off += p
+        for j in range(1, q + 1):
+            lag = np.empty(m)
+            lag[:j] = sbar
+            lag[j:] = sig2[:-j]
+            RHS[off + j - 1] = lag
+        if q:
+            D, _ = lfilter([1.0], den, RHS, axis=1, zi=ZI)
+        else:
+            D = RHS
+        J = self._jacobian()
+        if J is not None:
+            D = np.concatenate([D[:nm], J.T @ D[nm:]])
+        return sig2, D
+
+    # ------------------------------------------------------------------ adjoint
+    def _forward(self, vp, e, presample):
+        st = _State()
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        st.e = e
+        st.omega, st.alpha, st.gamma, st.beta = omega, alpha, gamma, beta
+        st.mean_mode = presample == "mean"
+        e2, sbar, neg, P, N = self._inputs(e, presample, lambda a: a.sum() * (1.0 / len(a)))
+        st.sbar, st.neg, st.P, st.N = sbar, neg, P, N
+        st.sig2, st.den, st.tail, st.m = self._run(omega, alpha, gamma, beta, P, N, sbar)
+        return st
+
+    def _adjoint(self, st, w, de, gm):
+        p, q = self.p, self.q
+        asym = self.asymmetric
+        alpha, gamma = st.alpha, st.gamma
+        P, N, m, sbar = st.P, st.N, st.m, st.sbar
+        lam = linear_filter(st.den, np.ascontiguousarray(w[::-1]))[::-1] if q else w
+        g = np.zeros(1 + p * (2 if asym else 1) + q)
+        g[0] = lam.sum()
+        for i in range(1, p + 1):
+            g[i] = P[p - i: p - i + m] @ lam
+            if asym:
+                g[p + i] = N[p - i: p - i + m] @ lam
+        off = p + 1 + (p if asym else 0)
+        for j in range(1, q + 1):
+            lag = np.empty(m)
+            lag[:j] = sbar
+            lag[j:] = st.sig2[:-j]
+            g[off + j - 1] = lag @ lam
+        if gm is not None and len(gm):
+            e = st.e
+            dE2 = 2.0 * e * de
+            dsbar = dE2.sum(axis=1) * (1.0 / len(e))
+            if asym:
+                dN2 = np.where(st.neg, dE2, 0.0)
+                dnbar = dN2.mean(axis=1)
+            for i in range(1, p + 1):
+                lo, hi = p - i, p - i + m  # window in padded coordinates
+                if st.mean_mode:
+                    pre = max(0, p - lo)  # how many presample entries the window covers
+                    part = dE2[:, max(lo - p, 0): hi - p] @ lam[pre:]
+                    gm += alpha[i - 1] * (dsbar * lam[:pre].sum() + part)
+                    if asym:
+                        gm += gamma[i - 1] * (dnbar * lam[:pre].sum() + dN2[:, max(lo - p, 0): hi - p] @ lam[pre:])
+                else:
+                    gm += alpha[i - 1] * (dE2[:, lo:hi] @ lam)
+                    if asym:
+                        gm += gamma[i - 1] * (dN2[:, lo:hi] @ lam)
+            if q:
+                gm += dsbar * (lam[:q] @ st.tail)
+        J = self._jacobian()
+        return g if J is None else J.T @ g
+
+    # ------------------------------------------------------------------ summary figures
+    def _persistence(self, vp, eta, dist):
+        _, alpha, gamma, beta = self._coefficients(vp)
+        pers = float(alpha.sum() + beta.sum())
+        if self.asymmetric:
+            pers += float(gamma.sum()) * dist.neg_sq_moment(eta)
+        return pers
+
+    def _uncond_variance(self, vp, eta, dist):
+        pers = self._persistence(vp, eta, dist)
+        if pers is None or pers >= 1.0:
+            return None
+        return float(self._coefficients(vp)[0] / (1.0 - pers))
+
+    # ------------------------------------------------------------------ checks
+    def _check_fixed(self, name, value):
+        if name == "omega" and value <= 0:
+            raise InputError(f"options: omega must be greater than 0, got {value:g}")
+
+    def _check(self, d, eta, dist):
+        if not d["omega"] > 0:
+            raise InputError(f"omega must be greater than 0, got {d['omega']:g}")
+        for n, v in d.items():
+            if (n.startswith("alpha") or n.startswith("beta")) and v < 0:
+                raise InputError(f"{n} must be 0 or more, got {v:g}")
+
+    def _admissible(self, vp, eta, dist, held):
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        if not omega > 0 or np.any(alpha < 0) or np.any(beta < 0):
+            return False
+        if self.asymmetric and np.any(alpha + gamma < 0):
+            return False
+        if held:
+            return True  # held on the bound by construction
+        pers = float(alpha.sum() + beta.sum())
+        if self.asymmetric:
+            pers += float(gamma.sum()) * dist.neg_sq_moment(eta)
+        return pers < 1.0
+
+    def _box(self, var):
+        out = [(0.05 * var, (var * 1e-9, None))]
+        out += [(0.05, (0.0, 1.0))] * self.p
+        if self.asymmetric:
+            out += [(0.05, (-1.0, 1.0))] * self.p
+        return out + [(0.05, (0.0, 1.0))] * self.q
+
+    # ------------------------------------------------------------------ estimator's needs
+    def _grid(self):
+        """(alpha total, gamma total, beta total) of the starting points."""
+        return [(a, 0.0, b) for a, b in ((0.05, 0.9), (0.1, 0.8), (0.2, 0.6), (0.3, 0.3))]
+
+    def _start_persistence(self, a_tot, g_tot, b_tot):
+        return a_tot + 0.5 * g_tot + (b_tot if self.q else 0.0)
+
+    def _starts(self, v):
+        p, q = self.p, self.q
+        out = []
+        for a_tot, g_tot, b_tot in self._grid():
+            vp = np.zeros(self.n_params)
+            for i in range(1, p + 1):
+                vp[i] = a_tot / p
+                if self.asymmetric:
+                    vp[p + i] = g_tot / p
+            off = 1 + p * (2 if self.asymmetric else 1)
+            for j in range(1, q + 1):
+                vp[off + j - 1] = b_tot / q
+            pers = self._start_persistence(a_tot, g_tot, b_tot)
+            vp[0] = v * max(1.0 - pers, 0.02)
+            out.append(vp)
+        return out
+
+    def _target(self, vp, vbar, eta, dist):
+        vp[0] = 0.0
+        pers = self._persistence(vp, eta, dist)
+        vp[0] = vbar * (1.0 - pers)
+
+    def _sum_rule(self, eta, dist):
+        implied = f"beta[{self.q}]" if self.q else f"alpha[{self.p}]"
+        weights = {n: 1.0 for n in self.param_names if n.startswith("alpha") or n.startswith("beta")}
+        if self.asymmetric:
+            kappa = dist.neg_sq_moment(eta)
+            weights.update({n: kappa for n in self.param_names if n.startswith("gamma")})
+        return implied, weights
+
+    # ------------------------------------------------------------------ forecast
+    def _forecast(self, vp, eta, dist, history, H, rng, paths):
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        p, q = self.p, self.q
+        asym = self.asymmetric
+        kappa = self._kappa(eta, dist)
+        e_obs = history.e
+        e2 = list(e_obs ** 2)
+        n2 = list(np.where(e_obs < 0, e_obs ** 2, 0.0))
+        s2 = list(history.s2)
+        n_e = len(e2)
+        n_s = len(s2)
+        out = []
+        for h in range(H):
+            v = omega
+            for i in range(1, p + 1):
+                k = h + 1 - i  # steps ahead of the lagged shock (<= 0: observed)
+                if k <= 0:
+                    v += alpha[i - 1] * e2[n_e - 1 + k]
+                    if asym:
+                        v += gamma[i - 1] * n2[n_e - 1 + k]
+                else:
+                    v += (alpha[i - 1] + (kappa * gamma[i - 1] if asym else 0.0)) * out[k - 1]
+            for j in range(1, q + 1):
+                k = h + 1 - j
+                v += beta[j - 1] * (s2[n_s - 1 + k] if k <= 0 else out[k - 1])
+            out.append(v)
+        return np.array(out), False
+
+    # ------------------------------------------------------------------ simulation
+    def _sim_level(self, vp, eta, dist):
+        """Starting variance of fresh paths: the unconditional one (100 omega where undefined)."""
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        pers = alpha.sum() + self._kappa(eta, dist) * gamma.sum() + beta.sum()
+        return omega / (1.0 - pers) if pers < 1 else omega * 100.0
+
+    def _sim_start(self, vp, eta, dist, paths):
+        s0 = self._sim_level(vp, eta, dist)
+        kappa = self._kappa(eta, dist)
+        # before the start each lagged square is at its expectation s0, its negative part at kappa s0
+        return _SimState([s0] * self.p, [kappa * s0] * self.p, [s0] * self.q)
+
+    def _sim_continue(self, vp, eta, dist, history):
+        e = history.e[len(history.e) - self.p:] if self.p else []
+        e2 = [x * x for x in e]
+        n2 = [x * x if x < 0 else 0.0 for x in e]
+        s2 = list(history.s2[len(history.s2) - self.q:]) if self.q else []
+        return _SimState(e2, n2, s2)
+
+    def _sim_variance(self, state, vp, eta, dist):
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        v = omega
+        for i in range(1, self.p + 1):
+            v = v + alpha[i - 1] * state.e2[-i]
+            if self.asymmetric:
+                v = v + gamma[i - 1] * state.n2[-i]
+        for j in range(1, self.q + 1):
+            v = v + beta[j - 1] * state.s2[-j]
+        return v
+
+    def _sim_push(self, state, e, z, s2):
+        if self.p:
+            e2 = e * e
+            state.e2 = state.e2[1:] + [e2]
+            if self.asymmetric:
+                state.n2 = state.n2[1:] + [np.where(e < 0, e2, 0.0)]
+        if self.q:
+            state.s2 = state.s2[1:] + [s2]
+
+    # ------------------------------------------------------------------ news impact
+    def _news_level(self, vp, eta, dist):
+        """The lagged variance the news-impact curve holds fixed: the unconditional one."""
+        s2 = self._uncond_variance(vp, eta, dist)
+        if s2 is None:
+            raise InputError("the news-impact curve needs a stationary model (persistence below 1)")
+        return s2
+
+    def _news_impact(self, vp, eta, dist, e):
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        s2 = self._news_level(vp, eta, dist)
+        if not self.asymmetric:
+            gamma = np.zeros(self.p)
+        kappa = self._kappa(eta, dist)
+        rest = float(np.sum(alpha[1:] + kappa * gamma[1:])) * s2  # later lags at their expectation
+        return omega + (alpha[0] + gamma[0] * (e < 0)) * e ** 2 + rest + beta.sum() * s2
+

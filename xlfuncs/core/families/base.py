@@ -1,0 +1,351 @@
+"""The protocol every variance family follows.
+
+A family is a class; an instance is the family at given orders (``Garch(1, 1)``).  As in
+``scipy.stats``, the public methods check what they are given and then call a private hook
+(``persistence`` calls ``_persistence``) that may assume clean input; a family overrides the
+hooks only.  Shared mathematics lives in private helpers (:mod:`._linear` for the recursions
+linear in lagged squares).
+
+The variance parameters ``vp`` are always the family's slice of the full parameter vector, in
+the order of :attr:`VarianceFamily.param_names`; ``eta`` are the distribution's parameters and
+``dist`` the :class:`~xlfuncs.core.distributions.Distribution` (families whose figures depend on
+the shocks' distribution read it, the others ignore it).
+
+| hook | what the family says |
+| --- | --- |
+| ``_names`` | parameter names for its orders |
+| ``_box`` | optimiser scale and box bounds per parameter |
+| ``_check`` | typed-in parameters outside the domain: raise with a message a user can act on |
+| ``_admissible`` | the estimator's admissible region (positivity, stationarity) |
+| ``_variance`` | the conditional variances on the likelihood positions |
+| ``_derivatives``, ``_forward``, ``_adjoint`` | analytic scores and gradient (``analytic`` families) |
+| ``_persistence``, ``_uncond_variance``, ``_half_life`` | the fit table's summary figures |
+| ``_forecast`` | the h-step variance forecasts from the end of the sample |
+| ``_sim_start``, ``_sim_continue``, ``_sim_variance``, ``_sim_push`` | one simulation step at a time |
+| ``_news_impact`` | next period's variance against this period's shock |
+| ``_starts``, ``_target``, ``_sum_rule`` | what the estimator needs: start values, variance targeting, the implied weight |
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..errors import InputError
+
+__all__ = ["VarianceFamily", "History", "stationary"]
+
+
+def stationary(coefs) -> bool:
+    """True if 1 - sum c_i L^i has all roots outside the unit circle."""
+    c = np.asarray(coefs, dtype=float)
+    if c.size == 0:
+        return True
+    if c.size == 1:
+        return abs(c[0]) < 1.0
+    roots = np.roots(np.concatenate([[1.0], -c]))  # z^n - c1 z^(n-1) - ... ; need |z| < 1
+    return bool(np.all(np.abs(roots) < 1.0))
+
+
+class History:
+    """The end of a sample as a variance recursion saw it.
+
+    ``e`` are the residuals on the positions the recursion read (lags included), ``s2`` the
+    conditional variances on the likelihood positions, and ``s0`` how many leading residuals
+    served as lags only (``presample=drop``), so that ``e[s0:]`` lines up with ``s2``.
+    """
+
+    __slots__ = ("e", "s2", "s0")
+
+    def __init__(self, e, s2, s0: int = 0):
+        self.e = np.asarray(e, dtype=float)
+        self.s2 = np.asarray(s2, dtype=float)
+        self.s0 = int(s0)
+        if len(self.e) - self.s0 != len(self.s2):
+            raise ValueError(f"history: {len(self.e)} residuals less {self.s0} lags do not match {len(self.s2)} variances")
+
+
+class VarianceFamily:
+    """Base class of the variance families; see the module docstring for the hooks."""
+
+    #: what :attr:`ModelSpec.variance` holds for this family (lower case)
+    key: str = ""
+    #: model-string words (upper case, the first is the canonical spelling); none for the
+    #: constant variance, which is the absence of a variance part
+    words: tuple = ()
+    #: how many orders the word takes: 0 (``EWMA``), 1 (``ARCH(p)``) or 2 (``GARCH(p,q)``)
+    n_orders: int = 2
+    #: the orders of the bare word
+    default_orders: tuple = (1, 1)
+    #: parameter-name stems the family brings, and which of them carry an index
+    stems: tuple = ()
+    indexed: tuple = ()
+    #: the variance moves with the data (False only for the constant variance)
+    varies: bool = True
+    #: analytic derivatives through the recursion (``_derivatives``, ``_forward``, ``_adjoint``)
+    analytic: bool = False
+    #: the gradient by the adjoint of the recursion (else the likelihood sums the forward scores)
+    has_adjoint: bool = False
+    #: the weights are held to sum to one, the last one implied (IGARCH)
+    integrated: bool = False
+    #: a maximum on the stationarity bound is re-estimated there with the weights held just below one
+    holds_at_bound: bool = False
+    #: the parameter variance targeting implies (``target=yes``), or None where it does not apply
+    targeted: str | None = None
+    #: fresh simulated paths need a burn-in to forget their start
+    burn_in: bool = True
+
+    def __init__(self, p: int = 0, q: int = 0):
+        self.p = int(p)
+        self.q = int(q)
+        self._param_names = tuple(self._names())
+        self.n_params = len(self._param_names)
+
+    # ------------------------------------------------------------------ model strings
+    @classmethod
+    def resolve(cls, word: str, orders: tuple) -> tuple:
+        """(key, p, q) for the word with these orders; ValueError saying why they are not allowed.
+
+        A family may hand a degenerate order to another (``GARCH(p,0)`` is ``ARCH(p)``).
+        """
+        p = orders[0] if len(orders) > 0 else 0
+        q = orders[1] if len(orders) > 1 else 0
+        return cls._resolve(word, p, q)
+
+    @classmethod
+    def _resolve(cls, word, p, q):
+        return cls.key, p, q
+
+    @property
+    def canonical(self) -> str:
+        """The variance part of a canonical model string: ``GARCH(1,1)``, ``ARCH(2)``, ``EWMA``."""
+        if not self.words:
+            return ""
+        word = self.words[0]
+        if self.n_orders == 0:
+            return word
+        if self.n_orders == 1:
+            return f"{word}({self.p})"
+        return f"{word}({self.p},{self.q})"
+
+    @property
+    def param_names(self) -> tuple:
+        return self._param_names
+
+    @property
+    def arch_lags(self) -> int:
+        """Lagged shocks the recursion reads (the observations ``presample=drop`` keeps as lags)."""
+        return self.p if self.varies else 0
+
+    @property
+    def garch_lags(self) -> int:
+        """Lagged variances the recursion reads."""
+        return self.q if self.varies else 0
+
+    @property
+    def diagnostic_order(self) -> int:
+        """The variance model's order that the Ljung-Box test on squared residuals allows for."""
+        return self.p + self.q if self.varies else 0
+
+    def __repr__(self) -> str:  # pragma: no cover - convenience
+        return f"{type(self).__name__}({self.p}, {self.q})"
+
+    # ------------------------------------------------------------------ checks
+    def _vp(self, vp) -> np.ndarray:
+        vp = np.asarray(vp, dtype=float)
+        if vp.shape != (self.n_params,):
+            raise ValueError(f"{self.canonical or 'constant variance'} takes {self.n_params} variance parameters "
+                             f"({', '.join(self.param_names)}), got {vp.size}")
+        return vp
+
+    def _named(self, vp) -> dict:
+        return dict(zip(self.param_names, (float(v) for v in vp)))
+
+    def check(self, vp, eta=(), dist=None) -> None:
+        """Raise InputError if given parameters lie outside the model's domain (typed fit tables)."""
+        vp = self._vp(vp)
+        for n, v in zip(self.param_names, vp):
+            if not math.isfinite(v):
+                raise InputError(f"parameter {n} must be a finite number, got {v}")
+        self._check(self._named(vp), np.asarray(eta, dtype=float), dist)
+
+    def _check(self, d, eta, dist):
+        pass
+
+    def check_fixed(self, name: str, value: float) -> None:
+        """Raise InputError if a value fixed in the options lies outside the parameter's domain."""
+        if name not in self.param_names:
+            raise ValueError(f"{name} is not a parameter of {self.canonical}")
+        self._check_fixed(name, float(value))
+
+    def _check_fixed(self, name, value):
+        pass
+
+    def admissible(self, vp, eta=(), dist=None, held: bool = False) -> bool:
+        """True inside the estimator's region; ``held``: the weights are held by a sum rule."""
+        return bool(self._admissible(self._vp(vp), np.asarray(eta, dtype=float), dist, held))
+
+    def _admissible(self, vp, eta, dist, held):
+        return True
+
+    def box(self, var: float) -> list:
+        """(scale, (lower, upper)) for each parameter, given the returns' variance ``var``."""
+        out = list(self._box(float(var)))
+        if len(out) != self.n_params:  # pragma: no cover - a family's own error
+            raise ValueError(f"{type(self).__name__}._box gave {len(out)} entries for {self.n_params} parameters")
+        return out
+
+    def _box(self, var):
+        return [(1.0, (None, None))] * self.n_params
+
+    # ------------------------------------------------------------------ the recursion
+    def variance(self, vp, e, presample: str = "mean", eta=(), dist=None) -> np.ndarray:
+        """Conditional variances on the likelihood positions from the residuals ``e``.
+
+        ``presample=mean``: every residual position is a likelihood position, lags before
+        the start at the mean squared residual; ``drop``: the first :attr:`arch_lags`
+        residuals are lags only.
+        """
+        if presample not in ("mean", "drop"):
+            raise ValueError(f"presample must be mean or drop, got {presample}")
+        return self._variance(self._vp(vp), np.asarray(e, dtype=float), presample, eta, dist)
+
+    def _variance(self, vp, e, presample, eta, dist):  # pragma: no cover - every family has one
+        raise NotImplementedError
+
+    def derivatives(self, vp, e, de, presample: str = "mean"):
+        """(sigma2, D): D stacks d sigma2 / d (mean parameters, then variance parameters), one
+        row each, given the residuals' derivatives ``de`` (mean parameters x residuals)."""
+        if not self.analytic:
+            raise NotImplementedError(f"{self.canonical} has no analytic derivatives")
+        return self._derivatives(self._vp(vp), np.asarray(e, dtype=float), np.asarray(de, dtype=float), presample)
+
+    def forward(self, vp, e, presample: str = "mean"):
+        """The recursion's state for :meth:`adjoint`; ``state.sig2`` holds the variances."""
+        if not self.has_adjoint:
+            raise NotImplementedError(f"{self.canonical} has no adjoint gradient")
+        return self._forward(self._vp(vp), e, presample)
+
+    def adjoint(self, state, w, de, gm):
+        """Gradient of sum_t w_t sigma2_t in the variance parameters; adds the mean parameters'
+        part to ``gm`` in place (``de``: the residuals' derivatives)."""
+        return self._adjoint(state, w, de, gm)
+
+    # ------------------------------------------------------------------ summary figures
+    def persistence(self, vp, eta=(), dist=None) -> float | None:
+        """Sum of the recursion's own-lag weights; None where the variance does not move."""
+        return self._persistence(self._vp(vp), np.asarray(eta, dtype=float), dist)
+
+    def _persistence(self, vp, eta, dist):
+        return None
+
+    def uncond_variance(self, vp, eta=(), dist=None) -> float | None:
+        """E[sigma^2]; None where undefined."""
+        return self._uncond_variance(self._vp(vp), np.asarray(eta, dtype=float), dist)
+
+    def _uncond_variance(self, vp, eta, dist):
+        return None
+
+    def half_life(self, vp, eta=(), dist=None) -> float | None:
+        """Periods for a variance shock to halve, ln(1/2) / ln(persistence); None where undefined."""
+        return self._half_life(self._vp(vp), np.asarray(eta, dtype=float), dist)
+
+    def _half_life(self, vp, eta, dist):
+        pers = self._persistence(vp, eta, dist)
+        if pers is None or not (0.0 < pers < 1.0):
+            return None
+        return math.log(0.5) / math.log(pers)
+
+    # ------------------------------------------------------------------ forecasts
+    def forecast(self, vp, eta, dist, history: History, horizon: int, rng=None, paths: int = 0):
+        """(variance forecasts for steps 1..horizon, simulated?) from the end of the sample.
+
+        Families without a closed form average ``paths`` simulated paths drawn from ``rng``.
+        """
+        if not isinstance(history, History):
+            raise TypeError("history must be a History")
+        H = int(horizon)
+        if H < 1:
+            raise ValueError(f"horizon must be 1 or more, got {horizon}")
+        return self._forecast(self._vp(vp), np.asarray(eta, dtype=float), dist, history, H, rng, paths)
+
+    def _forecast(self, vp, eta, dist, history, H, rng, paths):  # pragma: no cover
+        raise NotImplementedError
+
+    def _simulated_forecast(self, vp, eta, dist, history, H, rng, paths):
+        """The mean over simulated paths of each step's variance (for families with no closed form)."""
+        state = self._sim_continue(vp, eta, dist, history)
+        out = np.empty(H)
+        for h in range(H):
+            z = dist.rvs(paths, eta, rng)
+            s2 = self._sim_variance(state, vp, eta, dist)
+            out[h] = float(np.mean(s2))
+            self._sim_push(state, np.sqrt(s2) * z, z, s2)
+        return out
+
+    # ------------------------------------------------------------------ simulation
+    def sim_start(self, vp, eta, dist, paths: int):
+        """The state of ``paths`` fresh paths before their first period."""
+        return self._sim_start(self._vp(vp), np.asarray(eta, dtype=float), dist, int(paths))
+
+    def sim_continue(self, vp, eta, dist, history: History):
+        """The state of paths that continue the sample ``history``."""
+        if not isinstance(history, History):
+            raise TypeError("history must be a History")
+        return self._sim_continue(self._vp(vp), np.asarray(eta, dtype=float), dist, history)
+
+    def sim_step(self, state, vp, eta, dist, z):
+        """One period: (variance, shock) with standardised draws ``z``; the state moves on."""
+        vp = self._vp(vp)
+        eta = np.asarray(eta, dtype=float)
+        s2 = self._sim_variance(state, vp, eta, dist)
+        e = np.sqrt(s2) * z
+        self._sim_push(state, e, z, s2)
+        return s2, e
+
+    def _sim_start(self, vp, eta, dist, paths):  # pragma: no cover
+        raise NotImplementedError
+
+    def _sim_continue(self, vp, eta, dist, history):  # pragma: no cover
+        raise NotImplementedError
+
+    def _sim_variance(self, state, vp, eta, dist):  # pragma: no cover
+        raise NotImplementedError
+
+    def _sim_push(self, state, e, z, s2):  # pragma: no cover
+        raise NotImplementedError
+
+    # ------------------------------------------------------------------ news impact
+    def news_impact(self, vp, eta, dist, shocks) -> np.ndarray:
+        """Next period's variance as a function of this period's shock (Engle & Ng 1993)."""
+        return self._news_impact(self._vp(vp), np.asarray(eta, dtype=float), dist, np.asarray(shocks, dtype=float))
+
+    def _news_impact(self, vp, eta, dist, e):  # pragma: no cover
+        raise NotImplementedError
+
+    # ------------------------------------------------------------------ for the estimator
+    def starts(self, v: float) -> list:
+        """Starting points (variance parameter vectors) for residuals of mean square ``v``."""
+        return [np.asarray(s, dtype=float) for s in self._starts(float(v))]
+
+    def _starts(self, v):  # pragma: no cover
+        raise NotImplementedError
+
+    def target(self, vp, vbar: float, eta=(), dist=None) -> None:
+        """Variance targeting: set the targeted parameter in ``vp`` (in place) so that the
+        unconditional variance is ``vbar``."""
+        if self.targeted is None:
+            raise InputError(f"options: target=yes does not apply to {self.canonical}")
+        self._target(vp, float(vbar), np.asarray(eta, dtype=float), dist)
+
+    def _target(self, vp, vbar, eta, dist):  # pragma: no cover
+        raise NotImplementedError
+
+    def sum_rule(self, eta=(), dist=None):
+        """(implied parameter, {parameter: weight}) of the rule sum weight * parameter = constant
+        that IGARCH imposes and that holds a fit on the stationarity bound; None where none applies."""
+        return self._sum_rule(np.asarray(eta, dtype=float), dist)
+
+    def _sum_rule(self, eta, dist):
+        return None
