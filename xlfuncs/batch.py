@@ -625,7 +625,7 @@ def check_arguments(model, dist, options, horizon, level) -> None:
                 eta = d.start().copy()
                 eta[d.param_names.index(name)] = value
                 d.check(eta)
-            elif name == "omega" and spec.variance != "egarch" and value <= 0:
+            elif name == "omega" and not spec.family.log_variance and value <= 0:
                 raise InputError(f"options: omega must be greater than 0, got {value:g}")
     except InputError as exc:
         raise PanelError(str(exc)) from None

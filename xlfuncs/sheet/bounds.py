@@ -13,6 +13,7 @@ data).
 from __future__ import annotations
 
 from ..core.errors import InputError
+from ..core.families.egarch import Egarch
 
 __all__ = [
     "BoundError", "FIT_PARAMS", "EGARCH_FIT_PARAMS", "COMPARE_CANDIDATES", "COMPARE_WORK", "EGARCH_WEIGHT",
@@ -27,7 +28,7 @@ __all__ = [
 FIT_PARAMS = 16
 #: the same for EGARCH, whose recursion is a loop with numerical derivatives: the slowest 6-parameter
 #: fit measured 8-10 s (ZERO-EGARCH(1,2), t shocks), 7-parameter ones up to 18 s (ARMA(1,1)-EGARCH(1,1))
-EGARCH_FIT_PARAMS = 6
+EGARCH_FIT_PARAMS = Egarch.max_fit_params  # 6, kept with the family
 #: VOLCOMPARE candidates (models x distributions) in one call: 24 of the usual kind took 1.2 s,
 #: 60 took 5.4 s
 COMPARE_CANDIDATES = 24
@@ -36,7 +37,7 @@ COMPARE_CANDIDATES = 24
 #: weighs 1,627 and took 5.6 s; 7 models of 16 parameters (1,792) 5.0 s; two 6-parameter EGARCH
 #: models (1,800) 13 s, which this bound refuses
 COMPARE_WORK = 1_700
-EGARCH_WEIGHT = 25
+EGARCH_WEIGHT = Egarch.cost_weight  # 25, kept with the family
 #: VOLBACKTEST's work in the units of COMPARE_WORK: each estimation weighs its returns times the
 #: model's weight; for an EGARCH model each forecast also weighs window x (2 + p + q) / 2 for
 #: evaluating the model and paths x (3 + p + q) / 100 for its simulated one-step variance.
@@ -68,10 +69,10 @@ def _n_params(spec, dist) -> int:
 def check_fit(spec, dist) -> None:
     """A model a worksheet call may estimate: at most FIT_PARAMS parameters (EGARCH_FIT_PARAMS)."""
     k = _n_params(spec, dist)
-    egarch = spec.variance == "egarch"
-    limit = EGARCH_FIT_PARAMS if egarch else FIT_PARAMS
+    special = spec.family.max_fit_params
+    limit = FIT_PARAMS if special is None else min(special, FIT_PARAMS)
     if k > limit:
-        kind = "EGARCH models" if egarch else "models"
+        kind = f"{spec.variance_canonical.split('(')[0]} models" if special is not None else "models"
         raise BoundError(f"{spec.canonical} with {dist.name} shocks has {k} parameters; a worksheet call estimates "
                          f"{kind} of at most {limit} (a larger one can take well over ten seconds); "
                          "fit it with the volcast fit command instead")
@@ -80,7 +81,7 @@ def check_fit(spec, dist) -> None:
 def weight(spec, dist) -> int:
     """The work units of estimating one candidate: k x k, EGARCH_WEIGHT x k x k for EGARCH."""
     k = _n_params(spec, dist)
-    return k * k * (EGARCH_WEIGHT if spec.variance == "egarch" else 1)
+    return k * k * spec.family.cost_weight
 
 
 def check_compare(n: int, candidates) -> None:
@@ -90,7 +91,7 @@ def check_compare(n: int, candidates) -> None:
                          "(split the comparison over several cells)")
     work = sum(weight(spec, dist) for spec, dist in candidates)
     if work > COMPARE_WORK:
-        egarch = sum(1 for spec, _ in candidates if spec.variance == "egarch")
+        egarch = sum(1 for spec, _ in candidates if spec.family.cost_weight > 1)
         raise BoundError(f"the candidates weigh {work:,} units of work ({egarch} EGARCH among them); at most "
                          f"{COMPARE_WORK:,} in one call, about ten seconds (a model with k parameters weighs k x k, "
                          f"an EGARCH one {EGARCH_WEIGHT} x k x k); split the comparison over several cells")
@@ -104,14 +105,14 @@ def check_backtest(spec, dist, n: int, window: int, scheme: str, refit: int, est
         check_fit(spec, dist)
         starts = range(0, steps, max(refit, 1))
         estimations = sum(window if scheme == "rolling" else window + i for i in starts) * weight(spec, dist)
-    if spec.variance == "egarch":
+    if spec.family.simulated_forecast:  # forecasts by simulation, recursions in a loop
         lags = spec.p + spec.q
         evaluations = sum((window if scheme == "rolling" else window + i) for i in range(steps)) * (2 + lags) // 2
         draws = steps * paths * (3 + lags) // 100
     work = estimations + evaluations + draws
     if work > BACKTEST_WORK:
         parts = f"estimations {estimations:,}"
-        if spec.variance == "egarch":
+        if spec.family.simulated_forecast:
             parts += f", EGARCH evaluations {evaluations:,}, simulated draws {draws:,}"
         raise BoundError(f"this backtest weighs {work:,} units of work ({parts}); a worksheet call does at most "
                          f"{BACKTEST_WORK:,}, about ten seconds; raise refit=, shorten the window or the returns, "

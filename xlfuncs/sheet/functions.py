@@ -115,7 +115,7 @@ def VOLFORECAST(returns, fit, horizon=None, what=None):
     h = int_arg(horizon, "horizon", 1, MAX_HORIZON)
     w = _choice(what, "what", _FORECAST_WHAT, "variance")
     table, data, result = _table_and_returns(returns, fit)
-    if table.spec.variance == "egarch":
+    if table.spec.family.simulated_forecast:
         check_draws(_paths(table.options), h, "VOLFORECAST of an EGARCH model")
     fc = core_forecast(result, data.values, h, seed=table.options.seed, paths=table.options.paths)
     if not (np.all(np.isfinite(fc.variance)) and np.all(np.isfinite(fc.cumvar)) and np.all(np.isfinite(fc.mean))):
@@ -256,7 +256,7 @@ def VOLRISK(returns, fit, level=None, horizon=None):
     lv = float_arg(level, "level", 0.99, "0.99")
     h = int_arg(horizon, "horizon", 1, MAX_HORIZON, default=1)
     table, data, result = _table_and_returns(returns, fit)
-    if h > 1 or table.spec.variance == "egarch":
+    if h > 1 or table.spec.family.simulated_forecast:
         check_draws(_paths(table.options), h, "VOLRISK")
     rk = core_risk(result, data.values, lv, h, paths=table.options.paths, seed=table.options.seed)
     values = [rk.var, rk.es, rk.mean, rk.sd]

@@ -85,6 +85,15 @@ class VarianceFamily:
     varies: bool = True
     #: analytic derivatives through the recursion (``_derivatives``, ``_forward``, ``_adjoint``)
     analytic: bool = False
+    #: how much harder one estimation is than a linear family's with as many parameters (the
+    #: worksheet bounds weigh candidates by it; measured by benchmarks/bounds_timing.py)
+    cost_weight: int = 1
+    #: the most parameters a worksheet call estimates for this family (None: the general bound)
+    max_fit_params: int | None = None
+    #: multi-step variance forecasts by seeded simulation (no closed form)
+    simulated_forecast: bool = False
+    #: the recursion is in the log of the variance, so omega may take any sign
+    log_variance: bool = False
     #: the gradient by the adjoint of the recursion (else the likelihood sums the forward scores)
     has_adjoint: bool = False
     #: the weights are held to sum to one, the last one implied (IGARCH)

@@ -28,6 +28,10 @@ class _SimState:
 
 class Egarch(VarianceFamily):
     key = "egarch"
+    cost_weight = 25  # EGARCH estimations cost about 25 times a linear family's (bounds_timing.py)
+    max_fit_params = 6
+    simulated_forecast = True
+    log_variance = True
     words = ("EGARCH",)
     stems = ("omega", "alpha", "gamma", "beta")
     indexed = ("alpha", "gamma", "beta")
