@@ -211,7 +211,8 @@ def build(path: Path, cfg: dict) -> Path:
     model["H3"] = f"=VOLTESTS(returns, {FIT})"
     model["H14"] = "Candidate models (ranked by BIC)"
     model["H14"].font = TITLE
-    model["H16"] = f'=VOLCOMPARE(returns, "GARCH(1,1), GJR-GARCH(1,1), EGARCH(1,1)", "normal, t", {OPTS})'
+    # EWMA is the practitioner's baseline the fitted models are compared with
+    model["H16"] = f'=VOLCOMPARE(returns, "EWMA, GARCH(1,1), GJR-GARCH(1,1), EGARCH(1,1)", "normal, t", {OPTS})'
     for col, w in zip("ABCDEFGH", (16, 22, 12, 10, 12, 2, 2, 22)):
         model.column_dimensions[col].width = w
 
