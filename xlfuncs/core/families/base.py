@@ -85,6 +85,8 @@ class VarianceFamily:
     varies: bool = True
     #: analytic derivatives through the recursion (``_derivatives``, ``_forward``, ``_adjoint``)
     analytic: bool = False
+    #: the fewest ARCH terms (the first order) a model string of this family may give
+    min_arch_terms: int = 0
     #: how much harder one estimation is than a linear family's with as many parameters (the
     #: worksheet bounds weigh candidates by it; measured by benchmarks/bounds_timing.py)
     cost_weight: int = 1
@@ -120,6 +122,8 @@ class VarianceFamily:
         """
         p = orders[0] if len(orders) > 0 else 0
         q = orders[1] if len(orders) > 1 else 0
+        if p < cls.min_arch_terms:
+            raise ValueError(f"{word} needs at least one ARCH term (its first order must be 1 or more)")
         return cls._resolve(word, p, q)
 
     @classmethod

@@ -14,7 +14,6 @@ import numpy as np
 
 from ..errors import InputError
 from .base import VarianceFamily, stationary
-from .garch import need_arch_term
 
 
 class _SimState:
@@ -36,10 +35,7 @@ class Egarch(VarianceFamily):
     stems = ("omega", "alpha", "gamma", "beta")
     indexed = ("alpha", "gamma", "beta")
 
-    @classmethod
-    def _resolve(cls, word, p, q):
-        need_arch_term(word, p)
-        return cls.key, p, q
+    min_arch_terms = 1
 
     def _names(self):
         return (["omega"] + [f"alpha[{i}]" for i in range(1, self.p + 1)]

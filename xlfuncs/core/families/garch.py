@@ -5,12 +5,6 @@ from __future__ import annotations
 from ._linear import LinearFamily
 
 
-def need_arch_term(word: str, p: int) -> None:
-    """The first order of a (p,q) family counts ARCH terms; at least one is needed."""
-    if p < 1:
-        raise ValueError(f"{word} needs at least one ARCH term (its first order must be 1 or more)")
-
-
 class Garch(LinearFamily):
     key = "garch"
     words = ("GARCH",)
@@ -18,10 +12,10 @@ class Garch(LinearFamily):
     indexed = ("alpha", "beta")
     holds_at_bound = True
     targeted = "omega"
+    min_arch_terms = 1
 
     @classmethod
     def _resolve(cls, word, p, q):
-        need_arch_term(word, p)
         if q == 0:  # GARCH(p,0) is ARCH(p)
             from .arch import Arch
 

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 from ..errors import InputError
 from ._linear import LinearFamily
-from .garch import need_arch_term
 
 
 class Gjr(LinearFamily):
@@ -21,10 +20,7 @@ class Gjr(LinearFamily):
     holds_at_bound = True
     targeted = "omega"
 
-    @classmethod
-    def _resolve(cls, word, p, q):
-        need_arch_term(word, p)
-        return cls.key, p, q
+    min_arch_terms = 1
 
     def _check(self, d, eta, dist):
         super()._check(d, eta, dist)

@@ -10,7 +10,6 @@ import numpy as np
 
 from ..errors import InputError
 from ._linear import LinearFamily
-from .garch import need_arch_term
 
 
 class Igarch(LinearFamily):
@@ -20,10 +19,7 @@ class Igarch(LinearFamily):
     indexed = ("alpha", "beta")
     integrated = True
 
-    @classmethod
-    def _resolve(cls, word, p, q):
-        need_arch_term(word, p)
-        return cls.key, p, q
+    min_arch_terms = 1
 
     def _check(self, d, eta, dist):
         super()._check(d, eta, dist)
