@@ -306,3 +306,17 @@ def test_encodings_and_separators_fit_the_same_numbers(corpus, capsys, label):
     other = capsys.readouterr().out.splitlines()
     assert other[0].endswith(f"{f[label].name}: {N} returns")
     assert other[1:] == good[1:]  # the same table, to every printed digit
+
+
+def test_a_reader_that_stops_early_is_not_an_error():
+    """`volcast fit FILE | head -2`: the pipe closes before the table is printed (common shell use)."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    data = Path(__file__).resolve().parent.parent / "demo_data" / "demo_returns.csv"
+    proc = subprocess.Popen([sys.executable, "-c", "import sys; from xlfuncs.cli import main; sys.exit(main())",
+                             "fit", str(data)], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    proc.stdout.close()  # before the table is written
+    err = proc.stderr.read().decode()
+    assert proc.wait(timeout=120) == 0 and "internal error" not in err and "Traceback" not in err, err

@@ -606,6 +606,12 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("volcast: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # the reader stopped early (volcast fit ... | head): not an error; keep Python quiet at exit
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except Exception as exc:  # noqa: BLE001 - never a traceback; each case found is fixed at its source
         print(f"volcast: internal error: {type(exc).__name__}: {excerpt(exc, 200)}; please report it",
               file=sys.stderr)
