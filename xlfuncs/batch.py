@@ -19,11 +19,8 @@ a series' first number and after its last (the shorter series of a wide panel) a
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 import os
-import re
 import tempfile
 from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
@@ -31,6 +28,7 @@ from pathlib import Path
 import numpy as np
 
 from .core.errors import excerpt
+from .csvtext import MAX_FIELD_CHARS, PanelError, check_row_widths, decimal_comma_hint, read_csv_records
 
 __all__ = ["read_panel", "load_panel", "Panel", "PanelError", "run_one", "run_batch", "write_tidy", "check_output",
            "check_arguments", "lag1_autocorrelation", "looks_like_levels", "level_like_series", "levels_to_returns",
@@ -39,126 +37,12 @@ __all__ = ["read_panel", "load_panel", "Panel", "PanelError", "run_one", "run_ba
 COLUMNS = ["id", "kind", "name", "value", "std_error", "message"]
 OUTPUT_SUFFIXES = (".csv", ".parquet", ".pq")
 
-#: the longest CSV field read (Python's csv module stops at 128 KiB unless told otherwise); a longer
-#: field is refused: no number or name is that long, so the file is not a CSV of returns
-MAX_FIELD_CHARS = 1 << 20
-
 # Our own rule of thumb for telling price levels from returns (common practice, not a formal test):
 # returns have a lag-1 autocorrelation near zero, while a level series wanders like a random walk and
 # has one near one.  A column of positive numbers whose lag-1 autocorrelation exceeds 0.8 is taken to
 # be levels.  0.8 rather than 0.9 because short random walks fall below 0.9 often (in simulation about
 # half of 60-point walks do), while returns this autocorrelated would be most unusual.
 LEVELS_AUTOCORRELATION = 0.8
-
-
-class PanelError(ValueError):
-    """A file or argument the run cannot use at all; the message is one line for the terminal."""
-
-
-# ---------------------------------------------------------------------------------------------
-# CSV text
-
-
-def _read_text(path: Path) -> str:
-    """A text file's content: UTF-8 (with or without BOM), UTF-16 with a BOM, else Windows-1252."""
-    if not path.exists():
-        raise PanelError(f"{path}: no such file")
-    if path.is_dir():
-        raise PanelError(f"{path}: is a directory (a folder), not a file")
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise PanelError(f"{path}: cannot be read ({exc.strerror or type(exc).__name__})") from None
-    if raw[:2] in (b"\xff\xfe", b"\xfe\xff"):
-        try:
-            return raw.decode("utf-16")
-        except UnicodeDecodeError:
-            pass
-    if b"\x00" in raw:
-        raise PanelError(f"{path}: holds NUL bytes, so it is not a CSV text file (save it as CSV UTF-8)")
-    for enc in ("utf-8-sig", "cp1252"):
-        try:
-            return raw.decode(enc)
-        except UnicodeDecodeError:
-            continue
-    raise PanelError(f"{path}: is not text in UTF-8 or Windows-1252; save it as CSV UTF-8")
-
-
-def _delimiter(text: str) -> str:
-    """The separator the header line uses: comma, semicolon or tab (the one it holds most of)."""
-    first = next((line for line in text.splitlines() if line.strip()), "")
-    counts = {d: first.count(d) for d in (",", ";", "\t")}
-    best = max(counts, key=counts.get)
-    return best if counts[best] else ","
-
-
-def read_csv_records(path) -> list:
-    """[(line number, [cells])] of the non-blank records of a CSV file, the header first.
-
-    The encoding (UTF-8, UTF-16 with a BOM, Windows-1252) and the separator (comma, semicolon or
-    tab, from the header line) are found; cells are stripped of surrounding blanks.  Raises
-    :class:`PanelError` with one line when the file cannot be read so.
-    """
-    path = Path(path)
-    text = _read_text(path)
-    delim = _delimiter(text)
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delim)
-    out = []
-    csv.field_size_limit(MAX_FIELD_CHARS)
-    try:
-        for row in reader:
-            if any(c.strip() for c in row):
-                out.append((reader.line_num, [c.strip() for c in row]))
-    except csv.Error as exc:
-        line = max(reader.line_num, 1)
-        if "field larger than field limit" in str(exc):
-            raise PanelError(f"{path} line {line}: a field is longer than {MAX_FIELD_CHARS:,} characters (1 MiB); "
-                             "cannot be read as a CSV of numbers") from None
-        raise PanelError(f"{path} line {line}: cannot be read as CSV ({excerpt(exc, 80)})") from None
-    _check_separators(path, out, delim)
-    return out
-
-
-_SEPARATOR_NAMES = {",": "commas", ";": "semicolons", "\t": "tabs"}
-
-
-def check_row_widths(path, records) -> None:
-    """Refuse a data row with more filled fields than the header has columns (its cells would be
-    read under the wrong names); blank fields past the header's end (a trailing separator) are fine."""
-    if not records:
-        return
-    width = len(records[0][1])
-    for lineno, row in records[1:]:
-        if any(row[width:]):
-            first = next(c for c in row[width:] if c)
-            split = len(row) == width + 1 and re.fullmatch(r"[-+]?\d+", row[width - 1] or "x") and first.isdigit()
-            hint = ("a decimal comma in a comma-separated file? write 0.5, or separate the fields with semicolons"
-                    if split else "quote a field that holds the separator, or name every column")
-            raise PanelError(f"{path} line {lineno}: {len(row)} fields but the header names {width} "
-                             f"column{'s' if width != 1 else ''} (\"{excerpt(first)}\" has none); {hint}")
-
-
-def _check_separators(path, records, delim) -> None:
-    """A header separated by one character and data rows by another: refused naming both."""
-    if len(records) < 2 or len(records[0][1]) < 2:
-        return
-    for lineno, row in records[1:]:
-        if len(row) == 1:
-            others = [d for d in _SEPARATOR_NAMES if d != delim and d in row[0]]
-            if others:
-                raise PanelError(f"{path} line {lineno}: the header is separated by {_SEPARATOR_NAMES[delim]} but this "
-                                 f"line by {_SEPARATOR_NAMES[others[0]]}; use one separator throughout")
-
-
-_DECIMAL_COMMA = re.compile(r"[-+]?\d{1,3}(\.\d{3})*,\d+|[-+]?\d+,\d+")
-
-
-def decimal_comma_hint(cell: str) -> str:
-    """" (a decimal comma? write 0.5)" when a cell reads as a number written with a decimal comma."""
-    if _DECIMAL_COMMA.fullmatch(cell.strip()):
-        dotted = cell.strip().replace(".", "").replace(",", ".")
-        return f" (a decimal comma? write {excerpt(dotted)})"
-    return ""
 
 
 def _number(cell) -> float | None:

@@ -24,9 +24,7 @@ Nothing is written when a refresh is refused.
 
 from __future__ import annotations
 
-import csv
 import datetime as dt
-import io
 import math
 import os
 import re
@@ -68,54 +66,37 @@ def _date(v):
     return None
 
 
-def _read_text(path: Path) -> str:
-    try:
-        size = path.stat().st_size
-        if size > _MAX_CSV_BYTES:
-            raise RecalcError(f"{path}: {size:,} bytes is too large for a file of dates and levels")
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise RecalcError(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    for enc in ("utf-8-sig", "cp1252"):
-        try:
-            return raw.decode(enc)
-        except UnicodeDecodeError:
-            continue
-    raise RecalcError(f"{path}: not a text file")  # pragma: no cover - cp1252 decodes most bytes
-
-
 def _read_new(path: Path) -> list:
-    """[(line number, date, level)] from a CSV with a header naming columns date and level."""
-    text = _read_text(path)
-    first = text.splitlines()[0] if text.strip() else ""
-    delim = max((",", ";", "\t"), key=first.count) if first else ","
+    """[(line number, date, level)] from a CSV with a header naming columns date and level
+    (read by the commands' shared reader: encoding and separator found)."""
+    from ..csvtext import PanelError, decimal_comma_hint, read_csv_records
+
     try:
-        csv.field_size_limit(1 << 20)
-        rows = list(csv.reader(io.StringIO(text), delimiter=delim))
-    except csv.Error as exc:
-        raise RecalcError(f"{path}: cannot be read as CSV ({exc})") from None
-    if not rows or not any(c.strip() for c in rows[0]):
+        if path.is_file() and path.stat().st_size > _MAX_CSV_BYTES:
+            raise RecalcError(f"{path}: {path.stat().st_size:,} bytes is too large for a file of dates and levels")
+        records = read_csv_records(path)
+    except PanelError as exc:
+        raise RecalcError(str(exc)) from None
+    if not records:
         raise RecalcError(f"{path}: empty file; expected a header row with columns date and level")
-    header = [h.strip().lower() for h in rows[0]]
+    header = [h.lower() for h in records[0][1]]
     if "date" not in header or "level" not in header:
         shown = ", ".join(h for h in header if h)[:120]
         raise RecalcError(f"{path}: needs a header row with columns date and level (found: {shown})")
     di, li = header.index("date"), header.index("level")
     out = []
-    for lineno, r in enumerate(rows[1:], start=2):
-        if not any(c.strip() for c in r):
-            continue
-        raw_d = r[di].strip() if di < len(r) else ""
-        raw_v = r[li].strip() if li < len(r) else ""
+    for lineno, r in records[1:]:
+        raw_d = r[di] if di < len(r) else ""
+        raw_v = r[li] if li < len(r) else ""
         try:
             d = dt.date.fromisoformat(raw_d)
         except ValueError:
             raise RecalcError(f"{path} line {lineno}: cannot read a date (YYYY-MM-DD) from {raw_d[:40]!r}") from None
-        hint = " (a decimal comma? write 1234.5)" if re.fullmatch(r"-?\d+,\d+", raw_v) else ""
         try:
             v = float(raw_v)
         except ValueError:
-            raise RecalcError(f"{path} line {lineno}: the level {raw_v[:40]!r} on {d} is not a number{hint}") from None
+            raise RecalcError(f"{path} line {lineno}: the level {raw_v[:40]!r} on {d} is not a number"
+                              f"{decimal_comma_hint(raw_v)}") from None
         if not math.isfinite(v) or v <= 0:
             raise RecalcError(f"{path} line {lineno}: the level on {d} must be a positive finite number, got {raw_v[:40]}")
         out.append((lineno, d, v))
