@@ -38,3 +38,16 @@ def test_docstring_examples(module):
     mod = importlib.import_module(module)
     result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
     assert result.failed == 0
+
+
+def test_every_subpackage_is_shipped():
+    """pyproject.toml lists the packages a plain `pip install .` ships; a subpackage missing there
+    imports from a checkout (as the tests do) but not from an installed copy."""
+    import re
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parent.parent
+    listed = set(re.search(r"^packages = \[(.*?)\]", (root / "pyproject.toml").read_text(), re.M | re.S)
+                 .group(1).replace('"', "").replace(" ", "").split(","))
+    found = {".".join(p.parent.relative_to(root).parts) for p in (root / "xlfuncs").rglob("__init__.py")}
+    assert found <= listed, sorted(found - listed)
