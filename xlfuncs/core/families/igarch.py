@@ -36,6 +36,13 @@ class Igarch(LinearFamily):
     def _start_persistence(self, a_tot, g_tot, b_tot):
         return 0.9
 
+    def _news_impact(self, vp, eta, dist, e):
+        """omega plus the news term: an IGARCH has no long-run variance to hold the lagged
+        variances at, so (as for EWMA) the curve leaves out sum beta_j sigma2[t-j] and the later
+        lags' news; add them for the level you have."""
+        omega, alpha, _, _ = self._coefficients(vp)
+        return omega + alpha[0] * e ** 2
+
     def _starts(self, v):
         out = super()._starts(v)
         if not self.q:  # the alphas alone carry the unit sum
