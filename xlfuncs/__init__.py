@@ -9,8 +9,20 @@ Layers (imports run one way): ``xlfuncs.core`` (estimation, NumPy/SciPy only) <-
 ``xlfuncs.cli`` (the ``volcast`` command).
 """
 
-from .sheet import VOLBACKTEST, VOLCOMPARE, VOLCOVERAGE, VOLFIT, VOLFORECAST, VOLLOGLIK, VOLNEWS, VOLRISK, VOLSERIES, VOLSIM, VOLTESTS
-
 __all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE", "VOLCOVERAGE", "VOLSIM",
            "VOLNEWS", "VOLBACKTEST"]
 __version__ = "0.1.0"
+
+
+def __getattr__(name):
+    """The worksheet functions, imported on first use (PEP 562): ``volcast --help`` and the
+    command's start-up do not pay for NumPy and SciPy."""
+    if name in __all__:
+        from . import sheet
+
+        return getattr(sheet, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(list(globals()) + __all__)

@@ -16,9 +16,7 @@ import warnings
 from contextlib import contextmanager
 from dataclasses import dataclass
 
-from .batch import decimal_comma_hint
 from .core.errors import InputError, excerpt
-from .core.spec import parse_options
 
 __all__ = ["main", "read_returns_csv", "load_returns_csv"]
 
@@ -62,7 +60,7 @@ def load_returns_csv(path: str, column: str | None = None, skip_blanks: bool = F
     returns on both sides of it.  Without it, a column chosen by default that looks like price
     levels is refused; a column the caller named is taken as returns.
     """
-    from .batch import lag1_autocorrelation, looks_like_levels
+    from .batch import decimal_comma_hint, lag1_autocorrelation, looks_like_levels
 
     header, records = _csv_rows(path)
     col = _choose_column(path, header, records, column, levels)
@@ -215,6 +213,7 @@ def _core_error(exc) -> CliError:
 
 def _cmd_fit(args) -> int:
     from .core.errors import VolcastError
+    from .core.spec import parse_options
     from .sheet.fittable import encode
     from .sheet.functions import fit_from_cells
 
@@ -363,7 +362,7 @@ def _cmd_backtest(args) -> int:
     from .core.backtest import backtest
     from .core.distributions import get_distribution
     from .core.errors import VolcastError
-    from .core.spec import parse_model
+    from .core.spec import parse_model, parse_options
 
     try:
         spec, dist, opts = parse_model(args.model), get_distribution(args.dist), parse_options(args.options)
