@@ -462,11 +462,18 @@ def test_typed_table_risk_news_and_backtest(dmbp):
     assert refit["estimations"] == 2 and refit["forecasts"] == 10
 
 
-def test_compare_lists_figarch(dmbp):
+def test_compare_lists_figarch_and_its_nested_forms_in_order(dmbp):
+    """(0,d,0) is (0,d,1) with beta = 0 and (1,d,0) with varphi = 0, both of which are (1,d,1)
+    with one parameter at zero, inside the same positivity region: the maxima are ordered."""
     r = column(dmbp)
-    out = VOLCOMPARE(r, [["GARCH(1,1)", "FIGARCH(1,d,1)"]], "t")
+    out = VOLCOMPARE(r, "GARCH(1,1), FIGARCH(1,d,1), FIGARCH(0,d,1), FIGARCH(1,d,0), FIGARCH(0,d,0)", "t")
     rows = {row[0]: row for row in out[1:]}
     fig = rows["FIGARCH(1,d,1)"]
-    assert fig[7] is True and fig[6] == 1.0 and fig[3] == 6
+    assert fig[6] == 1.0 and fig[3] == 6
+    assert all(row[7] is True for row in out[1:])
     assert lre(fig[2], {row[0]: row[1] for row in VOLFIT(r, "FIGARCH(1,d,1)", "t")}["loglik"]) >= 10
-    assert fig[2] >= rows["GARCH(1,1)"][2]
+    ll = {m: row[2] for m, row in rows.items()}
+    tol = 1e-6
+    assert ll["FIGARCH(0,d,0)"] <= min(ll["FIGARCH(0,d,1)"], ll["FIGARCH(1,d,0)"]) + tol
+    assert max(ll["FIGARCH(0,d,1)"], ll["FIGARCH(1,d,0)"]) <= ll["FIGARCH(1,d,1)"] + tol
+    assert ll["GARCH(1,1)"] <= ll["FIGARCH(1,d,1)"] + tol

@@ -31,10 +31,11 @@ lambda_k = 0 beyond.  For 0 < d the untruncated weights sum to one (lambda(1) = 
 (1 - L)^d vanishes at L = 1); the 1,000 kept ones sum to Lambda_K < 1.
 
 Positivity (BBM 1996, sufficient conditions for FIGARCH(1,d,1), re-derived here from the
-recursion above): for 0 < d < 1 every delta_k (k >= 1) is negative, and the factor
-(varphi - (k - 1 - d)/k) is negative once (k - 1 - d)/k >= varphi; that ratio grows with k.  So
-lambda_1 >= 0, lambda_2 >= 0 and varphi <= (2 - d)/3 (the ratio at k = 3) make every term of the
-recursion from k = 3 on non-negative, and with beta >= 0 every weight is non-negative:
+recursion above): for 0 < d < 1 every delta_k (k >= 1) is negative, so the k-th term
+(varphi - (k - 1 - d)/k) delta_{k-1} is non-negative wherever (k - 1 - d)/k >= varphi, and that
+ratio grows with k (at d = 1 the terms from k = 3 on vanish).  So lambda_1 >= 0, lambda_2 >= 0 and
+varphi <= (2 - d)/3 (the ratio at k = 3) make every term from k = 3 on non-negative, and with
+beta >= 0 every weight is non-negative by induction:
 
     beta - d <= varphi <= (2 - d) / 3    and    d (varphi - (1 - d)/2) <= beta (varphi - beta + d),
 
