@@ -37,7 +37,10 @@ def _models():
             out.append("CONST")
             continue
         word = cls.words[0]
-        out.append(word if cls.n_orders == 0 else f"{word}(1)" if cls.n_orders == 1 else f"{word}(2,1)")
+        if cls.n_orders == 0 or cls.read_orders(word, None) is not None:  # no orders, or orders of its own form
+            out.append(word)
+            continue
+        out.append(f"{word}(1)" if cls.n_orders == 1 else f"{word}(2,1)")
     return out
 
 
@@ -56,13 +59,14 @@ def test_every_family_keeps_the_protocol(model):
     assert starts and all(s.shape == (fam.n_params,) for s in starts)
     # at least one start is admissible, and the recursion gives positive finite variances there
     rng = np.random.default_rng(1)
-    e = rng.standard_normal(300)
+    n = max(300, 2 * fam.arch_lags)  # enough residuals for presample=drop's lags
+    e = rng.standard_normal(n)
     good = [s for s in starts if fam.admissible(s, eta, dist, held=fam.integrated)]
     assert good
     sig2 = fam.variance(good[0], e, "mean", eta, dist)
-    assert sig2.shape == (300,) and np.all(np.isfinite(sig2)) and np.all(sig2 > 0)
+    assert sig2.shape == (n,) and np.all(np.isfinite(sig2)) and np.all(sig2 > 0)
     drop = fam.variance(good[0], e, "drop", eta, dist)
-    assert drop.shape == (300 - fam.arch_lags,)
+    assert drop.shape == (n - fam.arch_lags,)
     # forecasts and a simulation step from the end of that sample
     hist = History(e, sig2, 0)
     fvar, _ = fam.forecast(good[0], eta, dist, hist, 5, np.random.default_rng(2), 100)

@@ -29,7 +29,7 @@ from .distributions import Distribution, get_distribution
 from .errors import ConvergenceError, InputError
 from .families import FAMILIES, stationary
 from .likelihood import Likelihood
-from .spec import ModelSpec, Options, parse_model, parse_options
+from .spec import MAX_ORDER, ModelSpec, Options, parse_model, parse_options
 
 __all__ = ["FitResult", "fit", "evaluate", "persistence_of", "check_params"]
 
@@ -641,7 +641,10 @@ def _clean_returns(r, spec: ModelSpec) -> np.ndarray:
         bad = int(np.flatnonzero(~np.isfinite(r))[0]) + 1
         raise InputError(f"returns row {bad} is not a finite number")
     if r.size < spec.min_obs:
-        raise InputError(f"{spec.canonical} needs at least {spec.min_obs} returns, got {r.size}")
+        why = ""
+        if spec.arch_lags > MAX_ORDER:  # a long memory: say where the floor comes from
+            why = f" ({spec.arch_lags:,} lagged squares for its variance recursion and 3 per parameter)"
+        raise InputError(f"{spec.canonical} needs at least {spec.min_obs} returns, got {r.size}{why}")
     if np.ptp(r) == 0:
         raise InputError("returns are all the same number; a constant series has no variance to model")
     return r

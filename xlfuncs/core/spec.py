@@ -219,11 +219,15 @@ def parse_model(text) -> ModelSpec:
     if variance_part is not None:
         word, args = variance_part
         cls = WORDS[word]
-        if cls.n_orders == 0:
+        try:
+            orders = cls.read_orders(word, args)  # a family with orders of its own form
+        except ValueError as exc:
+            raise _bad_model(raw, str(exc)) from None
+        if orders is None and cls.n_orders == 0:
             if args is not None:
                 raise _bad_model(raw, f"{word} takes no order")
             orders = tuple(cls.default_orders)
-        else:
+        elif orders is None:
             orders = _orders(raw, word, args, cls.n_orders, tuple(cls.default_orders))
         try:
             variance, p, q = cls.resolve(word, orders)

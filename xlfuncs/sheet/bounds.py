@@ -91,10 +91,17 @@ def check_compare(n: int, candidates) -> None:
                          "(split the comparison over several cells)")
     work = sum(weight(spec, dist) for spec, dist in candidates)
     if work > COMPARE_WORK:
-        egarch = sum(1 for spec, _ in candidates if spec.family.cost_weight > 1)
-        raise BoundError(f"the candidates weigh {work:,} units of work ({egarch} EGARCH among them); at most "
+        heavy = {}  # the costlier families' words: [candidates, weight]
+        for spec, _ in candidates:
+            if spec.family.cost_weight > 1:
+                word = spec.variance_canonical.split("(")[0]
+                heavy.setdefault(word, [0, spec.family.cost_weight])[0] += 1
+        among = ", ".join(f"{n} {word}" for word, (n, _) in heavy.items()) or "0 EGARCH"
+        rules = {"EGARCH": EGARCH_WEIGHT, **{word: c for word, (_, c) in heavy.items()}}
+        rule = ", ".join(f"{'an' if word[0] in 'AEIOU' else 'a'} {word} one {c} x k x k" for word, c in rules.items())
+        raise BoundError(f"the candidates weigh {work:,} units of work ({among} among them); at most "
                          f"{COMPARE_WORK:,} in one call, about ten seconds (a model with k parameters weighs k x k, "
-                         f"an EGARCH one {EGARCH_WEIGHT} x k x k); split the comparison over several cells")
+                         f"{rule}); split the comparison over several cells")
 
 
 def check_backtest(spec, dist, n: int, window: int, scheme: str, refit: int, estimating: bool, paths: int) -> None:

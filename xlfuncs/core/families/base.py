@@ -130,6 +130,14 @@ class VarianceFamily:
     def _resolve(cls, word, p, q):
         return cls.key, p, q
 
+    @classmethod
+    def read_orders(cls, word: str, args: str | None):
+        """The orders in the parentheses after the word (``args``: upper case, no spaces; None
+        for the bare word), or None to read them as :attr:`n_orders` whole numbers.  A family
+        whose orders are not all numbers (``FIGARCH(1,d,1)``) reads its own text here and
+        raises ValueError saying what it expects."""
+        return None
+
     @property
     def canonical(self) -> str:
         """The variance part of a canonical model string: ``GARCH(1,1)``, ``ARCH(2)``, ``EWMA``."""
