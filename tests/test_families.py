@@ -37,7 +37,12 @@ def _models():
             out.append("CONST")
             continue
         word = cls.words[0]
-        out.append(word if cls.n_orders == 0 else f"{word}(1)" if cls.n_orders == 1 else f"{word}(2,1)")
+        model = word if cls.n_orders == 0 else f"{word}(1)" if cls.n_orders == 1 else f"{word}(2,1)"
+        try:
+            parse_model(model)
+        except ValueError:  # a family of one order only (CGARCH(1,1)): its bare word
+            model = word
+        out.append(model)
     return out
 
 
