@@ -40,7 +40,12 @@ def _models():
         if cls.n_orders == 0 or cls.read_orders(word, None) is not None:  # no orders, or orders of its own form
             out.append(word)
             continue
-        out.append(f"{word}(1)" if cls.n_orders == 1 else f"{word}(2,1)")
+        model = f"{word}(1)" if cls.n_orders == 1 else f"{word}(2,1)"
+        try:
+            parse_model(model)
+        except ValueError:  # a family of one order only (CGARCH(1,1)): its bare word
+            model = word
+        out.append(model)
     return out
 
 

@@ -542,8 +542,8 @@ def test_bad_horizon(horizon, pattern):
 
 
 def test_bad_what():
-    assert_error(VOLSERIES(_R, ARCH_TABLE, "volatility"), r'what must be one of variance, vol, resid, stdresid; got "volatility"')
-    assert_error(VOLFORECAST(_R, ARCH_TABLE, 3, "median"), r"what must be one of variance, vol, cumvar, cumvol, mean, table")
+    assert_error(VOLSERIES(_R, ARCH_TABLE, "volatility"), r'what must be one of variance, vol, resid, stdresid, longrun; got "volatility"')
+    assert_error(VOLFORECAST(_R, ARCH_TABLE, 3, "median"), r"what must be one of variance, vol, cumvar, cumvol, mean, longrun, table")
 
 
 _ARCH_ROWS = [["model", "ARCH(1)"], ["mu", 0.0], ["omega", 0.5], ["alpha[1]", 0.4]]

@@ -14,7 +14,7 @@ from . import sheet
 
 _RETURNS = "Returns: one column (or row) of numbers, most recent last; blanks before and after are ignored"
 _FIT = "Fit table from VOLFIT (or one typed with rows model, dist and the parameters)"
-_MODEL = 'Model string, e.g. "GARCH(1,1)", "AR(1)-GJR-GARCH(1,1)", "EGARCH(1,1)", "EWMA" (default GARCH(1,1))'
+_MODEL = 'Model string, e.g. "GARCH(1,1)", "AR(1)-GJR-GARCH(1,1)", "EGARCH(1,1)", "EWMA", "CGARCH" (default GARCH(1,1))'
 _DIST = 'Shock distribution: "normal" (default), "t", "skewt" or "ged"'
 _OPTIONS = 'Options, e.g. "se=hessian; nu=8; presample=drop" (optional)'
 
@@ -32,9 +32,9 @@ def VOLFIT(returns, model=None, dist=None, options=None):
 @xw.func
 @xw.arg("returns", ndim=2, doc=_RETURNS)
 @xw.arg("fit", ndim=2, doc=_FIT)
-@xw.arg("what", doc='"variance" (default), "vol", "resid" or "stdresid"')
+@xw.arg("what", doc='"variance" (default), "vol", "resid", "stdresid" or "longrun" (the long-run component of a CGARCH)')
 def VOLSERIES(returns, fit, what=None):
-    """In-sample conditional variance (or vol, residuals), one value per return row."""
+    """In-sample conditional variance (or vol, residuals, a component model's long-run component), one value per return row."""
     return sheet.VOLSERIES(returns, fit, what)
 
 
@@ -42,9 +42,9 @@ def VOLSERIES(returns, fit, what=None):
 @xw.arg("returns", ndim=2, doc=_RETURNS)
 @xw.arg("fit", ndim=2, doc=_FIT)
 @xw.arg("horizon", doc="Number of steps ahead, a whole number from 1 to 600")
-@xw.arg("what", doc='"variance" (default), "vol", "cumvar", "cumvol", "mean" or "table"')
+@xw.arg("what", doc='"variance" (default), "vol", "cumvar", "cumvol", "mean", "longrun" (a CGARCH\'s long-run component) or "table"')
 def VOLFORECAST(returns, fit, horizon=None, what=None):
-    """Forecast the variance (or vol, cumulative variance, mean) 1 to horizon steps ahead."""
+    """Forecast the variance (or vol, cumulative variance, mean, long-run component) 1 to horizon steps ahead."""
     return sheet.VOLFORECAST(returns, fit, horizon, what)
 
 

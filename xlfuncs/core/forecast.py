@@ -6,6 +6,8 @@
   E[1(e<0) e^2] = kappa sigma^2, where kappa = E[z^2 1(z<0)] of the fitted distribution (1/2
   for the symmetric ones); a family with no simple closed form (EGARCH) by averaging seeded
   simulated paths.
+* ``longrun[h]`` is the forecast of the variance's long-run component h steps ahead, for a
+  family that has one (the component model); None for the others.
 * ``mean[h]`` is the ARMA mean forecast (future shocks at zero).
 * ``cumvar[h]`` is the variance of the sum of the next h returns, the ARMA propagation of each
   shock included: with psi_j the MA(infinity) weights and Psi_n = psi_0 + ... + psi_n,
@@ -20,10 +22,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
-from .families import History
+from .families import FAMILIES, History
 from .likelihood import Likelihood
 
-__all__ = ["Forecast", "forecast", "in_sample", "psi_weights", "DEFAULT_SEED", "DEFAULT_PATHS", "MAX_HORIZON"]
+__all__ = ["Forecast", "forecast", "in_sample", "long_run_in_sample", "require_long_run", "psi_weights", "DEFAULT_SEED", "DEFAULT_PATHS",
+           "MAX_HORIZON"]
 
 DEFAULT_SEED = 20240531
 DEFAULT_PATHS = 20000
@@ -36,6 +39,7 @@ class Forecast:
     variance: np.ndarray
     cumvar: np.ndarray
     method: str
+    longrun: np.ndarray | None = None  # the long-run component's forecasts (component models only)
 
     @property
     def vol(self):
@@ -57,6 +61,28 @@ def in_sample(fit, r):
     var = np.full(T, np.nan)
     var[lik.a + lik.s0:] = sig2
     return resid, var, lik
+
+
+def _no_long_run(spec) -> InputError:
+    have = [cls(*cls.default_orders).canonical for cls in FAMILIES.values() if cls.has_long_run]
+    example = f"a component model such as {have[0]}" if have else "a component model"
+    return InputError(f"what=longrun needs {example}; {spec.canonical} has no long-run component")
+
+
+def long_run_in_sample(fit, r):
+    """The long-run component of the conditional variance aligned with the returns (nan where
+    undefined); InputError for a model without one."""
+    spec = fit.spec
+    require_long_run(spec)
+    r = np.asarray(r, dtype=float)
+    lik = Likelihood(r, spec, fit.dist, fit.options.presample)
+    theta = np.asarray(fit.params, dtype=float)
+    e, _ = lik.residuals(theta)
+    _, _, _, vp, eta = lik.split(theta)
+    q = spec.family.long_run(vp, e, fit.options.presample, eta, fit.dist)
+    out = np.full(len(r), np.nan)
+    out[lik.a + lik.s0:] = q
+    return out
 
 
 def psi_weights(phi, theta, n: int) -> np.ndarray:
@@ -101,9 +127,16 @@ def forecast(fit, r, horizon: int, seed: int | None = None, paths: int | None = 
     the_seed = DEFAULT_SEED if seed is None else seed
     fvar, simulated = spec.family.forecast(vp, eta, fit.dist, history, H, np.random.default_rng(the_seed), n_paths)
     method = f"simulation ({n_paths} paths, seed {the_seed})" if simulated else "analytic"
+    longrun = spec.family.long_run_forecast(vp, eta, fit.dist, history, H)
 
     # ---- cumulative variance with ARMA propagation
     psi = psi_weights(phi, tht, H)
     Psi = np.cumsum(psi)
     cum = np.array([np.sum(fvar[:h] * Psi[h - 1::-1][:h] ** 2) for h in range(1, H + 1)])
-    return Forecast(mean=mean, variance=fvar, cumvar=cum, method=method)
+    return Forecast(mean=mean, variance=fvar, cumvar=cum, method=method, longrun=longrun)
+
+
+def require_long_run(spec) -> None:
+    """InputError unless the model's variance has a long-run component (``what=longrun``)."""
+    if not spec.family.has_long_run:
+        raise _no_long_run(spec)

@@ -3,8 +3,8 @@
 | function | returns |
 | --- | --- |
 | ``VOLFIT(returns, [model], [dist], [options])`` | the fit table |
-| ``VOLSERIES(returns, fit, [what])`` | one value per return row: variance, vol, resid or stdresid |
-| ``VOLFORECAST(returns, fit, horizon, [what])`` | ``horizon`` rows: variance, vol, cumvar, cumvol, mean or table |
+| ``VOLSERIES(returns, fit, [what])`` | one value per return row: variance, vol, resid, stdresid or longrun |
+| ``VOLFORECAST(returns, fit, horizon, [what])`` | ``horizon`` rows: variance, vol, cumvar, cumvol, mean, longrun or table |
 | ``VOLLOGLIK(returns, fit)`` | the log-likelihood of the returns at the fit's parameters |
 
 >>> table = VOLFIT([[0.5], [-1.2], [0.3], [0.9], [-0.4], [1.5], [-2.1], [0.2], [0.1], [-0.6],
@@ -23,7 +23,7 @@ import numpy as np
 
 from ..core.distributions import get_distribution
 from ..core.estimate import evaluate, fit as core_fit
-from ..core.forecast import MAX_HORIZON, forecast as core_forecast, in_sample
+from ..core.forecast import MAX_HORIZON, forecast as core_forecast, in_sample, long_run_in_sample, require_long_run
 from ..core.spec import parse_model, parse_options
 from .cache import FIT_CACHE
 from ..core.diagnostics import MIN_OBS as MIN_TEST_OBS, default_lags, max_lags, run_tests
@@ -42,8 +42,8 @@ from .fittable import decode, encode
 __all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE",
            "VOLCOVERAGE", "VOLSIM", "VOLNEWS", "VOLBACKTEST", "fit_from_cells"]
 
-_SERIES_WHAT = ("variance", "vol", "resid", "stdresid")
-_FORECAST_WHAT = ("variance", "vol", "cumvar", "cumvol", "mean", "table")
+_SERIES_WHAT = ("variance", "vol", "resid", "stdresid", "longrun")
+_FORECAST_WHAT = ("variance", "vol", "cumvar", "cumvol", "mean", "longrun", "table")
 
 
 def _choice(value, arg, choices, default):
@@ -95,9 +95,12 @@ def _table_and_returns(returns, fit):
 
 @sheet_function
 def VOLSERIES(returns, fit, what=None):
-    """In-sample conditional variance (or vol, resid, stdresid), one value per return row."""
+    """In-sample conditional variance (or vol, resid, stdresid, or the long-run component of a
+    component model), one value per return row."""
     w = _choice(what, "what", _SERIES_WHAT, "variance")
     _, data, result = _table_and_returns(returns, fit)
+    if w == "longrun":
+        return data.spread(long_run_in_sample(result, data.values))
     resid, var, _ = in_sample(result, data.values)
     with np.errstate(all="ignore"):
         series = {
@@ -111,10 +114,13 @@ def VOLSERIES(returns, fit, what=None):
 
 @sheet_function
 def VOLFORECAST(returns, fit, horizon=None, what=None):
-    """Forecast h = 1..horizon steps ahead: variance (default), vol, cumvar, cumvol, mean or table."""
+    """Forecast h = 1..horizon steps ahead: variance (default), vol, cumvar, cumvol, mean, longrun
+    (the long-run component of a component model) or table."""
     h = int_arg(horizon, "horizon", 1, MAX_HORIZON)
     w = _choice(what, "what", _FORECAST_WHAT, "variance")
     table, data, result = _table_and_returns(returns, fit)
+    if w == "longrun":
+        require_long_run(table.spec)
     if table.spec.family.simulated_forecast:
         check_draws(_paths(table.options), h, "VOLFORECAST of an EGARCH model")
     fc = core_forecast(result, data.values, h, seed=table.options.seed, paths=table.options.paths)
@@ -129,7 +135,8 @@ def VOLFORECAST(returns, fit, horizon=None, what=None):
         for i in range(h):
             rows.append([i + 1, float(fc.mean[i]), float(fc.variance[i]), float(fc.vol[i]), float(fc.cumvar[i])])
         return rows
-    col = {"variance": fc.variance, "vol": fc.vol, "cumvar": fc.cumvar, "cumvol": fc.cumvol, "mean": fc.mean}[w]
+    col = {"variance": fc.variance, "vol": fc.vol, "cumvar": fc.cumvar, "cumvol": fc.cumvol, "mean": fc.mean,
+           "longrun": fc.longrun}[w]
     return [[float(v)] for v in col]
 
 

@@ -25,6 +25,7 @@ _REGISTRY = (
     "igarch:Igarch",
     "ewma:Ewma",
     "figarch:Figarch",
+    "cgarch:Cgarch",
 )
 
 

@@ -7,10 +7,11 @@ recursion runs through ``scipy.signal.lfilter``; its derivatives (forward) run t
 filter, and the gradient of sum_t w_t sigma2_t runs the filter once backwards (the adjoint).
 
 A family of this kind says how its own parameters give the *linear coefficients*
-(omega, alpha[1..p], gamma[1..p], beta[1..q]) by an affine map: :meth:`LinearFamily._coefficients`
-and its constant Jacobian :meth:`LinearFamily._jacobian` (None where the parameters are the
-coefficients themselves).  Derivatives in the coefficients are carried back to the parameters
-through that Jacobian.
+(omega, alpha[1..p], gamma[1..p], beta[1..q]): :meth:`LinearFamily._coefficients` and its
+Jacobian at the parameters, :meth:`LinearFamily._jacobian` (None where the parameters are the
+coefficients themselves; constant where the map is affine, as for EWMA; it varies with the
+parameters where the map is not, as for the component model).  Derivatives in the coefficients
+are carried back to the parameters through that Jacobian (the chain rule).
 
 Presample (``presample=mean``): lagged squares and variances before the first observation equal
 the mean squared residual at the trial parameters (the GJR term the mean of N); ``drop``: the
@@ -47,7 +48,7 @@ def linear_filter(den, x, zi=None):
 class _State:
     """What the forward recursion leaves for the adjoint."""
 
-    __slots__ = ("e", "sig2", "P", "N", "neg", "sbar", "den", "tail", "omega", "alpha", "gamma", "beta", "mean_mode", "m")
+    __slots__ = ("e", "sig2", "P", "N", "neg", "sbar", "den", "tail", "omega", "alpha", "gamma", "beta", "mean_mode", "m", "vp")
 
 
 class _SimState:
@@ -81,8 +82,8 @@ class LinearFamily(VarianceFamily):
         beta = vp[i: i + q]
         return omega, alpha, gamma, beta
 
-    def _jacobian(self):
-        """d(omega, alpha, gamma, beta) / d(parameters), constant; None for the identity."""
+    def _jacobian(self, vp):
+        """d(omega, alpha, gamma, beta) / d(parameters) at ``vp``; None for the identity."""
         return None
 
     def _linear_names(self):
@@ -187,7 +188,7 @@ class LinearFamily(VarianceFamily):
             D, _ = lfilter([1.0], den, RHS, axis=1, zi=ZI)
         else:
             D = RHS
-        J = self._jacobian()
+        J = self._jacobian(vp)
         if J is not None:
             D = np.concatenate([D[:nm], J.T @ D[nm:]])
         return sig2, D
@@ -197,6 +198,7 @@ class LinearFamily(VarianceFamily):
         st = _State()
         omega, alpha, gamma, beta = self._coefficients(vp)
         st.e = e
+        st.vp = vp
         st.omega, st.alpha, st.gamma, st.beta = omega, alpha, gamma, beta
         st.mean_mode = presample == "mean"
         e2, sbar, neg, P, N = self._inputs(e, presample, lambda a: a.sum() * (1.0 / len(a)))
@@ -243,7 +245,7 @@ class LinearFamily(VarianceFamily):
                         gm += gamma[i - 1] * (dN2[:, lo:hi] @ lam)
             if q:
                 gm += dsbar * (lam[:q] @ st.tail)
-        J = self._jacobian()
+        J = self._jacobian(st.vp)
         return g if J is None else J.T @ g
 
     # ------------------------------------------------------------------ summary figures

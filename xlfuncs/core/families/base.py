@@ -23,6 +23,7 @@ the shocks' distribution read it, the others ignore it).
 | ``_forecast`` | the h-step variance forecasts from the end of the sample |
 | ``_sim_start``, ``_sim_continue``, ``_sim_variance``, ``_sim_push`` | one simulation step at a time |
 | ``_news_impact`` | next period's variance against this period's shock |
+| ``_long_run``, ``_long_run_forecast`` | the long-run component, in sample and ahead (component models only) |
 | ``_starts``, ``_target``, ``_sum_rule`` | what the estimator needs: start values, variance targeting, the implied weight |
 """
 
@@ -106,6 +107,8 @@ class VarianceFamily:
     targeted: str | None = None
     #: fresh simulated paths need a burn-in to forget their start
     burn_in: bool = True
+    #: the variance has a long-run (permanent) component of its own (``_long_run``)
+    has_long_run: bool = False
 
     def __init__(self, p: int = 0, q: int = 0):
         self.p = int(p)
@@ -343,6 +346,34 @@ class VarianceFamily:
         return self._news_impact(self._vp(vp), np.asarray(eta, dtype=float), dist, np.asarray(shocks, dtype=float))
 
     def _news_impact(self, vp, eta, dist, e):  # pragma: no cover
+        raise NotImplementedError
+
+    # ------------------------------------------------------------------ long-run component
+    def long_run(self, vp, e, presample: str = "mean", eta=(), dist=None):
+        """The long-run component of the variance on the likelihood positions (aligned with
+        :meth:`variance`); None where the family has none."""
+        if not self.has_long_run:
+            return None
+        if presample not in ("mean", "drop"):
+            raise ValueError(f"presample must be mean or drop, got {presample}")
+        return self._long_run(self._vp(vp), np.asarray(e, dtype=float), presample, np.asarray(eta, dtype=float), dist)
+
+    def long_run_forecast(self, vp, eta, dist, history: History, horizon: int):
+        """Forecasts of the long-run component for steps 1..horizon from the end of the sample;
+        None where the family has none."""
+        if not self.has_long_run:
+            return None
+        if not isinstance(history, History):
+            raise TypeError("history must be a History")
+        H = int(horizon)
+        if H < 1:
+            raise ValueError(f"horizon must be 1 or more, got {horizon}")
+        return self._long_run_forecast(self._vp(vp), np.asarray(eta, dtype=float), dist, history, H)
+
+    def _long_run(self, vp, e, presample, eta, dist):  # pragma: no cover - has_long_run families have one
+        raise NotImplementedError
+
+    def _long_run_forecast(self, vp, eta, dist, history, H):  # pragma: no cover
         raise NotImplementedError
 
     # ------------------------------------------------------------------ for the estimator

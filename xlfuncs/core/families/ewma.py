@@ -35,7 +35,7 @@ class Ewma(LinearFamily):
         d = vp[0]
         return 0.0, np.array([1.0 - d]), np.zeros(0), np.array([d])
 
-    def _jacobian(self):
+    def _jacobian(self, vp):
         return _JACOBIAN
 
     @property
