@@ -24,6 +24,7 @@ _REGISTRY = (
     "egarch:Egarch",
     "igarch:Igarch",
     "ewma:Ewma",
+    "aparch:Aparch",
 )
 
 
