@@ -309,6 +309,43 @@ def test_delta_fixed_at_two_fits_like_gjr(dmbp):
     assert_allclose(a.persistence, j.persistence, rtol=1e-4)
 
 
+def test_a_maximum_on_the_stationarity_bound_is_held_there(simulated):
+    """A seeded IGARCH(1,1)-t series (alpha + beta = 1): GARCH's maximum lies on the stationarity
+    bound, so APARCH's (which nests it) does too; the fit is held at persistence 1 - 1e-6 with the
+    last beta implied, and its maximum is at least GARCH's (nested models)."""
+    r = simulated("IGARCH(1,1)", "t", [0.0, 0.01, 0.08, 0.92, 6.0], 2500, 1)
+    g = fit(r, "GARCH(1,1)", "t")
+    a = fit(r, "APARCH(1,1)", "t")
+    assert a.converged and "held at the stationarity bound" in a.message, a.message
+    assert_allclose(a.persistence, 1 - 1e-6, rtol=1e-12)
+    i = a.names.index("beta[1]")
+    assert a.status[i] == "implied" and 0 < a.std_errors[i] < 0.05  # by the delta method
+    assert a.loglik >= g.loglik - 1e-6, (a.loglik, g.loglik)
+
+
+@pytest.mark.parametrize("model", ["APARCH(2,1)", "APARCH(2,0)"])
+@pytest.mark.parametrize("dist, shape", DISTS)
+def test_the_held_weight_and_its_gradient(model, dist, shape):
+    """hold() sets the implied weight so that the persistence is the target, and its gradient
+    agrees with central differences of the weight it sets."""
+    fam = parse_model(model).family
+    d = get_distribution(dist)
+    vp = np.array([0.1, 0.05, 0.04, 0.3, -0.2] + ([0.8] if fam.q else []) + [1.4])
+    x = 5 if fam.q else 2
+    full = np.concatenate([vp, shape])
+
+    def implied(f):
+        v = f[: fam.n_params].copy()
+        fam.hold(v, 0.99, f[fam.n_params:], d)
+        return v[x]
+
+    v = vp.copy()
+    grad = fam.hold(v, 0.99, shape, d)
+    assert_allclose(fam.persistence(v, shape, d), 0.99, rtol=1e-13)
+    num = [(implied(full + 1e-6 * e) - implied(full - 1e-6 * e)) / 2e-6 for e in np.eye(len(full))]
+    assert_allclose(grad, num, atol=1e-8)
+
+
 # ----------------------------------------------------------------------------------------
 def _given(r, model, dist, params, options=None):
     return evaluate(r, parse_model(model), get_distribution(dist), names_of(model, dist), params,
