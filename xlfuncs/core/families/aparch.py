@@ -25,6 +25,12 @@ E[s^delta] = omega / (1 - persistence).  The unconditional *variance* E[s^2] is 
 order 2/delta of S, not a function of its mean: it is given where delta = 2 and left blank
 otherwise.  Forecasts: E_T[S[T+h]] follows an exact recursion; the one-step variance is exact,
 and so are all steps where delta = 2; otherwise steps 2 and later average seeded simulated paths.
+
+Estimation.  The persistence is not linear in the parameters (kappa moves with gamma, delta and
+the shape), so a maximum on the stationarity bound is held there by :meth:`Aparch._hold`, which
+sets the last beta (the last alpha without betas) and returns its gradient.  Variance targeting
+does not apply: the level the recursion fixes is E[s^delta], which the mean squared residual
+does not give unless delta = 2.
 """
 
 from __future__ import annotations
@@ -49,7 +55,7 @@ _GAMMA_BOX = 1.0 - 1e-4
 # ---------------------------------------------------------------------------------------------
 # E(|z| - gamma z)^delta of the standardised shocks
 
-def abs_power_moment(dist, eta, delta: float) -> float:
+def abs_power_moment(dist, eta, delta: float) -> float | None:
     """E|z|^delta of a symmetric standardised distribution in closed form, or None if not symmetric.
 
     normal: 2^(d/2) Gamma((d+1)/2) / sqrt(pi) (Ding, Granger & Engle 1993); Student t with unit
@@ -163,14 +169,15 @@ class _State:
 
 
 class _SimState:
-    """Per lagged shock the news terms [N_1, ..., N_p] it gives, and the lagged power variances
-    S = s^delta of simulated paths, newest last."""
+    """Per lagged shock its power split by sign (:meth:`Aparch._split_power`) -- (level, None) for
+    a presample shock at its expectation -- and the lagged power variances S = s^delta of
+    simulated paths, newest last; with the news coefficients of :meth:`Aparch._sim_coefficients`."""
 
-    __slots__ = ("news", "S", "S_new", "gamma", "delta")
+    __slots__ = ("shocks", "S", "S_new", "coefs", "delta")
 
-    def __init__(self, news, S, gamma, delta):
-        self.news, self.S, self.S_new = news, S, None
-        self.gamma, self.delta = gamma, delta
+    def __init__(self, shocks, S, coefs, delta):
+        self.shocks, self.S, self.S_new = shocks, S, None
+        self.coefs, self.delta = coefs, delta
 
 
 class Aparch(VarianceFamily):
@@ -452,7 +459,7 @@ class Aparch(VarianceFamily):
     def _forecast(self, vp, eta, dist, history, H, rng, paths):
         """The variance forecasts: step 1 exact (s[T+1] is known at T), every step exact where
         delta = 2 (E_T[s^2] is then the power forecast), else the mean over seeded simulated
-        paths, with the exact E_T[s^delta] as a control variate (Glasserman 2004, ch. 4)."""
+        paths, with the exact E_T[s^delta] as a control variate (Glasserman 2004, section 4.1)."""
         delta = self._split(vp)[4]
         ES = self._power_forecast(vp, eta, dist, history, H)
         if delta == 2.0:
@@ -473,11 +480,11 @@ class Aparch(VarianceFamily):
                 y_bar = float(np.mean(s2))
                 out[h] = y_bar
                 if math.isfinite(ES[h]) and paths > 2:
-                    with np.errstate(all="ignore"):
+                    with np.errstate(all="ignore"):  # (sums, not BLAS dot products: no thread start-up)
                         xc = x - x.mean()
-                        vx = float(xc @ xc)
+                        vx = float(np.sum(xc * xc))
                         if vx > 0 and math.isfinite(vx):
-                            b = float(xc @ (s2 - y_bar)) / vx
+                            b = float(np.sum(xc * (s2 - y_bar))) / vx
                             adj = y_bar - b * (float(x.mean()) - ES[h])
                             if math.isfinite(adj) and adj > 0:
                                 out[h] = adj
@@ -494,29 +501,50 @@ class Aparch(VarianceFamily):
                 out.append(np.where(b > 0, b ** delta, 0.0))
         return out
 
+    def _sim_coefficients(self, vp, eta, dist):
+        """alpha_i (1 - gamma_i)^delta, alpha_i (1 + gamma_i)^delta and alpha_i kappa_i: the news
+        term of lag i is |e|^delta times the first for e > 0, the second for e < 0, and the third
+        times E[s^delta] at its expectation."""
+        _, alpha, gamma, _, delta = self._split(vp)
+        kap = self._kappa(vp, eta, dist)
+        with np.errstate(all="ignore"):
+            up, down = alpha * (1.0 - gamma) ** delta, alpha * (1.0 + gamma) ** delta
+        return up, down, np.where(np.isfinite(kap), alpha * kap, alpha)
+
+    @staticmethod
+    def _split_power(e, delta):
+        """(|e|^delta where e > 0 else 0, |e|^delta where e < 0 else 0): the news term of lag i is
+        alpha_i (1 - gamma_i)^delta times the first plus alpha_i (1 + gamma_i)^delta times the second."""
+        with np.errstate(all="ignore"):
+            a = np.abs(e) ** delta
+            a_up = np.where(e > 0, a, 0.0) if np.ndim(e) else (a if e > 0 else 0.0)
+        return a_up, a - a_up
+
     def _sim_start(self, vp, eta, dist, paths):
         """Fresh paths: lagged s^delta at E[s^delta] (100 omega where undefined) and each lagged
         news term at its expectation kappa_i E[s^delta]; the burn-in forgets the start."""
-        omega = self._split(vp)[0]
         level = self.power_mean(vp, eta, dist)
-        S0 = level if level is not None else 100.0 * omega
-        kap = self._kappa(vp, eta, dist)
-        news = [float(k) * S0 if math.isfinite(k) else S0 for k in kap]
-        _, _, gamma, _, delta = self._split(vp)
-        return _SimState([list(news) for _ in range(self.p)], [S0] * self.q, gamma.copy(), delta)
+        S0 = level if level is not None else 100.0 * self._split(vp)[0]
+        coefs = self._sim_coefficients(vp, eta, dist)
+        return _SimState([(S0, None)] * self.p, [S0] * self.q, coefs, self._split(vp)[4])
 
     def _sim_continue(self, vp, eta, dist, history):
-        _, _, gamma, _, delta = self._split(vp)
+        delta = self._split(vp)[4]
         e = history.e[len(history.e) - self.p:]
-        news = [[float(v) for v in self._news_of(x, gamma, delta)] for x in e]
+        shocks = [self._split_power(float(x), delta) for x in e]
         S = list(history.s2[len(history.s2) - self.q:] ** (0.5 * delta)) if self.q else []
-        return _SimState(news, S, gamma.copy(), delta)
+        return _SimState(shocks, S, self._sim_coefficients(vp, eta, dist), delta)
 
     def _sim_variance(self, state, vp, eta, dist):
-        omega, alpha, _, beta, delta = self._split(vp)
+        omega, _, _, beta, delta = self._split(vp)
+        up, down, expected = state.coefs
         v = omega
         for i in range(1, self.p + 1):
-            v = v + alpha[i - 1] * state.news[-i][i - 1]
+            a_up, a_down = state.shocks[-i]
+            if a_down is None:  # a presample shock at its expectation
+                v = v + expected[i - 1] * a_up
+            else:
+                v = v + up[i - 1] * a_up + down[i - 1] * a_down
         for j in range(1, self.q + 1):
             v = v + beta[j - 1] * state.S[-j]
         state.S_new = v
@@ -527,7 +555,7 @@ class Aparch(VarianceFamily):
 
     def _sim_push(self, state, e, z, s2):
         if self.p:
-            state.news = state.news[1:] + [self._news_of(e, state.gamma, state.delta)]
+            state.shocks = state.shocks[1:] + [self._split_power(e, state.delta)]
         if self.q:
             state.S = state.S[1:] + [state.S_new]
 
