@@ -193,7 +193,7 @@ class Aparch(VarianceFamily):
     #: CPU time per k x k unit against the linear families' on 2,500 returns: APARCH(1,1)-t against
     #: GARCH(1,1)-t 0.8-1.7 times (ten series; 2-3.4 times the time, k = 7 against 5), models of
     #: k = 8-9 1.1-7.5 times (median 1.5), k = 15-16 on a GARCH series 4-8 times (ARMA(2,2)-APARCH(2,2)-skewt
-    #: 8.7 s); 4 keeps two such candidates out of one VOLCOMPARE call
+    #: 8.7 s); 4 keeps two 15-parameter candidates out of one VOLCOMPARE call
     cost_weight = 4
 
     # ------------------------------------------------------------------ names and pieces
