@@ -75,9 +75,11 @@ def case_compare(models, dist="normal"):
 def _table(model, p, q, paths=None):
     rows = [["model", model], ["dist", "normal"], ["mu", 0.05], ["omega", 0.01]]
     rows += [[f"alpha[{i}]", 0.1 / p] for i in range(1, p + 1)]
-    if "EGARCH" in model or "GJR" in model:
+    if "EGARCH" in model or "GJR" in model or "APARCH" in model:
         rows += [[f"gamma[{i}]", -0.05 / p] for i in range(1, p + 1)]
     rows += [[f"beta[{j}]", 0.85 / q] for j in range(1, q + 1)]
+    if "APARCH" in model:
+        rows += [["delta", 1.5]]
     return rows + ([["options", f"paths={paths}"]] if paths else [])
 
 
@@ -96,7 +98,9 @@ def case_draws(model, p, q, horizon, paths):
     t0 = time.perf_counter()
     out = VOLRISK(r, table, 0.99, horizon)
     t1 = time.perf_counter()
-    fc = VOLFORECAST(r, table, horizon) if "EGARCH" in model else [[None]]
+    from xlfuncs.core import parse_model
+
+    fc = VOLFORECAST(r, table, horizon) if parse_model(model).family.simulated_forecast else [[None]]
     return f"VOLRISK {t1 - t0:.2f} s ({str(out[1][0])[:30]}), VOLFORECAST {time.perf_counter() - t1:.2f} s ({len(fc)} rows)"
 
 
@@ -163,7 +167,8 @@ def main(argv=None):
                      ("MA(12)-ARCH(1)", "normal"), ("GJR-GARCH(3,3)", "skewt"),
                      ("EGARCH(1,1)", "normal"), ("EGARCH(1,1)", "t"), ("EGARCH(1,2)", "normal"),
                      ("AR(1)-EGARCH(1,1)", "normal"), ("MA(1)-EGARCH(1,1)", "normal"), ("ZERO-EGARCH(1,2)", "t"),
-                     ("ZERO-EGARCH(2,1)", "t")):
+                     ("ZERO-EGARCH(2,1)", "t"), ("GARCH(1,1)", "t"), ("APARCH(1,1)", "t"),
+                     ("ARMA(2,2)-APARCH(2,2)", "skewt"), ("ARMA(1,1)-APARCH(4,2)", "t")):
             timed(f"{m} {d}", case_fit, m, d, limit=lim)
         for m, d in (("ARMA(4,4)-GARCH(4,4)", "normal"), ("ARMA(8,8)-GARCH(1,1)", "normal"),
                      ("ARMA(12,12)-GARCH(1,1)", "normal"), ("ARMA(12,12)-GARCH(12,12)", "normal"),
@@ -180,6 +185,8 @@ def main(argv=None):
         timed("the templates' 6 (GARCH, GJR, EGARCH x normal, t)", case_compare,
               ["GARCH(1,1)", "GJR-GARCH(1,1)", "EGARCH(1,1)"], "normal,t", limit=lim)
         timed("7 models of 16 parameters", case_compare, big, limit=lim)
+        timed("GARCH, GJR, APARCH(1,1), APARCH(2,1), AR(1)-APARCH(1,1) x normal, t", case_compare,
+              ["GARCH(1,1)", "GJR-GARCH(1,1)", "APARCH(1,1)", "APARCH(2,1)", "AR(1)-APARCH(1,1)"], "normal,t", limit=lim)
         timed("EGARCH(1,1) t, ZERO-EGARCH(1,2) normal", case_compare, ["EGARCH(1,1)", "ZERO-EGARCH(1,2)"], "t",
               limit=lim)
         timed("past: 60 usual candidates (15 x 4)", case_compare,
@@ -192,7 +199,7 @@ def main(argv=None):
         print("-- VOLSIM (SIM_PERIODS, SIM_CELLS)")
         for model, p, q, periods, paths in (("GARCH(1,1)", 1, 1, 25_000, 40), ("GJR-GARCH(12,12)", 12, 12, 25_000, 1),
                                             ("EGARCH(12,12)", 12, 12, 25_000, 40), ("GJR-GARCH(12,12)", 12, 12, 1000, 1000),
-                                            ("EGARCH(12,12)", 12, 12, 1000, 1000)):
+                                            ("EGARCH(12,12)", 12, 12, 1000, 1000), ("APARCH(12,12)", 12, 12, 25_000, 40)):
             timed(f"{model} {periods} periods x {paths} paths", case_sim, model, p, q, periods, paths, limit=lim)
         for model, p, q, periods, paths in (("GARCH(1,1)", 1, 1, 100_000, 1), ("GJR-GARCH(12,12)", 12, 12, 100_000, 1)):
             timed(f"past: {model} {periods} periods x {paths} paths", case_sim, model, p, q, periods, paths, limit=lim)
@@ -200,7 +207,8 @@ def main(argv=None):
         print("-- VOLRISK beyond one period and EGARCH VOLFORECAST (SIM_DRAWS)")
         for model, p, q, h, paths in (("GARCH(1,1)", 1, 1, 20, 1_000_000), ("GJR-GARCH(12,12)", 12, 12, 20, 1_000_000),
                                       ("EGARCH(1,1)", 1, 1, 20, 1_000_000), ("EGARCH(12,12)", 12, 12, 20, 1_000_000),
-                                      ("EGARCH(12,12)", 12, 12, 600, 20_000)):
+                                      ("EGARCH(12,12)", 12, 12, 600, 20_000), ("APARCH(1,1)", 1, 1, 20, 1_000_000),
+                                      ("APARCH(12,12)", 12, 12, 20, 1_000_000), ("APARCH(12,12)", 12, 12, 600, 20_000)):
             timed(f"{model} horizon {h} x {paths} paths", case_draws, model, p, q, h, paths, limit=lim)
         timed("past: EGARCH(12,12) horizon 100 x 1000000 paths", case_draws, "EGARCH(12,12)", 12, 12, 100, 1_000_000,
               limit=lim)
@@ -208,7 +216,7 @@ def main(argv=None):
         print("-- VOLBACKTEST (BACKTEST_WORK)")
         for model, window, refit, n in (("GARCH(1,1)", 500, 1, 1000), ("GJR-GARCH(1,1)", 500, 2, 1000),
                                         ("ARMA(6,6)-GARCH(1,1)", 2000, 100, 2500), ("EGARCH(1,1)", 500, 32, 1000),
-                                        ("EGARCH(1,1)", 2000, 250, 2500)):
+                                        ("EGARCH(1,1)", 2000, 250, 2500), ("APARCH(1,1)", 500, 10, 1000)):
             timed(f"{model} window {window} refit {refit} on {n}", case_backtest, model, window, refit, n, limit=lim)
         for p, q, window, n, paths in ((1, 1, 250, 1450, None), (4, 4, 250, 1000, None), (1, 1, 250, 350, 1_000_000)):
             timed(f"EGARCH({p},{q}) table window {window} on {n}, paths {paths or 'default'}", case_backtest,

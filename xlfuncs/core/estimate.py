@@ -156,6 +156,7 @@ class _Problem:
         self.implied = None
         self.sum_to = 1.0 if fam.integrated else sum_to
         rule = None
+        self.held_by_family = False  # a rule the affine map cannot carry: the family sets the implied weight
         if self.sum_to is not None:
             rule = fam.sum_rule(lik.dist.start() if eta is None else eta, lik.dist)
             last = rule[0]
@@ -163,6 +164,7 @@ class _Problem:
                 raise InputError(f"options: {last} is implied by the others (the alphas and betas of an IGARCH model sum to 1); fix another parameter")
             self.implied = lik.idx[last]
             status[self.implied] = "implied"
+            self.held_by_family = rule[1] is None
         self.target = options.target
         if self.target:
             tname = fam.targeted
@@ -181,7 +183,7 @@ class _Problem:
         # affine map full = base + A u (IGARCH implied parameter included)
         A = np.zeros((k, len(self.free)))
         A[self.free, np.arange(len(self.free))] = 1.0
-        if self.implied is not None:
+        if self.implied is not None and not self.held_by_family:
             weights = {lik.idx[n]: w for n, w in rule[1].items()}
             weights.pop(self.implied)
             self.base[self.implied] = self.sum_to - sum(w * self.base[i] for i, w in weights.items() if status[i] == "fixed")
@@ -192,8 +194,24 @@ class _Problem:
         self.analytic = lik.linear and not self.target
         self.n_calls = 0
 
+    def jacobian(self, theta):
+        """d full / d u at ``theta``: the affine map A, and where the family holds a rule of its
+        own, the implied parameter's derivatives (from :meth:`VarianceFamily.hold`) carried through A."""
+        if not self.held_by_family:
+            return self.A
+        _, _, _, vp, eta = self.lik.split(np.array(theta, dtype=float))
+        row = np.zeros(self.lik.k)
+        row[self.lik.n_mean:] = self.family.hold(vp, self.sum_to, eta, self.dist)
+        row[self.implied] = 0.0
+        M = self.A.copy()
+        M[self.implied] = row @ self.A
+        return M
+
     def full(self, u):
         theta = self.base + self.A @ u
+        if self.held_by_family:
+            _, _, _, vp, eta = self.lik.split(theta)
+            self.family.hold(vp, self.sum_to, eta, self.dist)  # vp is a view: theta changes in place
         if self.target:
             e, _ = self.lik.residuals(theta)
             vbar = float(np.mean(e * e))
@@ -229,7 +247,7 @@ class _Problem:
         theta = self.full(u)
         if self.analytic:
             l, G = self.lik.scores(theta)
-            return l, G @ self.A
+            return l, G @ self.jacobian(theta)
         l = self.lik.terms(theta)
         G = np.empty((len(l), len(u)))
         for j in range(len(u)):
@@ -249,7 +267,7 @@ class _Problem:
             val, g = self.lik.gradient(theta)
             if not math.isfinite(val):
                 return _PENALTY, np.zeros(len(u))
-            return -val, -(g @ self.A)
+            return -val, -(g @ self.jacobian(theta))
         val = self.lik.loglik(theta)
         if not math.isfinite(val):
             return _PENALTY, np.zeros(len(u))
@@ -516,11 +534,10 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     # normal shocks: Fisher scoring with the expected information (Gauss-Newton for the mean
     # and variance); otherwise the outer product of the scores
     fisher = problem.dist.name == "normal"
-    A = problem.A
-
     def local(u):
         theta = problem.full(u)
         if fisher:
+            A = problem.jacobian(theta)
             val, g, info = problem.lik.scores(theta, fisher=True)
             return val, g @ A, A.T @ info @ A
         l, G = problem.scores_free(u)
@@ -744,7 +761,7 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
             V = Hinv @ (G.T @ G) @ Hinv
     except np.linalg.LinAlgError:
         return se, None
-    A = problem.A[:, fr]
+    A = problem.jacobian(problem.full(u))[:, fr]
     Vfull = A @ V @ A.T
     d = np.diag(Vfull)
     ok = d > 0

@@ -13,6 +13,7 @@ data).
 from __future__ import annotations
 
 from ..core.errors import InputError
+from ..core.families import FAMILIES
 from ..core.families.egarch import Egarch
 
 __all__ = [
@@ -79,7 +80,7 @@ def check_fit(spec, dist) -> None:
 
 
 def weight(spec, dist) -> int:
-    """The work units of estimating one candidate: k x k, EGARCH_WEIGHT x k x k for EGARCH."""
+    """The work units of estimating one candidate: k x k times its family's ``cost_weight`` (EGARCH 25)."""
     k = _n_params(spec, dist)
     return k * k * spec.family.cost_weight
 
@@ -91,17 +92,15 @@ def check_compare(n: int, candidates) -> None:
                          "(split the comparison over several cells)")
     work = sum(weight(spec, dist) for spec, dist in candidates)
     if work > COMPARE_WORK:
-        heavy = {}  # the costlier families' words: [candidates, weight]
+        heavy = {}  # the families weighed more than k x k, as many as there are among the candidates
         for spec, _ in candidates:
             if spec.family.cost_weight > 1:
-                word = spec.variance_canonical.split("(")[0]
-                heavy.setdefault(word, [0, spec.family.cost_weight])[0] += 1
-        among = ", ".join(f"{n} {word}" for word, (n, _) in heavy.items()) or "0 EGARCH"
-        rules = {"EGARCH": EGARCH_WEIGHT, **{word: c for word, (_, c) in heavy.items()}}
-        rule = ", ".join(f"{'an' if word[0] in 'AEIOU' else 'a'} {word} one {c} x k x k" for word, c in rules.items())
-        raise BoundError(f"the candidates weigh {work:,} units of work ({among} among them); at most "
+                heavy[spec.family.words[0]] = heavy.get(spec.family.words[0], 0) + 1
+        among = f" ({', '.join(f'{n} {word}' for word, n in heavy.items())} among them)" if heavy else ""
+        weights = ", ".join(f"{cls.words[0]} {cls.cost_weight} x k x k" for cls in FAMILIES.values() if cls.cost_weight > 1)
+        raise BoundError(f"the candidates weigh {work:,} units of work{among}; at most "
                          f"{COMPARE_WORK:,} in one call, about ten seconds (a model with k parameters weighs k x k, "
-                         f"{rule}); split the comparison over several cells")
+                         f"except {weights}); split the comparison over several cells")
 
 
 def check_backtest(spec, dist, n: int, window: int, scheme: str, refit: int, estimating: bool, paths: int) -> None:
@@ -120,7 +119,7 @@ def check_backtest(spec, dist, n: int, window: int, scheme: str, refit: int, est
     if work > BACKTEST_WORK:
         parts = f"estimations {estimations:,}"
         if spec.family.simulated_forecast:
-            parts += f", EGARCH evaluations {evaluations:,}, simulated draws {draws:,}"
+            parts += f", {spec.family.words[0]} evaluations {evaluations:,}, simulated draws {draws:,}"
         raise BoundError(f"this backtest weighs {work:,} units of work ({parts}); a worksheet call does at most "
                          f"{BACKTEST_WORK:,}, about ten seconds; raise refit=, shorten the window or the returns, "
                          "lower paths=, or run volcast backtest")

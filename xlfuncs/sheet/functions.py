@@ -122,7 +122,7 @@ def VOLFORECAST(returns, fit, horizon=None, what=None):
     if w == "longrun":
         require_long_run(table.spec)
     if table.spec.family.simulated_forecast:
-        check_draws(_paths(table.options), h, "VOLFORECAST of an EGARCH model")
+        check_draws(_paths(table.options), h, f"VOLFORECAST of {table.spec.variance_canonical}")
     fc = core_forecast(result, data.values, h, seed=table.options.seed, paths=table.options.paths)
     if not (np.all(np.isfinite(fc.variance)) and np.all(np.isfinite(fc.cumvar)) and np.all(np.isfinite(fc.mean))):
         bad = int(np.flatnonzero(~np.isfinite(fc.cumvar))[0]) + 1 if not np.all(np.isfinite(fc.cumvar)) else 1

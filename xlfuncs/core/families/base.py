@@ -24,7 +24,7 @@ the shocks' distribution read it, the others ignore it).
 | ``_sim_start``, ``_sim_continue``, ``_sim_variance``, ``_sim_push`` | one simulation step at a time |
 | ``_news_impact`` | next period's variance against this period's shock |
 | ``_long_run``, ``_long_run_forecast`` | the long-run component, in sample and ahead (component models only) |
-| ``_starts``, ``_target``, ``_sum_rule`` | what the estimator needs: start values, variance targeting, the implied weight |
+| ``_starts``, ``_target``, ``_sum_rule``, ``_hold`` | what the estimator needs: start values, variance targeting, the implied weight |
 """
 
 from __future__ import annotations
@@ -396,8 +396,20 @@ class VarianceFamily:
 
     def sum_rule(self, eta=(), dist=None):
         """(implied parameter, {parameter: weight}) of the rule sum weight * parameter = constant
-        that IGARCH imposes and that holds a fit on the stationarity bound; None where none applies."""
+        that IGARCH imposes and that holds a fit on the stationarity bound; None where none applies.
+
+        A family whose persistence is not linear in its parameters gives (implied parameter, None)
+        and sets the implied parameter itself (:meth:`hold`)."""
         return self._sum_rule(np.asarray(eta, dtype=float), dist)
 
     def _sum_rule(self, eta, dist):
         return None
+
+    def hold(self, vp, total: float, eta=(), dist=None) -> np.ndarray:
+        """For a sum rule given without weights: set the implied parameter in ``vp`` (in place) so
+        that the persistence is ``total``; returns its derivatives in the variance parameters, then
+        the distribution's (zero at itself)."""
+        return self._hold(vp, float(total), np.asarray(eta, dtype=float), dist)
+
+    def _hold(self, vp, total, eta, dist):  # pragma: no cover - families with a nonlinear rule only
+        raise NotImplementedError
