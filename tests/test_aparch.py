@@ -29,18 +29,9 @@ from xlfuncs.core.forecast import in_sample
 from xlfuncs.core.likelihood import Likelihood
 from xlfuncs.core.simulate import simulate_forward
 
+from helpers import column, lre
+
 DISTS = [("normal", []), ("t", [6.0]), ("skewt", [6.0, -0.2]), ("ged", [1.3])]
-
-
-def lre(value, ref):
-    """Log relative error: the number of correct significant digits (McCullough 1998)."""
-    if value == ref:
-        return math.inf
-    return -math.log10(abs(value - ref) / abs(ref))
-
-
-def column(x):
-    return [[float(v)] for v in x]
 
 
 def rows(table):
