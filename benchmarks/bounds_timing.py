@@ -116,7 +116,7 @@ def _lift_bounds():
     from xlfuncs.sheet import bounds, functions
 
     for name in bounds.__all__:
-        if name.isupper() and name != "EGARCH_WEIGHT":
+        if name.isupper() and name not in ("EGARCH_WEIGHT", "IN_MEAN_WEIGHT"):
             setattr(bounds, name, 10**15)
             if hasattr(functions, name):
                 setattr(functions, name, 10**15)
@@ -226,10 +226,11 @@ def main(argv=None):
         print(f"-- in-mean fits on {N_OBS} returns (IN_MEAN_FIT_PARAMS, IN_MEAN_WEIGHT)")
         for m, d in (("GARCH(1,1)", "t"), ("GARCH(1,1)-M", "normal"), ("GARCH(1,1)-M", "t"),
                      ("GJR-GARCH(1,1)-M", "skewt"), ("AR(1)-GJR-GARCH(1,1)-M", "t"), ("ARMA(1,1)-GARCH(1,1)-M", "t"),
-                     ("GARCH(2,2)-M", "skewt"), ("ARMA(1,1)-GJR-GARCH(1,1)-M", "skewt"), ("EGARCH(1,1)-M", "normal"),
-                     ("IGARCH(1,1)-M", "t")):
+                     ("MA(2)-GARCH(1,1)-M", "t"), ("AR(3)-GARCH(1,1)-M", "t"), ("ARCH(2)-M", "skewt"),
+                     ("EGARCH(1,1)-M", "normal"), ("ZERO-EGARCH(1,1)-M", "t"), ("IGARCH(1,1)-M", "t"), ("ZERO-EWMA-M", "t")):
             timed(f"{m} {d}", case_fit, m, d, limit=lim)
-        for m, d in (("ARMA(2,2)-GARCH(2,1)-M", "t"), ("ARMA(2,2)-GJR-GARCH(2,2)-M", "skewt"), ("EGARCH(1,1)-M", "t")):
+        for m, d in (("ARMA(1,1)-GJR-GARCH(1,1)-M", "skewt"), ("GARCH(2,2)-M", "t"), ("GJR-GARCH(2,1)-M", "t"),
+                     ("GARCH(1,3)-M", "normal"), ("EGARCH(1,1)-M", "t")):
             timed(f"past: {m} {d}", case_fit, m, d, limit=lim)
         timed("GARCH-M, GJR-GARCH-M x normal, t", case_compare, ["GARCH(1,1)-M", "GJR-GARCH(1,1)-M"], "normal,t",
               limit=lim)

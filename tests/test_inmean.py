@@ -371,3 +371,15 @@ def test_every_family_runs_the_in_mean_filter_or_says_why_not(dmbp, model):
             assert_allclose(s2, fam.variance(vp, u, presample, eta, d), rtol=1e-12)
     except InputError as exc:
         assert "GARCH-in-mean (-M) is not available" in str(exc)
+
+
+@pytest.mark.parametrize("model, dist, fragment", [
+    ("GARCH(2,2)-M", "normal", "has 4 variance lags; a worksheet call estimates in-mean (-M) models with at most 2"),
+    ("AR(2)-GJR-GARCH(1,1)-M", "t", "has 9 parameters; a worksheet call estimates in-mean (-M) models of at most 8"),
+    ("EGARCH(1,1)-M", "t", "has 7 parameters; a worksheet call estimates EGARCH models of at most 6"),
+])
+def test_worksheet_bounds_on_in_mean_fits(model, dist, fragment):
+    """Common practice of this project: a worksheet call answers in about ten seconds or refuses
+    (xlfuncs/sheet/bounds.py, measured by benchmarks/bounds_timing.py)."""
+    out = VOLFIT([[0.1], [-0.2], [0.3]] * 40, model, dist)
+    assert out[0][0].startswith("ERROR:") and fragment in out[0][0], out[0][0]

@@ -37,6 +37,7 @@ __all__ = ["FitResult", "fit", "evaluate", "persistence_of", "check_params", "ch
 _PENALTY = 1e12
 _DECREMENT_TOL = 1e-6  # converged: the log-likelihood is within about tol/2 of its maximum
 _POLISH_TOL = 1e-12  # Newton polishing stops here
+_NUMERIC_POLISH_TOL = 1e-9  # ... and here for an in-mean model (numerical derivatives)
 _BOUND_GAP = 1e-6  # a fit on the stationarity bound holds persistence at 1 - gap
 
 
@@ -222,6 +223,10 @@ class _Problem:
         # scoring iterations (BHHH): with analytic scores, or numerical ones for an in-mean model,
         # which starts next to its maximum (from the fit without the in-mean term)
         self.scoring = self.analytic or lik.in_mean
+        # where Newton polishing stops: numerical derivatives of an in-mean likelihood (about seven
+        # correct digits) cannot pin the decrement to 1e-12; 1e-9 still leaves the log-likelihood
+        # within 1e-9 of its maximum and the estimates far inside their standard errors
+        self.polish_tol = _NUMERIC_POLISH_TOL if lik.in_mean else _POLISH_TOL
         self.n_calls = 0
 
     def full(self, u):
@@ -477,7 +482,7 @@ def _polish(problem: _Problem, u, scales, sbounds, max_steps=8):
             return u, H, math.inf, active, taken
         step_f = np.linalg.solve(L.T, np.linalg.solve(L, g[fr]))
         dec = float(g[fr] @ step_f)
-        if dec < _POLISH_TOL:
+        if dec < problem.polish_tol:
             return u, H, dec, active, taken
         step = np.zeros(m)
         step[fr] = step_f
@@ -591,7 +596,7 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
         for _ in range(15):
             step = np.linalg.solve(M, g)
             dec = float(g @ step)
-            if dec < _POLISH_TOL or dec > 0.5 * prev:
+            if dec < problem.polish_tol or dec > 0.5 * prev:
                 break
             prev = dec
             cand = u + step
@@ -607,9 +612,9 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
                 M = M - np.outer(Ms, Ms) / float(s_ @ Ms) + np.outer(y_, y_) / sy
             u, f, g = cand, fc, gc
             taken += 1
-        if dec < _POLISH_TOL:
+        if dec < problem.polish_tol:
             break
-    if not dec < _POLISH_TOL:
+    if not dec < problem.polish_tol:
         return None
     # a fresh Hessian at the estimate (for the standard errors) and one exact Newton step;
     # forward differences of the analytic gradient with a small step agree with central ones
@@ -649,7 +654,7 @@ def _run(problem: _Problem, r, starts):
         cand = (ll, u, H, dec, active, res, steps)
         if best is None or ll > best[0]:
             best = cand
-        if math.isfinite(dec) and dec < _POLISH_TOL and ll > -_PENALTY / 2:
+        if math.isfinite(dec) and dec < problem.polish_tol and ll > -_PENALTY / 2:
             break
     return best
 

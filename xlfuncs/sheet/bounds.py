@@ -16,7 +16,8 @@ from ..core.errors import InputError
 from ..core.families.egarch import Egarch
 
 __all__ = [
-    "BoundError", "FIT_PARAMS", "EGARCH_FIT_PARAMS", "IN_MEAN_FIT_PARAMS", "COMPARE_CANDIDATES", "COMPARE_WORK",
+    "BoundError", "FIT_PARAMS", "EGARCH_FIT_PARAMS", "IN_MEAN_FIT_PARAMS", "IN_MEAN_LAGS", "COMPARE_CANDIDATES",
+    "COMPARE_WORK",
     "EGARCH_WEIGHT", "IN_MEAN_WEIGHT",
     "BACKTEST_WORK",
     "SIM_PERIODS", "SIM_PATHS",
@@ -31,11 +32,15 @@ FIT_PARAMS = 16
 #: fit measured 8-10 s (ZERO-EGARCH(1,2), t shocks), 7-parameter ones up to 18 s (ARMA(1,1)-EGARCH(1,1))
 EGARCH_FIT_PARAMS = Egarch.max_fit_params  # 6, kept with the family
 #: the same for an in-mean model (-M), whose residuals and variances run together one observation
-#: at a time in Python with numerical derivatives: 8-parameter fits measured 1.2-5.4 s
-#: (GJR-GARCH(1,1)-M skewt, ARMA(1,1)-GARCH(1,1)-M t), 9 and 10 parameters 10-11 s
-#: (GARCH(2,2)-M skewt, ARMA(1,1)-GJR-GARCH(1,1)-M skewt); an in-mean EGARCH keeps EGARCH's 6
-#: (EGARCH(1,1)-M normal: 6.4 s)
+#: at a time in Python with numerical derivatives: 8-parameter fits measured 1.7-4.3 s
+#: (GJR-GARCH(1,1)-M skewt, ARMA(1,1)-GARCH(1,1)-M t), ARCH(2)-M skewt (7) 5.4-7.8 s; past it
+#: ARMA(1,1)-GJR-GARCH(1,1)-M skewt (10) 5-11 s; an in-mean EGARCH keeps EGARCH's 6 (EGARCH(1,1)-M
+#: normal: 4.3-6.4 s)
 IN_MEAN_FIT_PARAMS = 8
+#: variance lags (ARCH plus GARCH orders) of an in-mean model a worksheet call estimates: past (1,1)
+#: an over-fitted variance makes the numerical search slow -- 7-8 parameter fits measured 10-37 s
+#: (GARCH(2,2)-M t, GJR-GARCH(2,1)-M t, GARCH(1,3)-M normal), where ARCH(2)-M skewt took 5.4 s
+IN_MEAN_LAGS = 2
 #: VOLCOMPARE candidates (models x distributions) in one call: 24 of the usual kind took 1.2 s,
 #: 60 took 5.4 s
 COMPARE_CANDIDATES = 24
@@ -45,8 +50,9 @@ COMPARE_CANDIDATES = 24
 #: models (1,800) 13 s, which this bound refuses
 COMPARE_WORK = 1_700
 EGARCH_WEIGHT = Egarch.cost_weight  # 25, kept with the family
-#: an in-mean candidate weighs k x k x (its family's weight + IN_MEAN_WEIGHT): GARCH(1,1)-M t (360
-#: units) took 1.0-1.4 s, GJR-GARCH(1,1)-M skewt (704) 1.2-3.3 s, EGARCH(1,1)-M normal (1,260) 6.4 s
+#: an in-mean candidate weighs k x k x (its family's weight + IN_MEAN_WEIGHT): GARCH(1,1)-M t (396
+#: units) took 0.4-1.0 s, GJR-GARCH(1,1)-M skewt (704) 1.7-2.5 s, EGARCH(1,1)-M normal (1,260)
+#: 4.3-6.4 s; GARCH(1,1)-M and GJR-GARCH(1,1)-M x normal, t (1,606) 2.1-2.7 s
 IN_MEAN_WEIGHT = 10
 #: VOLBACKTEST's work in the units of COMPARE_WORK: each estimation weighs its returns times the
 #: model's weight; for an EGARCH model each forecast also weighs window x (2 + p + q) / 2 for
@@ -78,12 +84,17 @@ def _n_params(spec, dist) -> int:
 
 def check_fit(spec, dist) -> None:
     """A model a worksheet call may estimate: at most FIT_PARAMS parameters (EGARCH_FIT_PARAMS,
-    IN_MEAN_FIT_PARAMS)."""
+    IN_MEAN_FIT_PARAMS; an in-mean model at most IN_MEAN_LAGS variance lags)."""
     k = _n_params(spec, dist)
     special = spec.family.max_fit_params
     limit = FIT_PARAMS if special is None else min(special, FIT_PARAMS)
     if spec.in_mean and IN_MEAN_FIT_PARAMS < limit:
         special, limit = IN_MEAN_FIT_PARAMS, IN_MEAN_FIT_PARAMS
+    lags = spec.family.arch_lags + spec.family.garch_lags
+    if spec.in_mean and lags > IN_MEAN_LAGS:
+        raise BoundError(f"{spec.canonical} has {lags} variance lags; a worksheet call estimates in-mean (-M) models "
+                         f"with at most {IN_MEAN_LAGS} (e.g. GARCH(1,1)-M), whose numerical search can otherwise take "
+                         "well over ten seconds; fit it with the volcast fit command instead")
     if k > limit:
         if spec.in_mean and limit == IN_MEAN_FIT_PARAMS:
             kind = "in-mean (-M) models"
