@@ -346,22 +346,21 @@ class MeanModel:
         sigma[T+1]; beyond, the caller passes the square root of the variance forecast, the
         usual plug-in for E[sigma[T+h]] (by Jensen's inequality it is an upper bound).
         """
-        mu, phi, tht = self.mu_phi_theta(tm)
+        lin = tm[self.lin_idx]
+        tht = tm[self.ma_idx]
         lam = self.lam(tm)
-        xc = self.xcoef(tm)
         T = len(r)
         path = list(r)
         ee = list(np.nan_to_num(e))
         out = np.zeros(H)
         for h in range(H):
-            v = float(mu) if self.spec.has_mu else 0.0
-            for i in range(1, self.spec.ar + 1):
-                v += phi[i - 1] * path[T + h - i]
-            for j in range(1, self.spec.ma + 1):
+            # the linear parts' rows at step h (1, lagged returns observed or forecast, regressors)
+            v = 0.0
+            if len(lin):
+                v = float(lin @ np.concatenate([part.future(path, Xf, h) for part in self.linear]))
+            for j in range(1, len(tht) + 1):  # shocks after T are at their mean, zero
                 if h + 1 - j <= 0:
                     v += tht[j - 1] * ee[T + h - j]
-            if self.regression is not None:
-                v += float(xc @ self.regression.future(path, Xf, h))
             if self.in_mean is not None:
                 v += lam * float(sigma[h])
             path.append(v)
