@@ -8,7 +8,10 @@ fresh process with a wall-time limit (a case over it prints "> LIMIT s wall"):
   compare    VOLCOMPARE at COMPARE_CANDIDATES and COMPARE_WORK, and the old bound of 60 candidates;
   sim        VOLSIM at SIM_PERIODS and SIM_CELLS (as the list of rows a spreadsheet gets), and past them;
   risk       VOLRISK beyond one period and an EGARCH VOLFORECAST at SIM_DRAWS (paths x horizon);
-  backtest   VOLBACKTEST from a model string and from an EGARCH fit table, at and past BACKTEST_WORK.
+  backtest   VOLBACKTEST from a model string and from an EGARCH fit table, at and past BACKTEST_WORK;
+  inmean     in-mean (-M) fits, whose recursion runs one observation at a time with numerical
+             derivatives: at IN_MEAN_FIT_PARAMS and past it, a VOLCOMPARE of in-mean candidates, and
+             a backtest from an in-mean fit table.
 
 A case labelled "past" runs with the bounds lifted in its process, to show what a bound refuses.
 
@@ -17,7 +20,7 @@ prints the CPU time of its process, which the bounds are set by (it changes litt
 shares the machine, where the wall time can triple), and the wall time.  The README's "Bounds"
 subsection quotes the figures.  Best run on a quiet machine:
 
-    python benchmarks/bounds_timing.py [--limit 60] [--only fits,compare,sim,risk,backtest]
+    python benchmarks/bounds_timing.py [--limit 60] [--only fits,compare,sim,risk,backtest,inmean]
 """
 
 from __future__ import annotations
@@ -117,7 +120,7 @@ def _lift_bounds():
     from xlfuncs.sheet import bounds, functions
 
     for name in bounds.__all__:
-        if name.isupper() and name != "EGARCH_WEIGHT":
+        if name.isupper() and name not in ("EGARCH_WEIGHT", "IN_MEAN_WEIGHT"):
             setattr(bounds, name, 10**15)
             if hasattr(functions, name):
                 setattr(functions, name, 10**15)
@@ -156,7 +159,7 @@ def timed(label, fn, *args, limit=60.0):
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--limit", type=float, default=60.0, help="seconds of wall time before a case is stopped")
-    ap.add_argument("--only", default="fits,compare,sim,risk,backtest")
+    ap.add_argument("--only", default="fits,compare,sim,risk,backtest,inmean")
     args = ap.parse_args(argv)
     only = set(args.only.split(","))
     lim = args.limit
@@ -226,6 +229,27 @@ def main(argv=None):
                   limit=lim)
         timed("past: EGARCH(12,12) table window 250 on 1450", case_backtest, None, 250, 1, 1450,
               _table("EGARCH(12,12)", 12, 12), limit=lim)
+
+    if "inmean" in only:
+        print(f"-- in-mean fits on {N_OBS} returns (IN_MEAN_FIT_PARAMS, IN_MEAN_WEIGHT)")
+        for m, d in (("GARCH(1,1)", "t"), ("GARCH(1,1)-M", "normal"), ("GARCH(1,1)-M", "t"),
+                     ("GJR-GARCH(1,1)-M", "skewt"), ("AR(1)-GJR-GARCH(1,1)-M", "t"), ("ARMA(1,1)-GARCH(1,1)-M", "t"),
+                     ("MA(2)-GARCH(1,1)-M", "t"), ("AR(3)-GARCH(1,1)-M", "t"), ("ARCH(2)-M", "skewt"),
+                     ("EGARCH(1,1)-M", "normal"), ("ZERO-EGARCH(1,1)-M", "t"), ("IGARCH(1,1)-M", "t"), ("ZERO-EWMA-M", "t")):
+            timed(f"{m} {d}", case_fit, m, d, limit=lim)
+        for m, d in (("ARMA(1,1)-GJR-GARCH(1,1)-M", "skewt"), ("GARCH(2,2)-M", "t"), ("GJR-GARCH(2,1)-M", "t"),
+                     ("GARCH(1,3)-M", "normal"), ("EGARCH(1,1)-M", "t")):
+            timed(f"past: {m} {d}", case_fit, m, d, limit=lim)
+        timed("GARCH-M, GJR-GARCH-M x normal, t", case_compare, ["GARCH(1,1)-M", "GJR-GARCH(1,1)-M"], "normal,t",
+              limit=lim)
+        timed("past: GARCH-M, GJR-GARCH-M, AR(1)-GARCH-M x normal, t, skewt", case_compare,
+              ["GARCH(1,1)-M", "GJR-GARCH(1,1)-M", "AR(1)-GARCH(1,1)-M"], "normal,t,skewt", limit=lim)
+        table = [["model", "GARCH(1,1)-M"], ["dist", "normal"], ["mu", 0.05], ["lambda_m", 0.1], ["omega", 0.05],
+                 ["alpha[1]", 0.08], ["beta[1]", 0.9]]
+        timed("GARCH(1,1)-M table window 500 on 1000", case_backtest, None, 500, 1, 1000, table, limit=lim)
+        timed("GARCH(1,1)-M window 500 refit 50 on 1000", case_backtest, "GARCH(1,1)-M", 500, 50, 1000, limit=lim)
+        timed("past: GARCH(1,1)-M window 500 refit 10 on 1000", case_backtest, "GARCH(1,1)-M", 500, 10, 1000,
+              limit=lim)
 
 
 if __name__ == "__main__":

@@ -123,7 +123,7 @@ def _log_tail_value_loss(dist, eta, m: float, s: float, c: float, zq: float, a: 
     return val / a
 
 
-def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> Risk:
+def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=None, Xf=None) -> Risk:
     """VaR and expected shortfall of the sum of the next ``horizon`` returns after ``r``.
 
     ``fit`` is a :class:`~xlfuncs.core.estimate.FitResult` and ``r`` the returns it describes
@@ -137,6 +137,10 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> 
     ``returns`` (``log100``, ``log``, ``simple100`` or ``simple``; default: the fit's
     ``options.returns``) says how the returns are defined; when it is known, ``var_value`` and
     ``es_value`` carry the loss as a percentage of the position's value (module docstring).
+
+    ``X`` are the regressors of the sample and ``Xf`` their values over the next ``horizon``
+    periods (one row each), for a fit with regressors.  An in-mean fit's one-period figures are
+    exact too: sigma[T+1] is known at T.
     """
     level = _check_level(level)
     horizon = _whole(horizon, "horizon", 1, MAX_HORIZON)
@@ -152,7 +156,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> 
     params = np.asarray(fit.params, dtype=float)
     eta = params[len(params) - nd:]
 
-    fc = forecast(fit, r, horizon, seed=seed, paths=paths)
+    fc = forecast(fit, r, horizon, seed=seed, paths=paths, X=X, Xf=Xf)
     mean = float(np.sum(fc.mean))
     sd = math.sqrt(float(fc.cumvar[-1]))
 
@@ -175,7 +179,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> 
         # log of the value factor prod (1 + c r), for simple returns only
         log_factor = np.zeros(paths) if defn in ("simple100", "simple") else None
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            for ret, _ in forward_steps(fit, r, horizon, paths, rng):
+            for ret, _ in forward_steps(fit, r, horizon, paths, rng, X, Xf):
                 cum += ret
                 if log_factor is not None:
                     log_factor += np.log1p(np.maximum(c * ret, -1.0))  # a factor below 0 is the value gone

@@ -3,7 +3,8 @@
     ln sigma2[t] = omega + sum_i (alpha_i (|z[t-i]| - E|z|) + gamma_i z[t-i]) + sum_j beta_j ln sigma2[t-j].
 
 The recursion is not linear in lagged squares: it runs in a tight loop, its derivatives are
-numerical, and its forecasts average seeded simulated paths.
+numerical, and its forecasts average seeded simulated paths.  Variance regressors (an intercept
+series ``shift``) add to omega, the log-variance's intercept, so they need no sign restriction.
 """
 
 from __future__ import annotations
@@ -31,6 +32,7 @@ class Egarch(VarianceFamily):
     max_fit_params = 6
     simulated_forecast = True
     log_variance = True
+    takes_shift = True
     words = ("EGARCH",)
     stems = ("omega", "alpha", "gamma", "beta")
     indexed = ("alpha", "gamma", "beta")
@@ -59,7 +61,7 @@ class Egarch(VarianceFamily):
                 + [(0.05, (-0.9999, 0.9999))] * self.q)
 
     # ------------------------------------------------------------------ recursion
-    def _variance(self, vp, e, presample, eta, dist):
+    def _variance(self, vp, e, presample, eta, dist, shift=None):
         """The log-variance recursion as a tight loop; presample news is zero (its expectation)
         and the presample log-variance the log mean square."""
         omega, alpha, gamma, beta = self._split(vp)
@@ -89,8 +91,9 @@ class Egarch(VarianceFamily):
         out = []
         append = out.append
         exp = math.exp
+        oms = None if shift is None else (om + shift).tolist()
         for t in range(start, n):
-            v = om
+            v = om if oms is None else oms[t - start]
             for i in range(1, p + 1):
                 v += al[i - 1] * absz[p + t - i] + ga[i - 1] * zz[p + t - i]
             pos = q + t - start
@@ -141,8 +144,8 @@ class Egarch(VarianceFamily):
         return out if math.isfinite(out) else None
 
     # ------------------------------------------------------------------ forecast and simulation
-    def _forecast(self, vp, eta, dist, history, H, rng, paths):
-        return self._simulated_forecast(vp, eta, dist, history, H, rng, paths), True
+    def _forecast(self, vp, eta, dist, history, H, rng, paths, shift=None):
+        return self._simulated_forecast(vp, eta, dist, history, H, rng, paths, shift), True
 
     def _sim_start(self, vp, eta, dist, paths):
         omega, _, _, beta = self._split(vp)
@@ -158,9 +161,9 @@ class Egarch(VarianceFamily):
         lv = list(np.log(s_obs[len(s_obs) - self.q:])) if self.q else []
         return _SimState([abs(x) - kappa for x in z], z, lv, kappa, clip=True)
 
-    def _sim_variance(self, state, vp, eta, dist):
+    def _sim_variance(self, state, vp, eta, dist, shift=None):
         omega, alpha, gamma, beta = self._split(vp)
-        v = omega
+        v = omega if shift is None else omega + shift
         for i in range(1, self.p + 1):
             v = v + alpha[i - 1] * state.g[-i] + gamma[i - 1] * state.z[-i]
         for j in range(1, self.q + 1):
@@ -176,6 +179,63 @@ class Egarch(VarianceFamily):
             state.z = state.z[1:] + [z]
         if self.q:
             state.lv = state.lv[1:] + [state.v]
+
+    # ------------------------------------------------------------------ one observation at a time
+    def _filter_start(self, vp, eta, dist, u, e_lags, presample):
+        """News at zero (its expectation) and log-variances at the log mean of u^2, as
+        :meth:`_variance` starts; under ``drop`` the lag residuals standardised by that level."""
+        kappa = float(dist.abs_moment(eta))
+        sbar = float(np.mean(u * u))
+        lsbar = math.log(sbar) if sbar > 0 else -700.0
+        sd = math.sqrt(sbar) if sbar > 0 else 1.0
+        if presample == "mean":
+            g, z = [0.0] * self.p, [0.0] * self.p
+        else:
+            z = [x / sd for x in e_lags]
+            g = [abs(x) - kappa for x in z]
+        return _SimState(g, z, [lsbar] * self.q, kappa, clip=False)
+
+    def _filter(self, vp, u, step, presample, eta, dist, shift=None):
+        """The log-variance recursion in plain floats, one observation at a time."""
+        omega, alpha, gamma, beta = self._split(vp)
+        p, q = self.p, self.q
+        al = [float(a) for a in alpha]
+        ga = [float(g) for g in gamma]
+        be = [float(b) for b in beta]
+        n = len(u)
+        s0 = p if presample == "drop" else 0
+        level = float(np.mean(u * u))
+        e = [0.0] * n
+        for t in range(s0):
+            e[t] = float(step(t, level))
+        st = self._filter_start(vp, eta, dist, u, e[:s0], presample)
+        kappa = st.kappa
+        g, zz, lv = list(st.g), list(st.z), list(st.lv)  # newest last
+        om = [float(omega)] * (n - s0) if shift is None else (float(omega) + shift).tolist()
+        out = [0.0] * (n - s0)
+        exp = math.exp
+        for t in range(s0, n):
+            v = om[t - s0]
+            for i in range(1, p + 1):
+                v += al[i - 1] * g[-i] + ga[i - 1] * zz[-i]
+            for j in range(1, q + 1):
+                v += be[j - 1] * lv[-j]
+            if v > 700.0 or v < -700.0:
+                return np.full(n, np.nan), np.full(n - s0, np.nan)
+            sig = exp(0.5 * v)
+            s2 = sig * sig
+            et = step(t, s2)
+            e[t] = et
+            out[t - s0] = s2
+            z = et / sig
+            if p:
+                g.append(abs(z) - kappa)
+                zz.append(z)
+                del g[0], zz[0]
+            if q:
+                lv.append(v)
+                del lv[0]
+        return np.array(e), np.array(out)
 
     # ------------------------------------------------------------------ news impact
     def _news_impact(self, vp, eta, dist, e):
