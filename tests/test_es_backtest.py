@@ -184,6 +184,11 @@ def test_volcoverage_es_errors(es, pattern):
     assert len(out) == 1 and out[0][0].startswith("ERROR:") and pattern in out[0][0], out
 
 
+def test_volcoverage_rows_without_all_three():
+    out = VOLCOVERAGE([[0.1]] * 10 + [[None]] * 10, [[1.0]] * 20, 0.99, [[None]] * 10 + [[2.0]] * 10)
+    assert out == [["ERROR: returns, var and es have no row where all three hold a number"]]
+
+
 def test_es_row_numbers_name_the_range_rows():
     """With blanks at the top, the row an ES error names is the row of the range."""
     r = [[None]] * 3 + [[0.1]] * 30

@@ -365,7 +365,8 @@ def VOLCOVERAGE(returns, var, level=None, es=None):
         rows_used &= set(e.positions.tolist())
     common = sorted(rows_used)
     if not common:
-        raise SheetError("returns and var " + ("and es " if e is not None else "") + "have no row where all hold a number")
+        raise SheetError("returns and var have no row where both hold a number" if e is None
+                         else "returns, var and es have no row where all three hold a number")
     rmap = dict(zip(r.positions.tolist(), r.values.tolist()))
     vmap = dict(zip(v.positions.tolist(), v.values.tolist()))
     rr, vv = [rmap[i] for i in common], [vmap[i] for i in common]
