@@ -23,7 +23,7 @@ def test_walk_forward_matches_refitting_by_hand():
     """Rolling window 380 over 400 returns: each forecast is the one-step forecast of a fit on the
     previous 380 returns, and VaR = -(mean + vol * norm.ppf(0.01)) (SciPy)."""
     series = VOLBACKTEST(CELLS, "GARCH(1,1)", 380, 0.99, "what=series; refit=10")
-    assert series[0] == ["index", "variance", "VaR", "return", "exception"]
+    assert series[0] == ["index", "variance", "VaR", "return", "exception", "ES", "QLIKE"]
     body = series[1:]
     assert len(body) == 20 and body[0][0] == 381
     for k in (0, 10):  # the steps where the model is re-estimated

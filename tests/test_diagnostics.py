@@ -276,8 +276,6 @@ _z = np.random.default_rng(1).standard_normal(40)
         (lambda: run_tests(_z[:MIN_OBS - 1], 2, 0, 0), rf"at least {MIN_OBS} residuals, got {MIN_OBS - 1}"),
         (lambda: jarque_bera([1.0, 2.0, 3.0]), r"at least 10 residuals, got 3"),
         (lambda: sign_bias(np.r_[_z, np.nan]), r"finite numbers; value 41 is nan"),
-        (lambda: run_tests(_z, 2, 2, 0), r"lags must be at least 3, one more than the ARMA order of the mean \(AR \+ MA terms\) = 2, .*; got 2"),
-        (lambda: run_tests(_z, 3, 0, 3), r"lags must be at least 4, one more than the order of the variance model \(ARCH \+ GARCH terms\) = 3"),
         (lambda: ljung_box(_z, 4, 4), r"lags must be at least 5, one more than dof_used = 4, .*; got 4"),
         (lambda: run_tests(_z, 3, -1, 0), r"arma_order must be a whole number of at least 0, got -1"),
         (lambda: run_tests(np.ones((5, 8)), 2, 0, 0), r"one column or one row"),
@@ -298,3 +296,73 @@ def test_max_lags_keeps_arch_lm_regression_estimable():
         assert np.isfinite(arch_lm(z, L)[0])
         with pytest.raises(InputError):
             arch_lm(z, L + 1)
+
+
+# ----------------------------------------------------------------------------------------
+# a test without degrees of freedom blanks its own row only (issue 14)
+def test_lags_below_an_order_blank_only_that_row():
+    rows = run_tests(_z, 2, 2, 0)
+    assert np.isnan(rows[0].statistic) and rows[0].df is None and np.isnan(rows[0].p_value)
+    assert rows[0].note == "not computed: needs lags of at least 3 (the ARMA order 2 plus one), got 2"
+    assert all(np.isfinite(r.statistic) and r.note is None for r in rows[1:])
+    rows = run_tests(_z, 3, 0, 3)
+    assert rows[1].note == "not computed: needs lags of at least 4 (the variance order 3 plus one), got 3"
+    assert np.isfinite(rows[0].statistic) and all(np.isfinite(r.statistic) for r in rows[2:])
+
+
+def test_voltests_lag_one_on_an_ar1_fit_keeps_the_other_tests(ar1):
+    """VOLTESTS(returns, fit, 1) on an AR(1) fit: the Ljung-Box row on z is blank and says why;
+    the other seven rows are the same as the core computes them."""
+    from xlfuncs import VOLFIT, VOLTESTS
+
+    cells = [[float(v)] for v in ar1]
+    out = VOLTESTS(cells, VOLFIT(cells, "AR(1)"), 1)
+    assert out[0] == ["test", "statistic", "df", "p_value", "reading"]
+    lb = out[1]
+    assert lb[:4] == ["Ljung-Box z", None, None, None]
+    assert lb[4] == "not computed: needs lags of at least 2 (the ARMA order 1 plus one), got 1"
+    assert all(isinstance(r[1], float) and isinstance(r[3], float) for r in out[2:])
+
+
+# ----------------------------------------------------------------------------------------
+# readings: they depend on the p-value and on the fit
+def _readings(r, model, dist, lags=10):
+    from xlfuncs import VOLFIT, VOLTESTS
+
+    cells = [[float(v)] for v in r]
+    return {row[0]: row[4] for row in VOLTESTS(cells, VOLFIT(cells, model, dist), lags)[1:]}
+
+
+@pytest.fixture(scope="module")
+def t_garch(simulated):
+    """GARCH(1,1) with Student t(5) shocks, 2,000 returns: fat-tailed standardised residuals."""
+    return simulated("GARCH(1,1)", "t", [0.0, 0.05, 0.08, 0.9, 5.0], 2000, 99)
+
+
+def test_jarque_bera_reading_depends_on_the_distribution(t_garch, iid):
+    """Fat tails reject normality (Jarque & Bera 1980): under normal shocks the reading says try
+    t shocks, under t shocks that the rejection is expected; normal data give no rejection."""
+    assert _readings(t_garch, "GARCH(1,1)", "normal")["Jarque-Bera"] == "fat tails, fatter than normal: try t shocks"
+    assert _readings(t_garch, "GARCH(1,1)", "t")["Jarque-Bera"] == "fat tails: expected with t shocks"
+    assert _readings(iid, "CONST", "normal")["Jarque-Bera"] == "no evidence against normal shocks"
+
+
+def test_autocorrelation_readings(ar1):
+    """An AR(1) series (phi = 0.3) fitted with a constant mean leaves autocorrelation (Ljung & Box
+    1978 rejects); with an AR(1) mean it does not."""
+    assert _readings(ar1, "CONST", "normal")["Ljung-Box z"] == "residual autocorrelation left: consider AR terms in the mean"
+    assert _readings(ar1, "AR(1)", "normal")["Ljung-Box z"] == "no residual autocorrelation left"
+
+
+def test_arch_and_asymmetry_readings(leverage):
+    """The GJR path: a constant variance leaves clustering; a GARCH(1,1) leaves the negative size
+    bias of Engle & Ng (1993) and the reading suggests an asymmetric model; a GJR-GARCH(1,1)
+    captures it."""
+    const = _readings(leverage, "CONST", "normal")
+    assert const["ARCH-LM"] == const["Ljung-Box z^2"] == "volatility clustering: model the variance, e.g. GARCH(1,1)"
+    garch = _readings(leverage, "GARCH(1,1)", "normal")
+    assert garch["ARCH-LM"] == "no ARCH effects left"
+    assert garch["Negative size bias"] == ("large negative shocks raise the variance more than the model allows: "
+                                          "try an asymmetric model (GJR-GARCH, EGARCH)")
+    gjr = _readings(leverage, "GJR-GARCH(1,1)", "normal")
+    assert gjr["Negative size bias"] == "no negative size bias left" and gjr["Joint sign bias"] == "no asymmetry left"

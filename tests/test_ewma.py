@@ -221,7 +221,7 @@ def test_backtest_one_step_variances_restart_the_recursion_in_each_window(dmbp):
     r = dmbp[:206]
     typed = [["model", "EWMA"], ["dist", "normal"], ["mu", 0.0], ["decay", 0.94]]
     out = VOLBACKTEST(column(r), typed, 200, 0.99, "what=series")
-    assert out[0] == ["index", "variance", "VaR", "return", "exception"]
+    assert out[0][:5] == ["index", "variance", "VaR", "return", "exception"]
     for row, t in zip(out[1:], range(200, 206)):
         _, s2, e = ewma_terms(r[t - 200: t], 0.0, 0.94)
         assert_allclose(row[1], 0.94 * s2[-1] + 0.06 * e[-1] ** 2, rtol=1e-12)

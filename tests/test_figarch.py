@@ -414,7 +414,7 @@ def test_fit_table_round_trips_through_the_worksheet(dmbp):
     assert fc[0] == ["step", "mean", "variance", "vol", "cumvar"] and len(fc) == 11
     assert_allclose([row[2] for row in fc[1:]], forecast(f, dmbp, 10).variance, rtol=1e-10)
     tests = VOLTESTS(r, out)
-    assert tests[0] == ["test", "statistic", "df", "p_value"] and len(tests) > 3
+    assert tests[0] == ["test", "statistic", "df", "p_value", "reading"] and len(tests) > 3
 
 
 def test_typed_table_risk_news_and_backtest(dmbp):

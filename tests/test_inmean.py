@@ -307,7 +307,7 @@ def test_worksheet_round_trip(sample):
     assert len(sim) == 20 and len(sim[0]) == 3
     # a walk forward from the table: each step's forecast is VOLFORECAST's on the returns so far
     bt = VOLBACKTEST(sample, table, 380, 0.99, "what=series")
-    assert bt[0] == ["index", "variance", "VaR", "return", "exception"] and len(bt) == 21
+    assert bt[0] == ["index", "variance", "VaR", "return", "exception", "ES", "QLIKE"] and len(bt) == 21
     first = VOLFORECAST(sample[:380], table, 1, "table")[1]
     assert_allclose(bt[1][1], first[2], rtol=1e-12)
     comp = VOLCOMPARE(sample, [["GARCH(1,1)-M"], ["GARCH(1,1)"]], "t")

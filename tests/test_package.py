@@ -11,7 +11,7 @@ import xlfuncs
 
 # DESIGN.md's worksheet function catalogue, as far as it is built
 CATALOGUE = {"VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE",
-             "VOLCOVERAGE", "VOLSIM", "VOLNEWS", "VOLBACKTEST"}
+             "VOLCOVERAGE", "VOLSIM", "VOLNEWS", "VOLBACKTEST", "VOLSTABILITY", "VOLDM"}
 
 
 def test_top_level_exports_the_worksheet_functions():

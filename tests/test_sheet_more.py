@@ -24,7 +24,8 @@ GARCH_TABLE = VOLFIT(GARCH_CELLS, "GARCH(1,1)")
 
 def test_voltests_layout_and_values():
     out = VOLTESTS(GARCH_CELLS, GARCH_TABLE, 5)
-    assert out[0] == ["test", "statistic", "df", "p_value"]
+    assert out[0] == ["test", "statistic", "df", "p_value", "reading"]
+    assert all(isinstance(r[4], str) and r[4] for r in out[1:])
     labels = [r[0] for r in out[1:]]
     assert labels == ["Ljung-Box z", "Ljung-Box z^2", "ARCH-LM", "Jarque-Bera", "Sign bias",
                       "Negative size bias", "Positive size bias", "Joint sign bias"]
@@ -198,3 +199,30 @@ def test_property_volbacktest_never_raises(returns, fit, window, options):
     from xlfuncs import VOLBACKTEST
 
     _check_result(VOLBACKTEST(returns, fit, window, None, options))
+
+
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")
+@_PROPERTY
+@given(returns=_returns, var=_returns, es=_returns, level=_levels)
+def test_property_volcoverage_with_es_never_raises(returns, var, es, level):
+    from xlfuncs import VOLCOVERAGE
+
+    _check_result(VOLCOVERAGE(returns, var, level, es))
+
+
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")
+@_PROPERTY
+@given(returns=_returns, fit=_fits)
+def test_property_volstability_never_raises(returns, fit):
+    from xlfuncs import VOLSTABILITY
+
+    _check_result(VOLSTABILITY(returns, fit))
+
+
+@pytest.mark.filterwarnings("ignore::RuntimeWarning")
+@_PROPERTY
+@given(a=_returns, b=_returns, lags=_lags)
+def test_property_voldm_never_raises(a, b, lags):
+    from xlfuncs import VOLDM
+
+    _check_result(VOLDM(a, b, lags))

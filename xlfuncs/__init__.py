@@ -10,7 +10,7 @@ Layers (imports run one way): ``xlfuncs.core`` (estimation, NumPy/SciPy only) <-
 """
 
 __all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE", "VOLCOVERAGE", "VOLSIM",
-           "VOLNEWS", "VOLBACKTEST"]
+           "VOLNEWS", "VOLBACKTEST", "VOLSTABILITY", "VOLDM"]
 __version__ = "0.1.0"
 
 

@@ -109,9 +109,10 @@ def VOLCOMPARE(returns, models, dist=None, options=None):
 @xw.arg("returns", ndim=2, doc=_RETURNS)
 @xw.arg("var", ndim=2, doc="VaR series, losses as positive numbers, one per return row")
 @xw.arg("level", doc="Confidence level of the VaR, e.g. 0.99 (default)")
-def VOLCOVERAGE(returns, var, level=None):
-    """Coverage tests of a VaR series: exceptions, Kupiec, Christoffersen, traffic-light zone."""
-    return sheet.VOLCOVERAGE(returns, var, level)
+@xw.arg("es", ndim=2, doc="ES series at the same level, losses as positive numbers (optional: adds the ES tests)")
+def VOLCOVERAGE(returns, var, level=None, es=None):
+    """Coverage tests of a VaR series (exceptions, Kupiec, Christoffersen, zone) and, given ES, the ES tests."""
+    return sheet.VOLCOVERAGE(returns, var, level, es)
 
 
 @xw.func
@@ -142,3 +143,20 @@ def VOLNEWS(fit, shocks):
 def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None, regressors=None):
     """Walk-forward backtest: coverage tests, traffic-light zone, QLIKE and MSE."""
     return sheet.VOLBACKTEST(returns, fit_or_model, window, level, options, regressors)
+
+
+@xw.func
+@xw.arg("returns", ndim=2, doc=_RETURNS)
+@xw.arg("fit", ndim=2, doc="Fit table from VOLFIT on these returns")
+def VOLSTABILITY(returns, fit):
+    """Nyblom-Hansen parameter-constancy test: each estimated parameter and all jointly, with 5% critical values."""
+    return sheet.VOLSTABILITY(returns, fit)
+
+
+@xw.func
+@xw.arg("losses_a", ndim=2, doc="Losses of the first forecast, one per period (e.g. the QLIKE column of VOLBACKTEST)")
+@xw.arg("losses_b", ndim=2, doc="Losses of the second forecast, same rows")
+@xw.arg("lags", doc="Newey-West lags (default floor(4 (n/100)^(2/9)))")
+def VOLDM(losses_a, losses_b, lags=None):
+    """Diebold-Mariano test of equal forecast loss with the Harvey-Leybourne-Newbold correction."""
+    return sheet.VOLDM(losses_a, losses_b, lags)

@@ -8,6 +8,11 @@ with what happened.  Given parameters (a fit table) are never re-estimated.
 
 Losses of the variance forecast h against the squared forecast error e^2 (common practice):
 QLIKE = ln h + e^2 / h and MSE = (e^2 - h)^2, both averaged over the forecasts.
+
+Each step also forecasts the expected shortfall at ``level`` from the fitted distribution,
+ES = -mean + vol * ES_z(level), and the ES series is backtested by the tests of
+:mod:`xlfuncs.core.esbacktest` (residuals standardised by the forecast volatility, Z2's
+p-value simulated under the fitted distribution with each step's shape parameters).
 """
 
 from __future__ import annotations
@@ -19,6 +24,7 @@ import numpy as np
 
 from .coverage import Coverage, coverage
 from .errors import InputError
+from .esbacktest import ESTests, es_tests
 from .estimate import evaluate, fit
 from .forecast import forecast
 from .mean import check_regressors, layout
@@ -38,6 +44,13 @@ class Backtest:
     qlike: float
     mse: float
     fits: int  # estimations made
+    es: np.ndarray | None = None  # expected shortfall, a positive loss
+    es_tests: ESTests | None = None
+
+    @property
+    def qlike_series(self) -> np.ndarray:
+        """QLIKE loss of each forecast, ln h + e^2 / h."""
+        return np.log(self.variance) + (self.actual - self.mean) ** 2 / self.variance
 
 
 def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: str = "rolling",
@@ -63,6 +76,7 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     nd = len(dist.param_names)
     steps = T - window
     mean, var_, vr = np.empty(steps), np.empty(steps), np.empty(steps)
+    etas = np.empty((steps, nd))
     theta = None if params is None else np.asarray(params, dtype=float)
     fits = 0
     for i, t in enumerate(range(window, T)):
@@ -75,6 +89,7 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
         state = evaluate(sample, spec, dist, names, theta, options, xs)
         fc = forecast(state, sample, 1, seed=options.seed, paths=options.paths, X=xs, Xf=xf)
         eta = theta[len(theta) - nd:]
+        etas[i] = eta
         mean[i], var_[i] = fc.mean[0], fc.variance[0]
         vr[i] = -(fc.mean[0] + math.sqrt(fc.variance[0]) * float(dist.ppf(1 - level, eta)))
         if progress is not None:
@@ -82,6 +97,19 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     actual = r[window:]
     cov = coverage(actual, vr, level)
     e2 = (actual - mean) ** 2
+    es = _es_forecasts(dist, etas, level, mean, var_)
+    tests = es_tests(actual, vr, es, level, mean=mean, sd=np.sqrt(var_), dist=dist, eta=etas)
     return Backtest(index=np.arange(window, T), mean=mean, variance=var_, var=vr, actual=actual,
                     exception=actual < -vr, coverage=cov, qlike=float(np.mean(np.log(var_) + e2 / var_)),
-                    mse=float(np.mean((e2 - var_) ** 2)), fits=fits)
+                    mse=float(np.mean((e2 - var_) ** 2)), fits=fits, es=es, es_tests=tests)
+
+
+def _es_forecasts(dist, etas, level, mean, variance) -> np.ndarray:
+    """-mean + vol * ES_z(level) per step, ES_z once per distinct set of shape parameters."""
+    cache = {}
+    es_z = np.empty(len(mean))
+    for i, row in enumerate(map(tuple, etas)):
+        if row not in cache:
+            cache[row] = float(dist.expected_shortfall(level, np.array(row)))
+        es_z[i] = cache[row]
+    return -mean + np.sqrt(variance) * es_z

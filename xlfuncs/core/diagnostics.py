@@ -74,6 +74,7 @@ class TestResult:
     statistic: float
     df: float | None
     p_value: float
+    note: str | None = None  # why the row is blank (a test that cannot run with these lags)
 
 
 # ----------------------------------------------------------------------------------------
@@ -256,21 +257,32 @@ def run_tests(z, lags: int, arma_order: int, variance_order: int) -> list[TestRe
     Ljung-Box on z allows for ``arma_order`` (AR order + MA order) degrees of freedom;
     Ljung-Box on z^2 allows for ``variance_order`` (ARCH order + GARCH order, 0 for a
     constant variance).  Reducing the z^2 degrees of freedom by the variance order is
-    common practice rather than an exact result.  ``lags`` must exceed both orders.
+    common practice rather than an exact result.  A Ljung-Box test whose ``lags`` do not
+    exceed its order has no degree of freedom left: its row is ``nan`` with a ``note``
+    saying what it needs, and the other rows are computed as usual.
     """
     a = _series(z)
     n = len(a)
     L = _lags(lags, n)
     p = _whole(arma_order, "arma_order", 0)
     v = _whole(variance_order, "variance_order", 0)
+    notes = {}
+
+    def lb(x, order, what, label):
+        if L - order < 1:
+            notes[label] = f"not computed: needs lags of at least {order + 1} ({what} {order} plus one), got {L}"
+            return math.nan, math.nan, math.nan
+        return _ljung_box(x, L, order, what)
+
     rows = [
-        _ljung_box(a, L, p, "the ARMA order of the mean (AR + MA terms)"),
-        _ljung_box(a ** 2, L, v, "the order of the variance model (ARCH + GARCH terms)"),
+        lb(a, p, "the ARMA order", LABELS[0]),
+        lb(a ** 2, v, "the variance order", LABELS[1]),
         arch_lm(a, L),
         jarque_bera(a),
         *sign_bias(a),
     ]
-    return [TestResult(label, float(s), None if df is None else float(df), float(pv))
+    return [TestResult(label, float(s), None if df is None or not math.isfinite(df) else float(df), float(pv),
+                       notes.get(label))
             for label, (s, df, pv) in zip(LABELS, rows)]
 
 

@@ -32,7 +32,7 @@ from .likelihood import Likelihood
 from .mean import layout
 from .spec import MAX_ORDER, ModelSpec, Options, parse_model, parse_options
 
-__all__ = ["FitResult", "fit", "evaluate", "persistence_of", "check_params", "check_intercept"]
+__all__ = ["FitResult", "fit", "evaluate", "persistence_of", "check_params", "check_intercept", "free_scores"]
 
 _PENALTY = 1e12
 _DECREMENT_TOL = 1e-6  # converged: the log-likelihood is within about tol/2 of its maximum
@@ -844,3 +844,29 @@ def evaluate(r, spec: ModelSpec, dist: Distribution, names, params, options: Opt
         std_errors=np.full(lik.k, np.nan), status=tuple(["given"] * lik.k), loglik=ll, nobs=lik.nobs,
         n_free=nfree, converged=True, message="parameters given, not estimated", estimated=False,
     )
+
+
+def free_scores(r, fit: FitResult):
+    """Per-observation scores of the log-likelihood in the free parameters at ``fit.params``.
+
+    Returns (names of the free parameters, scores nobs x n_free): the estimator's own scores
+    (analytic for the families linear in lagged squares, central differences otherwise).  The
+    free parameters are the ones the estimator moves, so not those the options fix, a sum rule
+    implies or variance targeting sets; a parameter whose ``fit.status`` is ``'bound'`` (held
+    at a box bound) is left out too, and a fit held at the stationarity bound (a weight
+    ``'implied'`` in a family that is not integrated, or parameters whose persistence is the
+    held value 1 - 1e-6, as a fit table shows them) keeps that weight implied.
+    """
+    r = np.asarray(r, dtype=float)
+    lik = Likelihood(r, fit.spec, fit.dist, fit.options.presample)
+    fam = fit.spec.family
+    theta = np.array([fit.param_dict[n] for n in lik.names], dtype=float)
+    held = not fam.integrated and ("implied" in fit.status or (
+        fam.holds_at_bound and abs((persistence_of(fit.spec, fit.dist, theta) or 0.0) - (1.0 - _BOUND_GAP)) < 1e-9))
+    eta = theta[lik.k - len(fit.dist.param_names):]
+    problem = _Problem(lik, fit.options, sum_to=1.0 - _BOUND_GAP if held else None, eta=eta)
+    scales, _ = _scale_and_bounds(problem, r)
+    problem.steps = 1e-5 * scales
+    _, G = problem.scores_free(theta[problem.free])
+    keep = [c for c, i in enumerate(problem.free) if fit.status[i] != "bound"]
+    return tuple(lik.names[problem.free[c]] for c in keep), G[:, keep]

@@ -11,6 +11,7 @@ regressors range each regressor is; a table with them needs the regressors where
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, replace
 
@@ -26,6 +27,7 @@ __all__ = ["HEADER", "encode", "decode", "TableFit"]
 
 HEADER = ["parameter", "estimate", "std_error", "t_stat", "p_value"]
 _STATUS_TEXT = {"fixed": "fixed", "implied": "implied", "target": "targeted", "bound": "at bound", "given": None}
+_STATUS_OF_TEXT = {text: key for key, text in _STATUS_TEXT.items() if text}
 
 
 def _num(x):
@@ -85,6 +87,18 @@ class TableFit:
     params: np.ndarray
     std_errors: dict
     converged: object = None
+    status: dict = dataclasses.field(default_factory=dict)  # name -> fixed, implied, target, bound (the std_error texts)
+
+    @property
+    def estimated(self) -> bool:
+        """The table says it was estimated: a converged row holding TRUE or FALSE (VOLFIT's)."""
+        return isinstance(self.converged, (bool, np.bool_))
+
+    def statuses(self) -> tuple:
+        """Per parameter, as the estimator words it: the table's std_error texts, else free
+        (an estimated table) or given (a typed one)."""
+        other = "free" if self.estimated else "given"
+        return tuple(self.status.get(n, other) for n in self.names)
 
     def as_fit_result(self, r=None) -> FitResult:
         """A FitResult (no estimation) for forecasting and scoring; without returns ``r``, the
@@ -108,6 +122,7 @@ def decode(value, arg: str = "fit") -> TableFit:
     fields = {}
     params = {}
     ses = {}
+    status = {}
     for row in rows:
         if not row or is_blank(row[0]):
             continue
@@ -140,6 +155,8 @@ def decode(value, arg: str = "fit") -> TableFit:
         se = row[2] if len(row) > 2 else None
         if isinstance(se, (int, float)) and not isinstance(se, bool):
             ses[name] = float(se)
+        elif isinstance(se, str) and se.strip().lower() in _STATUS_OF_TEXT:
+            status[name] = _STATUS_OF_TEXT[se.strip().lower()]
     if "model" not in fields or is_blank(fields.get("model")):
         if not params:
             raise SheetError(
@@ -177,4 +194,4 @@ def decode(value, arg: str = "fit") -> TableFit:
     except InputError as exc:
         raise SheetError(f"{arg}: {exc}") from None
     return TableFit(spec=spec, dist=dist, options=options, names=names, params=vals, std_errors=ses,
-                    converged=fields.get("converged"))
+                    converged=fields.get("converged"), status=status)

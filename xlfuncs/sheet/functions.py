@@ -6,6 +6,8 @@
 | ``VOLSERIES(returns, fit, [what], [regressors])`` | one value per return row: variance, vol, resid, stdresid or longrun |
 | ``VOLFORECAST(returns, fit, horizon, [what], [regressors], [future])`` | ``horizon`` rows: variance, vol, cumvar, cumvol, mean, longrun or table |
 | ``VOLLOGLIK(returns, fit, [regressors])`` | the log-likelihood of the returns at the fit's parameters |
+| ``VOLTESTS``, ``VOLSTABILITY``, ``VOLDM`` | residual diagnostics, parameter constancy, equal forecast loss, each row with a reading |
+| ``VOLRISK``, ``VOLCOVERAGE``, ``VOLBACKTEST`` | VaR and ES; their coverage and ES backtests |
 
 ``regressors`` is a range with one column per regressor and one row per returns row (the rows
 line up with the returns; option ``xvar=k,m`` sends columns k and m to the variance);
@@ -22,6 +24,7 @@ line up with the returns; option ``xvar=k,m`` sends columns k and m to the varia
 from __future__ import annotations
 
 import dataclasses
+import re
 
 import numpy as np
 
@@ -33,6 +36,10 @@ from .cache import FIT_CACHE
 from ..core.diagnostics import MIN_OBS as MIN_TEST_OBS, default_lags, max_lags, run_tests
 from ..core.backtest import backtest as core_backtest
 from ..core.coverage import coverage as core_coverage, news_impact
+from ..core.comparison import MIN_PAIRS as DM_MIN_PAIRS, diebold_mariano, max_lags as dm_max_lags
+from ..core.esbacktest import es_tests as core_es_tests
+from ..core import readings
+from ..core.stability import stability as core_stability
 from ..core.errors import VolcastError
 from ..core.forecast import DEFAULT_PATHS, DEFAULT_SEED
 from ..core.simulate import simulate
@@ -45,7 +52,7 @@ from .bounds import (SIM_PATHS, SIM_PERIODS, check_backtest, check_compare, chec
 from .fittable import decode, encode
 
 __all__ = ["VOLFIT", "VOLSERIES", "VOLFORECAST", "VOLLOGLIK", "VOLTESTS", "VOLRISK", "VOLCOMPARE",
-           "VOLCOVERAGE", "VOLSIM", "VOLNEWS", "VOLBACKTEST", "fit_from_cells"]
+           "VOLCOVERAGE", "VOLSIM", "VOLNEWS", "VOLBACKTEST", "VOLSTABILITY", "VOLDM", "fit_from_cells"]
 
 _SERIES_WHAT = ("variance", "vol", "resid", "stdresid", "longrun")
 _FORECAST_WHAT = ("variance", "vol", "cumvar", "cumvol", "mean", "longrun", "table")
@@ -276,7 +283,8 @@ def VOLCOMPARE(returns, models, dist=None, options=None):
 
 @sheet_function
 def VOLTESTS(returns, fit, lags=None, regressors=None):
-    """Diagnostics of a fit: Ljung-Box on z and z^2, ARCH-LM, Jarque-Bera, Engle-Ng sign bias."""
+    """Diagnostics of a fit: Ljung-Box on z and z^2, ARCH-LM, Jarque-Bera, Engle-Ng sign bias,
+    each with a plain-language reading; a test that cannot run at these lags is blank and says why."""
     table, data, result, X = _table_and_returns(returns, fit, regressors)
     resid, var, _ = in_sample(result, data.values, X)
     with np.errstate(all="ignore"):
@@ -288,11 +296,71 @@ def VOLTESTS(returns, fit, lags=None, regressors=None):
     spec = table.spec
     var_order = spec.family.diagnostic_order
     L = int_arg(lags, "lags", 1, max_lags(n), default=default_lags(n, max(spec.ar + spec.ma, var_order)))
-    out = [["test", "statistic", "df", "p_value"]]
-    for t in run_tests(z, L, spec.ar + spec.ma, var_order):
+    out = [["test", "statistic", "df", "p_value", "reading"]]
+    results = run_tests(z, L, spec.ar + spec.ma, var_order)
+    for t, reading in zip(results, readings.diagnostics(results, spec, table.dist, z)):
         df = _cell(t.df)
-        out.append([t.label, _cell(t.statistic), int(df) if df is not None and df.is_integer() else df, _cell(t.p_value)])
+        out.append([t.label, _cell(t.statistic), int(df) if df is not None and df.is_integer() else df,
+                    _cell(t.p_value), reading])
     return out
+
+
+@sheet_function
+def VOLSTABILITY(returns, fit):
+    """Nyblom-Hansen parameter-constancy test of a fit: one row per estimated parameter and a joint row."""
+    if decode(fit, "fit").spec.n_regressors:
+        raise SheetError("VOLSTABILITY does not take a fit with regressors yet; test the model without them")
+    table, data, result, _ = _table_and_returns(returns, fit)
+    result = dataclasses.replace(result, status=table.statuses(), estimated=table.estimated,
+                                 converged=table.converged is not False)
+    st = core_stability(data.values, result)
+    each, joint = readings.stability(st)
+    out = [["parameter", "statistic", "crit_5pct", "reject", "reading"]]
+    for name, L, rej, text in zip(st.names, st.statistics, st.reject, each):
+        out.append([name, _cell(L), st.crit_individual, bool(rej) if np.isfinite(L) else None, text])
+    for name in st.at_bound:
+        out.append([name, None, None, None, "at a bound: not tested (the test needs an interior estimate)"])
+    out.append(["joint", _cell(st.joint), st.crit_joint, st.joint_reject, joint])
+    return out
+
+
+def _pairs(a, b, arg_a: str, arg_b: str):
+    """Two ranges of numbers read pairwise: the values of the rows where both hold one, and a note
+    when some rows have a number in one range only."""
+    x = returns_column(a, arg_a, "skip")
+    y = returns_column(b, arg_b, "skip")
+    if x.length != y.length:
+        raise SheetError(f"{arg_a} and {arg_b} must cover the same rows, got {x.length} and {y.length} cells")
+    px, py = set(x.positions.tolist()), set(y.positions.tolist())
+    common = sorted(px & py)
+    if not common:
+        raise SheetError(f"{arg_a} and {arg_b} have no row where both hold a number")
+    xm = dict(zip(x.positions.tolist(), x.values.tolist()))
+    ym = dict(zip(y.positions.tolist(), y.values.tolist()))
+    note = None
+    if px != py:
+        note = (f"used the {len(common)} rows where both hold a number ({arg_a} has {len(px)}, "
+                f"{arg_b} has {len(py)})")
+    return np.array([xm[i] for i in common]), np.array([ym[i] for i in common]), note
+
+
+@sheet_function
+def VOLDM(losses_a, losses_b, lags=None):
+    """Diebold-Mariano test of equal forecast loss, Newey-West variance, Harvey-Leybourne-Newbold correction."""
+    a, b, note = _pairs(losses_a, losses_b, "losses_a", "losses_b")
+    n = len(a)
+    # too few pairs: the core says so before any complaint about the lags
+    L = None if _one_blank(lags) or n < DM_MIN_PAIRS else int_arg(lags, "lags", 0, dm_max_lags(n))
+    res = diebold_mariano(a, b, L)
+    reading = readings.diebold_mariano(res, "losses_a", "losses_b")
+    if note:
+        reading = f"{reading}; {note}"
+    return _measure_rows([["mean_diff", res.mean_diff], ["statistic", res.statistic], ["p_value", res.p_value],
+                          ["lags", res.lags], ["pairs", res.pairs], ["reading", reading]])
+
+
+def _one_blank(value) -> bool:
+    return all(is_blank(c) for r in as_rows(value) for c in r)
 
 
 def _cell(x):
@@ -337,20 +405,55 @@ def VOLRISK(returns, fit, level=None, horizon=None, regressors=None, future=None
 
 
 @sheet_function
-def VOLCOVERAGE(returns, var, level=None):
-    """Coverage tests of any VaR series (losses positive, one per return row) against the returns."""
+def VOLCOVERAGE(returns, var, level=None, es=None):
+    """Coverage tests of any VaR series (losses positive, one per return row) against the returns;
+    with an ES series as well, the McNeil-Frey and Acerbi-Szekely Z2 tests of the ES."""
     lv = float_arg(level, "level", 0.99, "0.99")
     r = returns_column(returns, "returns", "skip")
     v = returns_column(var, "var", "skip")
     if r.length != v.length:
         raise SheetError(f"returns and var must cover the same rows, got {r.length} and {v.length} cells")
-    common = sorted(set(r.positions.tolist()) & set(v.positions.tolist()))
+    rows_used = set(r.positions.tolist()) & set(v.positions.tolist())
+    e = None
+    if not _one_blank(es):
+        e = returns_column(es, "es", "skip")
+        if e.length != r.length:
+            raise SheetError(f"returns and es must cover the same rows, got {r.length} and {e.length} cells")
+        rows_used &= set(e.positions.tolist())
+    common = sorted(rows_used)
     if not common:
-        raise SheetError("returns and var have no row where both hold a number")
+        raise SheetError("returns and var have no row where both hold a number" if e is None
+                         else "returns, var and es have no row where all three hold a number")
     rmap = dict(zip(r.positions.tolist(), r.values.tolist()))
     vmap = dict(zip(v.positions.tolist(), v.values.tolist()))
-    c = core_coverage([rmap[i] for i in common], [vmap[i] for i in common], lv)
-    return _measure_rows(_coverage_rows(c))
+    rr, vv = [rmap[i] for i in common], [vmap[i] for i in common]
+    c = core_coverage(rr, vv, lv)
+    rows = _coverage_rows(c) + [["coverage reading", readings.coverage(c)]]
+    if e is not None:
+        emap = dict(zip(e.positions.tolist(), e.values.tolist()))
+        try:
+            t = core_es_tests(rr, vv, [emap[i] for i in common], lv)
+        except VolcastError as exc:
+            raise SheetError(_row_words(str(exc), common, r.orientation)) from None
+        rows += _es_rows(t)
+    return _measure_rows(rows)
+
+
+def _row_words(message: str, common, orientation) -> str:
+    """The core counts rows of the numbers it was given; say which row of the range that is."""
+    unit = "column" if orientation == "row" else "row"
+
+    def repl(m):
+        k = int(m.group(2)) - 1
+        return f"{m.group(1)} {unit} {common[k] + 1}" if 0 <= k < len(common) else m.group(0)
+
+    return re.sub(r"\b(ES|VaR|returns) row (\d+)", repl, message)
+
+
+def _es_rows(t):
+    return [["McNeil-Frey t", t.mf_t],
+            ["McNeil-Frey p_value", t.mf_p], ["Acerbi-Szekely Z2", t.z2], ["Z2 p_value", t.z2_p],
+            ["Z2 null", t.z2_null], ["ES reading", readings.expected_shortfall(t)]]
 
 
 def _coverage_rows(c):
@@ -451,10 +554,12 @@ def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None, re
     bt = FIT_CACHE.get_or_fit(key, lambda: core_backtest(
         data.values, spec, dist, opts, w, lv, own.get("scheme", "rolling"), own.get("refit", 1), params, X=X))
     if own.get("what") == "series":
-        out = [["index", "variance", "VaR", "return", "exception"]]
-        for i, v, var, a, x in zip(bt.index, bt.variance, bt.var, bt.actual, bt.exception):
-            out.append([int(data.positions[i]) + 1, float(v), float(var), float(a), bool(x)])
+        out = [["index", "variance", "VaR", "return", "exception", "ES", "QLIKE"]]
+        for i, v, var, a, x, es, ql in zip(bt.index, bt.variance, bt.var, bt.actual, bt.exception, bt.es,
+                                           bt.qlike_series):
+            out.append([int(data.positions[i]) + 1, float(v), float(var), float(a), bool(x), float(es), float(ql)])
         return out
     return _measure_rows(_coverage_rows(bt.coverage) + [
         ["mean QLIKE", bt.qlike], ["mean MSE", bt.mse], ["scheme", own.get("scheme", "rolling")],
-        ["refit every", own.get("refit", 1)], ["estimations", bt.fits]])
+        ["refit every", own.get("refit", 1)], ["estimations", bt.fits],
+        ["coverage reading", readings.coverage(bt.coverage)]] + _es_rows(bt.es_tests))
