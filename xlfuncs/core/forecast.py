@@ -4,8 +4,10 @@
   sigma^2 of the shock h steps ahead, as the model's variance family computes it: the
   families linear in lagged squares by the analytic recursion with E[e^2] = sigma^2 and
   E[1(e<0) e^2] = kappa sigma^2, where kappa = E[z^2 1(z<0)] of the fitted distribution (1/2
-  for the symmetric ones); a family with no simple closed form (EGARCH) by averaging seeded
-  simulated paths.
+  for the symmetric ones); EGARCH by Nelson's (1991) product of moment generating values; a
+  family with no closed form by averaging seeded simulated paths.  Where E[sigma^2] does not
+  exist beyond some step (EGARCH with Student-t shocks: beyond the first), the forecast is +inf
+  there and ``why`` says so (the family's ``moment_horizon``).
 * ``longrun[h]`` is the forecast of the variance's long-run component h steps ahead, for a
   family that has one (the component model); None for the others.
 * ``mean[h]`` is the ARMA mean forecast (future shocks at zero).
@@ -40,6 +42,10 @@ class Forecast:
     cumvar: np.ndarray
     method: str
     longrun: np.ndarray | None = None  # the long-run component's forecasts (component models only)
+    #: E[sigma^2] exists for steps 1..finite_steps only (None: for every step); ``variance`` and
+    #: ``cumvar`` are +inf beyond, and ``why`` says why in a user's words
+    finite_steps: int | None = None
+    why: str | None = None
 
     @property
     def vol(self):
@@ -128,12 +134,20 @@ def forecast(fit, r, horizon: int, seed: int | None = None, paths: int | None = 
     fvar, simulated = spec.family.forecast(vp, eta, fit.dist, history, H, np.random.default_rng(the_seed), n_paths)
     method = f"simulation ({n_paths} paths, seed {the_seed})" if simulated else "analytic"
     longrun = spec.family.long_run_forecast(vp, eta, fit.dist, history, H)
+    steps, why = spec.family.moment_horizon(vp, eta, fit.dist, H)
+    if why is not None:  # the expectation does not exist beyond ``steps``: say so, never a number
+        fvar = np.array(fvar, dtype=float)
+        fvar[steps:] = np.inf
 
     # ---- cumulative variance with ARMA propagation
     psi = psi_weights(phi, tht, H)
     Psi = np.cumsum(psi)
-    cum = np.array([np.sum(fvar[:h] * Psi[h - 1::-1][:h] ** 2) for h in range(1, H + 1)])
-    return Forecast(mean=mean, variance=fvar, cumvar=cum, method=method, longrun=longrun)
+    with np.errstate(invalid="ignore"):
+        cum = np.array([np.sum(fvar[:h] * Psi[h - 1::-1][:h] ** 2) for h in range(1, H + 1)])
+    if why is not None:
+        cum[steps:] = np.inf
+    return Forecast(mean=mean, variance=fvar, cumvar=cum, method=method, longrun=longrun,
+                    finite_steps=steps if why is not None else None, why=why)
 
 
 def require_long_run(spec) -> None:

@@ -124,20 +124,30 @@ def VOLFORECAST(returns, fit, horizon=None, what=None):
     if table.spec.family.simulated_forecast:
         check_draws(_paths(table.options), h, "VOLFORECAST of an EGARCH model")
     fc = core_forecast(result, data.values, h, seed=table.options.seed, paths=table.options.paths)
-    if not (np.all(np.isfinite(fc.variance)) and np.all(np.isfinite(fc.cumvar)) and np.all(np.isfinite(fc.mean))):
-        bad = int(np.flatnonzero(~np.isfinite(fc.cumvar))[0]) + 1 if not np.all(np.isfinite(fc.cumvar)) else 1
+    # steps beyond fc.finite_steps have no finite E[sigma^2] (EGARCH with t shocks): they say so
+    n_ok = h if fc.finite_steps is None else fc.finite_steps
+    if not (np.all(np.isfinite(fc.variance[:n_ok])) and np.all(np.isfinite(fc.cumvar[:n_ok]))
+            and np.all(np.isfinite(fc.mean))):
+        bad = int(np.flatnonzero(~np.isfinite(fc.cumvar))[0]) + 1 if not np.all(np.isfinite(fc.cumvar[:n_ok])) else 1
         raise SheetError(
             f"the forecast overflows at step {bad}: the fit's parameters make the variance explode "
             "(check persistence and omega)"
         )
+    infinite = f"infinite: {fc.why}"
+
+    def cell(values, i):
+        return float(values[i]) if i < n_ok else infinite
+
     if w == "table":
         rows = [["step", "mean", "variance", "vol", "cumvar"]]
         for i in range(h):
-            rows.append([i + 1, float(fc.mean[i]), float(fc.variance[i]), float(fc.vol[i]), float(fc.cumvar[i])])
+            rows.append([i + 1, float(fc.mean[i]), cell(fc.variance, i), cell(fc.vol, i), cell(fc.cumvar, i)])
         return rows
     col = {"variance": fc.variance, "vol": fc.vol, "cumvar": fc.cumvar, "cumvol": fc.cumvol, "mean": fc.mean,
            "longrun": fc.longrun}[w]
-    return [[float(v)] for v in col]
+    if w in ("mean", "longrun"):
+        return [[float(v)] for v in col]
+    return [[cell(col, i)] for i in range(h)]
 
 
 @sheet_function
@@ -266,15 +276,18 @@ def VOLRISK(returns, fit, level=None, horizon=None):
     if h > 1 or table.spec.family.simulated_forecast:
         check_draws(_paths(table.options), h, "VOLRISK")
     rk = core_risk(result, data.values, lv, h, paths=table.options.paths, seed=table.options.seed)
-    values = [rk.var, rk.es, rk.mean, rk.sd]
+    # a figure whose expectation does not exist (EGARCH with t shocks beyond one period) says so
+    es = f"infinite: ES needs E[sigma], and {rk.es_note}" if rk.es_note else float(rk.es)
+    sd = f"infinite: {rk.sd_note}" if rk.sd_note else float(rk.sd)
+    values = [rk.var, rk.mean] + [v for v in (es, sd) if not isinstance(v, str)]
     if rk.returns is not None:
         values += [rk.var_value, rk.es_value]
     if not all(np.isfinite(v) for v in values):
         raise SheetError("the risk figures overflow: the fit's parameters make the variance explode")
-    rows = [["measure", "value"], ["VaR", float(rk.var)], ["ES", float(rk.es)]]
+    rows = [["measure", "value"], ["VaR", float(rk.var)], ["ES", es]]
     if rk.returns is not None:
         rows += [["VaR_value", float(rk.var_value)], ["ES_value", float(rk.es_value)]]
-    rows += [["mean", float(rk.mean)], ["sd", float(rk.sd)], ["level", float(rk.level)],
+    rows += [["mean", float(rk.mean)], ["sd", sd], ["level", float(rk.level)],
              ["horizon", int(rk.horizon)], ["method", rk.method]]
     if rk.returns is not None:
         rows.append(["returns", rk.returns])

@@ -41,7 +41,7 @@ class Constant(VarianceFamily):
     def _variance(self, vp, e, presample, eta, dist):
         return np.full(len(e), vp[0])
 
-    def _derivatives(self, vp, e, de, presample):
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None):
         n = len(e)
         D = np.zeros((de.shape[0] + 1, n))
         D[-1] = 1.0
