@@ -591,7 +591,7 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
                 M = M - np.outer(Ms, Ms) / float(s_ @ Ms) + np.outer(y_, y_) / sy
             u, f, g = cand, fc, gc
             taken += 1
-        if dec < _POLISH_TOL:
+        if dec < _POLISH_TOL or (_attempt and dec < _DECREMENT_TOL):  # a second stall: a kink
             break
     if not dec < _DECREMENT_TOL:  # a stall above the floor but within the tolerance is a maximum at
         return None  # a kink (EGARCH's |z| in the mean parameters), which no Newton step polishes

@@ -76,15 +76,16 @@ def _log_variance_loop(e, om, alpha, gamma, beta, kappa, lsbar, sd0, start):
 
 @kernel
 def _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start):
-    """(sigma2, D) with D[k] = d sigma2 / d theta_k on positions start..n-1, in one forward pass.
+    """(sigma2, D') with D'[s, k] = d sigma2 / d theta_k at position start + s, in one forward pass.
 
-    Rows of D: the mean parameters (through the residuals' derivatives ``de``, nm x n), omega,
-    alpha[1..p], gamma[1..p], beta[1..q], then the distribution's parameters (through
+    Columns of D': the mean parameters (through the residuals' derivatives ``de``, nm x n),
+    omega, alpha[1..p], gamma[1..p], beta[1..q], then the distribution's parameters (through
     d E|z| / d eta = ``dkappa``).  With v the log-variance and z = e exp(-v/2):
         dv_t = direct_t + sum_i alpha_i dg_{t-i} + gamma_i dz_{t-i} + sum_j beta_j dv_{t-j},
         dz_t = de_t exp(-v_t/2) - z_t dv_t / 2,   dg_t = sign(z_t) dz_t - dkappa,
     where direct_t is 1 for omega, g_{t-i} for alpha_i, z_{t-i} for gamma_i and v_{t-j} for
     beta_j; the presample log-variance ln(sbar) moves with the mean parameters through sbar.
+    The lagged derivatives live in ring buffers of p and q rows.
     """
     n = e.shape[0]
     nm = de.shape[0]
@@ -92,26 +93,28 @@ def _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar
     q = beta.shape[0]
     nd = dkappa.shape[0]
     K = nm + 1 + 2 * p + q + nd
-    io = nm  # omega's row; alpha, gamma, beta and the distribution's follow
+    io = nm  # omega's column; alpha, gamma, beta and the distribution's follow
     ia = io + 1
     ig = ia + p
     ib = ig + p
     ie = ib + q
     m = n - start
+    P = max(p, 1)
+    Q = max(q, 1)
     sig2 = np.empty(m)
-    D = np.zeros((K, m))
+    D = np.empty((m, K))
     g = np.zeros(n + p)
     z = np.zeros(n + p)
-    dg = np.zeros((n + p, K))
-    dz = np.zeros((n + p, K))
+    dg = np.zeros((P, K))  # row t % P holds position t's derivatives
+    dz = np.zeros((P, K))
     lv = np.empty(m + q)
-    dlv = np.zeros((m + q, K))
+    dlv = np.zeros((Q, K))  # row (q + t - start) % Q
     lsbar = math.log(sbar) if sbar > 0 else -700.0
     for j in range(q):
         lv[j] = lsbar
         if sbar > 0:
             for k in range(nm):
-                dlv[j, k] = dsbar[k] / sbar
+                dlv[j % Q, k] = dsbar[k] / sbar
     if start > 0:
         sd0 = math.sqrt(sbar) if sbar > 0 else 1.0
         for t in range(start):
@@ -119,42 +122,50 @@ def _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar
             z[p + t] = zt
             g[p + t] = abs(zt) - kappa
             sg = 1.0 if zt > 0 else (-1.0 if zt < 0 else 0.0)
+            row = t % P
             for k in range(nm):
                 d = de[k, t] / sd0
                 if sbar > 0:
                     d -= 0.5 * zt * dsbar[k] / sbar
-                dz[p + t, k] = d
-                dg[p + t, k] = sg * d
+                dz[row, k] = d
+                dg[row, k] = sg * d
             for k in range(nd):
-                dg[p + t, ie + k] = -dkappa[k]
+                dg[row, ie + k] = -dkappa[k]
     dv = np.empty(K)
+    prow = np.zeros(P, dtype=np.int64)  # ring rows of the lags, found once a step
+    qrows = np.zeros(Q, dtype=np.int64)
     for t in range(start, n):
         pos = q + t - start
         v = om[t]
-        for k in range(K):
-            dv[k] = 0.0
-        dv[io] = 1.0
         for i in range(1, p + 1):
-            a = alpha[i - 1]
-            c = gamma[i - 1]
-            r = p + t - i
-            v += a * g[r] + c * z[r]
-            dv[ia + i - 1] += g[r]
-            dv[ig + i - 1] += z[r]
-            for k in range(K):
-                dv[k] += a * dg[r, k] + c * dz[r, k]
+            v += alpha[i - 1] * g[p + t - i] + gamma[i - 1] * z[p + t - i]
         for j in range(1, q + 1):
-            b = beta[j - 1]
-            r = pos - j
-            v += b * lv[r]
-            dv[ib + j - 1] += lv[r]
-            for k in range(K):
-                dv[k] += b * dlv[r, k]
+            v += beta[j - 1] * lv[pos - j]
+        # the lags' derivatives carried through the recursion (news before the first residual
+        # is a constant zero), then the direct terms
+        np_ = min(p, t)
+        for i in range(1, np_ + 1):
+            prow[i - 1] = (t - i) % P
+        for j in range(1, q + 1):
+            qrows[j - 1] = (pos - j) % Q
+        for k in range(K):
+            acc = 0.0
+            for i in range(np_):
+                acc += alpha[i] * dg[prow[i], k] + gamma[i] * dz[prow[i], k]
+            for j in range(q):
+                acc += beta[j] * dlv[qrows[j], k]
+            dv[k] = acc
+        dv[io] += 1.0
+        for i in range(1, p + 1):
+            dv[ia + i - 1] += g[p + t - i]
+            dv[ig + i - 1] += z[p + t - i]
+        for j in range(1, q + 1):
+            dv[ib + j - 1] += lv[pos - j]
         if not (-700.0 <= v <= 700.0):
             for s in range(m):
                 sig2[s] = np.nan
                 for k in range(K):
-                    D[k, s] = np.nan
+                    D[s, k] = np.nan
             return sig2, D
         lv[pos] = v
         sig = math.exp(0.5 * v)
@@ -163,16 +174,18 @@ def _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar
         z[p + t] = zt
         g[p + t] = abs(zt) - kappa
         sg = 1.0 if zt > 0 else (-1.0 if zt < 0 else 0.0)
+        row = t % P
+        qrow = pos % Q
         for k in range(K):
-            dlv[pos, k] = dv[k]
+            dlv[qrow, k] = dv[k]
             d = -0.5 * zt * dv[k]
             if k < nm:
                 d += de[k, t] / sig
-            dz[p + t, k] = d
-            dg[p + t, k] = sg * d
-            D[k, t - start] = s2 * dv[k]
+            dz[row, k] = d
+            dg[row, k] = sg * d
+            D[t - start, k] = s2 * dv[k]
         for k in range(nd):
-            dg[p + t, ie + k] -= dkappa[k]
+            dg[row, ie + k] -= dkappa[k]
         sig2[t - start] = s2
     return sig2, D
 
@@ -418,13 +431,22 @@ class Egarch(VarianceFamily):
         e = _plain(e)
         de = _plain(np.reshape(de, (-1, len(e))))
         eta = np.asarray(eta, dtype=float)
-        kappa = float(dist.abs_moment(eta))
-        dkappa = _abs_moment_gradient(dist, eta)
+        kappa, dkappa = self._kappa_and_gradient(eta, dist)
         sbar, _, _ = self._presample(e)
         dsbar = (2.0 / len(e)) * (de @ e)
         om = np.full(len(e), omega)
         start = self.p if presample == "drop" else 0
-        return _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start)
+        sig2, D = _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start)
+        return sig2, D.T
+
+    def _kappa_and_gradient(self, eta, dist):
+        """E|z| and its gradient in the shape parameters, kept for the last shape asked (the
+        estimator asks for the same one many times in a row)."""
+        key = (dist.name, eta.tobytes())
+        memo = getattr(self, "_kappa_memo", None)
+        if memo is None or memo[0] != key:
+            memo = self._kappa_memo = (key, float(dist.abs_moment(eta)), _abs_moment_gradient(dist, eta))
+        return memo[1], memo[2]
 
     # ------------------------------------------------------------------ summary figures
     def _persistence(self, vp, eta, dist):
