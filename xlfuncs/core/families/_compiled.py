@@ -10,7 +10,7 @@ the command line and the worksheet functions that never run such a recursion nev
 
 Where numba cannot be imported, or ``VOLCAST_NO_JIT`` is set to anything but ``0`` or an empty
 string (so that tests can compare both), the same function runs as ordinary Python: the same
-numbers, one to two orders of magnitude slower.  Where no cache directory is writable, numba
+numbers, about 80 times slower.  Where no cache directory is writable, numba
 compiles in memory on each process's first call.
 """
 
