@@ -8,7 +8,10 @@ fresh process with a wall-time limit (a case over it prints "> LIMIT s wall"):
   compare    VOLCOMPARE at COMPARE_CANDIDATES and COMPARE_WORK, and the old bound of 60 candidates;
   sim        VOLSIM at SIM_PERIODS and SIM_CELLS (as the list of rows a spreadsheet gets), and past them;
   risk       VOLRISK beyond one period and an EGARCH VOLFORECAST at SIM_DRAWS (paths x horizon);
-  backtest   VOLBACKTEST from a model string and from an EGARCH fit table, at and past BACKTEST_WORK.
+  backtest   VOLBACKTEST from a model string and from an EGARCH fit table, at and past BACKTEST_WORK;
+  inmean     in-mean (-M) fits, whose recursion runs one observation at a time with numerical
+             derivatives: at IN_MEAN_FIT_PARAMS and past it, a VOLCOMPARE of in-mean candidates, and
+             a backtest from an in-mean fit table.
 
 A case labelled "past" runs with the bounds lifted in its process, to show what a bound refuses.
 
@@ -17,7 +20,7 @@ prints the CPU time of its process, which the bounds are set by (it changes litt
 shares the machine, where the wall time can triple), and the wall time.  The README's "Bounds"
 subsection quotes the figures.  Best run on a quiet machine:
 
-    python benchmarks/bounds_timing.py [--limit 60] [--only fits,compare,sim,risk,backtest]
+    python benchmarks/bounds_timing.py [--limit 60] [--only fits,compare,sim,risk,backtest,inmean]
 """
 
 from __future__ import annotations
@@ -75,9 +78,11 @@ def case_compare(models, dist="normal"):
 def _table(model, p, q, paths=None):
     rows = [["model", model], ["dist", "normal"], ["mu", 0.05], ["omega", 0.01]]
     rows += [[f"alpha[{i}]", 0.1 / p] for i in range(1, p + 1)]
-    if "EGARCH" in model or "GJR" in model:
+    if "EGARCH" in model or "GJR" in model or "APARCH" in model:
         rows += [[f"gamma[{i}]", -0.05 / p] for i in range(1, p + 1)]
     rows += [[f"beta[{j}]", 0.85 / q] for j in range(1, q + 1)]
+    if "APARCH" in model:
+        rows += [["delta", 1.5]]
     return rows + ([["options", f"paths={paths}"]] if paths else [])
 
 
@@ -96,7 +101,9 @@ def case_draws(model, p, q, horizon, paths):
     t0 = time.perf_counter()
     out = VOLRISK(r, table, 0.99, horizon)
     t1 = time.perf_counter()
-    fc = VOLFORECAST(r, table, horizon) if "EGARCH" in model else [[None]]
+    from xlfuncs.core import parse_model
+
+    fc = VOLFORECAST(r, table, horizon) if parse_model(model).family.simulated_forecast else [[None]]
     return f"VOLRISK {t1 - t0:.2f} s ({str(out[1][0])[:30]}), VOLFORECAST {time.perf_counter() - t1:.2f} s ({len(fc)} rows)"
 
 
@@ -113,7 +120,7 @@ def _lift_bounds():
     from xlfuncs.sheet import bounds, functions
 
     for name in bounds.__all__:
-        if name.isupper() and name != "EGARCH_WEIGHT":
+        if name.isupper() and name not in ("EGARCH_WEIGHT", "IN_MEAN_WEIGHT"):
             setattr(bounds, name, 10**15)
             if hasattr(functions, name):
                 setattr(functions, name, 10**15)
@@ -152,7 +159,7 @@ def timed(label, fn, *args, limit=60.0):
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--limit", type=float, default=60.0, help="seconds of wall time before a case is stopped")
-    ap.add_argument("--only", default="fits,compare,sim,risk,backtest")
+    ap.add_argument("--only", default="fits,compare,sim,risk,backtest,inmean")
     args = ap.parse_args(argv)
     only = set(args.only.split(","))
     lim = args.limit
@@ -163,7 +170,8 @@ def main(argv=None):
                      ("MA(12)-ARCH(1)", "normal"), ("GJR-GARCH(3,3)", "skewt"),
                      ("EGARCH(1,1)", "normal"), ("EGARCH(1,1)", "t"), ("EGARCH(1,2)", "normal"),
                      ("AR(1)-EGARCH(1,1)", "normal"), ("MA(1)-EGARCH(1,1)", "normal"), ("ZERO-EGARCH(1,2)", "t"),
-                     ("ZERO-EGARCH(2,1)", "t")):
+                     ("ZERO-EGARCH(2,1)", "t"), ("GARCH(1,1)", "t"), ("APARCH(1,1)", "t"),
+                     ("ARMA(2,2)-APARCH(2,2)", "skewt"), ("ARMA(1,1)-APARCH(4,2)", "t")):
             timed(f"{m} {d}", case_fit, m, d, limit=lim)
         for m, d in (("ARMA(4,4)-GARCH(4,4)", "normal"), ("ARMA(8,8)-GARCH(1,1)", "normal"),
                      ("ARMA(12,12)-GARCH(1,1)", "normal"), ("ARMA(12,12)-GARCH(12,12)", "normal"),
@@ -180,6 +188,8 @@ def main(argv=None):
         timed("the templates' 6 (GARCH, GJR, EGARCH x normal, t)", case_compare,
               ["GARCH(1,1)", "GJR-GARCH(1,1)", "EGARCH(1,1)"], "normal,t", limit=lim)
         timed("7 models of 16 parameters", case_compare, big, limit=lim)
+        timed("GARCH, GJR, APARCH(1,1), APARCH(2,1), AR(1)-APARCH(1,1) x normal, t", case_compare,
+              ["GARCH(1,1)", "GJR-GARCH(1,1)", "APARCH(1,1)", "APARCH(2,1)", "AR(1)-APARCH(1,1)"], "normal,t", limit=lim)
         timed("EGARCH(1,1) t, ZERO-EGARCH(1,2) normal", case_compare, ["EGARCH(1,1)", "ZERO-EGARCH(1,2)"], "t",
               limit=lim)
         timed("past: 60 usual candidates (15 x 4)", case_compare,
@@ -192,7 +202,7 @@ def main(argv=None):
         print("-- VOLSIM (SIM_PERIODS, SIM_CELLS)")
         for model, p, q, periods, paths in (("GARCH(1,1)", 1, 1, 25_000, 40), ("GJR-GARCH(12,12)", 12, 12, 25_000, 1),
                                             ("EGARCH(12,12)", 12, 12, 25_000, 40), ("GJR-GARCH(12,12)", 12, 12, 1000, 1000),
-                                            ("EGARCH(12,12)", 12, 12, 1000, 1000)):
+                                            ("EGARCH(12,12)", 12, 12, 1000, 1000), ("APARCH(12,12)", 12, 12, 25_000, 40)):
             timed(f"{model} {periods} periods x {paths} paths", case_sim, model, p, q, periods, paths, limit=lim)
         for model, p, q, periods, paths in (("GARCH(1,1)", 1, 1, 100_000, 1), ("GJR-GARCH(12,12)", 12, 12, 100_000, 1)):
             timed(f"past: {model} {periods} periods x {paths} paths", case_sim, model, p, q, periods, paths, limit=lim)
@@ -200,7 +210,8 @@ def main(argv=None):
         print("-- VOLRISK beyond one period and EGARCH VOLFORECAST (SIM_DRAWS)")
         for model, p, q, h, paths in (("GARCH(1,1)", 1, 1, 20, 1_000_000), ("GJR-GARCH(12,12)", 12, 12, 20, 1_000_000),
                                       ("EGARCH(1,1)", 1, 1, 20, 1_000_000), ("EGARCH(12,12)", 12, 12, 20, 1_000_000),
-                                      ("EGARCH(12,12)", 12, 12, 600, 20_000)):
+                                      ("EGARCH(12,12)", 12, 12, 600, 20_000), ("APARCH(1,1)", 1, 1, 20, 1_000_000),
+                                      ("APARCH(12,12)", 12, 12, 20, 1_000_000), ("APARCH(12,12)", 12, 12, 600, 20_000)):
             timed(f"{model} horizon {h} x {paths} paths", case_draws, model, p, q, h, paths, limit=lim)
         timed("past: EGARCH(12,12) horizon 100 x 1000000 paths", case_draws, "EGARCH(12,12)", 12, 12, 100, 1_000_000,
               limit=lim)
@@ -208,7 +219,7 @@ def main(argv=None):
         print("-- VOLBACKTEST (BACKTEST_WORK)")
         for model, window, refit, n in (("GARCH(1,1)", 500, 1, 1000), ("GJR-GARCH(1,1)", 500, 2, 1000),
                                         ("ARMA(6,6)-GARCH(1,1)", 2000, 100, 2500), ("EGARCH(1,1)", 500, 32, 1000),
-                                        ("EGARCH(1,1)", 2000, 250, 2500)):
+                                        ("EGARCH(1,1)", 2000, 250, 2500), ("APARCH(1,1)", 500, 10, 1000)):
             timed(f"{model} window {window} refit {refit} on {n}", case_backtest, model, window, refit, n, limit=lim)
         for p, q, window, n, paths in ((1, 1, 250, 1450, None), (4, 4, 250, 1000, None), (1, 1, 250, 350, 1_000_000)):
             timed(f"EGARCH({p},{q}) table window {window} on {n}, paths {paths or 'default'}", case_backtest,
@@ -218,6 +229,27 @@ def main(argv=None):
                   limit=lim)
         timed("past: EGARCH(12,12) table window 250 on 1450", case_backtest, None, 250, 1, 1450,
               _table("EGARCH(12,12)", 12, 12), limit=lim)
+
+    if "inmean" in only:
+        print(f"-- in-mean fits on {N_OBS} returns (IN_MEAN_FIT_PARAMS, IN_MEAN_WEIGHT)")
+        for m, d in (("GARCH(1,1)", "t"), ("GARCH(1,1)-M", "normal"), ("GARCH(1,1)-M", "t"),
+                     ("GJR-GARCH(1,1)-M", "skewt"), ("AR(1)-GJR-GARCH(1,1)-M", "t"), ("ARMA(1,1)-GARCH(1,1)-M", "t"),
+                     ("MA(2)-GARCH(1,1)-M", "t"), ("AR(3)-GARCH(1,1)-M", "t"), ("ARCH(2)-M", "skewt"),
+                     ("EGARCH(1,1)-M", "normal"), ("ZERO-EGARCH(1,1)-M", "t"), ("IGARCH(1,1)-M", "t"), ("ZERO-EWMA-M", "t")):
+            timed(f"{m} {d}", case_fit, m, d, limit=lim)
+        for m, d in (("ARMA(1,1)-GJR-GARCH(1,1)-M", "skewt"), ("GARCH(2,2)-M", "t"), ("GJR-GARCH(2,1)-M", "t"),
+                     ("GARCH(1,3)-M", "normal"), ("EGARCH(1,1)-M", "t")):
+            timed(f"past: {m} {d}", case_fit, m, d, limit=lim)
+        timed("GARCH-M, GJR-GARCH-M x normal, t", case_compare, ["GARCH(1,1)-M", "GJR-GARCH(1,1)-M"], "normal,t",
+              limit=lim)
+        timed("past: GARCH-M, GJR-GARCH-M, AR(1)-GARCH-M x normal, t, skewt", case_compare,
+              ["GARCH(1,1)-M", "GJR-GARCH(1,1)-M", "AR(1)-GARCH(1,1)-M"], "normal,t,skewt", limit=lim)
+        table = [["model", "GARCH(1,1)-M"], ["dist", "normal"], ["mu", 0.05], ["lambda_m", 0.1], ["omega", 0.05],
+                 ["alpha[1]", 0.08], ["beta[1]", 0.9]]
+        timed("GARCH(1,1)-M table window 500 on 1000", case_backtest, None, 500, 1, 1000, table, limit=lim)
+        timed("GARCH(1,1)-M window 500 refit 50 on 1000", case_backtest, "GARCH(1,1)-M", 500, 50, 1000, limit=lim)
+        timed("past: GARCH(1,1)-M window 500 refit 10 on 1000", case_backtest, "GARCH(1,1)-M", 500, 10, 1000,
+              limit=lim)
 
 
 if __name__ == "__main__":

@@ -30,19 +30,10 @@ from xlfuncs.core.families.cgarch import RHO_CAP, weights_nonnegative
 from xlfuncs.core.likelihood import Likelihood
 from xlfuncs.core.simulate import simulate_forward
 
+from helpers import column, lre
+
 NAMES = ("mu", "omega", "alpha[1]", "beta[1]", "rho", "psi")
 P0 = dict(mu=0.01, omega=0.25, alpha=0.12, beta=0.6, rho=0.97, psi=0.05)
-
-
-def lre(value, ref):
-    """Log relative error: the number of correct significant digits (McCullough 1998)."""
-    if value == ref:
-        return math.inf
-    return -math.log10(abs(value - ref) / abs(ref))
-
-
-def column(x):
-    return [[float(v)] for v in x]
 
 
 def garch22(omega, alpha, beta, rho, psi):

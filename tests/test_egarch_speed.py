@@ -291,6 +291,41 @@ def test_exact_forecast_agrees_with_a_long_simulation(dmbp, model, dist, params)
     assert np.all(np.abs(s2.mean(axis=1) - fc.variance) <= 4.5 * se + 1e-14)
 
 
+@pytest.mark.parametrize("dist,eta", [("normal", []), ("ged", [1.3])])
+def test_exact_forecast_with_a_future_intercept_series(dmbp, dist, eta):
+    """Variance regressors: a known future series adds to each step's log-variance intercept, so
+    the exact forecast moves only through m_{T+h}.  Step 1 against the recursion written out;
+    every step against the mean variance of 200,000 seeded paths stepped by the family's own
+    simulation with the same series, within 4.5 Monte Carlo standard errors."""
+    fam = parse_model("EGARCH(1,2)").family
+    d = get_distribution(dist)
+    vp = np.array([-0.02, 0.2, -0.06, 0.55, 0.4])
+    e = dmbp - dmbp.mean()
+    shift_in = 0.05 * np.sin(np.arange(len(e)) / 7.0)
+    s2 = fam.variance(vp, e, "mean", eta, d, shift=shift_in)
+    hist = History(e, s2, 0)
+    H = 12
+    shift = 0.3 * np.cos(np.arange(H))  # a strong, changing series
+    fc, simulated = fam.forecast(vp, eta, d, hist, H, shift=shift)
+    assert not simulated
+    kappa = d.abs_moment(eta)
+    z = e[-1] / math.sqrt(s2[-1])
+    one = math.exp(vp[0] + shift[0] + vp[1] * (abs(z) - kappa) + vp[2] * z + vp[3] * math.log(s2[-1])
+                   + vp[4] * math.log(s2[-2]))
+    assert _lre(fc[0], one) >= 10
+    plain, _ = fam.forecast(vp, eta, d, hist, H)
+    assert np.all(np.abs(fc - plain) > 1e-3 * plain)  # the series moves every step
+    rng = np.random.default_rng(77)
+    state = fam.sim_continue(vp, eta, d, hist)
+    n = 200_000
+    sims = np.empty((H, n))
+    for h in range(H):
+        sims[h], _ = fam.sim_step(state, vp, eta, d, d.rvs(n, eta, rng), shift=shift[h])
+    se = sims.std(axis=1) / math.sqrt(n)
+    assert_allclose(sims[0], fc[0], rtol=1e-12)
+    assert np.all(np.abs(sims.mean(axis=1) - fc) <= 4.5 * se + 1e-14)
+
+
 def test_unconditional_variance_is_the_forecasts_limit(dmbp):
     """E[sigma^2] (the fit table's uncond_variance) is where the exact forecast settles."""
     f = _given(dmbp, "EGARCH(1,1)", "ged", {**E11, "beta[1]": 0.9, "nu": 1.6})
@@ -324,6 +359,27 @@ def test_heavy_tailed_shocks_have_no_variance_forecast_beyond_one_step(dmbp, dis
     assert all(isinstance(one[k], float) for k in ("VaR", "ES", "sd"))
     rk = risk(f, dmbp, 0.99, 10)
     assert math.isinf(rk.es) and math.isfinite(rk.var) and rk.es_note
+
+
+def test_an_in_mean_term_at_an_infinite_volatility_forecast(dmbp):
+    """EGARCH(1,1)-M with t shocks: the mean forecast mu + lambda_m E[sigma_{T+h}] (the model's
+    definition) has no finite value beyond one step when lambda_m != 0, and the cells say so; with
+    lambda_m = 0 it is mu at every step (no 0 x inf)."""
+    cells = [[x] for x in dmbp]
+    for lam in (0.1, -0.1, 0.0):
+        table = [["model", "EGARCH(1,1)-M"], ["dist", "t"], ["mu", 0.01], ["lambda_m", lam], ["omega", -0.02],
+                 ["alpha[1]", 0.2], ["gamma[1]", -0.05], ["beta[1]", 0.95], ["nu", 7.0]]
+        col = VOLFORECAST(cells, table, 3, "mean")
+        tab = VOLFORECAST(cells, table, 3, "table")
+        rows = dict((r[0], r[1]) for r in VOLRISK(cells, table, 0.99, 3))
+        assert isinstance(col[0][0], float) and col[0][0] == tab[1][1]
+        assert isinstance(rows["VaR"], float) and rows["VaR"] > 0
+        if lam:
+            for c in (col[1][0], col[2][0], tab[2][1], tab[3][1], rows["mean"]):
+                assert c.startswith("infinite: the in-mean term needs the volatility forecast"), c
+        else:
+            assert [c[0] for c in col] == [0.01] * 3 and [r[1] for r in tab[1:]] == [0.01] * 3
+            assert_allclose(rows["mean"], 0.03, rtol=1e-12)
 
 
 def test_normal_shocks_keep_every_figure_finite(dmbp):

@@ -19,12 +19,7 @@ from xlfuncs import (VOLBACKTEST, VOLCOMPARE, VOLFIT, VOLFORECAST, VOLLOGLIK, VO
 from xlfuncs.core import evaluate, fit, forecast, get_distribution, parse_model, parse_options
 from xlfuncs.core.likelihood import Likelihood
 
-
-def lre(value, ref):
-    """Log relative error: the number of correct significant digits (McCullough 1998)."""
-    if value == ref:
-        return math.inf
-    return -math.log10(abs(value - ref) / abs(ref))
+from helpers import column, lre
 
 
 def logdensity(dist, e, s2, shape=None):
@@ -68,10 +63,6 @@ def ewma_terms(r, mu, decay, dist="normal", shape=None, presample="mean"):
 
 def ewma_loglik(r, mu, decay, dist="normal", shape=None, presample="mean"):
     return float(np.sum(ewma_terms(r, mu, decay, dist, shape, presample)[0]))
-
-
-def column(x):
-    return [[float(v)] for v in x]
 
 
 # ----------------------------------------------------------------------------------------

@@ -14,6 +14,8 @@ import pytest
 from xlfuncs.core import get_distribution, parse_model
 from xlfuncs.core.families import FAMILIES, WORDS, History, VarianceFamily
 
+from helpers import family_models
+
 ROOT = Path(__file__).resolve().parents[1] / "xlfuncs"
 # the modules that must reach a family through the protocol only (spec.py parses the words)
 NO_BRANCHES = ["core/estimate.py", "core/likelihood.py", "core/forecast.py", "core/simulate.py",
@@ -30,26 +32,7 @@ def test_no_module_above_the_families_names_one(module):
     assert named == [], f"{module} names the families {named}"
 
 
-def _models():
-    out = []
-    for cls in FAMILIES.values():
-        if not cls.words:
-            out.append("CONST")
-            continue
-        word = cls.words[0]
-        if cls.n_orders == 0 or cls.read_orders(word, None) is not None:  # no orders, or orders of its own form
-            out.append(word)
-            continue
-        model = f"{word}(1)" if cls.n_orders == 1 else f"{word}(2,1)"
-        try:
-            parse_model(model)
-        except ValueError:  # a family of one order only (CGARCH(1,1)): its bare word
-            model = word
-        out.append(model)
-    return out
-
-
-@pytest.mark.parametrize("model", _models())
+@pytest.mark.parametrize("model", family_models())
 def test_every_family_keeps_the_protocol(model):
     spec = parse_model(model)
     fam = spec.family

@@ -30,14 +30,9 @@ from xlfuncs.core.families.figarch import TRUNCATION, weights
 from xlfuncs.core.likelihood import Likelihood
 from xlfuncs.core.simulate import simulate, simulate_forward
 
+from helpers import column, lre
+
 K = 1000
-
-
-def lre(value, ref):
-    """Log relative error: the number of correct significant digits (McCullough 1998)."""
-    if value == ref:
-        return math.inf
-    return -math.log10(abs(value - ref) / abs(ref))
 
 
 def direct_weights(d, phi=0.0, beta=0.0):
@@ -89,10 +84,6 @@ def logdensity(dist, e, s2, shape=None):
     if dist == "normal":
         return stats.norm.logpdf(e, scale=np.sqrt(s2))
     return stats.t.logpdf(e, shape, scale=np.sqrt(s2 * (shape - 2) / shape))
-
-
-def column(x):
-    return [[float(v)] for v in x]
 
 
 def table(model="FIGARCH(1,d,1)", dist="normal", **params):

@@ -4,6 +4,7 @@
 | --- | --- |
 | ``spec`` | model-string and options-string parsing |
 | ``distributions`` | standardised normal, Student t, Hansen skewed t, GED |
+| ``mean`` | the conditional mean's parts (intercept, ARMA, regressors, in-mean), residuals, mean forecasts |
 | ``likelihood`` | mean and variance recursions, log-likelihood and analytic scores |
 | ``estimate`` | maximum likelihood, standard errors, fit statistics |
 | ``forecast`` | multi-step mean and variance forecasts |

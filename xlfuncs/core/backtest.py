@@ -21,6 +21,7 @@ from .coverage import Coverage, coverage
 from .errors import InputError
 from .estimate import evaluate, fit
 from .forecast import forecast
+from .mean import check_regressors, layout
 
 __all__ = ["Backtest", "backtest"]
 
@@ -40,9 +41,13 @@ class Backtest:
 
 
 def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: str = "rolling",
-             refit: int = 1, params=None, progress=None) -> Backtest:
+             refit: int = 1, params=None, progress=None, X=None) -> Backtest:
+    """Walk forward over ``r`` (module docstring).  ``X``: the regressors, one row per return; each
+    forecast reads the regressors' row of the return it forecasts."""
     r = np.asarray(r, dtype=float)
     T = len(r)
+    spec = layout(spec, X, options.xvar)
+    X = check_regressors(X, T, spec)
     if scheme not in ("rolling", "expanding"):
         raise InputError(f"scheme must be rolling or expanding, got {scheme}")
     if not (isinstance(window, int) and spec.min_obs <= window < T):
@@ -53,6 +58,8 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     if not (0.5 <= level < 1):
         raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {level}")
     names = tuple(spec.param_names) + tuple(dist.param_names)
+    if params is not None and len(params) != len(names):
+        raise InputError(f"{spec.canonical} with {dist.name} shocks takes {len(names)} parameters, got {len(params)}")
     nd = len(dist.param_names)
     steps = T - window
     mean, var_, vr = np.empty(steps), np.empty(steps), np.empty(steps)
@@ -61,11 +68,12 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     for i, t in enumerate(range(window, T)):
         start = t - window if scheme == "rolling" else 0
         sample = r[start:t]
+        xs, xf = (None, None) if X is None else (X[start:t], X[t:t + 1])
         if params is None and (theta is None or i % refit == 0):
-            theta = fit(sample, spec, dist, options).params
+            theta = fit(sample, spec, dist, options, xs).params
             fits += 1
-        state = evaluate(sample, spec, dist, names, theta, options)
-        fc = forecast(state, sample, 1, seed=options.seed, paths=options.paths)
+        state = evaluate(sample, spec, dist, names, theta, options, xs)
+        fc = forecast(state, sample, 1, seed=options.seed, paths=options.paths, X=xs, Xf=xf)
         eta = theta[len(theta) - nd:]
         mean[i], var_[i] = fc.mean[0], fc.variance[0]
         vr[i] = -(fc.mean[0] + math.sqrt(fc.variance[0]) * float(dist.ppf(1 - level, eta)))

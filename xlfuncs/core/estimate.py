@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy import optimize, stats
@@ -29,13 +29,15 @@ from .distributions import Distribution, get_distribution
 from .errors import ConvergenceError, InputError
 from .families import FAMILIES, stationary
 from .likelihood import Likelihood
+from .mean import layout
 from .spec import MAX_ORDER, ModelSpec, Options, parse_model, parse_options
 
-__all__ = ["FitResult", "fit", "evaluate", "persistence_of", "check_params"]
+__all__ = ["FitResult", "fit", "evaluate", "persistence_of", "check_params", "check_intercept"]
 
 _PENALTY = 1e12
 _DECREMENT_TOL = 1e-6  # converged: the log-likelihood is within about tol/2 of its maximum
 _POLISH_TOL = 1e-12  # Newton polishing stops here
+_NUMERIC_POLISH_TOL = 1e-9  # ... and here for an in-mean model (numerical derivatives)
 _BOUND_GAP = 1e-6  # a fit on the stationarity bound holds persistence at 1 - gap
 
 
@@ -103,9 +105,10 @@ def _variance_part(spec: ModelSpec, dist: Distribution, params):
     """(variance parameters, distribution parameters) of a full parameter vector."""
     params = np.asarray(params, dtype=float)
     nm, nv, nd = len(spec.mean_names), len(spec.variance_names), len(dist.param_names)
-    if len(params) != nm + nv + nd:
-        raise ValueError(f"{spec.canonical} with {dist.name} shocks takes {nm + nv + nd} parameters, got {len(params)}")
-    return params[nm: nm + nv], params[nm + nv:]
+    ns = len(spec.shift_names)
+    if len(params) != nm + nv + ns + nd:
+        raise ValueError(f"{spec.canonical} with {dist.name} shocks takes {nm + nv + ns + nd} parameters, got {len(params)}")
+    return params[nm: nm + nv], params[nm + nv + ns:]
 
 
 def persistence_of(spec: ModelSpec, dist: Distribution, params) -> float | None:
@@ -115,6 +118,9 @@ def persistence_of(spec: ModelSpec, dist: Distribution, params) -> float | None:
 
 
 def uncond_variance_of(spec: ModelSpec, dist: Distribution, params) -> float | None:
+    """E[sigma^2]; None where undefined, and with variance regressors (it then moves with them)."""
+    if spec.xvar:
+        return None
     vp, eta = _variance_part(spec, dist, params)
     return spec.family.uncond_variance(vp, eta, dist)
 
@@ -129,6 +135,24 @@ def check_params(spec: ModelSpec, dist: Distribution, names, params) -> None:
     dist.check(eta)
     vp = np.array([d[n] for n in spec.variance_names], dtype=float)
     spec.family.check(vp, eta, dist)
+
+
+def check_intercept(lik: Likelihood, theta, rows=None) -> None:
+    """Raise InputError if variance regressors push the family's intercept out of its domain
+    (omega + sum v[k] Z[t,k] must stay above zero in the families linear in squares).
+    ``rows``: the row number of each return, for the message (default 1, 2, ...)."""
+    if lik.Z is None:
+        return
+    bad = lik.family.bad_shift(theta[lik._vs], lik.shift(theta))
+    if bad.any():
+        t = int(np.flatnonzero(bad)[0])
+        i = lik.a + lik.s0 + t
+        row = int(rows[i]) if rows is not None else i + 1
+        terms = " + ".join(lik.spec.shift_names)
+        raise InputError(f"the variance intercept omega + {terms} x (regressor) is not above zero at returns row {row} "
+                         f"({float(theta[lik._vs][0] + lik.shift(theta)[t]):.6g}); the variance would not stay positive. "
+                         "Keep omega + sum v[k] Z[t,k] above zero at every row (e.g. regressors of one sign with "
+                         "v[k] >= 0)")
 
 
 # ---------------------------------------------------------------------------------------
@@ -156,6 +180,7 @@ class _Problem:
         self.implied = None
         self.sum_to = 1.0 if fam.integrated else sum_to
         rule = None
+        self.held_by_family = False  # a rule the affine map cannot carry: the family sets the implied weight
         if self.sum_to is not None:
             rule = fam.sum_rule(lik.dist.start() if eta is None else eta, lik.dist)
             last = rule[0]
@@ -163,7 +188,14 @@ class _Problem:
                 raise InputError(f"options: {last} is implied by the others (the alphas and betas of an IGARCH model sum to 1); fix another parameter")
             self.implied = lik.idx[last]
             status[self.implied] = "implied"
+            self.held_by_family = rule[1] is None
+        if options.xvar and not spec.xvar:
+            raise InputError(f"options: xvar={','.join(map(str, options.xvar))} sends regressor columns to the variance, "
+                             "but no regressors are given")
         self.target = options.target
+        if self.target and spec.xvar:
+            raise InputError("options: target=yes cannot be combined with variance regressors (xvar=): the long-run "
+                             "variance then moves with the regressors; leave one of them out")
         if self.target:
             tname = fam.targeted
             if tname is None:
@@ -181,7 +213,7 @@ class _Problem:
         # affine map full = base + A u (IGARCH implied parameter included)
         A = np.zeros((k, len(self.free)))
         A[self.free, np.arange(len(self.free))] = 1.0
-        if self.implied is not None:
+        if self.implied is not None and not self.held_by_family:
             weights = {lik.idx[n]: w for n, w in rule[1].items()}
             weights.pop(self.implied)
             self.base[self.implied] = self.sum_to - sum(w * self.base[i] for i, w in weights.items() if status[i] == "fixed")
@@ -190,11 +222,39 @@ class _Problem:
                     A[self.implied, col] = -weights[i]
         self.A = A
         self.analytic = lik.linear and not self.target
+        # scoring iterations (BHHH): with analytic scores, or numerical ones for an in-mean model,
+        # which starts next to its maximum (from the fit without the in-mean term)
+        self.scoring = self.analytic or lik.in_mean
+        # where Newton polishing stops: numerical derivatives of an in-mean likelihood (about seven
+        # correct digits) cannot pin the decrement to 1e-12; 1e-9 still leaves the log-likelihood
+        # within 1e-9 of its maximum and the estimates far inside their standard errors
+        self.polish_tol = _NUMERIC_POLISH_TOL if lik.in_mean else _POLISH_TOL
         self.n_calls = 0
+
+    def jacobian(self, theta):
+        """d full / d u at ``theta``: the affine map A, and where the family holds a rule of its
+        own, the implied parameter's derivatives (from :meth:`VarianceFamily.hold`) carried through A."""
+        if not self.held_by_family:
+            return self.A
+        _, _, _, vp, eta = self.lik.split(np.array(theta, dtype=float))
+        row = np.zeros(self.lik.k)
+        d = self.family.hold(vp, self.sum_to, eta, self.dist)  # variance parameters, then the distribution's
+        nv, nd = len(vp), len(eta)
+        row[self.lik.n_mean: self.lik.n_mean + nv] = d[:nv]
+        if nd:
+            row[self.lik.k - nd:] = d[nv:]
+        row[self.implied] = 0.0
+        M = self.A.copy()
+        M[self.implied] = row @ self.A
+        return M
 
     def full(self, u):
         theta = self.base + self.A @ u
+        if self.held_by_family:
+            _, _, _, vp, eta = self.lik.split(theta)
+            self.family.hold(vp, self.sum_to, eta, self.dist)  # vp is a view: theta changes in place
         if self.target:
+            # the mean square of the mean's residuals (without an in-mean term, as the presample)
             e, _ = self.lik.residuals(theta)
             vbar = float(np.mean(e * e))
             _, _, _, vp, eta = self.lik.split(theta)
@@ -203,17 +263,17 @@ class _Problem:
 
     # ----- admissible region (beyond box bounds) ---------------------------------------
     def admissible(self, theta) -> bool:
-        spec = self.spec
-        mu, phi, tht, vp, eta = self.lik.split(theta)
+        lik = self.lik
+        mu, phi, tht, vp, eta = lik.split(theta)
         lo_hi = self.dist.bounds()
         for v, (lo, hi) in zip(eta, lo_hi):
             if not (lo < v < hi):
                 return False
-        if spec.ar and not _stationary(phi):
+        if not lik.mean.admissible(theta[: lik.n_mean]):
             return False
-        if spec.ma and not _stationary(-np.asarray(tht)):
+        if not self.family.admissible(vp, eta, self.dist, held=self.sum_to is not None):
             return False
-        return self.family.admissible(vp, eta, self.dist, held=self.sum_to is not None)
+        return lik.intercept_ok(theta)  # variance regressors keep the intercept positive
 
     # ----- objective -------------------------------------------------------------------
     def negll(self, u):
@@ -229,7 +289,7 @@ class _Problem:
         theta = self.full(u)
         if self.analytic:
             l, G = self.lik.scores(theta)
-            return l, G @ self.A
+            return l, G @ self.jacobian(theta)
         l = self.lik.terms(theta)
         G = np.empty((len(l), len(u)))
         for j in range(len(u)):
@@ -249,7 +309,7 @@ class _Problem:
             val, g = self.lik.gradient(theta)
             if not math.isfinite(val):
                 return _PENALTY, np.zeros(len(u))
-            return -val, -(g @ self.A)
+            return -val, -(g @ self.jacobian(theta))
         val = self.lik.loglik(theta)
         if not math.isfinite(val):
             return _PENALTY, np.zeros(len(u))
@@ -320,15 +380,15 @@ def _scale_and_bounds(problem: _Problem, r):
     spec = problem.spec
     sd = float(np.std(r)) or 1.0
     var = sd * sd
-    vbox = dict(zip(spec.variance_names, problem.family.box(var)))
+    box = dict(zip(spec.mean_names, lik.mean.box()))
+    box.update(zip(spec.variance_names, problem.family.box(var)))
+    for k, n in zip(spec.xvar, spec.shift_names):  # v[k]: per unit of its regressor
+        sz = float(np.std(lik.X[:, k - 1])) or 1.0
+        box[n] = (0.05 * var / sz, (None, None))
     scales, bounds = [], []
     for n in lik.names:
-        if n == "mu":
-            s, b = 0.1 * sd, (None, None)
-        elif n.startswith("phi") or n.startswith("theta"):
-            s, b = 0.1, (-0.9999, 0.9999) if (spec.ar if n.startswith("phi") else spec.ma) == 1 else (None, None)
-        elif n in vbox:
-            s, b = vbox[n]
+        if n in box:
+            s, b = box[n]
         elif n == "nu":
             s = 1.0
             lo = problem.dist.bounds()[0][0]
@@ -343,47 +403,35 @@ def _scale_and_bounds(problem: _Problem, r):
     return np.array(scales)[free], [bounds[i] for i in free]
 
 
-def _start_candidates(problem: _Problem, r) -> list:
-    """Full-parameter starting points, best first by log-likelihood."""
+def _start_candidates(problem: _Problem, r, extra=()) -> list:
+    """Full-parameter starting points, best first by log-likelihood; ``extra`` are further
+    full vectors to try (an in-mean model's: the fit without the in-mean term)."""
     lik = problem.lik
-    spec = problem.spec
     dist = problem.dist
     k = lik.k
     idx = lik.idx
+    fixed = problem.options.fixed_dict
     th = np.zeros(k)
-    # mean: sample mean / OLS AR coefficients, MA at zero
-    if spec.has_mu:
-        th[idx["mu"]] = float(np.mean(r))
-    if spec.ar:
-        X = lik.rlag.T
-        y = lik.y
-        if spec.has_mu:
-            X = np.column_stack([np.ones(len(y)), X])
-        coef = np.linalg.lstsq(X, y, rcond=None)[0]
-        phis = coef[1:] if spec.has_mu else coef
-        if not _stationary(phis):
-            phis = phis * 0.0
-        if spec.has_mu:
-            th[idx["mu"]] = coef[0] if np.any(phis) else float(np.mean(r))
-        for i in range(spec.ar):
-            th[idx[f"phi[{i + 1}]"]] = phis[i]
-    for n, v in problem.options.fixed_dict.items():
+    # mean: least squares for the linear parts (sample mean, AR, regressors), MA and in-mean at zero
+    th[: lik.n_mean] = lik.mean.start(fixed)
+    for n, v in fixed.items():
         th[idx[n]] = v
     e, _ = lik.residuals(th)
     v = float(np.mean(e * e)) or 1.0
     eta = dist.start()
     for n, val in zip(dist.param_names, eta):
         th[idx[n]] = val
-    for n, val in problem.options.fixed_dict.items():
+    for n, val in fixed.items():
         th[idx[n]] = val
     cands = []
     vs = lik._vs
     for vp in problem.family.starts(v):
         t = th.copy()
         t[vs] = vp
-        for n, val in problem.options.fixed_dict.items():
+        for n, val in fixed.items():
             t[idx[n]] = val
         cands.append(t)
+    cands.extend(np.asarray(t, dtype=float) for t in extra)
     scored = []
     for t in cands:
         u = t[problem.free]
@@ -456,7 +504,7 @@ def _polish(problem: _Problem, u, scales, sbounds, max_steps=8):
             return u, H, math.inf, active, taken
         step_f = np.linalg.solve(L.T, np.linalg.solve(L, g[fr]))
         dec = float(g[fr] @ step_f)
-        if dec < _POLISH_TOL:
+        if dec < problem.polish_tol:
             return u, H, dec, active, taken
         step = np.zeros(m)
         step[fr] = step_f
@@ -515,12 +563,12 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
 
     # normal shocks: Fisher scoring with the expected information (Gauss-Newton for the mean
     # and variance); otherwise the outer product of the scores
-    fisher = problem.dist.name == "normal"
-    A = problem.A
+    fisher = problem.dist.name == "normal" and problem.analytic
 
     def local(u):
         theta = problem.full(u)
         if fisher:
+            A = problem.jacobian(theta)
             val, g, info = problem.lik.scores(theta, fisher=True)
             return val, g @ A, A.T @ info @ A
         l, G = problem.scores_free(u)
@@ -570,7 +618,7 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
         for _ in range(15):
             step = np.linalg.solve(M, g)
             dec = float(g @ step)
-            if dec < _POLISH_TOL or dec > 0.5 * prev:
+            if dec < problem.polish_tol or dec > 0.5 * prev:
                 break
             prev = dec
             t = 1.0
@@ -591,7 +639,7 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
                 M = M - np.outer(Ms, Ms) / float(s_ @ Ms) + np.outer(y_, y_) / sy
             u, f, g = cand, fc, gc
             taken += 1
-        if dec < _POLISH_TOL or (_attempt and dec < _DECREMENT_TOL):  # a second stall: a kink
+        if dec < problem.polish_tol or (_attempt and dec < _DECREMENT_TOL):  # a second stall: a kink
             break
     if not dec < _DECREMENT_TOL:  # a stall above the floor but within the tolerance is a maximum at
         return None  # a kink (EGARCH's |z| in the mean parameters), which no Newton step polishes
@@ -623,7 +671,7 @@ def _run(problem: _Problem, r, starts):
     problem.steps = 1e-5 * scales
     best = None
     for t0 in starts[:3]:
-        fast = _bhhh(problem, t0[problem.free], scales, bounds) if problem.analytic else None
+        fast = _bhhh(problem, t0[problem.free], scales, bounds) if problem.scoring else None
         if fast is not None:
             u, H, dec, active, res, steps = fast
         else:
@@ -634,7 +682,7 @@ def _run(problem: _Problem, r, starts):
         if best is None or ll > best[0]:
             best = cand
         # polished to the floor, or a fast path that stalled within the tolerance at a kink
-        if math.isfinite(dec) and (dec < _POLISH_TOL or (fast is not None and dec < _DECREMENT_TOL)) \
+        if math.isfinite(dec) and (dec < problem.polish_tol or (fast is not None and dec < _DECREMENT_TOL)) \
                 and ll > -_PENALTY / 2:
             break
     return best
@@ -657,13 +705,31 @@ def _clean_returns(r, spec: ModelSpec) -> np.ndarray:
     return r
 
 
-def fit(r, model="GARCH(1,1)", dist="normal", options=None) -> FitResult:
-    """Estimate ``model`` with shocks ``dist`` on returns ``r`` by maximum likelihood."""
+def _without_in_mean(r, spec, dist, options, X, lik) -> list:
+    """The estimate of the model without its in-mean term, with lambda_m at zero (or its fixed
+    value): the start an in-mean fit, whose derivatives are numerical, begins from."""
+    fixed = tuple((n, v) for n, v in options.fixed if n != "lambda_m")
+    try:
+        plain = fit(r, replace(spec, in_mean=False), dist, replace(options, fixed=fixed), X)
+    except (InputError, ConvergenceError):
+        return []
+    d = plain.param_dict
+    d["lambda_m"] = options.fixed_dict.get("lambda_m", 0.0)
+    return [np.array([d[n] for n in lik.names], dtype=float)]
+
+
+def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult:
+    """Estimate ``model`` with shocks ``dist`` on returns ``r`` by maximum likelihood.
+
+    ``X`` are the regressors (one row per return, one column per regressor; columns named in
+    the option ``xvar=`` enter the variance, the others the mean), None for none.
+    """
     spec = model if isinstance(model, ModelSpec) else parse_model(model)
     dist = dist if isinstance(dist, Distribution) else get_distribution(dist)
     options = options if isinstance(options, Options) else parse_options(options)
+    spec = layout(spec, X, options.xvar)
     r = _clean_returns(r, spec)
-    lik = Likelihood(r, spec, dist, options.presample)
+    lik = Likelihood(r, spec, dist, options.presample, X)
     problem = _Problem(lik, options)
     # check fixed values against the domain
     for n, v in options.fixed_dict.items():
@@ -673,7 +739,8 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None) -> FitResult:
             dist.check(eta)
         elif n in spec.variance_names:
             spec.family.check_fixed(n, v)
-    best = _run(problem, r, _start_candidates(problem, r))
+    extra = _without_in_mean(r, spec, dist, options, X, lik) if spec.in_mean else []
+    best = _run(problem, r, _start_candidates(problem, r, extra))
     n_free = len(problem.free)
     if spec.family.holds_at_bound and best[0] > -_PENALTY / 2:
         pers = persistence_of(spec, dist, problem.full(best[1]))
@@ -804,7 +871,7 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
             V = Hinv @ (G.T @ G) @ Hinv
     except np.linalg.LinAlgError:
         return se, None
-    A = problem.A[:, fr]
+    A = problem.jacobian(problem.full(u))[:, fr]
     Vfull = A @ V @ A.T
     d = np.diag(Vfull)
     ok = d > 0
@@ -818,13 +885,18 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
     return se, Vfull
 
 
-def evaluate(r, spec: ModelSpec, dist: Distribution, names, params, options: Options | None = None) -> FitResult:
-    """A FitResult for given parameters on returns r: log-likelihood, no estimation, no standard errors."""
+def evaluate(r, spec: ModelSpec, dist: Distribution, names, params, options: Options | None = None, X=None,
+             rows=None) -> FitResult:
+    """A FitResult for given parameters on returns r: log-likelihood, no estimation, no standard
+    errors.  ``X``: the regressors, one row per return (as :func:`fit` takes them); ``rows``:
+    each return's row number, for messages."""
     options = options or Options()
     r = np.asarray(r, dtype=float)
-    lik = Likelihood(r, spec, dist, options.presample)
+    spec = layout(spec, X, options.xvar)
+    lik = Likelihood(r, spec, dist, options.presample, X)
     check_params(spec, dist, names, params)
     theta = np.array([dict(zip(names, params))[n] for n in lik.names], dtype=float)
+    check_intercept(lik, theta, rows)
     ll = lik.loglik(theta)
     nfree = len(lik.names)
     return FitResult(

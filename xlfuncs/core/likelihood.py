@@ -1,11 +1,20 @@
-"""The mean recursion and the log-likelihood; the variance recursion is the family's.
+"""The log-likelihood of a model on a return series: the mean's residuals, the variance family's
+recursion, the distribution's density.
 
 Notation.  ``r`` are the returns (length T).  The full parameter vector ``theta`` is laid out
-as ``spec.param_names + dist.param_names`` (mean, variance, distribution).  The residuals come
-from the ARMA mean here; the conditional variances, and for the families with analytic
+as ``spec.param_names + dist.param_names``: the mean's parameters (:mod:`xlfuncs.core.mean`), the
+variance family's, the variance regressors' ``v[k]``, then the distribution's.  The residuals
+come from the mean model; the conditional variances, and for the families with analytic
 derivatives the derivatives through their recursion (forward) and the gradient by its adjoint,
-come from the model's variance family (:mod:`xlfuncs.core.families`).  Families without
-analytic derivatives are scored by numerical differences in the estimator.
+come from the model's variance family (:mod:`xlfuncs.core.families`), which adds the variance
+regressors' term sum v[k] Z[t,k] to its intercept.  Families without analytic derivatives, and
+every in-mean model, are scored by numerical differences in the estimator.
+
+In-mean models (``-M``): the mean reads sigma[t], which reads the residuals before t, so the
+residuals and variances are computed together one observation at a time by the family's
+:meth:`~xlfuncs.core.families.VarianceFamily.filter`.  Their presample is fixed by the residuals
+without the in-mean term (lagged squares and variances at their mean square, and so on), so
+that lambda_m = 0 gives exactly the model without it.
 
 Presample conventions (DESIGN.md, option ``presample``):
 
@@ -15,7 +24,8 @@ Presample conventions (DESIGN.md, option ``presample``):
   observation take the sample mean of the returns.  MA presample residuals are zero.
 * ``drop`` -- the conditional likelihood: the first ``ar`` observations serve only as AR lags
   and the next ``arch_lags`` (the family's) only as lags of the variance recursion; variance
-  lags before the start take the mean squared residual.
+  lags before the start take the mean squared residual.  Under ``-M`` the in-mean term of those
+  lag-only observations uses the presample volatility, the root of that mean square.
 """
 
 from __future__ import annotations
@@ -23,9 +33,9 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.signal import lfilter
 
 from .distributions import Distribution
+from .mean import MeanModel, check_regressors
 from .spec import ModelSpec
 
 __all__ = ["Likelihood"]
@@ -34,95 +44,77 @@ _LOG2PI = math.log(2.0 * math.pi)
 
 
 class Likelihood:
-    """The log-likelihood of one model on one return series, at any full parameter vector."""
+    """The log-likelihood of one model on one return series, at any full parameter vector.
 
-    def __init__(self, r, spec: ModelSpec, dist: Distribution, presample: str = "mean"):
+    ``X`` holds the model's regressor columns (T x K; :attr:`ModelSpec.xmean` of them enter
+    the mean, :attr:`ModelSpec.xvar` the variance), None for a model without regressors.
+    """
+
+    def __init__(self, r, spec: ModelSpec, dist: Distribution, presample: str = "mean", X=None):
         self.r = np.ascontiguousarray(r, dtype=float)
         self.spec = spec
         self.dist = dist
         self.presample = presample
+        T = len(self.r)
+        self.X = check_regressors(X, T, spec)
+        self.mean = mean = MeanModel(spec, self.r, self.X, presample)
         self.names = tuple(spec.param_names) + tuple(dist.param_names)
         self.k = len(self.names)
         self.n_mean = len(spec.mean_names)
         self.n_var = len(spec.variance_names)
+        self.n_shift = len(spec.shift_names)
         self.idx = {name: i for i, name in enumerate(self.names)}
-        T = len(self.r)
         drop = presample == "drop"
         # residuals are computed on [a, T); the likelihood uses residual positions [s0, n)
-        self.a = spec.ar if drop else 0
-        self.n = T - self.a
+        self.a = mean.a
+        self.n = mean.n
         self.family = fam = spec.family
         self.p = fam.arch_lags
         self.q = fam.garch_lags
         self.s0 = self.p if drop else 0
         self.nobs = self.n - self.s0
-        # AR lag matrix (ar x n): row i-1 holds r[t-i] for t in [a, T)
-        if spec.ar:
-            rbar = float(self.r.mean())
-            padded = np.concatenate([np.full(spec.ar, rbar), self.r])
-            off = spec.ar  # padded index of r[0]
-            self.rlag = np.vstack(
-                [padded[off + self.a - i: off + T - i] for i in range(1, spec.ar + 1)]
-            )
-        else:
-            self.rlag = np.zeros((0, self.n))
-        self.y = self.r[self.a:]
-        self.linear = fam.analytic  # analytic scores through the family's recursion
+        self.y = mean.y
+        self.in_mean = spec.in_mean
+        # analytic scores through the family's recursion (the in-mean filter is differentiated numerically)
+        self.linear = fam.analytic and not self.in_mean
         self._vs = slice(self.n_mean, self.n_mean + self.n_var)
+        self._ss = slice(self.n_mean + self.n_var, self.n_mean + self.n_var + self.n_shift)
         self._nd = len(dist.param_names)
-        rows = ([-np.ones(self.n)] if spec.has_mu else []) + [-self.rlag[i] for i in range(spec.ar)]
-        self._de_const = np.array(rows) if rows else np.zeros((0, self.n))
-        self._de_const.setflags(write=False)
+        # the variance regressors on the likelihood positions (one row per parameter v[k])
+        if self.n_shift:
+            Z = self.X[self.a + self.s0:, [k - 1 for k in spec.xvar]].T
+            self.Z = np.ascontiguousarray(Z)
+            self.Z.setflags(write=False)
+        else:
+            self.Z = None
 
     # ------------------------------------------------------------------ parameter pieces
     def split(self, theta):
         """(mu, phi, theta_ma, variance parameters, distribution parameters) of a full vector."""
-        s = self.spec
-        i = 0
-        mu = 0.0
-        if s.has_mu:
-            mu = theta[0]
-            i = 1
-        phi = theta[i: i + s.ar]
-        i += s.ar
-        tht = theta[i: i + s.ma]
-        i += s.ma
+        mu, phi, tht = self.mean.mu_phi_theta(theta[: self.n_mean])
         return mu, phi, tht, theta[self._vs], theta[self.k - self._nd:]
+
+    def shift(self, theta):
+        """The variance regressors' term sum v[k] Z[t,k] on the likelihood positions (None without)."""
+        if self.Z is None:
+            return None
+        return theta[self._ss] @ self.Z
+
+    def intercept_ok(self, theta) -> bool:
+        """The variance regressors keep the family's intercept in its domain at every observation."""
+        if self.Z is None:
+            return True
+        return not self.family.bad_shift(theta[self._vs], self.shift(theta)).any()
 
     # ------------------------------------------------------------------ mean
     def residuals(self, theta, derivs: bool = False):
-        """Residuals e on [a, T) and, if asked, their derivatives (n_mean x n)."""
-        s = self.spec
-        mu, phi, tht, *_ = self.split(theta)
-        y = self.y - mu if s.has_mu else self.y
-        if s.ar:
-            y = y - phi @ self.rlag
-        if s.ma:
-            den = np.concatenate([[1.0], tht])
-            e = lfilter([1.0], den, y)
-        else:
-            e = y
-        if not derivs:
-            return e, None
-        if not s.ma:
-            return e, self._de_const  # the AR mean is linear in its parameters
-        rows = []
-        if s.has_mu:
-            rows.append(-np.ones(self.n))
-        for i in range(s.ar):
-            rows.append(-self.rlag[i])
-        for j in range(1, s.ma + 1):
-            lagged = np.zeros(self.n)
-            lagged[j:] = e[:-j]
-            rows.append(-lagged)
-        de = np.array(rows) if rows else np.zeros((0, self.n))
-        if s.ma and len(rows):
-            de = lfilter([1.0], den, de, axis=1)
-        return e, de
+        """Residuals on [a, T) of the mean without its in-mean term and, if asked, their
+        derivatives (n_mean x n)."""
+        return self.mean.residuals(theta[: self.n_mean], derivs)
 
     # ------------------------------------------------------------------ variance
     def variance(self, theta, e, de=None):
-        """Conditional variances on the likelihood positions [s0, n).
+        """Conditional variances on the likelihood positions [s0, n) from the residuals ``e``.
 
         Returns ``(sigma2, D)`` where D (k x nobs) holds d sigma2 / d theta when ``de`` is given
         (families with analytic derivatives only), else None.  The distribution's rows are the
@@ -130,9 +122,11 @@ class Likelihood:
         """
         vp = theta[self._vs]
         eta = theta[self.k - self._nd:]
+        shift = self.shift(theta)
         if de is None or not self.linear:
-            return self.family.variance(vp, e, self.presample, eta, self.dist), None
-        sig2, Dfam = self.family.derivatives(vp, e, de, self.presample, eta, self.dist)
+            return self.family.variance(vp, e, self.presample, eta, self.dist, shift=shift), None
+        sig2, Dfam = self.family.derivatives(vp, e, de, self.presample, eta, self.dist, shift=shift,
+                                             dshift=self.Z if shift is not None else None)
         if len(Dfam) < self.k:  # the family's recursion does not read the distribution's parameters
             D = np.zeros((self.k, len(sig2)))
             D[: len(Dfam)] = Dfam
@@ -140,11 +134,24 @@ class Likelihood:
             D = Dfam
         return sig2, D
 
+    def joint(self, theta):
+        """Residuals on [a, T) and variances on the likelihood positions, the in-mean term
+        included (one observation at a time for an in-mean model)."""
+        u, _ = self.residuals(theta)
+        if not self.in_mean:
+            sig2, _ = self.variance(theta, u)
+            return u, sig2
+        tm = theta[: self.n_mean]
+        step = self.mean.in_mean_step(tm, u)
+        eta = theta[self.k - self._nd:]
+        return self.family.filter(theta[self._vs], u, step, self.presample, eta, self.dist, shift=self.shift(theta))
+
     # ------------------------------------------------------------------ likelihood
     def terms(self, theta):
         """Per-observation log-likelihood contributions (length nobs); nan where undefined."""
-        e, _ = self.residuals(theta)
-        sig2, _ = self.variance(theta, e)
+        if not self.intercept_ok(theta):
+            return np.full(self.nobs, np.nan)
+        e, sig2 = self.joint(theta)
         return self._terms(theta, e[self.s0:], sig2)
 
     def _terms(self, theta, es, sig2):
@@ -169,6 +176,8 @@ class Likelihood:
         """
         e, de = self.residuals(theta, derivs=True)
         sig2, D = self.variance(theta, e, de if de is not None else np.zeros((0, self.n)))
+        if not self.intercept_ok(theta):
+            sig2 = np.full(len(sig2), np.nan)
         es = e[self.s0:]
         eta = theta[self.k - len(self.dist.param_names):]
         with np.errstate(all="ignore"):
@@ -220,9 +229,10 @@ class Likelihood:
         k = self.k
         eta = theta[k - self._nd:]
         e, de = self.residuals(theta, derivs=True)
-        state = fam.forward(theta[self._vs], e, self.presample)
+        shift = self.shift(theta)
+        state = fam.forward(theta[self._vs], e, self.presample, shift=shift)
         sig2 = state.sig2
-        if not sig2.min() > 0:
+        if not sig2.min() > 0 or not self.intercept_ok(theta):
             return math.nan, np.full(k, np.nan)
         es = e[self.s0:]
         with np.errstate(all="ignore"):
@@ -234,7 +244,10 @@ class Likelihood:
         g = np.zeros(k)
         nm = self.n_mean
         gm = de[:, self.s0:] @ (fz / sd) if nm else None
-        g[self._vs] = fam.adjoint(state, w, de, gm)
+        if shift is None:
+            g[self._vs] = fam.adjoint(state, w, de, gm)
+        else:
+            g[self._vs.start: self._ss.stop] = fam.adjoint(state, w, de, gm, dshift=self.Z)
         if nm:
             g[:nm] = gm
         nd = self._nd
@@ -245,6 +258,4 @@ class Likelihood:
     # ------------------------------------------------------------------ series
     def series(self, theta):
         """Residuals on [a, T) and conditional variances on the likelihood positions."""
-        e, _ = self.residuals(theta)
-        sig2, _ = self.variance(theta, e)
-        return e, sig2
+        return self.joint(theta)

@@ -27,6 +27,8 @@ infinite, so E[sigma^2_{T+h}] and E[sigma_{T+h}] are infinite for h >= 2), ``sd`
 are +inf with ``sd_note`` and ``es_note`` saying why: the tail mean of R does not exist, and a
 simulated one would show a finite number.  VaR, a quantile, exists and is simulated as usual,
 and so are ``var_value`` and ``es_value``: the value loss is bounded by the position's value.
+An in-mean model's ``mean`` (lambda_m times the volatility forecasts) is then infinite too, with
+``mean_note``.
 
 Loss as a percentage of the position's value
 --------------------------------------------
@@ -86,6 +88,8 @@ class Risk:
     # why ``sd`` (E[sigma^2] beyond some step) or ``es`` (E[sigma]) is infinite; None where finite
     sd_note: str | None = None
     es_note: str | None = None
+    # why ``mean`` is infinite (an in-mean term at a volatility forecast that does not exist)
+    mean_note: str | None = None
 
 
 #: c in V = exp(c R) - 1 (log) or V = c R (simple, one period): the returns' unit as a fraction
@@ -132,7 +136,7 @@ def _log_tail_value_loss(dist, eta, m: float, s: float, c: float, zq: float, a: 
     return val / a
 
 
-def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> Risk:
+def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=None, Xf=None) -> Risk:
     """VaR and expected shortfall of the sum of the next ``horizon`` returns after ``r``.
 
     ``fit`` is a :class:`~xlfuncs.core.estimate.FitResult` and ``r`` the returns it describes
@@ -146,6 +150,10 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> 
     ``returns`` (``log100``, ``log``, ``simple100`` or ``simple``; default: the fit's
     ``options.returns``) says how the returns are defined; when it is known, ``var_value`` and
     ``es_value`` carry the loss as a percentage of the position's value (module docstring).
+
+    ``X`` are the regressors of the sample and ``Xf`` their values over the next ``horizon``
+    periods (one row each), for a fit with regressors.  An in-mean fit's one-period figures are
+    exact too: sigma[T+1] is known at T.
     """
     level = _check_level(level)
     horizon = _whole(horizon, "horizon", 1, MAX_HORIZON)
@@ -161,10 +169,11 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> 
     params = np.asarray(fit.params, dtype=float)
     eta = params[len(params) - nd:]
 
-    fc = forecast(fit, r, horizon, seed=seed, paths=paths)
+    fc = forecast(fit, r, horizon, seed=seed, paths=paths, X=X, Xf=Xf)
     mean = float(np.sum(fc.mean))
     sd = math.sqrt(float(fc.cumvar[-1]))
     sd_note = fc.why if fc.finite_steps is not None and fc.finite_steps < horizon else None
+    mean_note = fc.why if sd_note is not None and not math.isfinite(mean) else None
     # ES is the mean of the tail: it exists only where every E[sigma_{T+h}] does
     vp = np.array([params[list(fit.names).index(n)] for n in fit.spec.variance_names], dtype=float)
     _, es_note = fit.spec.family.moment_horizon(vp, eta, fit.dist, horizon, power=0.5)
@@ -188,7 +197,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> 
         # log of the value factor prod (1 + c r), for simple returns only
         log_factor = np.zeros(paths) if defn in ("simple100", "simple") else None
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            for ret, _ in forward_steps(fit, r, horizon, paths, rng):
+            for ret, _ in forward_steps(fit, r, horizon, paths, rng, X, Xf):
                 cum += ret
                 if log_factor is not None:
                     log_factor += np.log1p(np.maximum(c * ret, -1.0))  # a factor below 0 is the value gone
@@ -211,4 +220,4 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None) -> 
     return Risk(var=float(var), es=float(es), mean=mean, sd=sd, level=level, horizon=horizon, method=method,
                 var_value=None if var_value is None else float(var_value),
                 es_value=None if es_value is None else float(es_value), returns=defn,
-                sd_note=sd_note, es_note=es_note)
+                sd_note=sd_note, es_note=es_note, mean_note=mean_note)

@@ -11,6 +11,10 @@ spaces ignored (see DESIGN.md):
 'ZERO-ARCH(1)'
 >>> parse_model("AR(1)").param_names
 ('mu', 'phi[1]', 'omega')
+>>> parse_model("ar(1)-garch-m").canonical
+'AR(1)-GARCH(1,1)-M'
+>>> parse_model("GARCH(1,1)-M").with_regressors(2, xvar=(2,)).param_names
+('mu', 'x[1]', 'lambda_m', 'omega', 'alpha[1]', 'beta[1]', 'v[2]')
 
 ``GARCH(p,q)`` has p ARCH terms (alpha) and q GARCH terms (beta).  The options string is
 ``key=value`` pairs separated by ``;``:
@@ -23,7 +27,7 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from .errors import InputError, excerpt
 from .families import FAMILIES, WORDS, family_for
@@ -37,12 +41,15 @@ __all__ = [
     "MEAN_KINDS",
     "VARIANCE_KINDS",
     "MAX_ORDER",
+    "MAX_REGRESSORS",
     "RETURN_DEFINITIONS",
+    "IN_MEAN_WORD",
 ]
 
 MEAN_KINDS = ("zero", "const", "arma")
 VARIANCE_KINDS = tuple(FAMILIES)
 MAX_ORDER = 12  # highest lag order accepted in any part of a model string
+MAX_REGRESSORS = 50  # most columns a regressors range may have
 
 _MEAN_WORDS = ("ZERO", "CONST", "AR", "MA", "ARMA")
 # words with a dash inside (GJR-GARCH) first, longest first, so that the dash is not read as a separator
@@ -55,14 +62,21 @@ def _variance_list() -> str:
     return ", ".join(words[:-1]) + " or " + words[-1] if len(words) > 1 else "".join(words)
 
 
-_EXAMPLES = "e.g. GARCH(1,1), AR(1)-GJR-GARCH(1,1), ZERO-EGARCH(1,1) or CONST"
+_EXAMPLES = "e.g. GARCH(1,1), AR(1)-GJR-GARCH(1,1), ZERO-EGARCH(1,1), GARCH(1,1)-M or CONST"
+#: the model-string word after the variance part that adds lambda_m * sigma[t] to the mean
+IN_MEAN_WORD = "M"
 
 
 @dataclass(frozen=True)
 class ModelSpec:
-    """A parsed model: mean kind and orders, variance kind and orders.
+    """A parsed model: mean kind and orders, variance kind and orders, the in-mean term and the
+    layout of the regressors.
 
     ``p`` counts ARCH terms (alpha, and gamma for GJR/EGARCH); ``q`` counts GARCH terms (beta).
+    ``in_mean`` adds lambda_m * sigma[t] to the mean (``-M``).  ``xmean`` and ``xvar`` are the
+    columns (1-based) of the regressors range that enter the mean (parameters ``x[k]``) and the
+    variance (``v[k]``, option ``xvar=``); they are not part of the model string but of the data
+    given with it (:meth:`with_regressors`).
     """
 
     mean: str = "const"  # 'zero', 'const' or 'arma'
@@ -71,6 +85,9 @@ class ModelSpec:
     variance: str = "constant"  # one of VARIANCE_KINDS
     p: int = 0
     q: int = 0
+    in_mean: bool = False
+    xmean: tuple = ()
+    xvar: tuple = ()
 
     # ----- names -------------------------------------------------------------------------
     @property
@@ -96,15 +113,61 @@ class ModelSpec:
 
     @property
     def canonical(self) -> str:
+        """The model string: ``[MEAN-]VARIANCE[-M]`` (the regressors are not part of it)."""
         mean, var = self.mean_canonical, self.variance_canonical
         if not var:
             return mean
-        if mean == "CONST":
-            return var
-        return f"{mean}-{var}"
+        text = var if mean == "CONST" else f"{mean}-{var}"
+        return f"{text}-{IN_MEAN_WORD}" if self.in_mean else text
 
     def __str__(self) -> str:  # pragma: no cover - convenience
         return self.canonical
+
+    # ----- regressors ----------------------------------------------------------------------
+    @property
+    def n_regressors(self) -> int:
+        """Columns of the regressors range the model reads (0 without regressors)."""
+        return len(self.xmean) + len(self.xvar)
+
+    @property
+    def regressor_names(self) -> tuple:
+        """The regressors' parameter names in column order: ``x[k]`` (mean) or ``v[k]`` (variance)."""
+        return tuple(f"x[{k}]" if k in self.xmean else f"v[{k}]" for k in range(1, self.n_regressors + 1))
+
+    def with_regressors(self, n_columns: int, xvar=()) -> "ModelSpec":
+        """This model with ``n_columns`` regressors, columns ``xvar`` in the variance, the rest in
+        the mean; :class:`InputError` if the columns do not fit the model."""
+        n = int(n_columns)
+        xvar = tuple(sorted(set(int(k) for k in xvar)))
+        bad = [k for k in xvar if not 1 <= k <= n]
+        if bad:
+            have = f"has {n} column{'s' if n != 1 else ''}" if n else "is not given"
+            raise InputError(f"options: xvar={','.join(map(str, xvar))} names column {bad[0]}, but the regressors "
+                             f"range {have}")
+        if xvar and not self.family.takes_shift:
+            raise InputError(f"options: xvar= adds variance regressors to omega, which {self.variance_canonical or 'a constant variance'} "
+                             f"does not take; use a model with omega, e.g. GARCH(1,1), or send the columns to the mean")
+        xmean = tuple(k for k in range(1, n + 1) if k not in xvar)
+        return replace(self, xmean=xmean, xvar=xvar)
+
+    def with_columns(self, xmean=(), xvar=()) -> "ModelSpec":
+        """This model with mean regressors in columns ``xmean`` and variance regressors in
+        ``xvar`` (as a fit table's rows ``x[k]`` and ``v[k]`` say); every column from 1 to the
+        last must be one or the other."""
+        xmean, xvar = tuple(sorted(set(xmean))), tuple(sorted(set(xvar)))
+        both = sorted(set(xmean) & set(xvar))
+        if both:
+            raise InputError(f"column {both[0]} cannot be both a mean regressor x[{both[0]}] and a variance regressor "
+                             f"v[{both[0]}]; keep one")
+        cols = set(xmean) | set(xvar)
+        gap = [k for k in range(1, max(cols, default=0) + 1) if k not in cols]
+        if gap:
+            raise InputError(f"the regressors are numbered by their column: there is no x[{gap[0]}] or v[{gap[0]}] for "
+                             f"column {gap[0]}")
+        if xvar and not self.family.takes_shift:
+            raise InputError(f"variance regressors (v[k]) add to omega, which {self.variance_canonical or 'a constant variance'} "
+                             "does not take")
+        return replace(self, xmean=xmean, xvar=xvar)
 
     # ----- parameters --------------------------------------------------------------------
     @property
@@ -113,19 +176,30 @@ class ModelSpec:
 
     @property
     def mean_names(self) -> tuple:
+        """mu, phi[i], theta[j], x[k] (mean regressors), lambda_m (in-mean), in that order."""
         names = ["mu"] if self.has_mu else []
         names += [f"phi[{i}]" for i in range(1, self.ar + 1)]
         names += [f"theta[{j}]" for j in range(1, self.ma + 1)]
+        names += [f"x[{k}]" for k in self.xmean]
+        if self.in_mean:
+            names.append("lambda_m")
         return tuple(names)
 
     @property
     def variance_names(self) -> tuple:
+        """The variance family's own parameters (the variance regressors come after them)."""
         return self.family.param_names
 
     @property
+    def shift_names(self) -> tuple:
+        """The variance regressors' parameters ``v[k]``, added to the variance intercept."""
+        return tuple(f"v[{k}]" for k in self.xvar)
+
+    @property
     def param_names(self) -> tuple:
-        """Mean then variance parameter names (distribution shape parameters come after)."""
-        return self.mean_names + self.variance_names
+        """Mean, variance family, then variance-regressor parameter names (distribution shape
+        parameters come after)."""
+        return self.mean_names + self.variance_names + self.shift_names
 
     @property
     def arch_lags(self) -> int:
@@ -180,6 +254,14 @@ def parse_model(text) -> ModelSpec:
             pos += 1
             if pos == len(s):
                 raise _bad_model(raw, "it ends with a dash")
+    in_mean = False
+    if len(parts) > 1 and parts[-1][0] == IN_MEAN_WORD:
+        if parts[-1][1] is not None:
+            raise _bad_model(raw, f"{IN_MEAN_WORD} (in-mean) takes no order")
+        in_mean = True
+        parts.pop()
+    if any(word == IN_MEAN_WORD for word, _ in parts):
+        raise _bad_model(raw, f'"-{IN_MEAN_WORD}" (in-mean) goes last, after the variance part')
     if len(parts) > 2:
         raise _bad_model(raw, "it has more than a mean part and a variance part")
 
@@ -233,14 +315,20 @@ def parse_model(text) -> ModelSpec:
             variance, p, q = cls.resolve(word, orders)
         except ValueError as exc:
             raise _bad_model(raw, str(exc)) from None
-    return ModelSpec(mean=mean, ar=ar, ma=ma, variance=variance, p=p, q=q)
+    spec = ModelSpec(mean=mean, ar=ar, ma=ma, variance=variance, p=p, q=q, in_mean=in_mean)
+    if in_mean and not spec.family.varies:
+        raise _bad_model(raw, f"-{IN_MEAN_WORD} (the in-mean term lambda_m * sigma) needs a variance part: with a "
+                              "constant variance it cannot be told apart from mu")
+    return spec
 
 
 # ----------------------------------------------------------------------------------------
 # parameter names
-_STEMS = ("mu", "phi", "theta") + tuple(dict.fromkeys(st for cls in FAMILIES.values() for st in cls.stems)) + ("nu", "lambda")
-_NAME_RE = re.compile(r"^(" + "|".join(_STEMS) + r")(?:\[(\d+)\]|(\d+))?$")
-_INDEXED = {"phi", "theta"} | {st for cls in FAMILIES.values() for st in cls.indexed}
+# the mean's stems (x: mean regressor, lambda_m: in-mean), the families', the variance
+# regressors' (v) and the distributions'; longer stems first so that lambda_m is not read as lambda
+_STEMS = ("mu", "phi", "theta", "x", "lambda_m") + tuple(dict.fromkeys(st for cls in FAMILIES.values() for st in cls.stems)) + ("v", "nu", "lambda")
+_NAME_RE = re.compile(r"^(" + "|".join(sorted(_STEMS, key=len, reverse=True)) + r")(?:\[(\d+)\]|(\d+))?$")
+_INDEXED = {"phi", "theta", "x", "v"} | {st for cls in FAMILIES.values() for st in cls.indexed}
 
 
 def normalise_param_name(name) -> str | None:
@@ -294,6 +382,7 @@ class Options:
     paths: int | None = None
     fixed: tuple = field(default_factory=tuple)  # ((name, value), ...) in the order given
     returns: str | None = None  # one of RETURN_DEFINITIONS, or None when not said
+    xvar: tuple = ()  # columns of the regressors range that enter the variance (1-based, ascending)
 
     @property
     def fixed_dict(self) -> dict:
@@ -312,6 +401,8 @@ class Options:
                 parts.append(f"{key}={val}")
         if self.returns is not None:
             parts.append(f"returns={self.returns}")
+        if self.xvar:
+            parts.append("xvar=" + ",".join(map(str, self.xvar)))
         for name, value in self.fixed:
             parts.append(f"{name}={_fmt_number(value)}")
         return "; ".join(parts)
@@ -319,13 +410,26 @@ class Options:
     @property
     def estimation_key(self) -> tuple:
         """What changes the estimate (periods, missing, seed and returns do not)."""
-        return (self.presample, self.se, self.target, tuple(sorted(self.fixed)))
+        return (self.presample, self.se, self.target, tuple(sorted(self.fixed))) + ((("xvar",) + self.xvar,) if self.xvar else ())
 
 
 def _fmt_number(x: float) -> str:
     if float(x).is_integer() and abs(x) < 1e15:
         return str(int(x))
     return repr(float(x))
+
+
+def _columns(value: str, shown_value: str) -> tuple:
+    """The column numbers of ``xvar=2,3`` (ascending, each once)."""
+    cols = []
+    for piece in re.split(r"[,\s]+", value.strip()):
+        if not re.fullmatch(r"\d+", piece) or not 1 <= int(piece) <= MAX_REGRESSORS:
+            raise InputError(f"options: xvar must list regressor column numbers from 1 to {MAX_REGRESSORS} separated by "
+                             f"commas, e.g. xvar=2,3; got {shown_value}")
+        if int(piece) in cols:
+            raise InputError(f"options: xvar names column {int(piece)} twice")
+        cols.append(int(piece))
+    return tuple(sorted(cols))
 
 
 def parse_options(text) -> Options:
@@ -366,6 +470,8 @@ def parse_options(text) -> Options:
             if low not in RETURN_DEFINITIONS:
                 raise InputError(f'options: returns={shown_value} is not allowed; use {" or ".join("returns=" + c for c in RETURN_DEFINITIONS)}')
             values[key] = low
+        elif key == "xvar":
+            values[key] = _columns(value, shown_value)
         elif key in _INT_KEYS:
             lo, hi = _INT_KEYS[key]
             try:
@@ -380,7 +486,7 @@ def parse_options(text) -> Options:
             if name is None:
                 raise InputError(
                     f'options: unknown key "{shown_key}"; use presample, se, target, periods, missing, seed, paths, '
-                    f"returns or a parameter name such as nu=8"
+                    f"returns or a parameter name such as nu=8 (or xvar= for variance regressors)"
                 )
             try:
                 num = float(value)
@@ -401,4 +507,5 @@ def parse_options(text) -> Options:
         paths=ints.get("paths"),
         fixed=tuple(fixed.items()),
         returns=values.get("returns"),
+        xvar=values.get("xvar", ()),
     )

@@ -13,10 +13,13 @@ data).
 from __future__ import annotations
 
 from ..core.errors import InputError
+from ..core.families import FAMILIES
 from ..core.families.egarch import Egarch
 
 __all__ = [
-    "BoundError", "FIT_PARAMS", "EGARCH_FIT_PARAMS", "COMPARE_CANDIDATES", "COMPARE_WORK", "EGARCH_WEIGHT",
+    "BoundError", "FIT_PARAMS", "EGARCH_FIT_PARAMS", "IN_MEAN_FIT_PARAMS", "IN_MEAN_LAGS", "COMPARE_CANDIDATES",
+    "COMPARE_WORK",
+    "EGARCH_WEIGHT", "IN_MEAN_WEIGHT",
     "BACKTEST_WORK",
     "SIM_PERIODS", "SIM_PATHS",
     "SIM_CELLS", "SIM_DRAWS", "weight", "check_fit", "check_compare", "check_backtest", "check_sim", "check_draws",
@@ -29,6 +32,16 @@ FIT_PARAMS = 16
 #: the same for EGARCH, whose recursion is a loop with numerical derivatives: the slowest 6-parameter
 #: fit measured 8-10 s (ZERO-EGARCH(1,2), t shocks), 7-parameter ones up to 18 s (ARMA(1,1)-EGARCH(1,1))
 EGARCH_FIT_PARAMS = Egarch.max_fit_params  # 6, kept with the family
+#: the same for an in-mean model (-M), whose residuals and variances run together one observation
+#: at a time in Python with numerical derivatives: 8-parameter fits measured 1.7-4.3 s
+#: (GJR-GARCH(1,1)-M skewt, ARMA(1,1)-GARCH(1,1)-M t), ARCH(2)-M skewt (7) 5.4-7.8 s; past it
+#: ARMA(1,1)-GJR-GARCH(1,1)-M skewt (10) 5-11 s; an in-mean EGARCH keeps EGARCH's 6 (EGARCH(1,1)-M
+#: normal: 4.3-6.4 s)
+IN_MEAN_FIT_PARAMS = 8
+#: variance lags (ARCH plus GARCH orders) of an in-mean model a worksheet call estimates: past (1,1)
+#: an over-fitted variance makes the numerical search slow -- 7-8 parameter fits measured 10-37 s
+#: (GARCH(2,2)-M t, GJR-GARCH(2,1)-M t, GARCH(1,3)-M normal), where ARCH(2)-M skewt took 5.4 s
+IN_MEAN_LAGS = 2
 #: VOLCOMPARE candidates (models x distributions) in one call: 24 of the usual kind took 1.2 s,
 #: 60 took 5.4 s
 COMPARE_CANDIDATES = 24
@@ -38,6 +51,10 @@ COMPARE_CANDIDATES = 24
 #: models (1,800) 13 s, which this bound refuses
 COMPARE_WORK = 1_700
 EGARCH_WEIGHT = Egarch.cost_weight  # 25, kept with the family
+#: an in-mean candidate weighs k x k x (its family's weight + IN_MEAN_WEIGHT): GARCH(1,1)-M t (396
+#: units) took 0.4-1.0 s, GJR-GARCH(1,1)-M skewt (704) 1.7-2.5 s, EGARCH(1,1)-M normal (1,260)
+#: 4.3-6.4 s; GARCH(1,1)-M and GJR-GARCH(1,1)-M x normal, t (1,606) 2.1-2.7 s
+IN_MEAN_WEIGHT = 10
 #: VOLBACKTEST's work in the units of COMPARE_WORK: each estimation weighs its returns times the
 #: model's weight; for an EGARCH model each forecast also weighs window x (2 + p + q) / 2 for
 #: evaluating the model and paths x (3 + p + q) / 100 for its simulated one-step variance.
@@ -67,21 +84,33 @@ def _n_params(spec, dist) -> int:
 
 
 def check_fit(spec, dist) -> None:
-    """A model a worksheet call may estimate: at most FIT_PARAMS parameters (EGARCH_FIT_PARAMS)."""
+    """A model a worksheet call may estimate: at most FIT_PARAMS parameters (EGARCH_FIT_PARAMS,
+    IN_MEAN_FIT_PARAMS; an in-mean model at most IN_MEAN_LAGS variance lags)."""
     k = _n_params(spec, dist)
     special = spec.family.max_fit_params
     limit = FIT_PARAMS if special is None else min(special, FIT_PARAMS)
+    if spec.in_mean and IN_MEAN_FIT_PARAMS < limit:
+        special, limit = IN_MEAN_FIT_PARAMS, IN_MEAN_FIT_PARAMS
+    lags = spec.family.arch_lags + spec.family.garch_lags
+    if spec.in_mean and lags > IN_MEAN_LAGS:
+        raise BoundError(f"{spec.canonical} has {lags} variance lags; a worksheet call estimates in-mean (-M) models "
+                         f"with at most {IN_MEAN_LAGS} (e.g. GARCH(1,1)-M), whose numerical search can otherwise take "
+                         "well over ten seconds; fit it with the volcast fit command instead")
     if k > limit:
-        kind = f"{spec.variance_canonical.split('(')[0]} models" if special is not None else "models"
+        if spec.in_mean and limit == IN_MEAN_FIT_PARAMS:
+            kind = "in-mean (-M) models"
+        else:
+            kind = f"{spec.variance_canonical.split('(')[0]} models" if special is not None else "models"
         raise BoundError(f"{spec.canonical} with {dist.name} shocks has {k} parameters; a worksheet call estimates "
                          f"{kind} of at most {limit} (a larger one can take well over ten seconds); "
                          "fit it with the volcast fit command instead")
 
 
 def weight(spec, dist) -> int:
-    """The work units of estimating one candidate: k x k, EGARCH_WEIGHT x k x k for EGARCH."""
+    """The work units of estimating one candidate: k x k times its family's ``cost_weight`` (EGARCH 25),
+    and IN_MEAN_WEIGHT x k x k more for an in-mean model."""
     k = _n_params(spec, dist)
-    return k * k * spec.family.cost_weight
+    return k * k * (spec.family.cost_weight + (IN_MEAN_WEIGHT if spec.in_mean else 0))
 
 
 def check_compare(n: int, candidates) -> None:
@@ -91,17 +120,20 @@ def check_compare(n: int, candidates) -> None:
                          "(split the comparison over several cells)")
     work = sum(weight(spec, dist) for spec, dist in candidates)
     if work > COMPARE_WORK:
-        heavy = {}  # the costlier families' words: [candidates, weight]
+        heavy = {}  # the families weighed more than k x k, as many as there are among the candidates
         for spec, _ in candidates:
             if spec.family.cost_weight > 1:
-                word = spec.variance_canonical.split("(")[0]
-                heavy.setdefault(word, [0, spec.family.cost_weight])[0] += 1
-        among = ", ".join(f"{n} {word}" for word, (n, _) in heavy.items()) or "0 EGARCH"
-        rules = {"EGARCH": EGARCH_WEIGHT, **{word: c for word, (_, c) in heavy.items()}}
-        rule = ", ".join(f"{'an' if word[0] in 'AEIOU' else 'a'} {word} one {c} x k x k" for word, c in rules.items())
-        raise BoundError(f"the candidates weigh {work:,} units of work ({among} among them); at most "
+                heavy[spec.family.words[0]] = heavy.get(spec.family.words[0], 0) + 1
+        in_mean = sum(1 for spec, _ in candidates if spec.in_mean)
+        if in_mean:
+            heavy["in-mean"] = in_mean
+        among = f" ({', '.join(f'{n} {word}' for word, n in heavy.items())} among them)" if heavy else ""
+        weights = ", ".join(f"{cls.words[0]} {cls.cost_weight} x k x k" for cls in FAMILIES.values() if cls.cost_weight > 1)
+        if in_mean:
+            weights += f", and an in-mean model {IN_MEAN_WEIGHT} x k x k more"
+        raise BoundError(f"the candidates weigh {work:,} units of work{among}; at most "
                          f"{COMPARE_WORK:,} in one call, about ten seconds (a model with k parameters weighs k x k, "
-                         f"{rule}); split the comparison over several cells")
+                         f"except {weights}); split the comparison over several cells")
 
 
 def check_backtest(spec, dist, n: int, window: int, scheme: str, refit: int, estimating: bool, paths: int) -> None:
@@ -112,15 +144,19 @@ def check_backtest(spec, dist, n: int, window: int, scheme: str, refit: int, est
         check_fit(spec, dist)
         starts = range(0, steps, max(refit, 1))
         estimations = sum(window if scheme == "rolling" else window + i for i in starts) * weight(spec, dist)
-    if spec.family.simulated_forecast:  # forecasts by simulation, recursions in a loop
+    looped = spec.family.simulated_forecast or spec.in_mean  # recursions in a loop
+    if looped:
         lags = spec.p + spec.q
         evaluations = sum((window if scheme == "rolling" else window + i) for i in range(steps)) * (2 + lags) // 2
+    if spec.family.simulated_forecast:  # forecasts by simulation
         draws = steps * paths * (3 + lags) // 100
     work = estimations + evaluations + draws
     if work > BACKTEST_WORK:
         parts = f"estimations {estimations:,}"
         if spec.family.simulated_forecast:
-            parts += f", EGARCH evaluations {evaluations:,}, simulated draws {draws:,}"
+            parts += f", {spec.family.words[0]} evaluations {evaluations:,}, simulated draws {draws:,}"
+        elif looped:
+            parts += f", in-mean evaluations {evaluations:,}"
         raise BoundError(f"this backtest weighs {work:,} units of work ({parts}); a worksheet call does at most "
                          f"{BACKTEST_WORK:,}, about ten seconds; raise refit=, shorten the window or the returns, "
                          "lower paths=, or run volcast backtest")

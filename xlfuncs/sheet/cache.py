@@ -21,9 +21,13 @@ class FitCache:
         self.stats = {"estimations": 0, "hits": 0}
 
     @staticmethod
-    def key(values: np.ndarray, model: str, dist: str, estimation_key: tuple) -> tuple:
+    def key(values: np.ndarray, model: str, dist: str, estimation_key: tuple, regressors=None) -> tuple:
         digest = hashlib.blake2b(np.ascontiguousarray(values, dtype=float).tobytes(), digest_size=16).hexdigest()
-        return (digest, len(values), model, dist, estimation_key)
+        key = (digest, len(values), model, dist, estimation_key)
+        if regressors is not None:
+            X = np.ascontiguousarray(regressors, dtype=float)
+            key += (hashlib.blake2b(X.tobytes(), digest_size=16).hexdigest(), X.shape)
+        return key
 
     def get_or_fit(self, key, compute):
         if key in self._data:

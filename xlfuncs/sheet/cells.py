@@ -27,6 +27,8 @@ __all__ = [
     "as_rows",
     "Returns",
     "returns_column",
+    "regressors_block",
+    "future_block",
     "text_arg",
     "int_arg",
     "float_arg",
@@ -228,6 +230,87 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
         vals.append(x)
         pos.append(i)
     return Returns(np.array(vals), np.array(pos, dtype=int), n, orientation)
+
+
+def _cell_number(v, where: str) -> float:
+    """A cell of a block of numbers, or a SheetError naming ``where`` it is."""
+    if isinstance(v, (bool, np.bool_)) or _is_excel_error(v) or is_error_text(v) or (
+            isinstance(v, str) and not _number_text(v)):
+        raise SheetError(f"{where} holds {describe(v)}; numbers only")
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        raise SheetError(f"{where} holds {describe(v)}; numbers only") from None
+    if not math.isfinite(x):
+        raise SheetError(f"{where} is not a finite number ({shown(x)}); numbers only")
+    return x
+
+
+def _blank_block(value) -> bool:
+    return all(is_blank(v) for row in as_rows(value) for v in row)
+
+
+def regressors_block(value, data: Returns, arg: str = "regressors") -> "np.ndarray | None":
+    """The regressors beside the returns ``data``: one column per regressor and one row per
+    returns row (a returns *row* takes one row per regressor).  Rows line up with the returns'
+    range; the rows of blank returns (trimmed, or skipped under missing=skip) are left out with
+    them.  None when the argument is missing or blank; a blank or non-number cell in a row whose
+    return is used is refused with its row and column named."""
+    if value is None or _blank_block(value):
+        return None
+    if is_error_text(value):
+        raise SheetError(f"{arg} holds an error from another cell: {_chained(value)}")
+    rows = as_rows(value)
+    if data.orientation == "row":  # one row per regressor, one column per return
+        width = max(map(len, rows))
+        rows = [[r[j] if j < len(r) else None for r in rows] for j in range(width)]
+        unit, other = "column", "row"
+    else:
+        unit, other = "row", "column"
+    if len(rows) != data.length:
+        raise SheetError(f"{arg} must have one {unit} per returns {unit} so that they line up: returns has "
+                         f"{data.length} {unit}s, {arg} {len(rows)}")
+    used = [rows[pos] for pos in data.positions]
+    width = max((len(r) for r in rows), default=0)
+    # columns blank in every used row at the right edge of the range are not regressors
+    while width and all(len(r) < width or is_blank(r[width - 1]) for r in used):
+        width -= 1
+    if width == 0:
+        raise SheetError(f"{arg} has no numbers beside the returns; give one {other} per regressor")
+    X = np.empty((len(used), width))
+    for i, (pos, row) in enumerate(zip(data.positions, used)):
+        for k in range(width):
+            v = row[k] if k < len(row) else None
+            where = f"{arg} {unit} {int(pos) + 1}, {other} {k + 1}"
+            if is_blank(v):
+                raise SheetError(f"{where} is blank where returns has a number; the rows must line up (fill it, or "
+                                 "leave the return blank too)")
+            X[i, k] = _cell_number(v, where)
+    return X
+
+
+def future_block(value, arg: str = "future") -> "np.ndarray | None":
+    """Future regressor values: one row per forecast step, one column per regressor (blank rows
+    after the last filled one are not steps).  None when missing or blank."""
+    if value is None or _blank_block(value):
+        return None
+    if is_error_text(value):
+        raise SheetError(f"{arg} holds an error from another cell: {_chained(value)}")
+    rows = as_rows(value)
+    last = max(i for i, r in enumerate(rows) if any(not is_blank(v) for v in r))
+    rows = rows[: last + 1]
+    width = max(len(r) for r in rows)
+    while width and all(len(r) < width or is_blank(r[width - 1]) for r in rows):
+        width -= 1
+    X = np.empty((len(rows), width))
+    for i, row in enumerate(rows):
+        for k in range(width):
+            v = row[k] if k < len(row) else None
+            where = f"{arg} row {i + 1}, column {k + 1}"
+            if is_blank(v):
+                raise SheetError(f"{where} is blank; give a value for every step and regressor")
+            X[i, k] = _cell_number(v, where)
+    return X
 
 
 _PLAIN_NUMBER_TYPES = {float, int, type(None), np.float64, np.float32, np.int64, np.int32}

@@ -4,12 +4,15 @@
 reads rows back (header optional, names case-insensitive, unknown rows ignored, trailing
 blank rows of an oversized range ignored, ``alpha0``/``alpha1`` accepted) into a
 :class:`TableFit` that the other worksheet functions use.
+
+Regressors: the rows ``x[k]`` (mean) and ``v[k]`` (variance) say which column k of the
+regressors range each regressor is; a table with them needs the regressors wherever it is used.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -56,6 +59,21 @@ def encode(fit: FitResult) -> list:
     return rows
 
 
+def _regressor_layout(spec, options, params):
+    """The model with the regressor columns its rows x[k] and v[k] name; the options' xvar=
+    must agree with the v rows (a table typed without it gets it from them)."""
+    xs = [int(n[2:-1]) for n in params if n.startswith("x[")]
+    vs = [int(n[2:-1]) for n in params if n.startswith("v[")]
+    if options.xvar and tuple(options.xvar) != tuple(sorted(vs)):
+        have = ", ".join(f"v[{k}]" for k in sorted(vs)) or "none"
+        raise InputError(f"the options row says xvar={','.join(map(str, options.xvar))}, but the table's variance "
+                         f"regressor rows are {have}")
+    if not xs and not vs:
+        return spec, options
+    spec = spec.with_columns(xs, vs)
+    return spec, replace(options, xvar=spec.xvar)
+
+
 @dataclass
 class TableFit:
     """What a fit table says: model, distribution, options and parameter values."""
@@ -69,11 +87,16 @@ class TableFit:
     converged: object = None
 
     def as_fit_result(self, r=None) -> FitResult:
-        """A FitResult (no estimation) for forecasting and scoring."""
+        """A FitResult (no estimation) for forecasting and scoring; without returns ``r``, the
+        parameters alone (no log-likelihood), as the news-impact curve needs them."""
         from ..core.estimate import evaluate
 
         if r is None:
-            r = np.zeros(10)
+            k = len(self.names)
+            return FitResult(spec=self.spec, dist=self.dist, options=self.options, names=self.names,
+                             params=self.params, std_errors=np.full(k, np.nan), status=tuple(["given"] * k),
+                             loglik=math.nan, nobs=0, n_free=k, converged=True,
+                             message="parameters given, not estimated", estimated=False)
         return evaluate(r, self.spec, self.dist, self.names, self.params, self.options)
 
 
@@ -127,6 +150,7 @@ def decode(value, arg: str = "fit") -> TableFit:
         spec = parse_model(fields["model"])
         dist = get_distribution(fields.get("dist") if not is_blank(fields.get("dist")) else "normal")
         options = parse_options(fields.get("options") if not is_blank(fields.get("options")) else None)
+        spec, options = _regressor_layout(spec, options, params)
     except InputError as exc:
         raise SheetError(f"{arg}: {exc}") from None
     names = tuple(spec.param_names) + tuple(dist.param_names)

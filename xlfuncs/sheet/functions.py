@@ -2,10 +2,14 @@
 
 | function | returns |
 | --- | --- |
-| ``VOLFIT(returns, [model], [dist], [options])`` | the fit table |
-| ``VOLSERIES(returns, fit, [what])`` | one value per return row: variance, vol, resid, stdresid or longrun |
-| ``VOLFORECAST(returns, fit, horizon, [what])`` | ``horizon`` rows: variance, vol, cumvar, cumvol, mean, longrun or table |
-| ``VOLLOGLIK(returns, fit)`` | the log-likelihood of the returns at the fit's parameters |
+| ``VOLFIT(returns, [model], [dist], [options], [regressors])`` | the fit table |
+| ``VOLSERIES(returns, fit, [what], [regressors])`` | one value per return row: variance, vol, resid, stdresid or longrun |
+| ``VOLFORECAST(returns, fit, horizon, [what], [regressors], [future])`` | ``horizon`` rows: variance, vol, cumvar, cumvol, mean, longrun or table |
+| ``VOLLOGLIK(returns, fit, [regressors])`` | the log-likelihood of the returns at the fit's parameters |
+
+``regressors`` is a range with one column per regressor and one row per returns row (the rows
+line up with the returns; option ``xvar=k,m`` sends columns k and m to the variance);
+``future`` holds the regressors' values over the forecast steps, one row per step.
 
 >>> table = VOLFIT([[0.5], [-1.2], [0.3], [0.9], [-0.4], [1.5], [-2.1], [0.2], [0.1], [-0.6],
 ...                 [0.8], [-0.3], [1.1], [-0.9], [0.4], [0.0], [-1.4], [0.7], [0.2], [-0.2]], "CONST")
@@ -18,6 +22,7 @@
 from __future__ import annotations
 
 import dataclasses
+import math
 
 import numpy as np
 
@@ -33,8 +38,9 @@ from ..core.errors import VolcastError
 from ..core.forecast import DEFAULT_PATHS, DEFAULT_SEED
 from ..core.simulate import simulate
 from ..core.risk import risk as core_risk
-from .cells import (SheetError, as_rows, describe, excerpt, float_arg, int_arg, is_blank, is_error_text,
-                    returns_column, sheet_function, shown, text_arg)
+from ..core.mean import layout, regressor_list
+from .cells import (SheetError, as_rows, describe, excerpt, float_arg, future_block, int_arg, is_blank, is_error_text,
+                    regressors_block, returns_column, sheet_function, shown, text_arg)
 from .bounds import (SIM_PATHS, SIM_PERIODS, check_backtest, check_compare, check_draws, check_fit,
                      check_sim)
 from .fittable import decode, encode
@@ -54,11 +60,11 @@ def _choice(value, arg, choices, default):
     return s
 
 
-def fit_from_cells(returns, model=None, dist=None, options=None, bounded=True):
+def fit_from_cells(returns, model=None, dist=None, options=None, bounded=True, regressors=None):
     """Clean the arguments of VOLFIT and return (FitResult, Returns), using the fit cache.
 
     ``bounded``: refuse a model larger than a worksheet call estimates (``bounds.check_fit``);
-    the command line passes False.
+    the command line passes False.  ``regressors``: the range of regressors beside the returns.
     """
     spec = parse_model(text_arg(model, "model"))
     dname = text_arg(dist, "dist", "normal")
@@ -67,41 +73,70 @@ def fit_from_cells(returns, model=None, dist=None, options=None, bounded=True):
         check_fit(spec, d)
     opts = parse_options(text_arg(options, "options"))
     data = returns_column(returns, "returns", opts.missing)
-    key = FIT_CACHE.key(data.values, spec.canonical, d.name, opts.estimation_key)
-    result = FIT_CACHE.get_or_fit(key, lambda: core_fit(data.values, spec, d, opts))
+    X = regressors_block(regressors, data)
+    if X is None and opts.xvar:
+        raise SheetError(f"options: xvar={','.join(map(str, opts.xvar))} sends regressor columns to the variance, but "
+                         "no regressors are given; give their range as the last argument (the command line does not "
+                         "take regressors yet)")
+    spec = layout(spec, X, opts.xvar)
+    if bounded and X is not None:
+        check_fit(spec, d)
+    key = FIT_CACHE.key(data.values, spec.canonical, d.name, opts.estimation_key, X)
+    result = FIT_CACHE.get_or_fit(key, lambda: core_fit(data.values, spec, d, opts, X))
     if result.options != opts:
         result = dataclasses.replace(result, options=opts)
     return result, data
 
 
 @sheet_function
-def VOLFIT(returns, model=None, dist=None, options=None):
+def VOLFIT(returns, model=None, dist=None, options=None, regressors=None):
     """Estimate an ARCH/GARCH-family model by maximum likelihood; returns the fit table."""
-    result, _ = fit_from_cells(returns, model, dist, options)
+    result, _ = fit_from_cells(returns, model, dist, options, regressors=regressors)
     return encode(result)
 
 
-def _table_and_returns(returns, fit):
+_LAST = "as the last argument"
+
+
+def _needs_regressors(spec, X, where: str):
+    """Refuse a fit with regressors used without them, and regressors given to a fit without."""
+    K = spec.n_regressors
+    if K and X is None:
+        s = "s" if K > 1 else ""
+        raise SheetError(f"this fit has {K} regressor{s} ({regressor_list(spec)}); give their column{s} {where} "
+                         "(one row per returns row)")
+    if X is not None and not K:
+        raise SheetError("regressors are given but this fit has none (no x[k] or v[k] rows); leave them out")
+    if X is not None and X.shape[1] != K:
+        raise SheetError(f"regressors has {X.shape[1]} column{'s' if X.shape[1] != 1 else ''} but this fit has {K} "
+                         f"regressor{'s' if K > 1 else ''} ({regressor_list(spec)}); give one column per regressor, "
+                         "in the order of the fit")
+
+
+def _table_and_returns(returns, fit, regressors=None, where: str = _LAST):
     table = decode(fit, "fit")
     data = returns_column(returns, "returns", table.options.missing)
     spec = table.spec
+    X = regressors_block(regressors, data)
+    _needs_regressors(spec, X, where)
     if len(data.values) < spec.ar + spec.arch_lags + 2:
         raise SheetError(f"returns: {spec.canonical} needs at least {spec.ar + spec.arch_lags + 2} numbers, got {len(data.values)}")
     if np.ptp(data.values) == 0 and spec.family.varies:
         raise SheetError("returns are all the same number; a constant series has no variance to model")
-    result = evaluate(data.values, table.spec, table.dist, table.names, table.params, table.options)
-    return table, data, result
+    result = evaluate(data.values, table.spec, table.dist, table.names, table.params, table.options, X,
+                      rows=data.positions + 1)
+    return table, data, result, X
 
 
 @sheet_function
-def VOLSERIES(returns, fit, what=None):
+def VOLSERIES(returns, fit, what=None, regressors=None):
     """In-sample conditional variance (or vol, resid, stdresid, or the long-run component of a
     component model), one value per return row."""
     w = _choice(what, "what", _SERIES_WHAT, "variance")
-    _, data, result = _table_and_returns(returns, fit)
+    _, data, result, X = _table_and_returns(returns, fit, regressors)
     if w == "longrun":
-        return data.spread(long_run_in_sample(result, data.values))
-    resid, var, _ = in_sample(result, data.values)
+        return data.spread(long_run_in_sample(result, data.values, X))
+    resid, var, _ = in_sample(result, data.values, X)
     with np.errstate(all="ignore"):
         series = {
             "variance": var,
@@ -112,48 +147,69 @@ def VOLSERIES(returns, fit, what=None):
     return data.spread(series)
 
 
+def _future(future, spec, h: int, need_mean: bool, what: str):
+    """The regressors' future values read from cells (one row per step), or None where the model
+    does not need them; a clear refusal where it does and they are missing."""
+    Xf = future_block(future)
+    K = spec.n_regressors
+    if Xf is not None and not K:
+        raise SheetError("future regressor values are given but this fit has no regressors; leave them out")
+    if Xf is None and K and (need_mean or spec.xvar):
+        s = "s" if K > 1 else ""
+        raise SheetError(f"this fit has {K} regressor{s} ({regressor_list(spec)}); {what} needs their values over the "
+                         f"next {h} period{'s' if h > 1 else ''}: give them as the last argument, future ({h} "
+                         f"row{'s' if h > 1 else ''}, one per step, and {K} column{s})")
+    return Xf
+
+
 @sheet_function
-def VOLFORECAST(returns, fit, horizon=None, what=None):
+def VOLFORECAST(returns, fit, horizon=None, what=None, regressors=None, future=None):
     """Forecast h = 1..horizon steps ahead: variance (default), vol, cumvar, cumvol, mean, longrun
     (the long-run component of a component model) or table."""
     h = int_arg(horizon, "horizon", 1, MAX_HORIZON)
     w = _choice(what, "what", _FORECAST_WHAT, "variance")
-    table, data, result = _table_and_returns(returns, fit)
+    table, data, result, X = _table_and_returns(returns, fit, regressors, "as the fifth argument, regressors")
     if w == "longrun":
         require_long_run(table.spec)
+    Xf = _future(future, table.spec, h, w in ("mean", "table"), f"the {'mean' if w in ('mean', 'table') else 'variance'} forecast")
     if table.spec.family.simulated_forecast:
-        check_draws(_paths(table.options), h, "VOLFORECAST of an EGARCH model")
-    fc = core_forecast(result, data.values, h, seed=table.options.seed, paths=table.options.paths)
-    # steps beyond fc.finite_steps have no finite E[sigma^2] (EGARCH with t shocks): they say so
+        check_draws(_paths(table.options), h, f"VOLFORECAST of {table.spec.variance_canonical}")
+    fc = core_forecast(result, data.values, h, seed=table.options.seed, paths=table.options.paths, X=X, Xf=Xf,
+                       mean=w in ("mean", "table"))
+    # steps beyond fc.finite_steps have no finite E[sigma^2] (EGARCH with t shocks): they say so,
+    # and so does an in-mean model's mean there (lambda_m times that volatility forecast)
     n_ok = h if fc.finite_steps is None else fc.finite_steps
-    if not (np.all(np.isfinite(fc.variance[:n_ok])) and np.all(np.isfinite(fc.cumvar[:n_ok]))
-            and np.all(np.isfinite(fc.mean))):
-        bad = int(np.flatnonzero(~np.isfinite(fc.cumvar))[0]) + 1 if not np.all(np.isfinite(fc.cumvar[:n_ok])) else 1
+    finite = np.isfinite(fc.variance[:n_ok]) & np.isfinite(fc.cumvar[:n_ok]) & np.isfinite(fc.mean[:n_ok])
+    if not np.all(finite):
+        bad = int(np.flatnonzero(~finite)[0]) + 1
         raise SheetError(
             f"the forecast overflows at step {bad}: the fit's parameters make the variance explode "
             "(check persistence and omega)"
         )
     infinite = f"infinite: {fc.why}"
+    infinite_mean = f"infinite: the in-mean term needs the volatility forecast, and {fc.why}"
 
-    def cell(values, i):
-        return float(values[i]) if i < n_ok else infinite
+    def cell(values, i, note=infinite):
+        v = float(values[i])
+        return v if i < n_ok or math.isfinite(v) else note
 
     if w == "table":
         rows = [["step", "mean", "variance", "vol", "cumvar"]]
         for i in range(h):
-            rows.append([i + 1, float(fc.mean[i]), cell(fc.variance, i), cell(fc.vol, i), cell(fc.cumvar, i)])
+            rows.append([i + 1, cell(fc.mean, i, infinite_mean), cell(fc.variance, i), cell(fc.vol, i),
+                         cell(fc.cumvar, i)])
         return rows
     col = {"variance": fc.variance, "vol": fc.vol, "cumvar": fc.cumvar, "cumvol": fc.cumvol, "mean": fc.mean,
            "longrun": fc.longrun}[w]
-    if w in ("mean", "longrun"):
+    if w == "longrun":
         return [[float(v)] for v in col]
-    return [[cell(col, i)] for i in range(h)]
+    return [[cell(col, i, infinite_mean if w == "mean" else infinite)] for i in range(h)]
 
 
 @sheet_function
-def VOLLOGLIK(returns, fit):
+def VOLLOGLIK(returns, fit, regressors=None):
     """Log-likelihood of the returns at the fit table's parameters, under its options."""
-    _, _, result = _table_and_returns(returns, fit)
+    _, _, result, _ = _table_and_returns(returns, fit, regressors)
     ll = result.loglik
     if not np.isfinite(ll):
         raise SheetError("the log-likelihood is not finite at these parameters (a variance reached zero)")
@@ -234,10 +290,10 @@ def VOLCOMPARE(returns, models, dist=None, options=None):
 
 
 @sheet_function
-def VOLTESTS(returns, fit, lags=None):
+def VOLTESTS(returns, fit, lags=None, regressors=None):
     """Diagnostics of a fit: Ljung-Box on z and z^2, ARCH-LM, Jarque-Bera, Engle-Ng sign bias."""
-    table, data, result = _table_and_returns(returns, fit)
-    resid, var, _ = in_sample(result, data.values)
+    table, data, result, X = _table_and_returns(returns, fit, regressors)
+    resid, var, _ = in_sample(result, data.values, X)
     with np.errstate(all="ignore"):
         z = resid / np.sqrt(var)
     z = z[np.isfinite(z)]
@@ -262,24 +318,30 @@ def _cell(x):
 
 
 @sheet_function
-def VOLRISK(returns, fit, level=None, horizon=None):
+def VOLRISK(returns, fit, level=None, horizon=None, regressors=None, future=None):
     """Value-at-Risk and expected shortfall of the next horizon periods' cumulative return.
 
     Losses are positive, in return units.  When the fit's options say how the returns are
     defined (``returns=log100``, ``log``, ``simple100``, ``simple``), rows ``VaR_value`` and
     ``ES_value`` follow ``ES``: the loss as a percentage of the position's value, from the
     distribution of the value change; a last row ``returns`` names the definition.
+
+    A fit with regressors takes them (``regressors``, one row per returns row) and their values
+    over the next ``horizon`` periods (``future``, one row per period).
     """
     lv = float_arg(level, "level", 0.99, "0.99")
     h = int_arg(horizon, "horizon", 1, MAX_HORIZON, default=1)
-    table, data, result = _table_and_returns(returns, fit)
+    table, data, result, X = _table_and_returns(returns, fit, regressors, "as the fifth argument, regressors")
+    Xf = _future(future, table.spec, h, True, "VOLRISK")
     if h > 1 or table.spec.family.simulated_forecast:
         check_draws(_paths(table.options), h, "VOLRISK")
-    rk = core_risk(result, data.values, lv, h, paths=table.options.paths, seed=table.options.seed)
+    rk = core_risk(result, data.values, lv, h, paths=table.options.paths, seed=table.options.seed, X=X, Xf=Xf)
     # a figure whose expectation does not exist (EGARCH with t shocks beyond one period) says so
     es = f"infinite: ES needs E[sigma], and {rk.es_note}" if rk.es_note else float(rk.es)
     sd = f"infinite: {rk.sd_note}" if rk.sd_note else float(rk.sd)
-    values = [rk.var, rk.mean] + [v for v in (es, sd) if not isinstance(v, str)]
+    mean = f"infinite: the in-mean term needs the volatility forecast, and {rk.mean_note}" if rk.mean_note \
+        else float(rk.mean)
+    values = [rk.var] + [v for v in (es, sd, mean) if not isinstance(v, str)]
     if rk.returns is not None:
         values += [rk.var_value, rk.es_value]
     if not all(np.isfinite(v) for v in values):
@@ -287,7 +349,7 @@ def VOLRISK(returns, fit, level=None, horizon=None):
     rows = [["measure", "value"], ["VaR", float(rk.var)], ["ES", es]]
     if rk.returns is not None:
         rows += [["VaR_value", float(rk.var_value)], ["ES_value", float(rk.es_value)]]
-    rows += [["mean", float(rk.mean)], ["sd", sd], ["level", float(rk.level)],
+    rows += [["mean", mean], ["sd", sd], ["level", float(rk.level)],
              ["horizon", int(rk.horizon)], ["method", rk.method]]
     if rk.returns is not None:
         rows.append(["returns", rk.returns])
@@ -371,8 +433,11 @@ def _split_backtest_options(text):
 
 
 @sheet_function
-def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None):
-    """Walk-forward backtest of one-step variance and VaR forecasts: coverage tests, zone, losses."""
+def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None, regressors=None):
+    """Walk-forward backtest of one-step variance and VaR forecasts: coverage tests, zone, losses.
+
+    ``regressors`` (one row per returns row): each forecast reads the row of the return it
+    forecasts, so a regressor must be known one period ahead (lag it in the sheet if not)."""
     lv = float_arg(level, "level", 0.99, "0.99")
     own, rest = _split_backtest_options(text_arg(options, "options"))
     rows = as_rows(fit_or_model)
@@ -389,14 +454,22 @@ def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None):
         table = decode(fit_or_model, "fit_or_model")
         spec, dist, opts, params = table.spec, table.dist, table.options, table.params
     data = returns_column(returns, "returns", opts.missing)
+    X = regressors_block(regressors, data)
+    if params is None:
+        if X is None and opts.xvar:
+            raise SheetError(f"options: xvar={','.join(map(str, opts.xvar))} sends regressor columns to the variance, "
+                             "but no regressors are given; give their range as the last argument")
+        spec = layout(spec, X, opts.xvar)
+    else:
+        _needs_regressors(spec, X, _LAST)
     w = int_arg(window, "window", 1, max(1, len(data.values) - 1))
     check_backtest(spec, dist, len(data.values), w, own.get("scheme", "rolling"), own.get("refit", 1),
                    estimating=params is None, paths=_paths(opts))
-    key = ("backtest",) + FIT_CACHE.key(data.values, spec.canonical, dist.name, opts.estimation_key) + (
+    key = ("backtest",) + FIT_CACHE.key(data.values, spec.canonical, dist.name, opts.estimation_key, X) + (
         w, lv, own.get("scheme", "rolling"), own.get("refit", 1), None if params is None else tuple(params),
         opts.paths, opts.seed)
     bt = FIT_CACHE.get_or_fit(key, lambda: core_backtest(
-        data.values, spec, dist, opts, w, lv, own.get("scheme", "rolling"), own.get("refit", 1), params))
+        data.values, spec, dist, opts, w, lv, own.get("scheme", "rolling"), own.get("refit", 1), params, X=X))
     if own.get("what") == "series":
         out = [["index", "variance", "VaR", "return", "exception"]]
         for i, v, var, a, x in zip(bt.index, bt.variance, bt.var, bt.actual, bt.exception):

@@ -26,6 +26,7 @@ _REGISTRY = (
     "ewma:Ewma",
     "figarch:Figarch",
     "cgarch:Cgarch",
+    "aparch:Aparch",
 )
 
 

@@ -16,9 +16,17 @@ are carried back to the parameters through that Jacobian (the chain rule).
 Presample (``presample=mean``): lagged squares and variances before the first observation equal
 the mean squared residual at the trial parameters (the GJR term the mean of N); ``drop``: the
 first p residuals are lags only and variance lags before the start take the mean squared residual.
+
+Variance regressors: an intercept series ``shift`` adds to omega observation by observation,
+sigma2[t] = omega + shift[t] + ...; its parameters' derivatives run through the same filter as
+omega's.  The variance stays positive where omega + shift[t] > 0 at every observation
+(:meth:`LinearFamily._bad_shift`), the alphas and betas being non-negative.
 """
 
 from __future__ import annotations
+
+import math
+import operator
 
 import numpy as np
 from scipy.signal import lfilter
@@ -48,7 +56,8 @@ def linear_filter(den, x, zi=None):
 class _State:
     """What the forward recursion leaves for the adjoint."""
 
-    __slots__ = ("e", "sig2", "P", "N", "neg", "sbar", "den", "tail", "omega", "alpha", "gamma", "beta", "mean_mode", "m", "vp")
+    __slots__ = ("e", "sig2", "P", "N", "neg", "sbar", "den", "tail", "omega", "alpha", "gamma", "beta", "mean_mode", "m",
+                 "lam", "vp")
 
 
 class _SimState:
@@ -65,6 +74,7 @@ class LinearFamily(VarianceFamily):
 
     analytic = True
     has_adjoint = True
+    takes_shift = True
     #: the recursion carries the GJR news term gamma_i 1(e<0) e^2
     asymmetric = False
 
@@ -120,10 +130,10 @@ class LinearFamily(VarianceFamily):
                 N = n2
         return e2, sbar, neg, P, N
 
-    def _run(self, omega, alpha, gamma, beta, P, N, sbar):
+    def _run(self, omega, alpha, gamma, beta, P, N, sbar, shift=None):
         p, q = self.p, self.q
         m = len(P) - p
-        x = np.full(m, omega)
+        x = np.full(m, omega) if shift is None else omega + shift
         for i in range(1, p + 1):
             x += alpha[i - 1] * P[p - i: p - i + m]
             if self.asymmetric:
@@ -134,22 +144,26 @@ class LinearFamily(VarianceFamily):
             return linear_filter(den, x, sbar * tail), den, tail, m
         return x, None, None, m
 
-    def _variance(self, vp, e, presample, eta, dist):
+    def _variance(self, vp, e, presample, eta, dist, shift=None):
         omega, alpha, gamma, beta = self._coefficients(vp)
         _, sbar, _, P, N = self._inputs(e, presample, np.mean)
-        return self._run(omega, alpha, gamma, beta, P, N, sbar)[0]
+        return self._run(omega, alpha, gamma, beta, P, N, sbar, shift)[0]
 
-    def _derivatives(self, vp, e, de, presample, eta=(), dist=None):
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
         omega, alpha, gamma, beta = self._coefficients(vp)
         p, q = self.p, self.q
         asym = self.asymmetric
         e2, sbar, neg, P, N = self._inputs(e, presample, np.mean)
-        sig2, den, tail, m = self._run(omega, alpha, gamma, beta, P, N, sbar)
-        # D_t = RHS_t + sum_j beta_j D_{t-j}; rows: mean parameters, then the linear coefficients
+        sig2, den, tail, m = self._run(omega, alpha, gamma, beta, P, N, sbar, shift)
+        # D_t = RHS_t + sum_j beta_j D_{t-j}; rows: mean parameters, the linear coefficients,
+        # then the shift's parameters (their RHS is the shift's derivative, as omega's is 1)
         nm = de.shape[0]
         n_lin = 1 + p * (2 if asym else 1) + q
-        RHS = np.zeros((nm + n_lin, m))
-        ZI = np.zeros((nm + n_lin, q)) if q else None
+        ns = 0 if dshift is None else dshift.shape[0]
+        RHS = np.zeros((nm + n_lin + ns, m))
+        ZI = np.zeros((nm + n_lin + ns, q)) if q else None
+        if ns:
+            RHS[nm + n_lin:] = dshift
         if nm:
             dE2 = 2.0 * e * de  # (nm x n)
             dsbar = dE2.mean(axis=1)
@@ -190,11 +204,11 @@ class LinearFamily(VarianceFamily):
             D = RHS
         J = self._jacobian(vp)
         if J is not None:
-            D = np.concatenate([D[:nm], J.T @ D[nm:]])
+            D = np.concatenate([D[:nm], J.T @ D[nm: nm + n_lin], D[nm + n_lin:]])
         return sig2, D
 
     # ------------------------------------------------------------------ adjoint
-    def _forward(self, vp, e, presample):
+    def _forward(self, vp, e, presample, shift=None):
         st = _State()
         omega, alpha, gamma, beta = self._coefficients(vp)
         st.e = e
@@ -203,10 +217,10 @@ class LinearFamily(VarianceFamily):
         st.mean_mode = presample == "mean"
         e2, sbar, neg, P, N = self._inputs(e, presample, lambda a: a.sum() * (1.0 / len(a)))
         st.sbar, st.neg, st.P, st.N = sbar, neg, P, N
-        st.sig2, st.den, st.tail, st.m = self._run(omega, alpha, gamma, beta, P, N, sbar)
+        st.sig2, st.den, st.tail, st.m = self._run(omega, alpha, gamma, beta, P, N, sbar, shift)
         return st
 
-    def _adjoint(self, st, w, de, gm):
+    def _adjoint(self, st, w, de, gm, dshift=None):
         p, q = self.p, self.q
         asym = self.asymmetric
         alpha, gamma = st.alpha, st.gamma
@@ -246,7 +260,8 @@ class LinearFamily(VarianceFamily):
             if q:
                 gm += dsbar * (lam[:q] @ st.tail)
         J = self._jacobian(st.vp)
-        return g if J is None else J.T @ g
+        g = g if J is None else J.T @ g
+        return g if dshift is None else np.concatenate([g, dshift @ lam])
 
     # ------------------------------------------------------------------ summary figures
     def _persistence(self, vp, eta, dist):
@@ -333,7 +348,7 @@ class LinearFamily(VarianceFamily):
         return implied, weights
 
     # ------------------------------------------------------------------ forecast
-    def _forecast(self, vp, eta, dist, history, H, rng, paths):
+    def _forecast(self, vp, eta, dist, history, H, rng, paths, shift=None):
         omega, alpha, gamma, beta = self._coefficients(vp)
         p, q = self.p, self.q
         asym = self.asymmetric
@@ -346,7 +361,7 @@ class LinearFamily(VarianceFamily):
         n_s = len(s2)
         out = []
         for h in range(H):
-            v = omega
+            v = omega if shift is None else omega + shift[h]
             for i in range(1, p + 1):
                 k = h + 1 - i  # steps ahead of the lagged shock (<= 0: observed)
                 if k <= 0:
@@ -381,9 +396,9 @@ class LinearFamily(VarianceFamily):
         s2 = list(history.s2[len(history.s2) - self.q:]) if self.q else []
         return _SimState(e2, n2, s2)
 
-    def _sim_variance(self, state, vp, eta, dist):
+    def _sim_variance(self, state, vp, eta, dist, shift=None):
         omega, alpha, gamma, beta = self._coefficients(vp)
-        v = omega
+        v = omega if shift is None else omega + shift
         for i in range(1, self.p + 1):
             v = v + alpha[i - 1] * state.e2[-i]
             if self.asymmetric:
@@ -400,6 +415,72 @@ class LinearFamily(VarianceFamily):
                 state.n2 = state.n2[1:] + [np.where(e < 0, e2, 0.0)]
         if self.q:
             state.s2 = state.s2[1:] + [s2]
+
+    # ------------------------------------------------------------------ one observation at a time
+    def _bad_shift(self, vp, shift):
+        return ~(self._coefficients(vp)[0] + shift > 0)
+
+    def _filter_start(self, vp, eta, dist, u, e_lags, presample):
+        """Lagged squares (and negative-part squares) at their presample values from ``u`` --
+        the mean of u^2 (of 1(u<0) u^2) -- or the lag residuals under ``drop``; lagged
+        variances at the mean of u^2, as :meth:`_variance` starts."""
+        _, sbar, _, _, _ = self._inputs(u, presample, np.mean)
+        nbar = float(np.mean(np.where(u < 0, u * u, 0.0))) if self.asymmetric else 0.0
+        if presample == "mean":
+            e2, n2 = [sbar] * self.p, [nbar] * self.p
+        else:
+            e2 = [x * x for x in e_lags]
+            n2 = [x * x if x < 0 else 0.0 for x in e_lags]
+        return _SimState(e2, n2, [sbar] * self.q)
+
+    def _filter(self, vp, u, step, presample, eta, dist, shift=None):
+        """The recursion in plain floats, one observation at a time (the generic loop of the
+        base class, about twenty times faster)."""
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        p, q = self.p, self.q
+        asym = self.asymmetric
+        al = [float(a) for a in alpha]
+        ga = [float(g) for g in gamma] if asym else [0.0] * p
+        be = [float(b) for b in beta]
+        n = len(u)
+        s0 = p if presample == "drop" else 0
+        level = float(np.mean(u * u))
+        e = [0.0] * n
+        for t in range(s0):
+            e[t] = float(step(t, level))
+        st = self._filter_start(vp, eta, dist, u, e[:s0], presample)
+        e2 = [float(x) for x in st.e2][::-1]  # newest first
+        n2 = [float(x) for x in st.n2][::-1]
+        s2 = [float(x) for x in st.s2][::-1]
+        mul = operator.mul
+        om = [float(omega)] * (n - s0) if shift is None else (float(omega) + shift).tolist()
+        out = [0.0] * (n - s0)
+        one = p == 1 and q == 1
+        if one:
+            a1, g1, b1 = al[0], ga[0], be[0]
+            le2, ln2, ls2 = e2[0], n2[0], s2[0]
+        for t in range(s0, n):
+            if one:
+                v = om[t - s0] + a1 * le2 + g1 * ln2 + b1 * ls2
+            else:
+                v = om[t - s0] + sum(map(mul, al, e2)) + sum(map(mul, ga, n2)) + sum(map(mul, be, s2))
+            if not (v > 0.0 and v < math.inf):
+                return np.full(n, np.nan), np.full(n - s0, np.nan)
+            et = step(t, v)
+            e[t] = et
+            out[t - s0] = v
+            sq = et * et
+            if one:
+                le2, ln2, ls2 = sq, (sq if et < 0 else 0.0), v
+            else:
+                if p:
+                    e2.insert(0, sq)
+                    n2.insert(0, sq if et < 0 else 0.0)
+                    del e2[-1], n2[-1]
+                if q:
+                    s2.insert(0, v)
+                    del s2[-1]
+        return np.array(e), np.array(out)
 
     # ------------------------------------------------------------------ news impact
     def _news_level(self, vp, eta, dist):

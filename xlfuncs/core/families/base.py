@@ -25,7 +25,24 @@ the shocks' distribution read it, the others ignore it).
 | ``_sim_start``, ``_sim_continue``, ``_sim_variance``, ``_sim_push`` | one simulation step at a time |
 | ``_news_impact`` | next period's variance against this period's shock |
 | ``_long_run``, ``_long_run_forecast`` | the long-run component, in sample and ahead (component models only) |
-| ``_starts``, ``_target``, ``_sum_rule`` | what the estimator needs: start values, variance targeting, the implied weight |
+| ``_starts``, ``_target``, ``_sum_rule``, ``_hold`` | what the estimator needs: start values, variance targeting, the implied weight |
+| ``_filter_start`` (and optionally a faster ``_filter``) | the recursion one observation at a time, for a mean that reads sigma[t] (GARCH-in-mean) |
+| ``_bad_shift`` | where an intercept series (variance regressors) leaves the family's domain (``takes_shift`` families) |
+
+Intercept series (variance regressors).  A family with ``takes_shift = True`` adds a series
+``shift`` (one value per likelihood position, or per forecast step) to the intercept of its
+recursion: to omega for the families linear in lagged squares, to the log-variance's omega for
+EGARCH.  Its hooks ``_variance``, ``_derivatives``, ``_forward``, ``_forecast`` and
+``_sim_variance`` then take a keyword ``shift``, and ``_derivatives`` and ``_adjoint`` a keyword
+``dshift`` (the shift's derivatives in its own parameters, one row each, appended after the
+family's rows).  The keywords are passed only when there is a series, so a family without
+them keeps its plain hooks; asked for one anyway, it answers with an :class:`InputError`.
+
+One observation at a time.  :meth:`VarianceFamily.filter` runs the recursion forward while the
+caller computes each residual from that period's variance (GARCH-in-mean: the residual depends
+on sigma[t], which depends on the residuals before it).  The default runs the simulation hooks
+on one path from the state ``_filter_start`` gives; a family may override ``_filter`` with a
+tighter loop.
 """
 
 from __future__ import annotations
@@ -110,6 +127,8 @@ class VarianceFamily:
     burn_in: bool = True
     #: the variance has a long-run (permanent) component of its own (``_long_run``)
     has_long_run: bool = False
+    #: the recursion adds a per-observation series to its intercept (variance regressors)
+    takes_shift: bool = False
 
     def __init__(self, p: int = 0, q: int = 0):
         self.p = int(p)
@@ -225,41 +244,125 @@ class VarianceFamily:
         return [(1.0, (None, None))] * self.n_params
 
     # ------------------------------------------------------------------ the recursion
-    def variance(self, vp, e, presample: str = "mean", eta=(), dist=None) -> np.ndarray:
+    def _shift_kw(self, shift, length: int | None = None, what: str = "shift") -> dict:
+        """The keyword a hook takes for an intercept series (none without one)."""
+        if shift is None:
+            return {}
+        if not self.takes_shift:
+            raise InputError(f"variance regressors (xvar=) add to omega, which {self.canonical or 'a constant variance'} "
+                             "does not take")
+        shift = np.asarray(shift, dtype=float)
+        if length is not None and shift.shape != (length,):
+            raise ValueError(f"{what} must hold {length} values, one per variance, got shape {shift.shape}")
+        return {"shift": shift}
+
+    def _lik_length(self, n: int, presample: str) -> int:
+        return n - (self.arch_lags if presample == "drop" else 0)
+
+    def variance(self, vp, e, presample: str = "mean", eta=(), dist=None, shift=None) -> np.ndarray:
         """Conditional variances on the likelihood positions from the residuals ``e``.
 
         ``presample=mean``: every residual position is a likelihood position, lags before
         the start at the mean squared residual; ``drop``: the first :attr:`arch_lags`
-        residuals are lags only.
+        residuals are lags only.  ``shift`` (one value per likelihood position) is added to
+        the recursion's intercept (``takes_shift`` families).
         """
         if presample not in ("mean", "drop"):
             raise ValueError(f"presample must be mean or drop, got {presample}")
-        return self._variance(self._vp(vp), np.asarray(e, dtype=float), presample, eta, dist)
+        e = np.asarray(e, dtype=float)
+        kw = self._shift_kw(shift, self._lik_length(len(e), presample))
+        return self._variance(self._vp(vp), e, presample, eta, dist, **kw)
 
     def _variance(self, vp, e, presample, eta, dist):  # pragma: no cover - every family has one
         raise NotImplementedError
 
-    def derivatives(self, vp, e, de, presample: str = "mean", eta=(), dist=None):
-        """(sigma2, D): D stacks d sigma2 / d (mean parameters, then variance parameters), one
-        row each, given the residuals' derivatives ``de`` (mean parameters x residuals).  A
+    def derivatives(self, vp, e, de, presample: str = "mean", eta=(), dist=None, shift=None, dshift=None):
+        """(sigma2, D): D stacks d sigma2 / d (mean parameters, then variance parameters, then
+        the shift's parameters), one row each, given the residuals' derivatives ``de`` (mean
+        parameters x residuals) and the shift's ``dshift`` (its parameters x variances).  A
         family whose recursion reads the distribution's parameters ``eta`` (EGARCH, through
-        E|z|) adds their rows last; the others stop at the variance parameters and the
-        likelihood takes the distribution's rows as zero."""
+        E|z|) adds their rows last; the others stop before them and the likelihood takes the
+        distribution's rows as zero."""
         if not self.analytic:
             raise NotImplementedError(f"{self.canonical} has no analytic derivatives")
-        return self._derivatives(self._vp(vp), np.asarray(e, dtype=float), np.asarray(de, dtype=float), presample,
-                                 np.asarray(eta, dtype=float), dist)
+        e = np.asarray(e, dtype=float)
+        kw = self._shift_kw(shift, self._lik_length(len(e), presample))
+        if kw:
+            kw["dshift"] = np.asarray(dshift, dtype=float)
+        return self._derivatives(self._vp(vp), e, np.asarray(de, dtype=float), presample,
+                                 np.asarray(eta, dtype=float), dist, **kw)
 
-    def forward(self, vp, e, presample: str = "mean"):
+    def forward(self, vp, e, presample: str = "mean", shift=None):
         """The recursion's state for :meth:`adjoint`; ``state.sig2`` holds the variances."""
         if not self.has_adjoint:
             raise NotImplementedError(f"{self.canonical} has no adjoint gradient")
-        return self._forward(self._vp(vp), e, presample)
+        kw = self._shift_kw(shift, self._lik_length(len(e), presample))
+        return self._forward(self._vp(vp), e, presample, **kw)
 
-    def adjoint(self, state, w, de, gm):
-        """Gradient of sum_t w_t sigma2_t in the variance parameters; adds the mean parameters'
-        part to ``gm`` in place (``de``: the residuals' derivatives)."""
-        return self._adjoint(state, w, de, gm)
+    def adjoint(self, state, w, de, gm, dshift=None):
+        """Gradient of sum_t w_t sigma2_t in the variance parameters (then the shift's parameters
+        when ``dshift`` is given); adds the mean parameters' part to ``gm`` in place (``de``: the
+        residuals' derivatives)."""
+        if dshift is None:
+            return self._adjoint(state, w, de, gm)
+        return self._adjoint(state, w, de, gm, dshift=np.asarray(dshift, dtype=float))
+
+    def bad_shift(self, vp, shift) -> np.ndarray:
+        """Where the intercept plus ``shift`` leaves the family's domain (a boolean per value;
+        all False for a recursion in the log of the variance)."""
+        self._shift_kw(shift)
+        return np.asarray(self._bad_shift(self._vp(vp), np.asarray(shift, dtype=float)), dtype=bool)
+
+    def _bad_shift(self, vp, shift):
+        return np.zeros(shift.shape, dtype=bool)
+
+    # ------------------------------------------------------------------ one observation at a time
+    def filter(self, vp, u, step, presample: str = "mean", eta=(), dist=None, shift=None):
+        """Residuals and variances computed jointly, one observation at a time.
+
+        ``u`` are the residuals of the mean without the term that reads the variance (on the
+        residual positions); they fix the presample exactly as :meth:`variance` fixes it from
+        residuals ``u`` (the mean squared residual, and so on), so that when ``step`` returns
+        ``u[t]`` the result is ``(u, variance(vp, u, presample))``.  ``step(t, s2)`` returns the
+        residual at position ``t`` given its conditional variance ``s2``; at the positions that
+        ``presample=drop`` keeps as lags only, ``s2`` is the presample level mean(u^2).
+        Returns ``(e, sigma2)``: residuals on every position, variances on the likelihood
+        positions; nan variances where the recursion leaves its domain.
+        """
+        if presample not in ("mean", "drop"):
+            raise ValueError(f"presample must be mean or drop, got {presample}")
+        u = np.asarray(u, dtype=float)
+        kw = self._shift_kw(shift, self._lik_length(len(u), presample))
+        return self._filter(self._vp(vp), u, step, presample, np.asarray(eta, dtype=float), dist, **kw)
+
+    def _filter(self, vp, u, step, presample, eta, dist, shift=None):
+        """The generic loop: the simulation hooks on one path from ``_filter_start``'s state."""
+        n = len(u)
+        s0 = self.arch_lags if presample == "drop" else 0
+        level = float(np.mean(u * u))
+        e = np.empty(n)
+        for t in range(s0):
+            e[t] = step(t, level)
+        state = self._filter_start(vp, eta, dist, u, e[:s0], presample)
+        out = np.empty(n - s0)
+        kw = {}
+        for t in range(s0, n):
+            if shift is not None:
+                kw["shift"] = float(shift[t - s0])
+            s2 = float(self._sim_variance(state, vp, eta, dist, **kw))
+            if not (s2 > 0.0 and math.isfinite(s2)):
+                return np.full(n, np.nan), np.full(n - s0, np.nan)
+            et = float(step(t, s2))
+            e[t] = et
+            out[t - s0] = s2
+            self._sim_push(state, et, et / math.sqrt(s2), s2)
+        return e, out
+
+    def _filter_start(self, vp, eta, dist, u, e_lags, presample):
+        """The simulation state before the first likelihood position, in the presample convention
+        of ``_variance`` applied to residuals ``u`` (the presample moments come from ``u``); under
+        ``presample=drop`` ``e_lags`` are the residuals kept as lags only."""
+        raise InputError(f"GARCH-in-mean (-M) is not available for {self.canonical} yet")
 
     # ------------------------------------------------------------------ summary figures
     def persistence(self, vp, eta=(), dist=None) -> float | None:
@@ -287,17 +390,19 @@ class VarianceFamily:
         return math.log(0.5) / math.log(pers)
 
     # ------------------------------------------------------------------ forecasts
-    def forecast(self, vp, eta, dist, history: History, horizon: int, rng=None, paths: int = 0):
+    def forecast(self, vp, eta, dist, history: History, horizon: int, rng=None, paths: int = 0, shift=None):
         """(variance forecasts for steps 1..horizon, simulated?) from the end of the sample.
 
         Families without a closed form average ``paths`` simulated paths drawn from ``rng``.
+        ``shift`` (one value per step) is the intercept series of the future periods.
         """
         if not isinstance(history, History):
             raise TypeError("history must be a History")
         H = int(horizon)
         if H < 1:
             raise ValueError(f"horizon must be 1 or more, got {horizon}")
-        return self._forecast(self._vp(vp), np.asarray(eta, dtype=float), dist, history, H, rng, paths)
+        kw = self._shift_kw(shift, H, "the future shift")
+        return self._forecast(self._vp(vp), np.asarray(eta, dtype=float), dist, history, H, rng, paths, **kw)
 
     def _forecast(self, vp, eta, dist, history, H, rng, paths):  # pragma: no cover
         raise NotImplementedError
@@ -306,7 +411,8 @@ class VarianceFamily:
         """(steps, why): E_T[(sigma2_{T+h})^power] is finite for h <= steps and infinite beyond,
         for the forecast from the end of any sample; ``why`` says so in a user's words (None
         when every step's expectation exists, the default).  ``power=1`` is the variance
-        forecast, ``power=0.5`` E[sigma], which the expected shortfall needs."""
+        forecast, ``power=0.5`` E[sigma], which the expected shortfall needs.  A known
+        intercept series (variance regressors) moves no moment's existence, so none is asked."""
         H = int(horizon)
         if H < 1:
             raise ValueError(f"horizon must be 1 or more, got {horizon}")
@@ -315,13 +421,14 @@ class VarianceFamily:
     def _moment_horizon(self, vp, eta, dist, H, power):
         return H, None
 
-    def _simulated_forecast(self, vp, eta, dist, history, H, rng, paths):
+    def _simulated_forecast(self, vp, eta, dist, history, H, rng, paths, shift=None):
         """The mean over simulated paths of each step's variance (for families with no closed form)."""
         state = self._sim_continue(vp, eta, dist, history)
         out = np.empty(H)
         for h in range(H):
             z = dist.rvs(paths, eta, rng)
-            s2 = self._sim_variance(state, vp, eta, dist)
+            kw = {} if shift is None else {"shift": shift[h]}
+            s2 = self._sim_variance(state, vp, eta, dist, **kw)
             out[h] = float(np.mean(s2))
             self._sim_push(state, np.sqrt(s2) * z, z, s2)
         return out
@@ -337,11 +444,13 @@ class VarianceFamily:
             raise TypeError("history must be a History")
         return self._sim_continue(self._vp(vp), np.asarray(eta, dtype=float), dist, history)
 
-    def sim_step(self, state, vp, eta, dist, z):
-        """One period: (variance, shock) with standardised draws ``z``; the state moves on."""
+    def sim_step(self, state, vp, eta, dist, z, shift=None):
+        """One period: (variance, shock) with standardised draws ``z``; the state moves on.
+        ``shift`` is this period's addition to the intercept (variance regressors)."""
         vp = self._vp(vp)
         eta = np.asarray(eta, dtype=float)
-        s2 = self._sim_variance(state, vp, eta, dist)
+        kw = {} if shift is None else self._shift_kw(float(shift))
+        s2 = self._sim_variance(state, vp, eta, dist, **kw)
         e = np.sqrt(s2) * z
         self._sim_push(state, e, z, s2)
         return s2, e
@@ -414,8 +523,20 @@ class VarianceFamily:
 
     def sum_rule(self, eta=(), dist=None):
         """(implied parameter, {parameter: weight}) of the rule sum weight * parameter = constant
-        that IGARCH imposes and that holds a fit on the stationarity bound; None where none applies."""
+        that IGARCH imposes and that holds a fit on the stationarity bound; None where none applies.
+
+        A family whose persistence is not linear in its parameters gives (implied parameter, None)
+        and sets the implied parameter itself (:meth:`hold`)."""
         return self._sum_rule(np.asarray(eta, dtype=float), dist)
 
     def _sum_rule(self, eta, dist):
         return None
+
+    def hold(self, vp, total: float, eta=(), dist=None) -> np.ndarray:
+        """For a sum rule given without weights: set the implied parameter in ``vp`` (in place) so
+        that the persistence is ``total``; returns its derivatives in the variance parameters, then
+        the distribution's (zero at itself)."""
+        return self._hold(vp, float(total), np.asarray(eta, dtype=float), dist)
+
+    def _hold(self, vp, total, eta, dist):  # pragma: no cover - families with a nonlinear rule only
+        raise NotImplementedError

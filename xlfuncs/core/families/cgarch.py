@@ -121,6 +121,8 @@ class Cgarch(LinearFamily):
     indexed = ("alpha", "beta")
     targeted = "omega"  # omega is the unconditional variance itself
     has_long_run = True
+    # variance regressors (xvar=) would have to enter one of the two components; not offered
+    takes_shift = False
     #: one estimation of CGARCH(1,1)-t on 2,500 returns took 1.1-2.5 times GARCH(1,1)-t's CPU time
     #: (median of 3, four series), about what the worksheet bounds' k x k units already give (49
     #: against 25), so no extra weight

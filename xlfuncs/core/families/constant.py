@@ -1,4 +1,8 @@
-"""The constant variance: sigma2[t] = omega (a model string with only a mean part)."""
+"""The constant variance: sigma2[t] = omega (a model string with only a mean part).
+
+With variance regressors (an intercept series ``shift``) sigma2[t] = omega + shift[t], kept
+positive at every observation.
+"""
 
 from __future__ import annotations
 
@@ -17,6 +21,7 @@ class Constant(VarianceFamily):
     varies = False
     analytic = True
     targeted = "omega"
+    takes_shift = True
 
     def __init__(self, p: int = 0, q: int = 0):
         super().__init__(0, 0)
@@ -38,20 +43,27 @@ class Constant(VarianceFamily):
     def _box(self, var):
         return [(0.05 * var, (var * 1e-9, None))]
 
-    def _variance(self, vp, e, presample, eta, dist):
-        return np.full(len(e), vp[0])
+    def _variance(self, vp, e, presample, eta, dist, shift=None):
+        return np.full(len(e), vp[0]) if shift is None else vp[0] + shift
 
-    def _derivatives(self, vp, e, de, presample, eta=(), dist=None):
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
         n = len(e)
-        D = np.zeros((de.shape[0] + 1, n))
-        D[-1] = 1.0
-        return np.full(n, vp[0]), D
+        ns = 0 if dshift is None else dshift.shape[0]
+        nm = de.shape[0]
+        D = np.zeros((nm + 1 + ns, n))
+        D[nm] = 1.0
+        if ns:
+            D[nm + 1:] = dshift
+        return self._variance(vp, e, presample, None, None, shift), D
+
+    def _bad_shift(self, vp, shift):
+        return ~(vp[0] + shift > 0)
 
     def _uncond_variance(self, vp, eta, dist):
         return float(vp[0])
 
-    def _forecast(self, vp, eta, dist, history, H, rng, paths):
-        return np.full(H, float(vp[0])), False
+    def _forecast(self, vp, eta, dist, history, H, rng, paths, shift=None):
+        return (np.full(H, float(vp[0])) if shift is None else float(vp[0]) + shift), False
 
     def _sim_start(self, vp, eta, dist, paths):
         return None
@@ -59,8 +71,8 @@ class Constant(VarianceFamily):
     def _sim_continue(self, vp, eta, dist, history):
         return None
 
-    def _sim_variance(self, state, vp, eta, dist):
-        return vp[0]
+    def _sim_variance(self, state, vp, eta, dist, shift=None):
+        return vp[0] if shift is None else vp[0] + shift
 
     def _sim_push(self, state, e, z, s2):
         pass

@@ -5,7 +5,9 @@
 The recursion feeds on its own past through z = e / sigma, so no linear filter runs it: it is a
 loop compiled by numba on first use (:mod:`._compiled`; plain Python where numba is absent), and
 the same forward pass carries its derivatives in every parameter (the mean's through the
-residuals, the distribution's through E|z|), so the estimator gets analytic scores.
+residuals, the variance regressors' through the intercept, the distribution's through E|z|), so
+the estimator gets analytic scores.  Variance regressors (an intercept series ``shift``) add to
+omega, the log-variance's intercept, so they need no sign restriction.
 
 Forecasts are exact (Nelson 1991): with future news at zero the log-variance follows its own
 recursion, and each future shock adds a term a_k (|z| - E|z|) + c_k z whose weights are the
@@ -75,16 +77,19 @@ def _log_variance_loop(e, om, alpha, gamma, beta, kappa, lsbar, sd0, start):
 
 
 @kernel
-def _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start):
+def _log_variance_derivatives(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start):
     """(sigma2, D') with D'[s, k] = d sigma2 / d theta_k at position start + s, in one forward pass.
 
     Columns of D': the mean parameters (through the residuals' derivatives ``de``, nm x n),
-    omega, alpha[1..p], gamma[1..p], beta[1..q], then the distribution's parameters (through
-    d E|z| / d eta = ``dkappa``).  With v the log-variance and z = e exp(-v/2):
+    omega, alpha[1..p], gamma[1..p], beta[1..q], the intercept series' parameters (``dom``,
+    ns x n: d om_t / d v_k, each entering as omega's 1 does), then the distribution's
+    parameters (through d E|z| / d eta = ``dkappa``).  With v the log-variance and
+    z = e exp(-v/2):
         dv_t = direct_t + sum_i alpha_i dg_{t-i} + gamma_i dz_{t-i} + sum_j beta_j dv_{t-j},
         dz_t = de_t exp(-v_t/2) - z_t dv_t / 2,   dg_t = sign(z_t) dz_t - dkappa,
-    where direct_t is 1 for omega, g_{t-i} for alpha_i, z_{t-i} for gamma_i and v_{t-j} for
-    beta_j; the presample log-variance ln(sbar) moves with the mean parameters through sbar.
+    where direct_t is 1 for omega, dom[k, t] for v_k, g_{t-i} for alpha_i, z_{t-i} for gamma_i
+    and v_{t-j} for beta_j; the presample log-variance ln(sbar) moves with the mean parameters
+    through sbar.
     The lagged derivatives live in ring buffers of p and q rows.
     """
     n = e.shape[0]
@@ -92,12 +97,14 @@ def _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar
     p = alpha.shape[0]
     q = beta.shape[0]
     nd = dkappa.shape[0]
-    K = nm + 1 + 2 * p + q + nd
-    io = nm  # omega's column; alpha, gamma, beta and the distribution's follow
+    ns = dom.shape[0]
+    K = nm + 1 + 2 * p + q + ns + nd
+    io = nm  # omega's column; alpha, gamma, beta, the intercept series' and the distribution's follow
     ia = io + 1
     ig = ia + p
     ib = ig + p
-    ie = ib + q
+    iv = ib + q
+    ie = iv + ns
     m = n - start
     P = max(p, 1)
     Q = max(q, 1)
@@ -156,6 +163,8 @@ def _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar
                 acc += beta[j] * dlv[qrows[j], k]
             dv[k] = acc
         dv[io] += 1.0
+        for k in range(ns):
+            dv[iv + k] += dom[k, t]
         for i in range(1, p + 1):
             dv[ia + i - 1] += g[p + t - i]
             dv[ig + i - 1] += z[p + t - i]
@@ -372,6 +381,7 @@ class Egarch(VarianceFamily):
     max_fit_params = 6
     simulated_forecast = True
     log_variance = True
+    takes_shift = True
     words = ("EGARCH",)
     stems = ("omega", "alpha", "gamma", "beta")
     indexed = ("alpha", "gamma", "beta")
@@ -413,30 +423,45 @@ class Egarch(VarianceFamily):
         omega, alpha, gamma, beta = self._split(vp)
         return float(omega), _plain(alpha), _plain(gamma), _plain(beta)
 
-    def _variance(self, vp, e, presample, eta, dist):
+    @staticmethod
+    def _intercepts(omega, n, start, shift):
+        """The log-variance's intercept at each residual position: omega, plus the intercept
+        series ``shift`` (one value per likelihood position start..n-1) where there is one."""
+        om = np.full(n, omega)
+        if shift is not None:
+            om[start:] += shift
+        return om
+
+    def _variance(self, vp, e, presample, eta, dist, shift=None):
         """The log-variance recursion (a compiled loop); presample news is zero (its expectation)
         and the presample log-variance the log mean square."""
         omega, alpha, gamma, beta = self._parts(vp)
         e = _plain(e)
         kappa = float(dist.abs_moment(eta))
         _, lsbar, sd0 = self._presample(e)
-        om = np.full(len(e), omega)  # the log-variance's intercept at each position
         start = self.p if presample == "drop" else 0
+        om = self._intercepts(omega, len(e), start, shift)
         return _log_variance_loop(e, om, alpha, gamma, beta, kappa, lsbar, sd0, start)
 
-    def _derivatives(self, vp, e, de, presample, eta, dist):
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
         """(sigma2, D) from one compiled forward pass: D's rows are the mean parameters, the
-        variance parameters, then the distribution's (E|z| moves with them)."""
+        variance parameters, the intercept series' parameters (``dshift``: d shift / d v[k], one
+        row per parameter on the likelihood positions), then the distribution's (E|z| moves
+        with them)."""
         omega, alpha, gamma, beta = self._parts(vp)
         e = _plain(e)
-        de = _plain(np.reshape(de, (-1, len(e))))
+        n = len(e)
+        de = _plain(np.reshape(de, (-1, n)))
         eta = np.asarray(eta, dtype=float)
         kappa, dkappa = self._kappa_and_gradient(eta, dist)
         sbar, _, _ = self._presample(e)
-        dsbar = (2.0 / len(e)) * (de @ e)
-        om = np.full(len(e), omega)
+        dsbar = (2.0 / n) * (de @ e)
         start = self.p if presample == "drop" else 0
-        sig2, D = _log_variance_derivatives(e, de, om, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start)
+        om = self._intercepts(omega, n, start, shift)
+        dom = np.zeros((0 if dshift is None else len(dshift), n))
+        if dshift is not None:
+            dom[:, start:] = dshift
+        sig2, D = _log_variance_derivatives(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start)
         return sig2, D.T
 
     def _kappa_and_gradient(self, eta, dist):
@@ -478,7 +503,7 @@ class Egarch(VarianceFamily):
         return out if math.isfinite(out) else None
 
     # ------------------------------------------------------------------ forecast and simulation
-    def _forecast(self, vp, eta, dist, history, H, rng, paths):
+    def _forecast(self, vp, eta, dist, history, H, rng, paths, shift=None):
         """Exact h-step forecasts E_T[sigma2_{T+h}] (Nelson 1991, section 3; written out here).
 
         Write g(z) = |z| - E|z| and let m_{T+h} be the log-variance the recursion gives with
@@ -496,11 +521,12 @@ class Egarch(VarianceFamily):
         E exp(beta^(i-1) (alpha (|z| - E|z|) + gamma z)) (recalled from memory and re-derived
         above).  E exp(a|z| + cz) is closed-form for the normal, a one-dimensional quadrature
         otherwise (:func:`_log_mgf`); a factor that is infinite makes that step and every later
-        one infinite (+inf here; :meth:`_moment_horizon` says why).
+        one infinite (+inf here; :meth:`_moment_horizon` says why).  Future variance regressors
+        (``shift``, one value per step) are known at T: they add to m's intercepts only.
         """
         omega, alpha, gamma, beta = self._split(vp)
         kappa = dist.abs_moment(eta)
-        m = self._log_path(vp, kappa, history, H)
+        m = self._log_path(vp, kappa, history, H, shift)
         if H == 1:
             return np.exp(m), False
         a, c = _impulse_responses(alpha, gamma, beta, H - 1)
@@ -514,9 +540,9 @@ class Egarch(VarianceFamily):
             out = np.exp(m + np.concatenate([[0.0], np.cumsum(logf)]))
         return out, False
 
-    def _log_path(self, vp, kappa, history, H):
+    def _log_path(self, vp, kappa, history, H, shift=None):
         """m_{T+1..T+H}: the log-variance recursion from the end of the sample with every
-        future news term at zero (its expectation)."""
+        future news term at zero (its expectation); ``shift`` adds to each step's intercept."""
         omega, alpha, gamma, beta = self._split(vp)
         p, q = self.p, self.q
         s2 = history.s2
@@ -527,7 +553,7 @@ class Egarch(VarianceFamily):
         lv = [lv[0]] * max(q - len(lv), 0) + lv if q else []
         out = np.empty(H)
         for h in range(H):
-            v = omega
+            v = omega if shift is None else omega + shift[h]
             for i in range(1, p + 1):
                 v += alpha[i - 1] * news[-i] + gamma[i - 1] * zs[-i]
             for j in range(1, q + 1):
@@ -568,9 +594,9 @@ class Egarch(VarianceFamily):
         lv = list(np.log(s_obs[len(s_obs) - self.q:])) if self.q else []
         return _SimState([abs(x) - kappa for x in z], z, lv, kappa, clip=True)
 
-    def _sim_variance(self, state, vp, eta, dist):
+    def _sim_variance(self, state, vp, eta, dist, shift=None):
         omega, alpha, gamma, beta = self._split(vp)
-        v = omega
+        v = omega if shift is None else omega + shift
         for i in range(1, self.p + 1):
             v = v + alpha[i - 1] * state.g[-i] + gamma[i - 1] * state.z[-i]
         for j in range(1, self.q + 1):
@@ -586,6 +612,63 @@ class Egarch(VarianceFamily):
             state.z = state.z[1:] + [z]
         if self.q:
             state.lv = state.lv[1:] + [state.v]
+
+    # ------------------------------------------------------------------ one observation at a time
+    def _filter_start(self, vp, eta, dist, u, e_lags, presample):
+        """News at zero (its expectation) and log-variances at the log mean of u^2, as
+        :meth:`_variance` starts; under ``drop`` the lag residuals standardised by that level."""
+        kappa = float(dist.abs_moment(eta))
+        sbar = float(np.mean(u * u))
+        lsbar = math.log(sbar) if sbar > 0 else -700.0
+        sd = math.sqrt(sbar) if sbar > 0 else 1.0
+        if presample == "mean":
+            g, z = [0.0] * self.p, [0.0] * self.p
+        else:
+            z = [x / sd for x in e_lags]
+            g = [abs(x) - kappa for x in z]
+        return _SimState(g, z, [lsbar] * self.q, kappa, clip=False)
+
+    def _filter(self, vp, u, step, presample, eta, dist, shift=None):
+        """The log-variance recursion in plain floats, one observation at a time."""
+        omega, alpha, gamma, beta = self._split(vp)
+        p, q = self.p, self.q
+        al = [float(a) for a in alpha]
+        ga = [float(g) for g in gamma]
+        be = [float(b) for b in beta]
+        n = len(u)
+        s0 = p if presample == "drop" else 0
+        level = float(np.mean(u * u))
+        e = [0.0] * n
+        for t in range(s0):
+            e[t] = float(step(t, level))
+        st = self._filter_start(vp, eta, dist, u, e[:s0], presample)
+        kappa = st.kappa
+        g, zz, lv = list(st.g), list(st.z), list(st.lv)  # newest last
+        om = [float(omega)] * (n - s0) if shift is None else (float(omega) + shift).tolist()
+        out = [0.0] * (n - s0)
+        exp = math.exp
+        for t in range(s0, n):
+            v = om[t - s0]
+            for i in range(1, p + 1):
+                v += al[i - 1] * g[-i] + ga[i - 1] * zz[-i]
+            for j in range(1, q + 1):
+                v += be[j - 1] * lv[-j]
+            if v > 700.0 or v < -700.0:
+                return np.full(n, np.nan), np.full(n - s0, np.nan)
+            sig = exp(0.5 * v)
+            s2 = sig * sig
+            et = step(t, s2)
+            e[t] = et
+            out[t - s0] = s2
+            z = et / sig
+            if p:
+                g.append(abs(z) - kappa)
+                zz.append(z)
+                del g[0], zz[0]
+            if q:
+                lv.append(v)
+                del lv[0]
+        return np.array(e), np.array(out)
 
     # ------------------------------------------------------------------ news impact
     def _news_impact(self, vp, eta, dist, e):

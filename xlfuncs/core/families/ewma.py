@@ -27,6 +27,7 @@ class Ewma(LinearFamily):
     default_orders = (1, 1)  # one lagged square and one lagged variance
     stems = ("decay",)
     burn_in = False  # no level to forget: fresh paths start where they are put
+    takes_shift = False  # no omega for variance regressors to add to
 
     def _names(self):
         return ("decay",)
