@@ -62,7 +62,7 @@ def test_bad_in_mean_strings(typed, fragment):
 # ---------------------------------------------------------------------------------------------
 # lambda_m = 0 is the model without the term, exactly
 MODELS = ["GARCH(1,1)", "GJR-GARCH(1,1)", "EGARCH(1,1)", "ARCH(2)", "IGARCH(1,1)", "EWMA", "AR(1)-GARCH(1,2)",
-          "MA(1)-GJR-GARCH(2,1)", "ZERO-EGARCH(2,1)"]
+          "MA(1)-GJR-GARCH(2,1)", "ZERO-EGARCH(2,1)", "APARCH(1,1)", "AR(1)-APARCH(2,1)", "CGARCH"]
 
 
 def _params(spec, dist, rng):

@@ -535,6 +535,20 @@ class Aparch(VarianceFamily):
         S = list(history.s2[len(history.s2) - self.q:] ** (0.5 * delta)) if self.q else []
         return _SimState(shocks, S, self._sim_coefficients(vp, eta, dist), delta)
 
+    def _filter_start(self, vp, eta, dist, u, e_lags, presample):
+        """The state before the first likelihood position as :meth:`_variance` starts from
+        residuals ``u``: under ``presample=mean`` each lagged news term at its sample mean
+        (the mean of the split powers, so that alpha_i (1 -/+ gamma_i)^delta weigh them as in the
+        recursion), under ``drop`` the lag residuals' own; lagged s^delta at sbar^(delta/2)."""
+        delta = float(self._split(vp)[4])
+        sbar = float(np.mean(u * u))
+        if presample == "mean":
+            up, down = self._split_power(u, delta)
+            shocks = [(float(np.mean(up)), float(np.mean(down)))] * self.p
+        else:
+            shocks = [self._split_power(float(x), delta) for x in e_lags]
+        return _SimState(shocks, [sbar ** (0.5 * delta)] * self.q, self._sim_coefficients(vp, eta, dist), delta)
+
     def _sim_variance(self, state, vp, eta, dist):
         omega, _, _, beta, delta = self._split(vp)
         up, down, expected = state.coefs
