@@ -113,9 +113,12 @@ def test_egarch_x_adds_to_the_log_variance_intercept(dmbp, design):
 
 
 @pytest.mark.parametrize("model, presample", [("GARCH(1,1)", "mean"), ("GJR-GARCH(2,1)", "drop"),
-                                              ("ARMA(1,1)-IGARCH(1,1)", "mean"), ("CONST", "mean")])
+                                              ("ARMA(1,1)-IGARCH(1,1)", "mean"), ("CONST", "mean"),
+                                              ("AR(1)-EGARCH(1,1)", "mean"), ("EGARCH(2,1)", "drop")])
 def test_analytic_scores_with_variance_regressors(dmbp, design, model, presample):
-    """Scores and the adjoint gradient against central differences of the log-likelihood."""
+    """Scores and the adjoint gradient (the total of the scores for EGARCH, which has no adjoint)
+    against central differences of the log-likelihood; EGARCH's v[1] rows come from its compiled
+    derivative loop, its nu row through E|z|."""
     spec = parse_model(model).with_regressors(2, xvar=(1,))
     d = get_distribution("t")
     lik = Likelihood(dmbp, spec, d, presample, design)

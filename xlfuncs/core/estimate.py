@@ -621,12 +621,17 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
             if dec < problem.polish_tol or dec > 0.5 * prev:
                 break
             prev = dec
-            cand = u + step
-            if not inside(cand):
+            t = 1.0
+            for _ls in range(8):  # a step that overshoots (the quadratic model is off) is halved
+                cand = u + t * step
+                if inside(cand):
+                    fc, gc = value_grad(cand)
+                    if fc >= f - 1e-9:
+                        break
+                t *= 0.5
+            else:
                 return None
-            fc, gc = value_grad(cand)
-            if not fc >= f - 1e-9:
-                return None
+            step = t * step
             s_, y_ = step, g - gc  # secant pair for M ~ -H
             sy = float(s_ @ y_)
             if sy > 1e-300:
@@ -634,10 +639,10 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
                 M = M - np.outer(Ms, Ms) / float(s_ @ Ms) + np.outer(y_, y_) / sy
             u, f, g = cand, fc, gc
             taken += 1
-        if dec < problem.polish_tol:
+        if dec < problem.polish_tol or (_attempt and dec < _DECREMENT_TOL):  # a second stall: a kink
             break
-    if not dec < problem.polish_tol:
-        return None
+    if not dec < _DECREMENT_TOL:  # a stall above the floor but within the tolerance is a maximum at
+        return None  # a kink (EGARCH's |z| in the mean parameters), which no Newton step polishes
     # a fresh Hessian at the estimate (for the standard errors) and one exact Newton step;
     # forward differences of the analytic gradient with a small step agree with central ones
     # to about six digits at half the cost
@@ -676,7 +681,9 @@ def _run(problem: _Problem, r, starts):
         cand = (ll, u, H, dec, active, res, steps)
         if best is None or ll > best[0]:
             best = cand
-        if math.isfinite(dec) and dec < problem.polish_tol and ll > -_PENALTY / 2:
+        # polished to the floor, or a fast path that stalled within the tolerance at a kink
+        if math.isfinite(dec) and (dec < problem.polish_tol or (fast is not None and dec < _DECREMENT_TOL)) \
+                and ll > -_PENALTY / 2:
             break
     return best
 
@@ -753,6 +760,10 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
         )
     converged = bool(math.isfinite(dec) and dec < _DECREMENT_TOL)
     gradient_only = False
+    kinks = None
+    if not converged:
+        kinks = _kink_maximum(problem, u, H, active)
+        converged = kinks is not None
     if not converged and not math.isfinite(dec):
         # the Hessian is not negative definite (a flat or kinked likelihood): use the score
         # (LM) statistic g' (G'G)^-1 g with the outer product of the scores as the metric
@@ -777,6 +788,10 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
         else:
             kind = getattr(res, "method", "quasi-Newton")
             msg = f"converged: {res.nit} {kind} iterations and {steps} Newton steps; Newton decrement {dec:.1e}"
+        if kinks:
+            msg = (f"converged at a kink of the log-likelihood in {', '.join(lik.names[problem.free[c]] for c in kinks)} "
+                   f"(a residual at zero; the slopes either side fall away from the estimate, and the other "
+                   f"parameters' Newton decrement is below {_DECREMENT_TOL:g}) after {res.nit} iterations")
         held_names = [lik.names[problem.free[c]] for c in np.flatnonzero(active)]
         if held_names:
             msg += "; at a bound: " + ", ".join(held_names)
@@ -790,6 +805,51 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
         status=tuple(status), loglik=ll, nobs=lik.nobs, n_free=int(n_free),
         converged=converged, message=msg, cov=cov,
     )
+
+
+def _kink_maximum(problem: _Problem, u, H, active):
+    """The free parameters (columns) along which the log-likelihood has a kink with its maximum
+    on it, when the Newton test fails there only; else None.
+
+    A likelihood with |e| in it (EGARCH's news |z|) has a kink along the mean parameters wherever
+    a residual is zero, and its maximum may sit on one: the gradient does not vanish there and no
+    Newton step polishes it.  A kink shows as a jump between the one-sided slopes that does not
+    shrink with the step (a smooth curvature's does); at a maximum on it the slopes point back
+    to the estimate (rising on the left, falling on the right), and the Newton decrement of the
+    other parameters is below the tolerance.
+    """
+    fr = np.flatnonzero(~active)
+    if H is None or not np.all(np.isfinite(H)) or len(fr) == 0:
+        return None
+    f0 = -problem.negll(u)
+    g = -problem.fun_grad(u)[1]
+
+    def slopes(j, h):
+        step = np.zeros(len(u))
+        step[j] = h
+        return (f0 + problem.negll(u - step)) / h, (-problem.negll(u + step) - f0) / h
+
+    kinked = []
+    for j in fr:
+        h = problem.steps[j]
+        left1, right1 = slopes(j, h)
+        left, right = slopes(j, h / 4.0)
+        noise = 1e-12 * max(1.0, abs(f0)) / (h / 4.0)  # rounding of the log-likelihood over the step
+        if left - right > max(0.5 * (left1 - right1), 10.0 * noise):
+            if right > noise or left < -noise:
+                return None  # the log-likelihood still rises on one side
+            kinked.append(int(j))
+    if not kinked:
+        return None
+    rest = [int(j) for j in fr if j not in kinked]
+    if rest:
+        try:
+            L = np.linalg.cholesky(-H[np.ix_(rest, rest)])
+        except np.linalg.LinAlgError:
+            return None
+        if not float(g[rest] @ np.linalg.solve(L.T, np.linalg.solve(L, g[rest]))) < _DECREMENT_TOL:
+            return None
+    return kinked
 
 
 def _std_errors(problem: _Problem, u, H, active, kind: str):

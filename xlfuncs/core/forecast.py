@@ -4,14 +4,17 @@
   sigma^2 of the shock h steps ahead, as the model's variance family computes it: the
   families linear in lagged squares by the analytic recursion with E[e^2] = sigma^2 and
   E[1(e<0) e^2] = kappa sigma^2, where kappa = E[z^2 1(z<0)] of the fitted distribution (1/2
-  for the symmetric ones); a family with no simple closed form (EGARCH) by averaging seeded
-  simulated paths.
+  for the symmetric ones); EGARCH by Nelson's (1991) product of moment generating values; a
+  family with no closed form by averaging seeded simulated paths.  Where E[sigma^2] does not
+  exist beyond some step (EGARCH with Student-t shocks: beyond the first), the forecast is +inf
+  there and ``why`` says so (the family's ``moment_horizon``).
 * ``longrun[h]`` is the forecast of the variance's long-run component h steps ahead, for a
   family that has one (the component model); None for the others.
 * ``mean[h]`` is the mean forecast of the mean model (:mod:`xlfuncs.core.mean`): the ARMA part
   with future shocks at zero, the mean regressors at their given future values, and for an
   in-mean model lambda_m times the volatility forecast -- exact at h = 1 (sigma[T+1] is known at
-  T), and beyond it the usual plug-in sqrt(variance[h]) for E[sigma[T+h]].
+  T), and beyond it the usual plug-in sqrt(variance[h]) for E[sigma[T+h]] (+inf, or -inf for
+  lambda_m < 0, where the variance forecast is +inf).
 * Variance regressors enter the variance forecast at their given future values.
 * ``cumvar[h]`` is the variance of the sum of the next h returns, the ARMA propagation of each
   shock included: with psi_j the MA(infinity) weights and Psi_n = psi_0 + ... + psi_n,
@@ -46,6 +49,10 @@ class Forecast:
     cumvar: np.ndarray
     method: str
     longrun: np.ndarray | None = None  # the long-run component's forecasts (component models only)
+    #: E[sigma^2] exists for steps 1..finite_steps only (None: for every step); ``variance`` and
+    #: ``cumvar`` are +inf beyond, and ``why`` says why in a user's words
+    finite_steps: int | None = None
+    why: str | None = None
 
     @property
     def vol(self):
@@ -177,16 +184,25 @@ def forecast(fit, r, horizon: int, seed: int | None = None, paths: int | None = 
                                            shift=shift)
     method = f"simulation ({n_paths} paths, seed {the_seed})" if simulated else "analytic"
     longrun = None if (spec.in_mean or spec.xvar) else spec.family.long_run_forecast(vp, eta, fit.dist, history, H)
+    steps, why = spec.family.moment_horizon(vp, eta, fit.dist, H)
+    if why is not None:  # the expectation does not exist beyond ``steps``: say so, never a number
+        fvar = np.array(fvar, dtype=float)
+        fvar[steps:] = np.inf
 
-    # ---- mean: the mean model's forecasts (the in-mean term at the volatility forecast)
+    # ---- mean: the mean model's forecasts (the in-mean term at the volatility forecast; beyond
+    # ``steps`` an in-mean term with lambda_m != 0 makes the mean infinite too)
     with np.errstate(invalid="ignore"):
         fmean = lik.mean.forecast(theta[: lik.n_mean], r, resid, H, np.sqrt(fvar), Xf) if mean else np.zeros(H)
 
     # ---- cumulative variance with ARMA propagation
     psi = psi_weights(phi, tht, H)
     Psi = np.cumsum(psi)
-    cum = np.array([np.sum(fvar[:h] * Psi[h - 1::-1][:h] ** 2) for h in range(1, H + 1)])
-    return Forecast(mean=fmean, variance=fvar, cumvar=cum, method=method, longrun=longrun)
+    with np.errstate(invalid="ignore"):
+        cum = np.array([np.sum(fvar[:h] * Psi[h - 1::-1][:h] ** 2) for h in range(1, H + 1)])
+    if why is not None:
+        cum[steps:] = np.inf
+    return Forecast(mean=fmean, variance=fvar, cumvar=cum, method=method, longrun=longrun,
+                    finite_steps=steps if why is not None else None, why=why)
 
 
 def require_long_run(spec) -> None:

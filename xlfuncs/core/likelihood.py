@@ -117,16 +117,17 @@ class Likelihood:
         """Conditional variances on the likelihood positions [s0, n) from the residuals ``e``.
 
         Returns ``(sigma2, D)`` where D (k x nobs) holds d sigma2 / d theta when ``de`` is given
-        (families with analytic derivatives only), else None.
+        (families with analytic derivatives only), else None.  The distribution's rows are the
+        family's where its recursion reads them (EGARCH's E|z|), else zero.
         """
         vp = theta[self._vs]
+        eta = theta[self.k - self._nd:]
         shift = self.shift(theta)
         if de is None or not self.linear:
-            eta = theta[self.k - self._nd:]
             return self.family.variance(vp, e, self.presample, eta, self.dist, shift=shift), None
-        sig2, Dfam = self.family.derivatives(vp, e, de, self.presample, shift=shift,
+        sig2, Dfam = self.family.derivatives(vp, e, de, self.presample, eta, self.dist, shift=shift,
                                              dshift=self.Z if shift is not None else None)
-        if self._nd:
+        if len(Dfam) < self.k:  # the family's recursion does not read the distribution's parameters
             D = np.zeros((self.k, len(sig2)))
             D[: len(Dfam)] = Dfam
         else:

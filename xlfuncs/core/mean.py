@@ -361,7 +361,7 @@ class MeanModel:
             for j in range(1, len(tht) + 1):  # shocks after T are at their mean, zero
                 if h + 1 - j <= 0:
                     v += tht[j - 1] * ee[T + h - j]
-            if self.in_mean is not None:
+            if self.in_mean is not None and lam != 0.0:  # (0 x an infinite sigma forecast is no term)
                 v += lam * float(sigma[h])
             path.append(v)
             out[h] = v

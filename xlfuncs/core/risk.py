@@ -22,6 +22,14 @@ The ``mean`` and ``sd`` reported with them are those of R from the analytic fore
 sum of the mean forecasts and the square root of the cumulative variance), not from the
 simulated paths.
 
+Where the model's moments run out (EGARCH with Student-t or skewed-t shocks: E exp(c|z|) is
+infinite, so E[sigma^2_{T+h}] and E[sigma_{T+h}] are infinite for h >= 2), ``sd`` and ``es``
+are +inf with ``sd_note`` and ``es_note`` saying why: the tail mean of R does not exist, and a
+simulated one would show a finite number.  VaR, a quantile, exists and is simulated as usual,
+and so are ``var_value`` and ``es_value``: the value loss is bounded by the position's value.
+An in-mean model's ``mean`` (lambda_m times the volatility forecasts) is then infinite too, with
+``mean_note``.
+
 Loss as a percentage of the position's value
 --------------------------------------------
 When the fit's options say how the returns are defined (``returns=log100``, ``log``,
@@ -77,6 +85,11 @@ class Risk:
     var_value: float | None = None
     es_value: float | None = None
     returns: str | None = None  # how the returns are defined: log100, log, simple100, simple
+    # why ``sd`` (E[sigma^2] beyond some step) or ``es`` (E[sigma]) is infinite; None where finite
+    sd_note: str | None = None
+    es_note: str | None = None
+    # why ``mean`` is infinite (an in-mean term at a volatility forecast that does not exist)
+    mean_note: str | None = None
 
 
 #: c in V = exp(c R) - 1 (log) or V = c R (simple, one period): the returns' unit as a fraction
@@ -131,8 +144,8 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     figures are exact under the fitted distribution; beyond, they come from ``paths``
     simulated paths (default :data:`DEFAULT_PATHS`) drawn with ``seed`` (default
     :data:`~xlfuncs.core.forecast.DEFAULT_SEED`), so the same inputs give the same numbers.
-    ``mean`` and ``sd`` are always the analytic forecast's (exact for every family but
-    EGARCH, whose variance forecast is itself the seeded simulation average).
+    ``mean`` and ``sd`` are always the analytic forecast's (exact for every family with a
+    closed-form variance forecast, EGARCH's included).
 
     ``returns`` (``log100``, ``log``, ``simple100`` or ``simple``; default: the fit's
     ``options.returns``) says how the returns are defined; when it is known, ``var_value`` and
@@ -159,6 +172,11 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     fc = forecast(fit, r, horizon, seed=seed, paths=paths, X=X, Xf=Xf)
     mean = float(np.sum(fc.mean))
     sd = math.sqrt(float(fc.cumvar[-1]))
+    sd_note = fc.why if fc.finite_steps is not None and fc.finite_steps < horizon else None
+    mean_note = fc.why if sd_note is not None and not math.isfinite(mean) else None
+    # ES is the mean of the tail: it exists only where every E[sigma_{T+h}] does
+    vp = np.array([params[list(fit.names).index(n)] for n in fit.spec.variance_names], dtype=float)
+    _, es_note = fit.spec.family.moment_horizon(vp, eta, fit.dist, horizon, power=0.5)
 
     var_value = es_value = None
     if horizon == 1:
@@ -197,6 +215,9 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
             vcut = float(np.quantile(change, 1.0 - level))
             var_value = -100.0 * vcut
             es_value = -100.0 * float(np.mean(change[change <= vcut]))
+    if es_note is not None:
+        es = math.inf  # a simulated tail mean would show a finite number for an infinite one
     return Risk(var=float(var), es=float(es), mean=mean, sd=sd, level=level, horizon=horizon, method=method,
                 var_value=None if var_value is None else float(var_value),
-                es_value=None if es_value is None else float(es_value), returns=defn)
+                es_value=None if es_value is None else float(es_value), returns=defn,
+                sd_note=sd_note, es_note=es_note, mean_note=mean_note)

@@ -24,6 +24,7 @@ line up with the returns; option ``xvar=k,m`` sends columns k and m to the varia
 from __future__ import annotations
 
 import dataclasses
+import math
 import re
 
 import numpy as np
@@ -182,20 +183,34 @@ def VOLFORECAST(returns, fit, horizon=None, what=None, regressors=None, future=N
         check_draws(_paths(table.options), h, f"VOLFORECAST of {table.spec.variance_canonical}")
     fc = core_forecast(result, data.values, h, seed=table.options.seed, paths=table.options.paths, X=X, Xf=Xf,
                        mean=w in ("mean", "table"))
-    if not (np.all(np.isfinite(fc.variance)) and np.all(np.isfinite(fc.cumvar)) and np.all(np.isfinite(fc.mean))):
-        bad = int(np.flatnonzero(~np.isfinite(fc.cumvar))[0]) + 1 if not np.all(np.isfinite(fc.cumvar)) else 1
+    # steps beyond fc.finite_steps have no finite E[sigma^2] (EGARCH with t shocks): they say so,
+    # and so does an in-mean model's mean there (lambda_m times that volatility forecast)
+    n_ok = h if fc.finite_steps is None else fc.finite_steps
+    finite = np.isfinite(fc.variance[:n_ok]) & np.isfinite(fc.cumvar[:n_ok]) & np.isfinite(fc.mean[:n_ok])
+    if not np.all(finite):
+        bad = int(np.flatnonzero(~finite)[0]) + 1
         raise SheetError(
             f"the forecast overflows at step {bad}: the fit's parameters make the variance explode "
             "(check persistence and omega)"
         )
+    infinite = f"infinite: {fc.why}"
+    infinite_mean = f"infinite: the in-mean term needs the volatility forecast, and {fc.why}"
+
+    def cell(values, i, note=infinite):
+        v = float(values[i])
+        return v if i < n_ok or math.isfinite(v) else note
+
     if w == "table":
         rows = [["step", "mean", "variance", "vol", "cumvar"]]
         for i in range(h):
-            rows.append([i + 1, float(fc.mean[i]), float(fc.variance[i]), float(fc.vol[i]), float(fc.cumvar[i])])
+            rows.append([i + 1, cell(fc.mean, i, infinite_mean), cell(fc.variance, i), cell(fc.vol, i),
+                         cell(fc.cumvar, i)])
         return rows
     col = {"variance": fc.variance, "vol": fc.vol, "cumvar": fc.cumvar, "cumvol": fc.cumvol, "mean": fc.mean,
            "longrun": fc.longrun}[w]
-    return [[float(v)] for v in col]
+    if w == "longrun":
+        return [[float(v)] for v in col]
+    return [[cell(col, i, infinite_mean if w == "mean" else infinite)] for i in range(h)]
 
 
 @sheet_function
@@ -389,15 +404,20 @@ def VOLRISK(returns, fit, level=None, horizon=None, regressors=None, future=None
     if h > 1 or table.spec.family.simulated_forecast:
         check_draws(_paths(table.options), h, "VOLRISK")
     rk = core_risk(result, data.values, lv, h, paths=table.options.paths, seed=table.options.seed, X=X, Xf=Xf)
-    values = [rk.var, rk.es, rk.mean, rk.sd]
+    # a figure whose expectation does not exist (EGARCH with t shocks beyond one period) says so
+    es = f"infinite: ES needs E[sigma], and {rk.es_note}" if rk.es_note else float(rk.es)
+    sd = f"infinite: {rk.sd_note}" if rk.sd_note else float(rk.sd)
+    mean = f"infinite: the in-mean term needs the volatility forecast, and {rk.mean_note}" if rk.mean_note \
+        else float(rk.mean)
+    values = [rk.var] + [v for v in (es, sd, mean) if not isinstance(v, str)]
     if rk.returns is not None:
         values += [rk.var_value, rk.es_value]
     if not all(np.isfinite(v) for v in values):
         raise SheetError("the risk figures overflow: the fit's parameters make the variance explode")
-    rows = [["measure", "value"], ["VaR", float(rk.var)], ["ES", float(rk.es)]]
+    rows = [["measure", "value"], ["VaR", float(rk.var)], ["ES", es]]
     if rk.returns is not None:
         rows += [["VaR_value", float(rk.var_value)], ["ES_value", float(rk.es_value)]]
-    rows += [["mean", float(rk.mean)], ["sd", float(rk.sd)], ["level", float(rk.level)],
+    rows += [["mean", mean], ["sd", sd], ["level", float(rk.level)],
              ["horizon", int(rk.horizon)], ["method", rk.method]]
     if rk.returns is not None:
         rows.append(["returns", rk.returns])

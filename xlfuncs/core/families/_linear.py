@@ -149,7 +149,7 @@ class LinearFamily(VarianceFamily):
         _, sbar, _, P, N = self._inputs(e, presample, np.mean)
         return self._run(omega, alpha, gamma, beta, P, N, sbar, shift)[0]
 
-    def _derivatives(self, vp, e, de, presample, shift=None, dshift=None):
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
         omega, alpha, gamma, beta = self._coefficients(vp)
         p, q = self.p, self.q
         asym = self.asymmetric

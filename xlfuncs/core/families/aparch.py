@@ -318,7 +318,7 @@ class Aparch(VarianceFamily):
             de = np.where(nz[None, :], delta * N / np.where(nz, e, 1.0)[None, :], 0.0)
         return dg, dd, de
 
-    def _derivatives(self, vp, e, de, presample):
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None):
         st = self._core(vp, e, presample)
         p, q, m = self.p, self.q, st.m
         alpha, delta, S, sig2 = st.alpha, st.delta, st.S, st.sig2

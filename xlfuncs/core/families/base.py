@@ -21,6 +21,7 @@ the shocks' distribution read it, the others ignore it).
 | ``_derivatives``, ``_forward``, ``_adjoint`` | analytic scores and gradient (``analytic`` families) |
 | ``_persistence``, ``_uncond_variance``, ``_half_life`` | the fit table's summary figures |
 | ``_forecast`` | the h-step variance forecasts from the end of the sample |
+| ``_moment_horizon`` | the last step whose E[sigma2^power] exists, and why not beyond (default: all exist) |
 | ``_sim_start``, ``_sim_continue``, ``_sim_variance``, ``_sim_push`` | one simulation step at a time |
 | ``_news_impact`` | next period's variance against this period's shock |
 | ``_long_run``, ``_long_run_forecast`` | the long-run component, in sample and ahead (component models only) |
@@ -275,17 +276,21 @@ class VarianceFamily:
     def _variance(self, vp, e, presample, eta, dist):  # pragma: no cover - every family has one
         raise NotImplementedError
 
-    def derivatives(self, vp, e, de, presample: str = "mean", shift=None, dshift=None):
+    def derivatives(self, vp, e, de, presample: str = "mean", eta=(), dist=None, shift=None, dshift=None):
         """(sigma2, D): D stacks d sigma2 / d (mean parameters, then variance parameters, then
         the shift's parameters), one row each, given the residuals' derivatives ``de`` (mean
-        parameters x residuals) and the shift's ``dshift`` (its parameters x variances)."""
+        parameters x residuals) and the shift's ``dshift`` (its parameters x variances).  A
+        family whose recursion reads the distribution's parameters ``eta`` (EGARCH, through
+        E|z|) adds their rows last; the others stop before them and the likelihood takes the
+        distribution's rows as zero."""
         if not self.analytic:
             raise NotImplementedError(f"{self.canonical} has no analytic derivatives")
         e = np.asarray(e, dtype=float)
         kw = self._shift_kw(shift, self._lik_length(len(e), presample))
         if kw:
             kw["dshift"] = np.asarray(dshift, dtype=float)
-        return self._derivatives(self._vp(vp), e, np.asarray(de, dtype=float), presample, **kw)
+        return self._derivatives(self._vp(vp), e, np.asarray(de, dtype=float), presample,
+                                 np.asarray(eta, dtype=float), dist, **kw)
 
     def forward(self, vp, e, presample: str = "mean", shift=None):
         """The recursion's state for :meth:`adjoint`; ``state.sig2`` holds the variances."""
@@ -401,6 +406,20 @@ class VarianceFamily:
 
     def _forecast(self, vp, eta, dist, history, H, rng, paths):  # pragma: no cover
         raise NotImplementedError
+
+    def moment_horizon(self, vp, eta, dist, horizon: int, power: float = 1.0):
+        """(steps, why): E_T[(sigma2_{T+h})^power] is finite for h <= steps and infinite beyond,
+        for the forecast from the end of any sample; ``why`` says so in a user's words (None
+        when every step's expectation exists, the default).  ``power=1`` is the variance
+        forecast, ``power=0.5`` E[sigma], which the expected shortfall needs.  A known
+        intercept series (variance regressors) moves no moment's existence, so none is asked."""
+        H = int(horizon)
+        if H < 1:
+            raise ValueError(f"horizon must be 1 or more, got {horizon}")
+        return self._moment_horizon(self._vp(vp), np.asarray(eta, dtype=float), dist, H, float(power))
+
+    def _moment_horizon(self, vp, eta, dist, H, power):
+        return H, None
 
     def _simulated_forecast(self, vp, eta, dist, history, H, rng, paths, shift=None):
         """The mean over simulated paths of each step's variance (for families with no closed form)."""

@@ -46,7 +46,7 @@ class Constant(VarianceFamily):
     def _variance(self, vp, e, presample, eta, dist, shift=None):
         return np.full(len(e), vp[0]) if shift is None else vp[0] + shift
 
-    def _derivatives(self, vp, e, de, presample, shift=None, dshift=None):
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
         n = len(e)
         ns = 0 if dshift is None else dshift.shape[0]
         nm = de.shape[0]

@@ -2,9 +2,19 @@
 
     ln sigma2[t] = omega + sum_i (alpha_i (|z[t-i]| - E|z|) + gamma_i z[t-i]) + sum_j beta_j ln sigma2[t-j].
 
-The recursion is not linear in lagged squares: it runs in a tight loop, its derivatives are
-numerical, and its forecasts average seeded simulated paths.  Variance regressors (an intercept
-series ``shift``) add to omega, the log-variance's intercept, so they need no sign restriction.
+The recursion feeds on its own past through z = e / sigma, so no linear filter runs it: it is a
+loop compiled by numba on first use (:mod:`._compiled`; plain Python where numba is absent), and
+the same forward pass carries its derivatives in every parameter (the mean's through the
+residuals, the variance regressors' through the intercept, the distribution's through E|z|), so
+the estimator gets analytic scores.  Variance regressors (an intercept series ``shift``) add to
+omega, the log-variance's intercept, so they need no sign restriction.
+
+Forecasts are exact (Nelson 1991): with future news at zero the log-variance follows its own
+recursion, and each future shock adds a term a_k (|z| - E|z|) + c_k z whose weights are the
+recursion's impulse responses, so E_T[sigma2_{T+h}] is a deterministic factor times a product of
+moment generating values E exp(a|z| + c z) (:meth:`Egarch._forecast`).  They are finite for normal
+shocks and GED shocks of shape above 1; with Student-t and skewed-t shocks E exp(c|z|) is infinite
+for every c > 0, so E[sigma2_{T+h}] does not exist beyond one step (:meth:`Egarch._moment_horizon`).
 """
 
 from __future__ import annotations
@@ -12,9 +22,344 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from scipy import special
 
 from ..errors import InputError
+from ._compiled import kernel
 from .base import VarianceFamily, stationary
+
+# ---------------------------------------------------------------------------------- kernels
+# The log-variance recursion feeds on its own past through z = e / sigma, so it cannot run
+# through a linear filter; these loops run compiled (numba) from their first call and as plain
+# Python where numba is absent (:mod:`._compiled`).  ``om`` is the intercept of each position's
+# log-variance (omega everywhere; a time-varying intercept changes only the array passed in).
+
+
+@kernel
+def _log_variance_loop(e, om, alpha, gamma, beta, kappa, lsbar, sd0, start):
+    """sigma2 on positions start..n-1 (all nan if the log-variance leaves [-700, 700]).
+
+    Positions before ``start`` (``presample=drop``) are lags only, standardised by ``sd0``;
+    news before the first position is zero (its expectation) and log-variance lags are ``lsbar``.
+    """
+    n = e.shape[0]
+    p = alpha.shape[0]
+    q = beta.shape[0]
+    m = n - start
+    out = np.empty(m)
+    g = np.zeros(n + p)  # news |z| - kappa, position t at p + t
+    z = np.zeros(n + p)
+    lv = np.empty(m + q)  # log-variances, position t at q + t - start
+    for j in range(q):
+        lv[j] = lsbar
+    for t in range(start):
+        zt = e[t] / sd0
+        z[p + t] = zt
+        g[p + t] = abs(zt) - kappa
+    for t in range(start, n):
+        v = om[t]
+        for i in range(1, p + 1):
+            v += alpha[i - 1] * g[p + t - i] + gamma[i - 1] * z[p + t - i]
+        pos = q + t - start
+        for j in range(1, q + 1):
+            v += beta[j - 1] * lv[pos - j]
+        if not (-700.0 <= v <= 700.0):
+            for k in range(m):
+                out[k] = np.nan
+            return out
+        lv[pos] = v
+        sig = math.exp(0.5 * v)
+        zt = e[t] / sig
+        z[p + t] = zt
+        g[p + t] = abs(zt) - kappa
+        out[t - start] = sig * sig
+    return out
+
+
+@kernel
+def _log_variance_derivatives(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start):
+    """(sigma2, D') with D'[s, k] = d sigma2 / d theta_k at position start + s, in one forward pass.
+
+    Columns of D': the mean parameters (through the residuals' derivatives ``de``, nm x n),
+    omega, alpha[1..p], gamma[1..p], beta[1..q], the intercept series' parameters (``dom``,
+    ns x n: d om_t / d v_k, each entering as omega's 1 does), then the distribution's
+    parameters (through d E|z| / d eta = ``dkappa``).  With v the log-variance and
+    z = e exp(-v/2):
+        dv_t = direct_t + sum_i alpha_i dg_{t-i} + gamma_i dz_{t-i} + sum_j beta_j dv_{t-j},
+        dz_t = de_t exp(-v_t/2) - z_t dv_t / 2,   dg_t = sign(z_t) dz_t - dkappa,
+    where direct_t is 1 for omega, dom[k, t] for v_k, g_{t-i} for alpha_i, z_{t-i} for gamma_i
+    and v_{t-j} for beta_j; the presample log-variance ln(sbar) moves with the mean parameters
+    through sbar.
+    The lagged derivatives live in ring buffers of p and q rows.
+    """
+    n = e.shape[0]
+    nm = de.shape[0]
+    p = alpha.shape[0]
+    q = beta.shape[0]
+    nd = dkappa.shape[0]
+    ns = dom.shape[0]
+    K = nm + 1 + 2 * p + q + ns + nd
+    io = nm  # omega's column; alpha, gamma, beta, the intercept series' and the distribution's follow
+    ia = io + 1
+    ig = ia + p
+    ib = ig + p
+    iv = ib + q
+    ie = iv + ns
+    m = n - start
+    P = max(p, 1)
+    Q = max(q, 1)
+    sig2 = np.empty(m)
+    D = np.empty((m, K))
+    g = np.zeros(n + p)
+    z = np.zeros(n + p)
+    dg = np.zeros((P, K))  # row t % P holds position t's derivatives
+    dz = np.zeros((P, K))
+    lv = np.empty(m + q)
+    dlv = np.zeros((Q, K))  # row (q + t - start) % Q
+    lsbar = math.log(sbar) if sbar > 0 else -700.0
+    for j in range(q):
+        lv[j] = lsbar
+        if sbar > 0:
+            for k in range(nm):
+                dlv[j % Q, k] = dsbar[k] / sbar
+    if start > 0:
+        sd0 = math.sqrt(sbar) if sbar > 0 else 1.0
+        for t in range(start):
+            zt = e[t] / sd0
+            z[p + t] = zt
+            g[p + t] = abs(zt) - kappa
+            sg = 1.0 if zt > 0 else (-1.0 if zt < 0 else 0.0)
+            row = t % P
+            for k in range(nm):
+                d = de[k, t] / sd0
+                if sbar > 0:
+                    d -= 0.5 * zt * dsbar[k] / sbar
+                dz[row, k] = d
+                dg[row, k] = sg * d
+            for k in range(nd):
+                dg[row, ie + k] = -dkappa[k]
+    dv = np.empty(K)
+    prow = np.zeros(P, dtype=np.int64)  # ring rows of the lags, found once a step
+    qrows = np.zeros(Q, dtype=np.int64)
+    for t in range(start, n):
+        pos = q + t - start
+        v = om[t]
+        for i in range(1, p + 1):
+            v += alpha[i - 1] * g[p + t - i] + gamma[i - 1] * z[p + t - i]
+        for j in range(1, q + 1):
+            v += beta[j - 1] * lv[pos - j]
+        # the lags' derivatives carried through the recursion (news before the first residual
+        # is a constant zero), then the direct terms
+        np_ = min(p, t)
+        for i in range(1, np_ + 1):
+            prow[i - 1] = (t - i) % P
+        for j in range(1, q + 1):
+            qrows[j - 1] = (pos - j) % Q
+        for k in range(K):
+            acc = 0.0
+            for i in range(np_):
+                acc += alpha[i] * dg[prow[i], k] + gamma[i] * dz[prow[i], k]
+            for j in range(q):
+                acc += beta[j] * dlv[qrows[j], k]
+            dv[k] = acc
+        dv[io] += 1.0
+        for k in range(ns):
+            dv[iv + k] += dom[k, t]
+        for i in range(1, p + 1):
+            dv[ia + i - 1] += g[p + t - i]
+            dv[ig + i - 1] += z[p + t - i]
+        for j in range(1, q + 1):
+            dv[ib + j - 1] += lv[pos - j]
+        if not (-700.0 <= v <= 700.0):
+            for s in range(m):
+                sig2[s] = np.nan
+                for k in range(K):
+                    D[s, k] = np.nan
+            return sig2, D
+        lv[pos] = v
+        sig = math.exp(0.5 * v)
+        s2 = sig * sig
+        zt = e[t] / sig
+        z[p + t] = zt
+        g[p + t] = abs(zt) - kappa
+        sg = 1.0 if zt > 0 else (-1.0 if zt < 0 else 0.0)
+        row = t % P
+        qrow = pos % Q
+        for k in range(K):
+            dlv[qrow, k] = dv[k]
+            d = -0.5 * zt * dv[k]
+            if k < nm:
+                d += de[k, t] / sig
+            dz[row, k] = d
+            dg[row, k] = sg * d
+            D[t - start, k] = s2 * dv[k]
+        for k in range(nd):
+            dg[row, ie + k] -= dkappa[k]
+        sig2[t - start] = s2
+    return sig2, D
+
+
+def _plain(x) -> np.ndarray:
+    """``x`` as a writable C-ordered float array: the one layout the kernels are compiled for
+    (numba compiles, and caches, a separate version for each layout and for read-only arrays)."""
+    x = np.ascontiguousarray(x, dtype=float)
+    return x if x.flags.writeable else x.copy()
+
+
+# ---------------------------------------------------------------------------------- shock moments
+def _abs_moment_gradient(dist, eta) -> np.ndarray:
+    """d E|z| / d eta by central differences of the scalar E|z| (step 1e-5 relative: about ten
+    correct digits, far below the optimiser's tolerance)."""
+    eta = np.asarray(eta, dtype=float)
+    out = np.zeros(len(eta))
+    for i in range(len(eta)):
+        h = 1e-5 * max(1.0, abs(eta[i]))
+        up, dn = eta.copy(), eta.copy()
+        up[i] += h
+        dn[i] -= h
+        out[i] = (dist.abs_moment(up) - dist.abs_moment(dn)) / (2.0 * h)
+    return out
+
+
+def _impulse_responses(alpha, gamma, beta, K: int):
+    """(a_k, c_k) for k = 1..K: how far ln sigma2 moves k steps after a shock, per unit of its
+    news |z| - E|z| and of z: a_k = alpha_k + sum_j beta_j a_{k-j} (alpha_k = 0 beyond p)."""
+    from scipy.signal import lfilter
+
+    den = np.concatenate([[1.0], -np.asarray(beta, dtype=float)])
+    x = np.zeros((2, K))
+    p = min(len(alpha), K)
+    x[0, :p] = np.asarray(alpha, dtype=float)[:p]
+    x[1, :p] = np.asarray(gamma, dtype=float)[:p]
+    y = lfilter([1.0], den, x, axis=1) if len(beta) else x
+    return y[0], y[1]
+
+
+def _ged_scale(nu: float) -> float:
+    """s in the GED density nu / (2 s Gamma(1/nu)) exp(-|z/s|^nu) of unit variance."""
+    return math.exp(0.5 * (special.gammaln(1.0 / nu) - special.gammaln(3.0 / nu)))
+
+
+def _mgf_finite(a, c, eta, dist) -> np.ndarray:
+    """Where E exp(a|z| + c z) is finite.  On z > 0 the exponent is (a + c) z, on z < 0 it is
+    (a - c)|z|: a positive one is integrable only against a tail lighter than exponential
+    (normal; GED of shape above 1, or shape 1 with the exponent times the scale below 1); the
+    polynomial tails of the t and skewed t, and the GED of shape below 1, take none."""
+    u = np.asarray(a, dtype=float) + np.asarray(c, dtype=float)
+    w = np.asarray(a, dtype=float) - np.asarray(c, dtype=float)
+    if dist.name == "normal":
+        return np.ones(u.shape, dtype=bool)
+    if dist.name == "ged":
+        nu = float(eta[0])
+        if nu > 1.0:
+            return np.ones(u.shape, dtype=bool)
+        if nu == 1.0:
+            s = _ged_scale(nu)
+            return (u * s < 1.0) & (w * s < 1.0)
+    return (u <= 0.0) & (w <= 0.0)
+
+
+def _abs_moments_closed(eta, dist):
+    """E|z|^r for r = 1..4 where the law is symmetric with a closed form (normal, GED); else None.
+    For the GED, E|z|^r = s^r Gamma((r+1)/nu) / Gamma(1/nu); the normal is the GED of shape 2."""
+    if dist.name == "normal":
+        nu = 2.0
+    elif dist.name == "ged":
+        nu = float(eta[0])
+    else:
+        return None
+    s = _ged_scale(nu)
+    g1 = special.gammaln(1.0 / nu)
+    return [s ** r * math.exp(special.gammaln((r + 1.0) / nu) - g1) for r in range(5)]
+
+
+def _log_mgf_series(a, c, eta, dist):
+    """log E exp(a (|z| - E|z|) + c z) by its cumulant expansion to the fourth order, for small
+    |a|, |c| (error of order max(|a|, |c|)^5); None for a law without closed-form moments.
+
+    For a symmetric z, E[|z|^i z^j] = E|z|^(i+j) for even j and 0 for odd j, so the raw moments
+    of x = a|z| + c z are E x^r = E|z|^r ((a + c)^r + (a - c)^r) / 2 (common practice)."""
+    mom = _abs_moments_closed(eta, dist)
+    if mom is None:
+        return None
+    a = np.asarray(a, dtype=float)
+    c = np.asarray(c, dtype=float)
+    u, w = a + c, a - c
+    r1, r2, r3, r4 = (mom[r] * (u ** r + w ** r) / 2.0 for r in range(1, 5))
+    k2 = r2 - r1 ** 2
+    k3 = r3 - 3.0 * r1 * r2 + 2.0 * r1 ** 3
+    k4 = r4 - 4.0 * r1 * r3 + 6.0 * r1 ** 2 * r2 - 3.0 * r1 ** 4 - 3.0 * k2 ** 2
+    return k2 / 2.0 + k3 / 6.0 + k4 / 24.0
+
+
+def _log_mgf(a, c, eta, dist) -> np.ndarray:
+    """log E exp(a|z| + c z) for arrays a, c where it is finite (:func:`_mgf_finite`).
+
+    Normal (Nelson 1991, appendix; common practice): with u = a + c and w = a - c,
+    E exp(a|z| + cz) = exp(u^2/2) Phi(u) + exp(w^2/2) Phi(w).  GED of shape nu: with x = |z|/s,
+    each half is (nu / (2 Gamma(1/nu))) int_0^inf exp(b s x - x^nu) dx for b = u, w, by adaptive
+    quadrature (all the factors in one vector integral), 1 / (2 (1 - b s)) at nu = 1.  Any other
+    law (nonpositive exponents only): the same quadrature over its density.
+    """
+    a = np.asarray(a, dtype=float)
+    c = np.asarray(c, dtype=float)
+    u, w = a + c, a - c
+    if len(u) == 0:
+        return np.zeros(0)
+    if dist.name == "normal":
+        return np.logaddexp(0.5 * u * u + special.log_ndtr(u), 0.5 * w * w + special.log_ndtr(w))
+    b = np.concatenate([u, w])
+    if dist.name == "ged":
+        nu = float(eta[0])
+        s = _ged_scale(nu)
+        cs = b * s
+        if nu == 1.0:
+            half = -np.log1p(-cs)
+        else:
+            half = _ged_log_half(cs, nu)
+    else:
+        half = _density_log_half(b, eta, dist)
+    return np.logaddexp(half[: len(u)], half[len(u):]) - math.log(2.0)
+
+
+def _ged_log_half(cs, nu: float) -> np.ndarray:
+    """log of (nu / Gamma(1/nu)) int_0^inf exp(c x - x^nu) dx for each c in ``cs`` (= 1 at c = 0).
+
+    Each integrand is scaled by its maximum exp(M) (at x* = (c/nu)^(1/(nu-1)) for c > 0 and
+    nu > 1) so that none overflows, and integrated up to where every one is below exp(-700)."""
+    from scipy import integrate
+
+    cs = np.asarray(cs, dtype=float)
+    M = np.zeros(len(cs))
+    if nu > 1.0:
+        pos = cs > 0
+        xs = np.where(pos, (np.maximum(cs, 0.0) / nu) ** (1.0 / (nu - 1.0)), 0.0)
+        M = np.where(pos, cs * xs - xs ** nu, 0.0)
+        cmax = float(max(cs.max(), 0.0))
+        X = max(1.0, float(xs.max()))
+        while X ** nu - cmax * X < 750.0 + float(M.max()):
+            X *= 2.0
+        val, _ = integrate.quad_vec(lambda x: np.exp(cs * x - x ** nu - M), 0.0, X, epsabs=0.0, epsrel=1e-13,
+                                    norm="max", limit=2000)
+    else:  # exponents <= 0 here (_mgf_finite)
+        val, _ = integrate.quad_vec(lambda x: np.exp(cs * x - x ** nu), 0.0, math.inf, epsabs=0.0, epsrel=1e-13,
+                                    norm="max", limit=2000)
+    return math.log(nu) - special.gammaln(1.0 / nu) + M + np.log(val)
+
+
+def _density_log_half(b, eta, dist) -> np.ndarray:
+    """log of 2 int_0^inf exp(b z) f(+-z) dz for the first and second halves of ``b`` (z > 0 and
+    z < 0 of a law with density f; exponents <= 0 only), by adaptive quadrature."""
+    from scipy import integrate
+
+    n = len(b) // 2
+    sign = np.concatenate([np.ones(n), -np.ones(n)])
+
+    def f(x):
+        return np.exp(b * x + dist.logpdf(sign * x, eta))
+
+    val, _ = integrate.quad_vec(f, 0.0, math.inf, epsabs=0.0, epsrel=1e-13, norm="max", limit=2000)
+    return np.log(2.0 * val)
 
 
 class _SimState:
@@ -28,7 +373,11 @@ class _SimState:
 
 class Egarch(VarianceFamily):
     key = "egarch"
-    cost_weight = 25  # EGARCH estimations cost about 25 times a linear family's (bounds_timing.py)
+    # the worksheet bounds (sheet/bounds.py) still weigh EGARCH as the numerically differentiated,
+    # simulated-forecast family it was (cost 25, forecasts as simulations): conservative now that
+    # fits cost about what a GARCH's does and forecasts are exact; re-measure there before lowering
+    cost_weight = 25
+    analytic = True  # scores from the compiled forward pass (_derivatives)
     max_fit_params = 6
     simulated_forecast = True
     log_variance = True
@@ -61,91 +410,175 @@ class Egarch(VarianceFamily):
                 + [(0.05, (-0.9999, 0.9999))] * self.q)
 
     # ------------------------------------------------------------------ recursion
-    def _variance(self, vp, e, presample, eta, dist, shift=None):
-        """The log-variance recursion as a tight loop; presample news is zero (its expectation)
-        and the presample log-variance the log mean square."""
-        omega, alpha, gamma, beta = self._split(vp)
-        p, q = self.p, self.q
-        kappa = float(dist.abs_moment(eta))
+    def _presample(self, e):
+        """(mean square of the residuals, its log, the lags' scale): the presample log-variance
+        is the log mean square, and ``presample=drop`` standardises its lag-only residuals by
+        the root mean square."""
         sbar = float(np.mean(e * e))
-        lsbar = math.log(sbar) if sbar > 0 else -700.0
-        ev = e.tolist()
-        n = len(ev)
-        al = [float(a) for a in alpha]
-        ga = [float(g) for g in gamma]
-        be = [float(b) for b in beta]
-        om = float(omega)
-        # news terms g_t = |z_t| - kappa and z_t; presample news is zero (its expectation)
-        absz = [0.0] * (n + p)
-        zz = [0.0] * (n + p)
-        lv = [lsbar] * (n + q)
-        start = 0
-        if presample == "drop":
-            # first p residuals are lags only; standardise them by the mean square
-            sd = math.sqrt(sbar) if sbar > 0 else 1.0
-            for t in range(p):
-                z = ev[t] / sd
-                absz[p + t] = abs(z) - kappa
-                zz[p + t] = z
-            start = p
-        out = []
-        append = out.append
-        exp = math.exp
-        oms = None if shift is None else (om + shift).tolist()
-        for t in range(start, n):
-            v = om if oms is None else oms[t - start]
-            for i in range(1, p + 1):
-                v += al[i - 1] * absz[p + t - i] + ga[i - 1] * zz[p + t - i]
-            pos = q + t - start
-            for j in range(1, q + 1):
-                v += be[j - 1] * lv[pos - j]
-            if v > 700.0 or v < -700.0:
-                return np.full(n - start, np.nan)
-            lv[pos] = v
-            sig = exp(0.5 * v)
-            z = ev[t] / sig
-            absz[p + t] = abs(z) - kappa
-            zz[p + t] = z
-            append(sig * sig)
-        return np.asarray(out)
+        if sbar > 0:
+            return sbar, math.log(sbar), math.sqrt(sbar)
+        return sbar, -700.0, 1.0
+
+    def _parts(self, vp):
+        omega, alpha, gamma, beta = self._split(vp)
+        return float(omega), _plain(alpha), _plain(gamma), _plain(beta)
+
+    @staticmethod
+    def _intercepts(omega, n, start, shift):
+        """The log-variance's intercept at each residual position: omega, plus the intercept
+        series ``shift`` (one value per likelihood position start..n-1) where there is one."""
+        om = np.full(n, omega)
+        if shift is not None:
+            om[start:] += shift
+        return om
+
+    def _variance(self, vp, e, presample, eta, dist, shift=None):
+        """The log-variance recursion (a compiled loop); presample news is zero (its expectation)
+        and the presample log-variance the log mean square."""
+        omega, alpha, gamma, beta = self._parts(vp)
+        e = _plain(e)
+        kappa = float(dist.abs_moment(eta))
+        _, lsbar, sd0 = self._presample(e)
+        start = self.p if presample == "drop" else 0
+        om = self._intercepts(omega, len(e), start, shift)
+        return _log_variance_loop(e, om, alpha, gamma, beta, kappa, lsbar, sd0, start)
+
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
+        """(sigma2, D) from one compiled forward pass: D's rows are the mean parameters, the
+        variance parameters, the intercept series' parameters (``dshift``: d shift / d v[k], one
+        row per parameter on the likelihood positions), then the distribution's (E|z| moves
+        with them)."""
+        omega, alpha, gamma, beta = self._parts(vp)
+        e = _plain(e)
+        n = len(e)
+        de = _plain(np.reshape(de, (-1, n)))
+        eta = np.asarray(eta, dtype=float)
+        kappa, dkappa = self._kappa_and_gradient(eta, dist)
+        sbar, _, _ = self._presample(e)
+        dsbar = (2.0 / n) * (de @ e)
+        start = self.p if presample == "drop" else 0
+        om = self._intercepts(omega, n, start, shift)
+        dom = np.zeros((0 if dshift is None else len(dshift), n))
+        if dshift is not None:
+            dom[:, start:] = dshift
+        sig2, D = _log_variance_derivatives(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start)
+        return sig2, D.T
+
+    def _kappa_and_gradient(self, eta, dist):
+        """E|z| and its gradient in the shape parameters, kept for the last shape asked (the
+        estimator asks for the same one many times in a row)."""
+        key = (dist.name, eta.tobytes())
+        memo = getattr(self, "_kappa_memo", None)
+        if memo is None or memo[0] != key:
+            memo = self._kappa_memo = (key, float(dist.abs_moment(eta)), _abs_moment_gradient(dist, eta))
+        return memo[1], memo[2]
 
     # ------------------------------------------------------------------ summary figures
     def _persistence(self, vp, eta, dist):
         return float(self._split(vp)[3].sum())
 
     def _uncond_variance(self, vp, eta, dist):
-        """E[sigma^2] of an EGARCH(1,1): exp(omega/(1-beta)) prod_i E exp(beta^i g(z)) (Nelson 1991).
-
-        Defined only where the shock has exponential moments (normal, GED with nu >= 1); blank
-        otherwise and for higher orders.
-        """
+        """E[sigma^2] = exp(omega / (1 - sum beta)) prod_{k>=1} E exp(a_k (|z| - E|z|) + c_k z)
+        (Nelson 1991), with (a_k, c_k) the log-variance's responses k steps after a shock
+        (:func:`_impulse_responses`): the limit of the forecast.  Blank where a factor is
+        infinite (Student-t and skewed-t shocks, GED of shape below 1).  The factors with
+        max(|a_k|, |c_k|) below 1e-3 enter by their cumulant expansion to the fourth order
+        (error below 1e-12 relative)."""
         omega, alpha, gamma, beta = self._split(vp)
-        if self.p != 1 or self.q != 1 or not abs(beta[0]) < 1:
+        if not stationary(beta):
             return None
-        if dist.name in ("t", "skewt") or (dist.name == "ged" and eta[0] < 1.0):
+        a, c = _impulse_responses(alpha, gamma, beta, 20000)
+        if not np.all(_mgf_finite(a, c, eta, dist)):
             return None
-        from scipy import integrate
-
-        a, g, b = float(alpha[0]), float(gamma[0]), float(beta[0])
+        small = np.maximum(np.abs(a), np.abs(c)) < 1e-3
+        cut = int(np.flatnonzero(~small)[-1]) + 1 if np.any(~small) else 0
         kappa = dist.abs_moment(eta)
-        logval = omega / (1.0 - b)
-        c = 1.0
-        for _ in range(200):
-            def integrand(z, c=c):
-                return math.exp(c * (a * (abs(z) - kappa) + g * z) + float(dist.logpdf(np.array([z]), eta)[0]))
-            val = integrate.quad(integrand, -np.inf, 0, limit=200)[0] + integrate.quad(integrand, 0, np.inf, limit=200)[0]
-            if not (val > 0 and math.isfinite(val)):
-                return None
-            logval += math.log(val)
-            c *= b
-            if abs(c) < 1e-12:
-                break
-        out = math.exp(logval)
+        logval = omega / (1.0 - float(np.sum(beta)))
+        logval += float(np.sum(_log_mgf(a[:cut], c[:cut], eta, dist) - a[:cut] * kappa))
+        tail = _log_mgf_series(a[cut:], c[cut:], eta, dist)
+        if tail is None:  # a shock law without the moments the expansion needs (not reached)
+            tail = _log_mgf(a[cut:], c[cut:], eta, dist) - a[cut:] * kappa
+        logval += float(np.sum(tail))
+        out = math.exp(logval) if logval < 709.0 else math.inf
         return out if math.isfinite(out) else None
 
     # ------------------------------------------------------------------ forecast and simulation
     def _forecast(self, vp, eta, dist, history, H, rng, paths, shift=None):
-        return self._simulated_forecast(vp, eta, dist, history, H, rng, paths, shift), True
+        """Exact h-step forecasts E_T[sigma2_{T+h}] (Nelson 1991, section 3; written out here).
+
+        Write g(z) = |z| - E|z| and let m_{T+h} be the log-variance the recursion gives with
+        every future news term at its mean, zero (m_{T+1} = ln sigma2_{T+1} is known at T).
+        The recursion is linear in the news, so a shock z_{T+h-k} moves ln sigma2_{T+h} by
+        a_k g(z_{T+h-k}) + c_k z_{T+h-k}, where (a_k, c_k) are the impulse responses
+            a_k = alpha_k + sum_j beta_j a_{k-j},  c_k = gamma_k + sum_j beta_j c_{k-j}
+        (alpha_k = gamma_k = 0 for k > p, a_k = c_k = 0 for k <= 0).  Hence
+            ln sigma2_{T+h} = m_{T+h} + sum_{k=1}^{h-1} (a_k g(z_{T+h-k}) + c_k z_{T+h-k}),
+        and since the future z are independent with the fitted law,
+            E_T[sigma2_{T+h}] = exp(m_{T+h}) prod_{k=1}^{h-1} exp(-a_k E|z|) E exp(a_k |z| + c_k z).
+        For EGARCH(1,1), a_k = alpha beta^(k-1), c_k = gamma beta^(k-1) and
+        m_{T+h} = omega sum_{i<h-1} beta^i + beta^(h-1) ln sigma2_{T+1}, which is Nelson's form
+        sigma2_{T+1}^(beta^(h-1)) exp(omega sum_{i<h-1} beta^i) prod_{i=1}^{h-1}
+        E exp(beta^(i-1) (alpha (|z| - E|z|) + gamma z)) (recalled from memory and re-derived
+        above).  E exp(a|z| + cz) is closed-form for the normal, a one-dimensional quadrature
+        otherwise (:func:`_log_mgf`); a factor that is infinite makes that step and every later
+        one infinite (+inf here; :meth:`_moment_horizon` says why).  Future variance regressors
+        (``shift``, one value per step) are known at T: they add to m's intercepts only.
+        """
+        omega, alpha, gamma, beta = self._split(vp)
+        kappa = dist.abs_moment(eta)
+        m = self._log_path(vp, kappa, history, H, shift)
+        if H == 1:
+            return np.exp(m), False
+        a, c = _impulse_responses(alpha, gamma, beta, H - 1)
+        logf = np.full(H - 1, math.inf)
+        ok = _mgf_finite(a, c, eta, dist)
+        bad = np.flatnonzero(~ok)
+        n_ok = int(bad[0]) if len(bad) else H - 1  # factors before the first infinite one
+        if n_ok:
+            logf[:n_ok] = _log_mgf(a[:n_ok], c[:n_ok], eta, dist) - a[:n_ok] * kappa
+        with np.errstate(over="ignore", invalid="ignore"):
+            out = np.exp(m + np.concatenate([[0.0], np.cumsum(logf)]))
+        return out, False
+
+    def _log_path(self, vp, kappa, history, H, shift=None):
+        """m_{T+1..T+H}: the log-variance recursion from the end of the sample with every
+        future news term at zero (its expectation); ``shift`` adds to each step's intercept."""
+        omega, alpha, gamma, beta = self._split(vp)
+        p, q = self.p, self.q
+        s2 = history.s2
+        z = history.e[history.s0:] / np.sqrt(s2)
+        news = [0.0] * max(p - len(z), 0) + [float(abs(x) - kappa) for x in z[len(z) - p:]] if p else []
+        zs = [0.0] * max(p - len(z), 0) + [float(x) for x in z[len(z) - p:]] if p else []
+        lv = list(np.log(s2[len(s2) - q:])) if q else []
+        lv = [lv[0]] * max(q - len(lv), 0) + lv if q else []
+        out = np.empty(H)
+        for h in range(H):
+            v = omega if shift is None else omega + shift[h]
+            for i in range(1, p + 1):
+                v += alpha[i - 1] * news[-i] + gamma[i - 1] * zs[-i]
+            for j in range(1, q + 1):
+                v += beta[j - 1] * lv[-j]
+            out[h] = v
+            if p:
+                news = news[1:] + [0.0]
+                zs = zs[1:] + [0.0]
+            if q:
+                lv = lv[1:] + [v]
+        return out
+
+    def _moment_horizon(self, vp, eta, dist, H, power):
+        omega, alpha, gamma, beta = self._split(vp)
+        if H < 2:
+            return H, None
+        a, c = _impulse_responses(alpha, gamma, beta, H - 1)
+        ok = _mgf_finite(power * a, power * c, eta, dist)
+        if np.all(ok):
+            return H, None
+        steps = int(np.flatnonzero(~ok)[0]) + 1
+        what = "E[sigma^2]" if power == 1.0 else ("E[sigma]" if power == 0.5 else f"E[sigma^{2 * power:g}]")
+        beyond = "one step" if steps == 1 else f"{steps} steps"
+        return steps, (f"{what} does not exist beyond {beyond} with {dist.name} shocks "
+                       f"(EGARCH's log-variance moves with |z|, and E exp(c|z|) is infinite for them)")
 
     def _sim_start(self, vp, eta, dist, paths):
         omega, _, _, beta = self._split(vp)

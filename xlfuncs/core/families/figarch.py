@@ -393,7 +393,7 @@ class Figarch(VarianceFamily):
             return np.zeros(0)
         return self._sig2(st)
 
-    def _derivatives(self, vp, e, de, presample):
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None):
         st = self._setup(vp, e, presample)
         m, g, beta = st.m, st.g, st.beta
         sig2 = self._sig2(st) if m else np.zeros(0)
