@@ -239,7 +239,7 @@ def test_h1_simple_value_figures_are_the_return_figures(series, level):
 @pytest.mark.parametrize("level", [0.95, 0.99])
 def test_multi_period_simple_is_the_product_of_the_factors(series, level):
     """h periods of simple returns in percent: V = prod (1 + r_t/100) - 1 (common practice);
-    VaR_value and ES_value are the empirical quantile (NumPy's default) and tail mean of -100 V,
+    VaR_value and ES_value are the quantile and tail mean of -100 V over the weighted paths,
     checked against the same over 200,000 plain forward paths of another seed (np.prod on
     simulate_forward) within Monte Carlo error (sample-quantile and tail-mean standard errors,
     common practice; the weighted estimate's taken no larger than the plain one's, as measured in
