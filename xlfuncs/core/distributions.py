@@ -186,11 +186,6 @@ class Distribution:
         q = self._ppf(alpha, p)
         return _out(-self._partial_first_moment(q, p) / alpha, level)
 
-    def partial_first_moment(self, q, params):
-        """``E[z 1(z <= q)]``, the integral of z f(z) up to ``q`` (vectorised in ``q``)."""
-        q = _as_array(q)
-        return _out(self._partial_first_moment(q, _as_array(params)), q)
-
     def value_at_risk(self, level, params):
         """The lower ``1 - level`` quantile as a positive loss, ``-ppf(1 - level)``."""
         level = _check_level(level)
