@@ -13,9 +13,14 @@ horizon        how
                volatility forecast s and z from the fitted distribution, so
                VaR = -(m + s ppf(1 - level)) and ES = -m + s ES_z(level)
 2 and more     seeded simulation of ``paths`` future paths that continue the fitted
-               recursions from the end of the sample (:func:`simulate_forward`);
-               VaR and ES are the empirical quantile and tail mean of the simulated
-               cumulative returns
+               recursions from the end of the sample (:func:`forward_steps`), with
+               two variance reductions: importance sampling (the shocks of steps
+               1..h-1 drawn moved towards losses by the distribution's
+               ``shifted_rvs``, each path weighted by its likelihood ratio) and
+               conditional Monte Carlo for the last step in the VaR (given the earlier steps,
+               R = a + s z with z independent, so the distribution function of R is
+               the weighted mean of F((x - a)/s), and VaR solves F_R(x) = 1 - level);
+               ES is the weighted mean of the paths beyond it
 =============  ====================================================================
 
 The ``mean`` and ``sd`` reported with them are those of R from the analytic forecast (the
@@ -41,10 +46,10 @@ as positive percentages of the value:
   100 (1 - exp(-c VaR)), exact because the map is monotone.  ES_value = 100 E[1 - exp(c R) |
   R <= -VaR], the mean of the value loss over the tail -- smaller than the transform of ES
   (Jensen).  At horizon 1, R = m + s z and the tail mean is a one-dimensional integral over
-  the fitted density of z, computed by adaptive quadrature; beyond, it is the mean over the
-  simulated tail paths.
+  the fitted density of z, computed by adaptive quadrature; beyond, it is the weighted mean over
+  the simulated tail paths.
 * simple returns: V = prod_t (1 + c r[T+t]) - 1.  At horizon 1 that is c R, so VaR_value and
-  ES_value are VaR and ES times 100 c.  Beyond, VaR_value and ES_value are the empirical
+  ES_value are VaR and ES times 100 c.  Beyond, VaR_value and ES_value are the weighted empirical
   quantile and tail mean of V over the simulated paths (a factor 1 + c r below zero, a loss
   beyond the whole value, counts as 0: the position is gone).
 """
@@ -56,7 +61,7 @@ import numbers
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import integrate
+from scipy import integrate, special
 
 from .errors import InputError
 from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
@@ -136,6 +141,59 @@ def _log_tail_value_loss(dist, eta, m: float, s: float, c: float, zq: float, a: 
     return val / a
 
 
+def _weighted_quantile(x, w, alpha: float) -> float:
+    """The smallest x[i] at which the weighted distribution function sum(w 1(x <= x[i])) / n reaches alpha."""
+    order = np.argsort(x, kind="stable")
+    cw = np.cumsum(w[order]) / len(x)
+    i = min(int(np.searchsorted(cw, alpha)), len(x) - 1)
+    return float(x[order[i]])
+
+
+def _weighted_tail_mean(x, w, tail) -> float:
+    """The weighted mean of x over the paths in ``tail``."""
+    return float(np.sum(w[tail] * x[tail]) / np.sum(w[tail]))
+
+
+def _conditional_var(dist, eta, a, s, w, alpha: float, start: float):
+    """The alpha-quantile, as a loss, of R = a + s z, z from ``dist`` independent of (a, s), over weighted paths.
+
+    Conditional Monte Carlo with importance weights ``w`` (mean 1 in expectation): the
+    distribution function of R is estimated by mean(w F((x - a) / s)), a smooth function of x,
+    and its alpha-quantile found by a safeguarded Newton iteration from ``start``.  None if a
+    path's a, s or weight is not a finite number.
+    """
+    if not (np.all(np.isfinite(a)) and np.all(np.isfinite(s)) and np.all(s > 0) and np.all(np.isfinite(w))):
+        return None
+    n = len(a)
+
+    def g(x):
+        k = (x - a) / s
+        return float(w @ dist.cdf(k, eta)) / n - alpha, float(w @ (dist.pdf(k, eta) / s)) / n
+
+    lo, hi = -math.inf, math.inf
+    x = start
+    width = float(np.max(s)) + 1.0
+    for _ in range(200):
+        gx, dg = g(x)
+        if gx > 0:
+            hi = x
+        else:
+            lo = x
+        nx = x - gx / dg if (dg > 0 and math.isfinite(dg)) else math.nan
+        if not (lo < nx < hi):  # outside the bracket: bisect, or step out while one side is open
+            if math.isinf(lo):
+                nx, width = x - width, 2.0 * width
+            elif math.isinf(hi):
+                nx, width = x + width, 2.0 * width
+            else:
+                nx = 0.5 * (lo + hi)
+        done = abs(nx - x) <= 1e-13 * (1.0 + abs(x))
+        x = nx
+        if done:
+            break
+    return -x
+
+
 def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=None, Xf=None) -> Risk:
     """VaR and expected shortfall of the sum of the next ``horizon`` returns after ``r``.
 
@@ -193,28 +251,54 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
             var_value, es_value = 100.0 * var, 100.0 * es
     else:
         rng = np.random.default_rng(seed)
+        alpha = 1.0 - level
+        # importance sampling: the shocks of steps 1..h-1 are drawn shifted down (the shift of the
+        # sum of h iid unit shocks to its alpha-quantile, spread over the steps: common practice),
+        # so more paths end in the lower tail; each path carries the likelihood ratio of its shocks
+        theta = fit.dist.tilt * -float(special.ndtri(alpha)) / math.sqrt(horizon)
+        logw = np.zeros(paths)
+        last: list = []
+
+        def draw(h):
+            if h == horizon - 1:  # the last step is drawn as fitted and integrated exactly below
+                last.append(fit.dist.rvs(paths, eta, rng))
+                return last[0]
+            z, lw = fit.dist.shifted_rvs(paths, eta, rng, theta)
+            np.add(logw, lw, out=logw)
+            return z
+
         cum = np.zeros(paths)
         # log of the value factor prod (1 + c r), for simple returns only
         log_factor = np.zeros(paths) if defn in ("simple100", "simple") else None
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            for ret, _ in forward_steps(fit, r, horizon, paths, rng, X, Xf):
+            for h, (ret, s2) in enumerate(forward_steps(fit, r, horizon, paths, rng, X, Xf, draw=draw)):
+                if h == horizon - 1:
+                    # given the first h-1 steps, R = a + s z with the last shock z independent of (a, s)
+                    s_last = np.sqrt(s2)
+                    a_last = cum + (ret - s_last * last[0])
                 cum += ret
                 if log_factor is not None:
                     log_factor += np.log1p(np.maximum(c * ret, -1.0))  # a factor below 0 is the value gone
-        cut = float(np.quantile(cum, 1.0 - level))
+        w = np.exp(logw)
+        cut = _weighted_quantile(cum, w, alpha)
+        var = _conditional_var(fit.dist, eta, a_last, s_last, w, alpha, cut)
+        if var is not None:  # else the paths left the finite numbers: the weighted empirical quantile
+            cut = -var
+        tail = cum <= cut
+        # the tail means over the same weighted paths, so that ES and ES_value agree (Jensen)
+        es = -_weighted_tail_mean(cum, w, tail)
         var = -cut
-        es = -float(np.mean(cum[cum <= cut]))
-        method = f"simulation ({paths} paths, seed {seed})"
+        method = f"simulation ({paths} paths, seed {seed}; importance sampling, last step exact)"
         if is_log:
             var_value = -100.0 * math.expm1(-c * var)
             with np.errstate(over="ignore"):
-                es_value = -100.0 * float(np.mean(np.expm1(c * cum[cum <= cut])))
+                es_value = -100.0 * _weighted_tail_mean(np.expm1(c * cum), w, tail)
         elif log_factor is not None:
             with np.errstate(invalid="ignore"):
                 change = np.expm1(log_factor)  # V = value(T+h)/value(T) - 1
-            vcut = float(np.quantile(change, 1.0 - level))
+            vcut = _weighted_quantile(change, w, alpha)
             var_value = -100.0 * vcut
-            es_value = -100.0 * float(np.mean(change[change <= vcut]))
+            es_value = -100.0 * _weighted_tail_mean(change, w, change <= vcut)
     if es_note is not None:
         es = math.inf  # a simulated tail mean would show a finite number for an infinite one
     return Risk(var=float(var), es=float(es), mean=mean, sd=sd, level=level, horizon=horizon, method=method,

@@ -74,8 +74,11 @@ def simulate(spec: ModelSpec, dist: Distribution, params, n: int, paths: int = 1
     return r[burn:]
 
 
-def forward_steps(fit, r, horizon: int, paths: int, rng: np.random.Generator, X=None, Xf=None):
+def forward_steps(fit, r, horizon: int, paths: int, rng: np.random.Generator, X=None, Xf=None, draw=None):
     """Yield ``(returns, variances)``, each of shape (paths,), for steps T+1, ..., T+horizon.
+
+    ``draw(h)``, if given, returns the standardised shocks of step h (0-based) in place of
+    ``paths`` draws from the fit's distribution (for importance sampling).
 
     The generator behind :func:`simulate_forward`; a caller that needs only a running total
     (the cumulative return) consumes it step by step and never holds the whole array.
@@ -102,7 +105,7 @@ def forward_steps(fit, r, horizon: int, paths: int, rng: np.random.Generator, X=
 
     for h in range(int(horizon)):
         # ---- the variance of the next shock from the newest lags, the shock and the return
-        z = dist.rvs(paths, eta, rng)
+        z = dist.rvs(paths, eta, rng) if draw is None else draw(h)
         s2, e = fam.sim_step(state, vp, eta, dist, z, shift=None if shift is None else shift[h])
         if np.ndim(s2) == 0:
             s2 = np.full(paths, float(s2))
