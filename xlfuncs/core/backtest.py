@@ -25,8 +25,9 @@ import numpy as np
 from .coverage import Coverage, coverage
 from .errors import InputError
 from .esbacktest import ESTests, es_tests
-from .estimate import evaluate, fit
+from .estimate import check_intercept, check_params, evaluate, fit
 from .forecast import forecast
+from .likelihood import Likelihood
 from .mean import check_regressors, layout
 
 __all__ = ["Backtest", "backtest"]
@@ -54,9 +55,10 @@ class Backtest:
 
 
 def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: str = "rolling",
-             refit: int = 1, params=None, progress=None, X=None) -> Backtest:
+             refit: int = 1, params=None, progress=None, X=None, refilter: bool = False) -> Backtest:
     """Walk forward over ``r`` (module docstring).  ``X``: the regressors, one row per return; each
-    forecast reads the regressors' row of the return it forecasts."""
+    forecast reads the regressors' row of the return it forecasts.  ``refilter``: re-filter every
+    window even where one pass over the series gives the same forecasts (for comparisons)."""
     r = np.asarray(r, dtype=float)
     T = len(r)
     spec = layout(spec, X, options.xvar)
@@ -78,22 +80,35 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     mean, var_, vr = np.empty(steps), np.empty(steps), np.empty(steps)
     etas = np.empty((steps, nd))
     theta = None if params is None else np.asarray(params, dtype=float)
+    if theta is not None:
+        check_params(spec, dist, names, theta)
     fits = 0
-    for i, t in enumerate(range(window, T)):
+    i = 0
+    while i < steps:  # blocks of steps that share one parameter vector
+        i1 = steps if params is not None else min(steps, i + refit)
+        t = window + i
         start = t - window if scheme == "rolling" else 0
-        sample = r[start:t]
-        xs, xf = (None, None) if X is None else (X[start:t], X[t:t + 1])
-        if params is None and (theta is None or i % refit == 0):
-            theta = fit(sample, spec, dist, options, xs).params
+        if params is None:
+            xs = None if X is None else X[start:t]
+            theta = fit(r[start:t], spec, dist, options, xs).params
             fits += 1
-        state = evaluate(sample, spec, dist, names, theta, options, xs)
-        fc = forecast(state, sample, 1, seed=options.seed, paths=options.paths, X=xs, Xf=xf)
         eta = theta[len(theta) - nd:]
-        etas[i] = eta
-        mean[i], var_[i] = fc.mean[0], fc.variance[0]
-        vr[i] = -(fc.mean[0] + math.sqrt(fc.variance[0]) * float(dist.ppf(1 - level, eta)))
-        if progress is not None:
-            progress(i + 1, steps)
+        etas[i:i1] = eta
+        if refilter or not _one_filter(r, X, spec, dist, options, theta, window, scheme, i, i1, mean, var_):
+            for k in range(i, i1):
+                t = window + k
+                start = t - window if scheme == "rolling" else 0
+                sample = r[start:t]
+                xs, xf = (None, None) if X is None else (X[start:t], X[t:t + 1])
+                state = evaluate(sample, spec, dist, names, theta, options, xs)
+                fc = forecast(state, sample, 1, seed=options.seed, paths=options.paths, X=xs, Xf=xf)
+                mean[k], var_[k] = fc.mean[0], fc.variance[0]
+                if progress is not None:
+                    progress(k + 1, steps)
+        elif progress is not None:
+            progress(i1, steps)
+        vr[i:i1] = -(mean[i:i1] + np.sqrt(var_[i:i1]) * float(dist.ppf(1 - level, eta)))
+        i = i1
     actual = r[window:]
     cov = coverage(actual, vr, level)
     e2 = (actual - mean) ** 2
@@ -102,6 +117,34 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     return Backtest(index=np.arange(window, T), mean=mean, variance=var_, var=vr, actual=actual,
                     exception=actual < -vr, coverage=cov, qlike=float(np.mean(np.log(var_) + e2 / var_)),
                     mse=float(np.mean((e2 - var_) ** 2)), fits=fits, es=es, es_tests=tests)
+
+
+def _one_filter(r, X, spec, dist, options, theta, window, scheme, i0, i1, mean, variance) -> bool:
+    """Fill ``mean`` and ``variance`` of steps i0..i1-1 (one parameter vector) from one pass over
+    the returns, where the model allows it: the mean's residuals do not depend on where a window
+    starts (:attr:`MeanModel.window_free`) and the family gives the one-step variance after many
+    windows at once (``window_forecasts``), each the number re-filtering that window gives.
+    False (nothing filled) where it does not."""
+    fam = spec.family
+    if not fam.window_forecasts or spec.in_mean:
+        return False
+    end = window + i1  # the returns up to the last forecast one (its residual is not read)
+    lik = Likelihood(r[:end], spec, dist, options.presample, None if X is None else X[:end])
+    if not lik.mean.window_free:
+        return False
+    check_intercept(lik, theta)
+    e, _ = lik.residuals(theta)
+    a = lik.a
+    ts = np.arange(window + i0, end)  # the forecast returns
+    starts = ts - window if scheme == "rolling" else np.zeros(len(ts), dtype=int)
+    shift = None
+    if spec.xvar:  # the variance regressors' term on every residual position
+        shift = lik.X[a:, [k - 1 for k in spec.xvar]] @ theta[lik._ss]
+    _, _, _, vp, _ = lik.split(theta)
+    # residual index k is return k + a: a window of returns [start, t) has residuals [start, t - a)
+    variance[i0:i1] = fam.window_forecast(vp, e, starts, ts - a, options.presample, shift=shift)
+    mean[i0:i1] = lik.mean.fitted(theta[:lik.n_mean], ts - a)
+    return True
 
 
 def _es_forecasts(dist, etas, level, mean, variance) -> np.ndarray:
