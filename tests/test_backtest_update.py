@@ -160,3 +160,19 @@ def test_models_without_the_shortcut_still_refilter(simulated, model, params):
     old = backtest(r, spec, dist, opts, 220, 0.99, params=np.array(params), refilter=True)
     assert_allclose(new.variance, old.variance, rtol=0, atol=0)
     assert np.all(new.variance > 0)
+
+
+def test_a_variance_regressor_leaving_the_domain_is_an_error(simulated):
+    """Given parameters whose intercept omega + v[1] x turns negative inside the walk: a clear
+    message naming the row, on both routes."""
+    r = simulated("GARCH(1,1)", "normal", [0.0, 0.05, 0.1, 0.85], 240, 6)
+    X = np.random.default_rng(1).uniform(0.0, 1.0, (240, 1))
+    X[230, 0] = -5.0  # omega + 0.02 x = 0.05 - 0.1 < 0 at return row 231
+    spec, dist, opts = parse_model("GARCH(1,1)"), get_distribution("normal"), parse_options("xvar=1")
+    from xlfuncs.core.errors import InputError
+    for refilter in (False, True):
+        with pytest.raises(InputError, match="not above zero"):
+            backtest(r, spec, dist, opts, 220, 0.99, params=np.array([0.0, 0.05, 0.1, 0.85, 0.02]), X=X,
+                     refilter=refilter)
+    with pytest.raises(InputError, match="row 231"):
+        backtest(r, spec, dist, opts, 220, 0.99, params=np.array([0.0, 0.05, 0.1, 0.85, 0.02]), X=X)

@@ -25,7 +25,7 @@ import numpy as np
 from .coverage import Coverage, coverage
 from .errors import InputError
 from .esbacktest import ESTests, es_tests
-from .estimate import check_intercept, check_params, evaluate, fit
+from .estimate import check_params, evaluate, fit
 from .forecast import forecast
 from .likelihood import Likelihood
 from .mean import check_regressors, layout
@@ -83,6 +83,7 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     if theta is not None:
         check_params(spec, dist, names, theta)
     fits = 0
+    one = None if refilter else _one_pass(r, X, spec, dist, options)
     i = 0
     while i < steps:  # blocks of steps that share one parameter vector
         i1 = steps if params is not None else min(steps, i + refit)
@@ -94,7 +95,11 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
             fits += 1
         eta = theta[len(theta) - nd:]
         etas[i:i1] = eta
-        if refilter or not _one_filter(r, X, spec, dist, options, theta, window, scheme, i, i1, mean, var_):
+        if one is not None:
+            _one_filter(one, spec, options, theta, window, scheme, i, i1, mean, var_)
+            if progress is not None:
+                progress(i1, steps)
+        else:
             for k in range(i, i1):
                 t = window + k
                 start = t - window if scheme == "rolling" else 0
@@ -105,8 +110,6 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
                 mean[k], var_[k] = fc.mean[0], fc.variance[0]
                 if progress is not None:
                     progress(k + 1, steps)
-        elif progress is not None:
-            progress(i1, steps)
         vr[i:i1] = -(mean[i:i1] + np.sqrt(var_[i:i1]) * float(dist.ppf(1 - level, eta)))
         i = i1
     actual = r[window:]
@@ -119,32 +122,41 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
                     mse=float(np.mean((e2 - var_) ** 2)), fits=fits, es=es, es_tests=tests)
 
 
-def _one_filter(r, X, spec, dist, options, theta, window, scheme, i0, i1, mean, variance) -> bool:
+def _one_pass(r, X, spec, dist, options):
+    """The likelihood over the whole series when one pass over it gives every window's one-step
+    forecasts: the mean's residuals do not depend on where a window starts
+    (:attr:`MeanModel.window_free`) and the family gives the one-step variance after many windows
+    at once (``window_forecasts``), each the number re-filtering that window gives.  None where
+    each window must be re-filtered."""
+    if not spec.family.window_forecasts or spec.in_mean:
+        return None
+    lik = Likelihood(r, spec, dist, options.presample, X)
+    return lik if lik.mean.window_free else None
+
+
+def _one_filter(lik, spec, options, theta, window, scheme, i0, i1, mean, variance) -> None:
     """Fill ``mean`` and ``variance`` of steps i0..i1-1 (one parameter vector) from one pass over
-    the returns, where the model allows it: the mean's residuals do not depend on where a window
-    starts (:attr:`MeanModel.window_free`) and the family gives the one-step variance after many
-    windows at once (``window_forecasts``), each the number re-filtering that window gives.
-    False (nothing filled) where it does not."""
-    fam = spec.family
-    if not fam.window_forecasts or spec.in_mean:
-        return False
-    end = window + i1  # the returns up to the last forecast one (its residual is not read)
-    lik = Likelihood(r[:end], spec, dist, options.presample, None if X is None else X[:end])
-    if not lik.mean.window_free:
-        return False
-    check_intercept(lik, theta)
+    the series' likelihood ``lik`` (:func:`_one_pass`)."""
     e, _ = lik.residuals(theta)
     a = lik.a
-    ts = np.arange(window + i0, end)  # the forecast returns
+    ts = np.arange(window + i0, window + i1)  # the forecast returns
     starts = ts - window if scheme == "rolling" else np.zeros(len(ts), dtype=int)
+    _, _, _, vp, _ = lik.split(theta)
     shift = None
     if spec.xvar:  # the variance regressors' term on every residual position
         shift = lik.X[a:, [k - 1 for k in spec.xvar]] @ theta[lik._ss]
-    _, _, _, vp, _ = lik.split(theta)
+        # the positions these windows and forecasts read must keep the intercept in its domain
+        lo = int(starts[0]) + lik.s0
+        bad = spec.family.bad_shift(vp, shift[lo: int(ts[-1]) - a + 1])
+        if bad.any():
+            row = lo + int(np.flatnonzero(bad)[0]) + a + 1
+            raise InputError(f"the variance intercept omega + {' + '.join(spec.shift_names)} x (regressor) is not "
+                             f"above zero at returns row {row}; the variance would not stay positive. Keep "
+                             "omega + sum v[k] Z[t,k] above zero at every row (e.g. regressors of one sign with "
+                             "v[k] >= 0)")
     # residual index k is return k + a: a window of returns [start, t) has residuals [start, t - a)
-    variance[i0:i1] = fam.window_forecast(vp, e, starts, ts - a, options.presample, shift=shift)
+    variance[i0:i1] = spec.family.window_forecast(vp, e, starts, ts - a, options.presample, shift=shift)
     mean[i0:i1] = lik.mean.fitted(theta[:lik.n_mean], ts - a)
-    return True
 
 
 def _es_forecasts(dist, etas, level, mean, variance) -> np.ndarray:
