@@ -6,6 +6,12 @@ From observation ``window`` on, the model is estimated on a rolling window of th
 Each step forecasts the next period's mean, variance and VaR at ``level`` and compares them
 with what happened.  Given parameters (a fit table) are never re-estimated.
 
+Between refits the parameters are fixed, so where the model allows it (the family's
+``window_forecasts`` and residuals that do not depend on where a window starts) the forecasts of
+all the steps that share one estimate come from one pass over the series, each the number
+re-filtering its window gives (the window's own presample included); elsewhere each window is
+re-filtered.
+
 Losses of the variance forecast h against the squared forecast error e^2 (common practice):
 QLIKE = ln h + e^2 / h and MSE = (e^2 - h)^2, both averaged over the forecasts.
 

@@ -53,6 +53,15 @@ def linear_filter(den, x, zi=None):
     return lfilter([1.0], den, x) if zi is None else lfilter([1.0], den, x, zi=zi)[0]
 
 
+def _window_means(x, starts, ends) -> np.ndarray:
+    """The mean of x[starts[k]:ends[k]] for each k (one reduction when the windows are all as long)."""
+    lengths = ends - starts
+    if len(lengths) and np.all(lengths == lengths[0]):
+        view = np.lib.stride_tricks.sliding_window_view(x, int(lengths[0]))
+        return view[starts].mean(axis=1)
+    return np.array([x[a:b].mean() for a, b in zip(starts, ends)])
+
+
 class _State:
     """What the forward recursion leaves for the adjoint."""
 
@@ -304,8 +313,8 @@ class LinearFamily(VarianceFamily):
         else:
             g = np.zeros(int(span.max()) + 1)
             g[0] = 1.0
-        sbar = np.array([e2[a:b].mean() for a, b in zip(starts, ends)])
-        nbar = np.array([n2[a:b].mean() for a, b in zip(starts, ends)]) if asym else None
+        sbar = _window_means(e2, starts, ends)
+        nbar = _window_means(n2, starts, ends) if asym else None
         out = F[ends].copy()
         for k in range(M):
             u = np.zeros(len(starts))
