@@ -23,7 +23,6 @@ p-value simulated under the fitted distribution with each step's shape parameter
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
