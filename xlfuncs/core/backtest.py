@@ -6,6 +6,12 @@ From observation ``window`` on, the model is estimated on a rolling window of th
 Each step forecasts the next period's mean, variance and VaR at ``level`` and compares them
 with what happened.  Given parameters (a fit table) are never re-estimated.
 
+Between refits the parameters are fixed, so where the model allows it (the family's
+``window_forecasts`` and residuals that do not depend on where a window starts) the forecasts of
+all the steps that share one estimate come from one pass over the series, each the number
+re-filtering its window gives (the window's own presample included); elsewhere each window is
+re-filtered.
+
 Losses of the variance forecast h against the squared forecast error e^2 (common practice):
 QLIKE = ln h + e^2 / h and MSE = (e^2 - h)^2, both averaged over the forecasts.
 
@@ -17,7 +23,6 @@ p-value simulated under the fitted distribution with each step's shape parameter
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -25,8 +30,9 @@ import numpy as np
 from .coverage import Coverage, coverage
 from .errors import InputError
 from .esbacktest import ESTests, es_tests
-from .estimate import evaluate, fit
+from .estimate import check_params, evaluate, fit
 from .forecast import forecast
+from .likelihood import Likelihood
 from .mean import check_regressors, layout
 
 __all__ = ["Backtest", "backtest"]
@@ -54,9 +60,10 @@ class Backtest:
 
 
 def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: str = "rolling",
-             refit: int = 1, params=None, progress=None, X=None) -> Backtest:
+             refit: int = 1, params=None, progress=None, X=None, refilter: bool = False) -> Backtest:
     """Walk forward over ``r`` (module docstring).  ``X``: the regressors, one row per return; each
-    forecast reads the regressors' row of the return it forecasts."""
+    forecast reads the regressors' row of the return it forecasts.  ``refilter``: re-filter every
+    window even where one pass over the series gives the same forecasts (for comparisons)."""
     r = np.asarray(r, dtype=float)
     T = len(r)
     spec = layout(spec, X, options.xvar)
@@ -78,22 +85,38 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     mean, var_, vr = np.empty(steps), np.empty(steps), np.empty(steps)
     etas = np.empty((steps, nd))
     theta = None if params is None else np.asarray(params, dtype=float)
+    if theta is not None:
+        check_params(spec, dist, names, theta)
     fits = 0
-    for i, t in enumerate(range(window, T)):
+    one = None if refilter else _one_pass(r, X, spec, dist, options)
+    i = 0
+    while i < steps:  # blocks of steps that share one parameter vector
+        i1 = steps if params is not None else min(steps, i + refit)
+        t = window + i
         start = t - window if scheme == "rolling" else 0
-        sample = r[start:t]
-        xs, xf = (None, None) if X is None else (X[start:t], X[t:t + 1])
-        if params is None and (theta is None or i % refit == 0):
-            theta = fit(sample, spec, dist, options, xs).params
+        if params is None:
+            xs = None if X is None else X[start:t]
+            theta = fit(r[start:t], spec, dist, options, xs).params
             fits += 1
-        state = evaluate(sample, spec, dist, names, theta, options, xs)
-        fc = forecast(state, sample, 1, seed=options.seed, paths=options.paths, X=xs, Xf=xf)
         eta = theta[len(theta) - nd:]
-        etas[i] = eta
-        mean[i], var_[i] = fc.mean[0], fc.variance[0]
-        vr[i] = -(fc.mean[0] + math.sqrt(fc.variance[0]) * float(dist.ppf(1 - level, eta)))
-        if progress is not None:
-            progress(i + 1, steps)
+        etas[i:i1] = eta
+        if one is not None:
+            _one_filter(one, spec, options, theta, window, scheme, i, i1, mean, var_)
+            if progress is not None:
+                progress(i1, steps)
+        else:
+            for k in range(i, i1):
+                t = window + k
+                start = t - window if scheme == "rolling" else 0
+                sample = r[start:t]
+                xs, xf = (None, None) if X is None else (X[start:t], X[t:t + 1])
+                state = evaluate(sample, spec, dist, names, theta, options, xs)
+                fc = forecast(state, sample, 1, seed=options.seed, paths=options.paths, X=xs, Xf=xf)
+                mean[k], var_[k] = fc.mean[0], fc.variance[0]
+                if progress is not None:
+                    progress(k + 1, steps)
+        vr[i:i1] = -(mean[i:i1] + np.sqrt(var_[i:i1]) * float(dist.ppf(1 - level, eta)))
+        i = i1
     actual = r[window:]
     cov = coverage(actual, vr, level)
     e2 = (actual - mean) ** 2
@@ -102,6 +125,43 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     return Backtest(index=np.arange(window, T), mean=mean, variance=var_, var=vr, actual=actual,
                     exception=actual < -vr, coverage=cov, qlike=float(np.mean(np.log(var_) + e2 / var_)),
                     mse=float(np.mean((e2 - var_) ** 2)), fits=fits, es=es, es_tests=tests)
+
+
+def _one_pass(r, X, spec, dist, options):
+    """The likelihood over the whole series when one pass over it gives every window's one-step
+    forecasts: the mean's residuals do not depend on where a window starts
+    (:attr:`MeanModel.window_free`) and the family gives the one-step variance after many windows
+    at once (``window_forecasts``), each the number re-filtering that window gives.  None where
+    each window must be re-filtered."""
+    if not spec.family.window_forecasts or spec.in_mean:
+        return None
+    lik = Likelihood(r, spec, dist, options.presample, X)
+    return lik if lik.mean.window_free else None
+
+
+def _one_filter(lik, spec, options, theta, window, scheme, i0, i1, mean, variance) -> None:
+    """Fill ``mean`` and ``variance`` of steps i0..i1-1 (one parameter vector) from one pass over
+    the series' likelihood ``lik`` (:func:`_one_pass`)."""
+    e, _ = lik.residuals(theta)
+    a = lik.a
+    ts = np.arange(window + i0, window + i1)  # the forecast returns
+    starts = ts - window if scheme == "rolling" else np.zeros(len(ts), dtype=int)
+    _, _, _, vp, _ = lik.split(theta)
+    shift = None
+    if spec.xvar:  # the variance regressors' term on every residual position
+        shift = lik.X[a:, [k - 1 for k in spec.xvar]] @ theta[lik._ss]
+        # the positions these windows and forecasts read must keep the intercept in its domain
+        lo = int(starts[0]) + lik.s0
+        bad = spec.family.bad_shift(vp, shift[lo: int(ts[-1]) - a + 1])
+        if bad.any():
+            row = lo + int(np.flatnonzero(bad)[0]) + a + 1
+            raise InputError(f"the variance intercept omega + {' + '.join(spec.shift_names)} x (regressor) is not "
+                             f"above zero at returns row {row}; the variance would not stay positive. Keep "
+                             "omega + sum v[k] Z[t,k] above zero at every row (e.g. regressors of one sign with "
+                             "v[k] >= 0)")
+    # residual index k is return k + a: a window of returns [start, t) has residuals [start, t - a)
+    variance[i0:i1] = spec.family.window_forecast(vp, e, starts, ts - a, options.presample, shift=shift)
+    mean[i0:i1] = lik.mean.fitted(theta[:lik.n_mean], ts - a)
 
 
 def _es_forecasts(dist, etas, level, mean, variance) -> np.ndarray:

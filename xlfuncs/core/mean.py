@@ -228,6 +228,23 @@ class MeanModel:
             return np.zeros(0)
         return tm[[self.idx[n] for n in self.regression.names]]
 
+    # ------------------------------------------------------------------ windows of one series
+    @property
+    def window_free(self) -> bool:
+        """A residual depends only on its own return's row, not on where the sample starts: no
+        moving-average filter (zero before the start), no in-mean term, and no lagged return set
+        at the sample's mean before the start (``presample=drop`` drops those returns instead).
+        Then the residuals of any window of the returns are the whole series' residuals there."""
+        return self.ma is None and self.in_mean is None and self.a == self.spec.ar
+
+    def fitted(self, tm, positions) -> np.ndarray:
+        """The linear parts' mean at residual positions (the return less its residual, for a
+        :attr:`window_free` mean), as the one-step mean forecast after the returns before it."""
+        positions = np.asarray(positions, dtype=int)
+        if not len(self.lin_idx):
+            return np.zeros(len(positions))
+        return tm[self.lin_idx] @ self.R[:, positions]
+
     # ------------------------------------------------------------------ residuals
     def residuals(self, tm, derivs: bool = False):
         """Residuals u on [a, T) of every part but the in-mean term, and if asked their

@@ -53,6 +53,15 @@ def linear_filter(den, x, zi=None):
     return lfilter([1.0], den, x) if zi is None else lfilter([1.0], den, x, zi=zi)[0]
 
 
+def _window_means(x, starts, ends) -> np.ndarray:
+    """The mean of x[starts[k]:ends[k]] for each k (one reduction when the windows are all as long)."""
+    lengths = ends - starts
+    if len(lengths) and np.all(lengths == lengths[0]):
+        view = np.lib.stride_tricks.sliding_window_view(x, int(lengths[0]))
+        return view[starts].mean(axis=1)
+    return np.array([x[a:b].mean() for a, b in zip(starts, ends)])
+
+
 class _State:
     """What the forward recursion leaves for the adjoint."""
 
@@ -75,6 +84,7 @@ class LinearFamily(VarianceFamily):
     analytic = True
     has_adjoint = True
     takes_shift = True
+    window_forecasts = True
     #: the recursion carries the GJR news term gamma_i 1(e<0) e^2
     asymmetric = False
 
@@ -262,6 +272,62 @@ class LinearFamily(VarianceFamily):
         J = self._jacobian(st.vp)
         g = g if J is None else J.T @ g
         return g if dshift is None else np.concatenate([g, dshift @ lam])
+
+    # ------------------------------------------------------------------ many windows at once
+    def _window_forecasts(self, vp, e, starts, ends, presample, shift=None):
+        """The one-step variance after each window, by superposition (the recursion is linear).
+
+        F is the recursion run once over the whole series from zero lags.  On a window
+        [s, t) with likelihood positions from L0 = s + s0 the window's own recursion reads the
+        same inputs as F except its presample (lagged squares sbar, negative parts nbar and
+        lagged variances sbar, the window's means, where F read the series' values or zero), so
+        the difference D = sigma2_window - F obeys D[L0+k] = u[k] + sum_j beta_j D[L0+k-j] with
+        a right-hand side u that is non-zero only for k < max(p, q):
+
+            u[k] = sum_{i>k} (alpha_i (sbar - e2[L0+k-i]) + gamma_i (nbar - N[L0+k-i]))   [mean only]
+                 + sum_{j>k} beta_j (sbar - F[L0+k-j]),
+
+        hence D[t] = sum_k g[t-L0-k] u[k] with g the impulse response of 1 / (1 - sum beta_j L^j).
+        The window's forecast at t is F[t] + D[t]: O(p + q) work per window after one filter.
+        """
+        omega, alpha, gamma, beta = self._coefficients(vp)
+        p, q = self.p, self.q
+        asym = self.asymmetric
+        s0 = p if presample == "drop" else 0
+        e2 = e * e
+        n2 = np.where(e < 0, e2, 0.0) if asym else None
+        M = max(p, q)
+        zeros = np.zeros(M)
+        P = np.concatenate([zeros[:p], e2])
+        N = np.concatenate([zeros[:p], n2]) if asym else None
+        F = self._run(omega, alpha, gamma, beta, P, N, 0.0, shift)[0]
+        E2p = np.concatenate([zeros, e2])  # index x of the series at x + M (zero before it)
+        N2p = np.concatenate([zeros, n2]) if asym else None
+        Fp = np.concatenate([zeros, F])
+        L0 = starts + s0
+        span = ends - L0  # steps from the first likelihood position to the forecast
+        if q:
+            imp = np.zeros(int(span.max()) + 1)
+            imp[0] = 1.0
+            g = linear_filter(np.concatenate([[1.0], -beta]), imp)
+        else:
+            g = np.zeros(int(span.max()) + 1)
+            g[0] = 1.0
+        sbar = _window_means(e2, starts, ends)
+        nbar = _window_means(n2, starts, ends) if asym else None
+        out = F[ends].copy()
+        for k in range(M):
+            u = np.zeros(len(starts))
+            if presample == "mean":
+                for i in range(k + 1, p + 1):
+                    u += alpha[i - 1] * (sbar - E2p[L0 + k - i + M])
+                    if asym:
+                        u += gamma[i - 1] * (nbar - N2p[L0 + k - i + M])
+            for j in range(k + 1, q + 1):
+                u += beta[j - 1] * (sbar - Fp[L0 + k - j + M])
+            ok = span >= k  # the window reaches this step
+            out[ok] += g[span[ok] - k] * u[ok]
+        return out
 
     # ------------------------------------------------------------------ summary figures
     def _persistence(self, vp, eta, dist):

@@ -28,6 +28,7 @@ the shocks' distribution read it, the others ignore it).
 | ``_starts``, ``_target``, ``_sum_rule``, ``_hold`` | what the estimator needs: start values, variance targeting, the implied weight |
 | ``_filter_start`` (and optionally a faster ``_filter``) | the recursion one observation at a time, for a mean that reads sigma[t] (GARCH-in-mean) |
 | ``_bad_shift`` | where an intercept series (variance regressors) leaves the family's domain (``takes_shift`` families) |
+| ``_window_forecasts`` | the one-step variance after each of many windows of one residual series, without re-filtering each (``window_forecasts`` families) |
 
 Intercept series (variance regressors).  A family with ``takes_shift = True`` adds a series
 ``shift`` (one value per likelihood position, or per forecast step) to the intercept of its
@@ -129,6 +130,10 @@ class VarianceFamily:
     has_long_run: bool = False
     #: the recursion adds a per-observation series to its intercept (variance regressors)
     takes_shift: bool = False
+    #: ``_window_forecasts`` gives, for many windows of one residual series, the variance the
+    #: recursion run on each window alone gives one step after it, without re-filtering each
+    #: window (a walk-forward evaluation asks; the others re-filter every window)
+    window_forecasts: bool = False
 
     def __init__(self, p: int = 0, q: int = 0):
         self.p = int(p)
@@ -315,6 +320,31 @@ class VarianceFamily:
 
     def _bad_shift(self, vp, shift):
         return np.zeros(shift.shape, dtype=bool)
+
+    # ------------------------------------------------------------------ many windows at once
+    def window_forecast(self, vp, e, starts, ends, presample: str = "mean", shift=None) -> np.ndarray:
+        """For each window ``e[starts[k]:ends[k]]`` of the residual series ``e``, the variance at
+        position ``ends[k]`` that :meth:`variance` run on that window alone (its own presample)
+        and then one step more gives: the one-step forecast after the window, the same number as
+        re-filtering the window, up to rounding.  ``shift`` (``takes_shift`` families) is the
+        intercept series on every residual position of ``e``; each ``ends[k]`` must be a position
+        of ``e`` (the residual there is not read).  Only for ``window_forecasts`` families."""
+        if not self.window_forecasts:
+            raise NotImplementedError(f"{self.canonical} re-filters each window")
+        if presample not in ("mean", "drop"):
+            raise ValueError(f"presample must be mean or drop, got {presample}")
+        e = np.asarray(e, dtype=float)
+        starts = np.asarray(starts, dtype=int)
+        ends = np.asarray(ends, dtype=int)
+        s0 = self.arch_lags if presample == "drop" else 0
+        if starts.shape != ends.shape or np.any(starts < 0) or np.any(ends >= len(e)) or np.any(ends - starts <= s0):
+            raise ValueError("windows must lie inside the residual series, each ending before its last position "
+                             "and longer than the lags it drops")
+        kw = self._shift_kw(shift, len(e))
+        return self._window_forecasts(self._vp(vp), e, starts, ends, presample, **kw)
+
+    def _window_forecasts(self, vp, e, starts, ends, presample):  # pragma: no cover - window_forecasts families
+        raise NotImplementedError
 
     # ------------------------------------------------------------------ one observation at a time
     def filter(self, vp, u, step, presample: str = "mean", eta=(), dist=None, shift=None):
