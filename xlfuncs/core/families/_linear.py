@@ -509,12 +509,7 @@ class LinearFamily(VarianceFamily):
         ga = [float(g) for g in gamma] if asym else [0.0] * p
         be = [float(b) for b in beta]
         n = len(u)
-        s0 = p if presample == "drop" else 0
-        level = float(np.mean(u * u))
-        e = [0.0] * n
-        for t in range(s0):
-            e[t] = float(step(t, level))
-        st = self._filter_start(vp, eta, dist, u, e[:s0], presample)
+        e, s0, st = self._filter_begin(vp, u, step, presample, eta, dist)
         e2 = [float(x) for x in st.e2][::-1]  # newest first
         n2 = [float(x) for x in st.n2][::-1]
         s2 = [float(x) for x in st.s2][::-1]

@@ -365,15 +365,23 @@ class VarianceFamily:
         kw = self._shift_kw(shift, self._lik_length(len(u), presample))
         return self._filter(self._vp(vp), u, step, presample, np.asarray(eta, dtype=float), dist, **kw)
 
-    def _filter(self, vp, u, step, presample, eta, dist, shift=None):
-        """The generic loop: the simulation hooks on one path from ``_filter_start``'s state."""
+    def _filter_begin(self, vp, u, step, presample, eta, dist):
+        """The lag-only positions and the start of a one-observation filter: (residuals as a list,
+        their first ``s0`` filled by ``step`` at the presample level mean(u^2), ``s0``, the state
+        :meth:`_filter_start` gives)."""
         n = len(u)
         s0 = self.arch_lags if presample == "drop" else 0
         level = float(np.mean(u * u))
-        e = np.empty(n)
+        e = [0.0] * n
         for t in range(s0):
-            e[t] = step(t, level)
-        state = self._filter_start(vp, eta, dist, u, e[:s0], presample)
+            e[t] = float(step(t, level))
+        return e, s0, self._filter_start(vp, eta, dist, u, e[:s0], presample)
+
+    def _filter(self, vp, u, step, presample, eta, dist, shift=None):
+        """The generic loop: the simulation hooks on one path from ``_filter_start``'s state."""
+        n = len(u)
+        e, s0, state = self._filter_begin(vp, u, step, presample, eta, dist)
+        e = np.asarray(e)
         out = np.empty(n - s0)
         kw = {}
         for t in range(s0, n):

@@ -636,12 +636,7 @@ class Egarch(VarianceFamily):
         ga = [float(g) for g in gamma]
         be = [float(b) for b in beta]
         n = len(u)
-        s0 = p if presample == "drop" else 0
-        level = float(np.mean(u * u))
-        e = [0.0] * n
-        for t in range(s0):
-            e[t] = float(step(t, level))
-        st = self._filter_start(vp, eta, dist, u, e[:s0], presample)
+        e, s0, st = self._filter_begin(vp, u, step, presample, eta, dist)
         kappa = st.kappa
         g, zz, lv = list(st.g), list(st.z), list(st.lv)  # newest last
         om = [float(omega)] * (n - s0) if shift is None else (float(omega) + shift).tolist()
