@@ -174,7 +174,7 @@ def _fmt(v) -> str:
     if isinstance(v, int):
         return str(v)
     if isinstance(v, float):
-        return f"{v:.6g}" if abs(v) >= 1e-4 or v == 0 else f"{v:.4e}"
+        return f"{v:.6g}" if abs(v) >= 1e-4 or v == 0 else f"{v:.5e}"  # six significant digits either way
     return str(v)
 
 
