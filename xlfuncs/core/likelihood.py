@@ -255,6 +255,79 @@ class Likelihood:
             g[k - nd:] = self.dist.dlogpdf_dparams(z, eta).sum(axis=1)
         return val, g
 
+    # ------------------------------------------------------------------ second derivatives
+    @property
+    def has_hessian(self) -> bool:
+        """The analytic Hessian applies: a family with second derivatives through its recursion
+        and residuals linear in the mean parameters (no MA part, no in-mean term)."""
+        return self.linear and self.family.has_second and self.mean.ma is None
+
+    def hessian(self, theta):
+        """(terms l, scores G nobs x k, Hessian k x k) of the log-likelihood, analytic.
+
+        With z = e / sigma, l_t = psi(z_t, eta) - log(sigma2_t) / 2 (psi the log density):
+
+            d2 l = psi_zz dz dz' + psi_z d2z + psi_zeta (dz deta' + deta dz') + psi_etaeta deta deta'
+                   + D D' / (2 sigma2^2) - d2 sigma2 / (2 sigma2)
+            dz   = de / sigma - z D / (2 sigma2)
+            d2z  = -(de D' + D de') / (2 sigma^3) + 3 z D D' / (4 sigma2^2) - z d2 sigma2 / (2 sigma2)
+
+        (de, D: the residuals' and the variances' first derivatives; the residuals are linear in
+        the mean parameters).  The terms in d2 sigma2 add up to sum_t w_t d2 sigma2_t with the
+        gradient's weights w_t = -(psi_z z + 1) / (2 sigma2), which the family gives by the
+        adjoint of its recursion (:meth:`VarianceFamily.second`): one backward filter, not k^2.
+        """
+        k = self.k
+        nd = self._nd
+        fam = self.family
+        eta = theta[k - nd:]
+        e, de = self.residuals(theta, derivs=True)
+        if de is None:
+            de = np.zeros((0, self.n))
+        shift = self.shift(theta)
+        kw = {} if shift is None else {"shift": shift, "dshift": self.Z}
+        sig2, Dfam = fam.derivatives(theta[self._vs], e, de, self.presample, eta, self.dist, **kw)
+        bad = (np.full(self.nobs, np.nan), np.full((self.nobs, k), np.nan), np.full((k, k), np.nan))
+        if not sig2.min() > 0 or not self.intercept_ok(theta):
+            return bad
+        state = fam.forward(theta[self._vs], e, self.presample, shift=shift)
+        es = e[self.s0:]
+        nm = self.n_mean
+        kv = k - nd  # mean, variance and shift rows
+        with np.errstate(all="ignore"):
+            sd = np.sqrt(sig2)
+            z = es / sd
+            l = self.dist.logpdf(z, eta) - np.log(sd)
+            fz = self.dist.dlogpdf_dz(z, eta)
+            fzz, fzp, fpp = self.dist.d2logpdf(z, eta)
+        w = -0.5 * (fz * z + 1.0) / sig2
+        D = Dfam[:kv]
+        des = np.zeros((kv, self.nobs))
+        des[:nm] = de[:, self.s0:]
+        gm = des[:nm] @ (fz / sd) if nm else None
+        fam.adjoint(state, w, de, gm if gm is not None else np.zeros(0),
+                    **({} if shift is None else {"dshift": self.Z}))
+        S = fam.second(state, D, de)
+        # scores
+        G = np.zeros((k, self.nobs))
+        G[:kv] = w * D + (fz / sd) * des
+        if nd:
+            G[kv:] = self.dist.dlogpdf_dparams(z, eta)
+        # Hessian
+        inv2 = 1.0 / (sig2 * sig2)
+        dz = des / sd - (0.5 * z / sig2) * D
+        H = np.zeros((k, k))
+        cross = (-0.5 * fz / (sig2 * sd) * des) @ D.T
+        H[:kv, :kv] = (fzz * dz) @ dz.T + cross + cross.T + ((0.75 * fz * z + 0.5) * inv2 * D) @ D.T + S
+        if nd:
+            H[kv:, :kv] = fzp @ dz.T
+            H[:kv, kv:] = H[kv:, :kv].T
+            H[kv:, kv:] = fpp.sum(axis=-1)
+        H = 0.5 * (H + H.T)
+        if not (np.all(np.isfinite(H)) and np.all(np.isfinite(l))):
+            return bad
+        return l, G.T, H
+
     # ------------------------------------------------------------------ series
     def series(self, theta):
         """Residuals on [a, T) and conditional variances on the likelihood positions."""

@@ -236,6 +236,7 @@ class LinearFamily(VarianceFamily):
         alpha, gamma = st.alpha, st.gamma
         P, N, m, sbar = st.P, st.N, st.m, st.sbar
         lam = linear_filter(st.den, np.ascontiguousarray(w[::-1]))[::-1] if q else w
+        st.lam = lam  # kept for the second derivatives (:meth:`_second`)
         g = np.zeros(1 + p * (2 if asym else 1) + q)
         g[0] = lam.sum()
         for i in range(1, p + 1):
@@ -272,6 +273,73 @@ class LinearFamily(VarianceFamily):
         J = self._jacobian(st.vp)
         g = g if J is None else J.T @ g
         return g if dshift is None else np.concatenate([g, dshift @ lam])
+
+    # ------------------------------------------------------------------ second derivatives
+    @property
+    def has_second(self):
+        """The second derivatives by :meth:`_second` (families whose parameters are the linear
+        coefficients themselves; a map with a Jacobian of its own goes by differences)."""
+        return type(self)._jacobian is LinearFamily._jacobian
+
+    def _second(self, st, D, de):
+        """sum_t w_t d2 sigma2_t / d(mean, coefficients, shift)^2, after :meth:`_adjoint` ran on
+        ``st`` with the weights w (the adjoint variables lam are on the state).
+
+        Differentiating the recursion twice, d2 sigma2_t = RHS2_t + sum_j beta_j d2 sigma2_{t-j},
+        with RHS2_t = sum_i [alpha_i d2 P_{t-i} + gamma_i d2 N_{t-i}] + sym(e_alpha_i dP_{t-i}' +
+        e_gamma_i dN_{t-i}') + sum_j sym(e_beta_j D_{t-j}'); so, as for the gradient, sum_t w_t
+        d2 sigma2_t = sum_t lam_t RHS2_t plus the presample's share.  The residuals are linear in
+        the mean parameters (no MA part): d2 e2 = 2 de de'.  ``D``: the forward derivatives
+        (rows: mean parameters, coefficients, shift's parameters), ``de``: the residuals'."""
+        p, q = self.p, self.q
+        asym = self.asymmetric
+        lam, m = st.lam, st.m
+        nm = de.shape[0]
+        kk = D.shape[0]
+        S = np.zeros((kk, kk))
+        if nm:
+            e = st.e
+            mean_mode = st.mean_mode
+            inv_n = 1.0 / len(e)
+            dE2 = 2.0 * e * de
+            dsbar = dE2.sum(axis=1) * inv_n
+            d2sbar = 2.0 * (de @ de.T) * inv_n
+            if asym:
+                neg = st.neg
+                dN2 = np.where(neg, dE2, 0.0)
+                dnbar = dN2.sum(axis=1) * inv_n
+                den_ = de[:, neg]
+                d2nbar = 2.0 * (den_ @ den_.T) * inv_n
+            for i in range(1, p + 1):
+                lo, hi = p - i, p - i + m  # window in padded coordinates
+                if mean_mode:
+                    pre = max(0, p - lo)
+                    x0, x1 = max(lo - p, 0), hi - p
+                    lpre = lam[:pre].sum()
+                else:
+                    pre, x0, x1, lpre = 0, lo, hi, 0.0
+                lw = lam[pre:]
+                dew = de[:, x0:x1]
+                first = dE2[:, x0:x1] @ lw + dsbar * lpre
+                S[:nm, nm + i] += first
+                S[nm + i, :nm] += first
+                S[:nm, :nm] += st.alpha[i - 1] * (2.0 * (dew * lw) @ dew.T + d2sbar * lpre)
+                if asym:
+                    firstn = dN2[:, x0:x1] @ lw + dnbar * lpre
+                    S[:nm, nm + p + i] += firstn
+                    S[nm + p + i, :nm] += firstn
+                    lwn = np.where(neg[x0:x1], lw, 0.0)
+                    S[:nm, :nm] += st.gamma[i - 1] * (2.0 * (dew * lwn) @ dew.T + d2nbar * lpre)
+            if q:
+                S[:nm, :nm] += d2sbar * (lam[:q] @ st.tail)
+        off = nm + 1 + p * (2 if asym else 1)
+        for j in range(1, q + 1):
+            v = D[:, : m - j] @ lam[j:]
+            if nm:
+                v[:nm] += dsbar * lam[:j].sum()  # the presample variance's derivatives
+            S[off + j - 1] += v
+            S[:, off + j - 1] += v
+        return S
 
     # ------------------------------------------------------------------ many windows at once
     def _window_forecasts(self, vp, e, starts, ends, presample, shift=None):

@@ -118,6 +118,9 @@ class VarianceFamily:
     log_variance: bool = False
     #: the gradient by the adjoint of the recursion (else the likelihood sums the forward scores)
     has_adjoint: bool = False
+    #: the second derivatives of sum_t w_t sigma2_t by the adjoint (``_second``), for the
+    #: likelihood's analytic Hessian (else the estimator differentiates the analytic gradient)
+    has_second: bool = False
     #: the weights are held to sum to one, the last one implied (IGARCH)
     integrated: bool = False
     #: a maximum on the stationarity bound is re-estimated there with the weights held just below one
@@ -311,6 +314,14 @@ class VarianceFamily:
         if dshift is None:
             return self._adjoint(state, w, de, gm)
         return self._adjoint(state, w, de, gm, dshift=np.asarray(dshift, dtype=float))
+
+    def second(self, state, D, de):
+        """sum_t w_t d2 sigma2_t / d(mean, variance, shift parameters)^2 after :meth:`adjoint` ran
+        on ``state`` with the weights w; ``D`` the forward derivatives (:meth:`derivatives`),
+        ``de`` the residuals' derivatives."""
+        if not self.has_second:
+            raise NotImplementedError(f"{self.canonical} has no analytic second derivatives")
+        return self._second(state, D, de)
 
     def bad_shift(self, vp, shift) -> np.ndarray:
         """Where the intercept plus ``shift`` leaves the family's domain (a boolean per value;
