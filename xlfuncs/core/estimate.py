@@ -11,9 +11,12 @@ order one, with the likelihood returning a large finite penalty outside the admi
 (the family's: persistence >= 1, a negative GJR news coefficient; and a non-stationary AR or
 non-invertible MA part), so a line search simply backs off.  Everything that depends on the
 variance family -- start values, bounds, admissibility, the implied weight, variance targeting --
-comes from :mod:`xlfuncs.core.families`; this module holds no branch on a family's name.  It then polishes by Newton steps on a central-difference Hessian of the analytic
-gradient until the Newton decrement is below 1e-10, which pins every estimate far beyond its
-seventh significant digit.  ``converged`` is TRUE only if that test passes.
+comes from :mod:`xlfuncs.core.families`; this module holds no branch on a family's name.  It then polishes by Newton steps on the Hessian
+until the Newton decrement is below 1e-10, which pins every estimate far beyond its seventh
+significant digit.  ``converged`` is TRUE only if that test passes.  The Hessian is in closed
+form where the likelihood has it (:meth:`Likelihood.hessian`), else differences of the analytic
+gradient; the standard errors' Hessian is recomputed at the estimate (closed form, or
+Richardson-extrapolated central differences: eight digits and more).
 """
 
 from __future__ import annotations
