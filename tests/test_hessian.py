@@ -70,6 +70,9 @@ MODELS = [
     ("AR(2)-GARCH(1,2)", "t", "presample=drop"),
     ("IGARCH(1,1)", "ged", ""),
     ("GARCH(1,1)", "skewt", "xvar=1"),
+    ("MA(1)-GARCH(1,1)", "normal", ""),
+    ("ARMA(1,1)-GJR-GARCH(1,1)", "t", ""),
+    ("ARMA(2,2)-GJR-GARCH(2,1)", "skewt", "presample=drop"),
 ]
 
 
@@ -102,9 +105,9 @@ def test_closed_form_hessian_against_differenced_gradient(dmbp, model, dist, opt
 
 
 def test_families_without_closed_form_go_by_differences(dmbp):
-    """An MA part (second derivatives of the residuals) and a family with a Jacobian of its own
-    (EWMA) are not served by the closed form; their standard errors still come out."""
-    for model in ("MA(1)-GARCH(1,1)", "EWMA"):
+    """A family with a Jacobian of its own (EWMA, the component model) is not served by the
+    closed form; its standard errors still come out."""
+    for model in ("EWMA", "CGARCH(1,1)"):
         f = fit(dmbp, model, "normal")
         lik = Likelihood(dmbp, f.spec, f.dist, "mean")
         assert not lik.has_hessian
