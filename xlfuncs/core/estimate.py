@@ -237,6 +237,7 @@ class _Problem:
         self.polish_tol = _NUMERIC_POLISH_TOL if lik.in_mean else _POLISH_TOL
         self.n_calls = 0
         self.last_second = None  # (u, terms, scores, Hessian) of the last closed-form pass
+        self.last_value = None  # (u, negll) of the last point scored
 
     def jacobian(self, theta):
         """d full / d u at ``theta``: the affine map A, and where the family holds a rule of its
@@ -284,12 +285,17 @@ class _Problem:
 
     # ----- objective -------------------------------------------------------------------
     def negll(self, u):
+        last = self.last_value
+        if last is not None and np.array_equal(last[0], u):
+            return last[1]  # the point a pass just scored (the estimate, scored again by _run)
         self.n_calls += 1
         theta = self.full(u)
         if not self.admissible(theta):
             return _PENALTY
         val = self.lik.loglik(theta)
-        return -val if math.isfinite(val) else _PENALTY
+        out = -val if math.isfinite(val) else _PENALTY
+        self.last_value = (np.array(u, dtype=float), out)
+        return out
 
     def scores_free(self, u):
         """(terms, per-observation scores nobs x n_free) at u; analytic or central differences."""
@@ -339,6 +345,8 @@ class _Problem:
         """(terms, scores nobs x n_free, Hessian n_free x n_free) at u in closed form; the map
         full = base + A u being affine, the chain rule is A' H A (no second-order term)."""
         l, G, H = self.lik.hessian(self.full(u))
+        val = float(l.sum())
+        self.last_value = (np.array(u, dtype=float), -val if math.isfinite(val) else _PENALTY)
         A = self.A
         return l, G @ A, A.T @ H @ A
 
@@ -608,7 +616,11 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     # and variance); otherwise the outer product of the scores
     fisher = problem.dist.name == "normal" and problem.analytic
 
-    def local(u):
+    def local(u, near=False):
+        if near:  # next to the hand-over: the closed-form pass, which the Newton steps reuse
+            l, G, H = problem.second(u)
+            problem.last_second = (u.copy(), l, G, H)
+            return float(l.sum()), G.sum(axis=0), G.T @ G
         theta = problem.full(u)
         if fisher:
             A = problem.jacobian(theta)
@@ -634,11 +646,14 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
             return None
         if dec < (_SCORING_EXACT if problem.exact_hessian else _SCORING_TOL):
             break
+        # a step from a decrement this small most likely ends below the hand-over: score its
+        # point by the closed-form pass the Newton steps start from, not a scoring pass more
+        near = problem.exact_hessian and dec < 10.0 * _SCORING_EXACT
         t = 1.0
         for _ in range(40):
             cand = u + t * step
             if inside(cand):
-                fc, gc, Bc = local(cand)
+                fc, gc, Bc = local(cand, near and t == 1.0)
                 if math.isfinite(fc) and fc > f + 1e-4 * t * dec:
                     break
             t *= 0.5
@@ -676,6 +691,9 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
     m = len(u)
 
     def at(v):  # (f, g, -H) at v
+        last = problem.last_second
+        if exact and last is not None and np.array_equal(last[0], v):
+            return float(last[1].sum()), last[2].sum(axis=0), -last[3]
         if exact:
             l, G, H = problem.second(v)
             problem.last_second = (v.copy(), l, G, H)
