@@ -643,6 +643,30 @@ class GED(Distribution):
         nz = z != 0.0
         return np.where(nz, -nu * w / np.where(nz, z, 1.0), 0.0)
 
+    def d2logpdf(self, z, params):
+        # with x = |z| / s(nu), L = log x, w = x^nu and dw/dnu = w (L - nu dlogs):
+        #   d2/dz dnu   = -w (1 + nu (L - nu dlogs)) / z
+        #   d2/dnu2     = -1/nu^2 - psi1(1/nu)/nu^4 - 2 psi(1/nu)/nu^3 - dd
+        #                 - w (L - nu dlogs)^2 + w (2 dlogs + nu dd),   dd = d(dlogs)/dnu
+        nu = float(params[0])
+        z = np.asarray(z, dtype=float)
+        logs = _ged_logscale(nu)
+        i1 = special.digamma(1.0 / nu)
+        i3 = special.digamma(3.0 / nu)
+        t1 = special.polygamma(1, 1.0 / nu)
+        t3 = special.polygamma(1, 3.0 / nu)
+        dlogs = (3.0 * i3 - i1) / (2.0 * nu * nu)
+        dd = (t1 - 9.0 * t3) / (2.0 * nu ** 4) - (3.0 * i3 - i1) / nu ** 3
+        nz = z != 0.0
+        x = np.where(nz, np.abs(z), 1.0) * math.exp(-logs)
+        w = np.where(nz, x ** nu, 0.0)
+        L = np.log(x)
+        c = L - nu * dlogs
+        zz = self._d2logpdf_dz2(z, np.array([nu]))
+        zp = np.where(nz, -w * (1.0 + nu * c) / np.where(nz, z, 1.0), 0.0)
+        pp = (-1.0 / nu ** 2 - t1 / nu ** 4 - 2.0 * i1 / nu ** 3 - dd) - w * c * c + w * (2.0 * dlogs + nu * dd)
+        return zz, zp[np.newaxis, ...], pp[np.newaxis, np.newaxis, ...]
+
     def _d2logpdf_dz2(self, z, p):
         # -nu (nu - 1) |z/s|^nu / z^2, taken as 0 at z = 0 (as the first derivative is)
         nu = float(p[0])

@@ -350,13 +350,14 @@ class _Problem:
         A = self.A
         return l, G @ A, A.T @ H @ A
 
-    def hessian(self, u, forward=False, g0=None, shrink=1.0):
+    def hessian(self, u, forward=False, g0=None, shrink=1.0, accurate=False):
         """Hessian of the log-likelihood in the free parameters: in closed form where the
-        likelihood has it (:attr:`exact_hessian`; ``forward`` and ``shrink`` are then moot), else
-        Richardson-extrapolated central differences of the analytic gradient (about ten correct
-        digits; ``forward=True``: plain forward differences, a quarter of the cost and about six
-        digits, enough to steer Newton steps), or second differences of the log-likelihood
-        itself where the gradient is numerical too."""
+        likelihood has it (:attr:`exact_hessian`; the other arguments are then moot), else
+        central differences of the analytic gradient (about seven correct digits, enough to steer
+        Newton steps; ``forward=True``: forward differences, half the cost and about six digits;
+        ``accurate=True``: Richardson-extrapolated, twice the cost and about ten digits, for the
+        standard errors), or second differences of the log-likelihood itself where the gradient
+        is numerical too."""
         m = len(u)
         H = np.zeros((m, m))
         if self.exact_hessian:
@@ -369,9 +370,16 @@ class _Problem:
                 up = u.copy()
                 up[j] += h
                 H[:, j] = (-self.fun_grad(up)[1] - g0) / h
-        elif self.analytic:
+        elif self.analytic and accurate:
             for j in range(m):
                 H[:, j] = self._richardson_column(u, j)
+        elif self.analytic:
+            for j in range(m):
+                h = self.steps[j]
+                up, dn = u.copy(), u.copy()
+                up[j] += h
+                dn[j] -= h
+                H[:, j] = (-self.fun_grad(up)[1] + self.fun_grad(dn)[1]) / (2 * h)
         else:
             f0 = -self.negll(u)
             hs = self.steps * 100.0
@@ -592,9 +600,11 @@ def _polish(problem: _Problem, u, scales, sbounds, max_steps=8):
 
 def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     """Scoring iterations with the outer product of the analytic scores (Berndt, Hall, Hall &
-    Hausman 1974), then Newton steps on a numerical Hessian of the analytic gradient.
+    Hausman 1974; the expected information for normal shocks), then Newton steps with step
+    control (:func:`_newton`) on the closed-form Hessian, or a differenced one of the analytic
+    gradient.
 
-    The fast path for models linear in lagged squares; returns None (the caller falls back on
+    The fast path for models with analytic scores; returns None (the caller falls back on
     L-BFGS-B) if it stalls, leaves the admissible region or ends near a bound.
     """
     from types import SimpleNamespace
@@ -1031,7 +1041,7 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
             _, G, H = problem.second(u)
     else:
         if problem.analytic and kind != "opg":
-            H = problem.hessian(u)
+            H = problem.hessian(u, accurate=True)
         _, G = problem.scores_free(u)
     if not np.all(np.isfinite(H)):
         return se, None
