@@ -156,6 +156,55 @@ class Distribution:
         """
         raise NotImplementedError
 
+    def d2logpdf(self, z, params):
+        """Second derivatives of :meth:`logpdf`: ``(zz, zp, pp)`` with ``zz`` d2/dz2 (shape of z),
+        ``zp`` d2/dz dparams (one row per shape parameter) and ``pp`` d2/dparams2 (k x k rows).
+
+        By default ``zz`` comes from :meth:`_d2logpdf_dz2` (Richardson-extrapolated central
+        differences of :meth:`dlogpdf_dz` unless a subclass has it in closed form) and ``zp``, ``pp``
+        from Richardson-extrapolated central differences of the analytic first derivatives in
+        the shape parameters (about eleven correct digits)."""
+        z = np.asarray(z, dtype=float)
+        p = np.array(_as_array(params), dtype=float).ravel() if np.size(params) else np.empty(0)
+        k = len(self.param_names)
+        zz = self._d2logpdf_dz2(z, p)
+        zp = np.empty((k,) + z.shape)
+        pp = np.empty((k, k) + z.shape)
+        piece = self._piece(z, p)  # a density in pieces is differenced on each point's own piece
+        for i in range(k):
+            lo, hi = self._domain[i]
+            h = 1e-3 * max(1.0, abs(p[i]))
+            h = min(h, 0.25 * (p[i] - lo), 0.25 * (hi - p[i]))
+
+            def diff(step):
+                up, dn = p.copy(), p.copy()
+                up[i] += step
+                dn[i] -= step
+                fu, gu = self._first(z, up, piece)
+                fd, gd = self._first(z, dn, piece)
+                return (fu - fd) / (2.0 * step), (gu - gd) / (2.0 * step)
+
+            (a1, b1), (a2, b2) = diff(h), diff(0.5 * h)
+            zp[i] = (4.0 * a2 - a1) / 3.0
+            pp[:, i] = (4.0 * b2 - b1) / 3.0
+        pp = 0.5 * (pp + np.swapaxes(pp, 0, 1))
+        return zz, zp, pp
+
+    def _piece(self, z, p):
+        """Which smooth piece of the density each z lies on (None: the density is one piece)."""
+        return None
+
+    def _first(self, z, p, piece):
+        """(d logpdf/dz, d logpdf/dparams) at z with shape parameters p, on the given pieces."""
+        return self.dlogpdf_dz(z, p), self.dlogpdf_dparams(z, p)
+
+    def _d2logpdf_dz2(self, z, p):
+        """d2 logpdf / dz2; Richardson-extrapolated central differences of :meth:`dlogpdf_dz`."""
+        h = 1e-3 * np.maximum(1.0, np.abs(z))
+        d1 = (self.dlogpdf_dz(z + h, p) - self.dlogpdf_dz(z - h, p)) / (2.0 * h)
+        d2 = (self.dlogpdf_dz(z + 0.5 * h, p) - self.dlogpdf_dz(z - 0.5 * h, p)) / h
+        return (4.0 * d2 - d1) / 3.0
+
     def pdf(self, z, params):
         """Density at ``z``."""
         return np.exp(self.logpdf(z, params))
@@ -260,6 +309,10 @@ class Normal(Distribution):
     def dlogpdf_dparams(self, z, params=()):
         return np.empty((0,) + np.shape(z))
 
+    def d2logpdf(self, z, params=()):
+        z = np.asarray(z, dtype=float)
+        return np.full(z.shape, -1.0), np.empty((0,) + z.shape), np.empty((0, 0) + z.shape)
+
     def abs_moment(self, params=()):
         return math.sqrt(2.0 / math.pi)
 
@@ -350,6 +403,18 @@ class StudentT(Distribution):
         d = _t_dlogc(nu) - 0.5 * np.log1p(z2 / k) + 0.5 * (nu + 1.0) * z2 / (k * (k + z2))
         return d[np.newaxis, ...]
 
+    def d2logpdf(self, z, params):
+        nu = float(params[0])
+        z = np.asarray(z, dtype=float)
+        k = nu - 2.0
+        z2 = z * z
+        q = k + z2
+        zz = -(nu + 1.0) * (k - z2) / (q * q)
+        zp = z * (3.0 - z2) / (q * q)
+        d2logc = 0.25 * (special.polygamma(1, 0.5 * (nu + 1.0)) - special.polygamma(1, 0.5 * nu)) + 0.5 / (k * k)
+        pp = d2logc + z2 / (k * q) - 0.5 * (nu + 1.0) * z2 * (2.0 * k + z2) / (k * k * q * q)
+        return zz, zp[np.newaxis, ...], pp[np.newaxis, np.newaxis, ...]
+
     def abs_moment(self, params):
         nu = float(params[0])
         # 2 * integral_0^inf z c (1 + z^2/(nu-2))^(-(nu+1)/2) dz = 2 c (nu-2)/(nu-1)
@@ -420,15 +485,38 @@ class SkewT(Distribution):
         return math.log(b * c) - 0.5 * (nu + 1.0) * np.log1p(y * y / (nu - 2.0))
 
     def dlogpdf_dz(self, z, params):
+        return self._dz(np.asarray(z, dtype=float), params, None)
+
+    def _dz(self, z, params, lower):
         nu = float(params[0])
         lam = float(params[1])
         _, a, b = _skewt_constants(nu, lam)
-        z = np.asarray(z, dtype=float)
-        d = np.where(b * z + a < 0.0, 1.0 - lam, 1.0 + lam)
+        if lower is None:
+            lower = b * z + a < 0.0
+        d = np.where(lower, 1.0 - lam, 1.0 + lam)
         y = (b * z + a) / d
         return -(nu + 1.0) * y * b / (d * (nu - 2.0 + y * y))
 
+    def _piece(self, z, p):
+        _, a, b = _skewt_constants(float(p[0]), float(p[1]))
+        return b * z + a < 0.0
+
+    def _first(self, z, p, piece):
+        return self._dz(z, p, piece), self._dparams(z, p, piece)
+
+    def _d2logpdf_dz2(self, z, p):
+        nu = float(p[0])
+        lam = float(p[1])
+        _, a, b = _skewt_constants(nu, lam)
+        d = np.where(b * z + a < 0.0, 1.0 - lam, 1.0 + lam)
+        y = (b * z + a) / d
+        q = nu - 2.0 + y * y
+        return -(nu + 1.0) * (b / d) ** 2 * (nu - 2.0 - y * y) / (q * q)
+
     def dlogpdf_dparams(self, z, params):
+        return self._dparams(np.asarray(z, dtype=float), params, None)
+
+    def _dparams(self, z, params, lower):
         nu = float(params[0])
         lam = float(params[1])
         c, a, b = _skewt_constants(nu, lam)
@@ -441,8 +529,8 @@ class SkewT(Distribution):
         db_nu = -a * da_nu / b
         db_lam = (3.0 * lam - a * da_lam) / b
 
-        z = np.asarray(z, dtype=float)
-        lower = b * z + a < 0.0
+        if lower is None:
+            lower = b * z + a < 0.0
         sgn = np.where(lower, -1.0, 1.0)
         d = 1.0 + lam * sgn
         y = (b * z + a) / d
@@ -554,6 +642,37 @@ class GED(Distribution):
         # for nu <= 1, where only one-sided derivatives exist)
         nz = z != 0.0
         return np.where(nz, -nu * w / np.where(nz, z, 1.0), 0.0)
+
+    def d2logpdf(self, z, params):
+        # with x = |z| / s(nu), L = log x, w = x^nu and dw/dnu = w (L - nu dlogs):
+        #   d2/dz dnu   = -w (1 + nu (L - nu dlogs)) / z
+        #   d2/dnu2     = -1/nu^2 - psi1(1/nu)/nu^4 - 2 psi(1/nu)/nu^3 - dd
+        #                 - w (L - nu dlogs)^2 + w (2 dlogs + nu dd),   dd = d(dlogs)/dnu
+        nu = float(params[0])
+        z = np.asarray(z, dtype=float)
+        logs = _ged_logscale(nu)
+        i1 = special.digamma(1.0 / nu)
+        i3 = special.digamma(3.0 / nu)
+        t1 = special.polygamma(1, 1.0 / nu)
+        t3 = special.polygamma(1, 3.0 / nu)
+        dlogs = (3.0 * i3 - i1) / (2.0 * nu * nu)
+        dd = (t1 - 9.0 * t3) / (2.0 * nu ** 4) - (3.0 * i3 - i1) / nu ** 3
+        nz = z != 0.0
+        x = np.where(nz, np.abs(z), 1.0) * math.exp(-logs)
+        w = np.where(nz, x ** nu, 0.0)
+        L = np.log(x)
+        c = L - nu * dlogs
+        zz = self._d2logpdf_dz2(z, np.array([nu]))
+        zp = np.where(nz, -w * (1.0 + nu * c) / np.where(nz, z, 1.0), 0.0)
+        pp = (-1.0 / nu ** 2 - t1 / nu ** 4 - 2.0 * i1 / nu ** 3 - dd) - w * c * c + w * (2.0 * dlogs + nu * dd)
+        return zz, zp[np.newaxis, ...], pp[np.newaxis, np.newaxis, ...]
+
+    def _d2logpdf_dz2(self, z, p):
+        # -nu (nu - 1) |z/s|^nu / z^2, taken as 0 at z = 0 (as the first derivative is)
+        nu = float(p[0])
+        w = np.abs(z * math.exp(-_ged_logscale(nu))) ** nu
+        nz = z != 0.0
+        return np.where(nz, -nu * (nu - 1.0) * w / np.where(nz, z * z, 1.0), 0.0)
 
     def dlogpdf_dparams(self, z, params):
         nu = float(params[0])

@@ -33,6 +33,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from scipy.signal import lfilter
 
 from .distributions import Distribution
 from .mean import MeanModel, check_regressors
@@ -254,6 +255,111 @@ class Likelihood:
         if nd:
             g[k - nd:] = self.dist.dlogpdf_dparams(z, eta).sum(axis=1)
         return val, g
+
+    # ------------------------------------------------------------------ second derivatives
+    @property
+    def has_hessian(self) -> bool:
+        """The analytic Hessian applies: a family with second derivatives through its recursion
+        (no in-mean term)."""
+        return self.linear and self.family.has_second
+
+    def hessian(self, theta):
+        """(terms l, scores G nobs x k, Hessian k x k) of the log-likelihood, analytic.
+
+        With z = e / sigma, l_t = psi(z_t, eta) - log(sigma2_t) / 2 (psi the log density):
+
+            d2 l = psi_zz dz dz' + psi_z d2z + psi_zeta (dz deta' + deta dz') + psi_etaeta deta deta'
+                   + D D' / (2 sigma2^2) - d2 sigma2 / (2 sigma2)
+            dz   = de / sigma - z D / (2 sigma2)
+            d2z  = -(de D' + D de') / (2 sigma^3) + 3 z D D' / (4 sigma2^2) - z d2 sigma2 / (2 sigma2)
+
+        (de, D: the residuals' and the variances' first derivatives; the residuals are linear in
+        the mean parameters).  The terms in d2 sigma2 add up to sum_t w_t d2 sigma2_t with the
+        gradient's weights w_t = -(psi_z z + 1) / (2 sigma2), which the family gives by the
+        adjoint of its recursion (:meth:`VarianceFamily.second`): one backward filter, not k^2.
+        """
+        k = self.k
+        nd = self._nd
+        fam = self.family
+        eta = theta[k - nd:]
+        e, de = self.residuals(theta, derivs=True)
+        if de is None:
+            de = np.zeros((0, self.n))
+        shift = self.shift(theta)
+        state, D = fam.second_pass(theta[self._vs], e, de, self.presample, shift=shift,
+                                   dshift=self.Z if shift is not None else None)
+        sig2 = state.sig2
+        if not sig2.min() > 0 or not self.intercept_ok(theta):
+            return self._bad_hessian()
+        es = e[self.s0:]
+        nm = self.n_mean
+        kv = k - nd  # mean, variance and shift rows
+        dist = self.dist
+        with np.errstate(all="ignore"):
+            sd = np.sqrt(sig2)
+            isig2 = 1.0 / sig2
+            z = es / sd
+            l = dist.logpdf(z, eta) - np.log(sd)
+            fz = dist.dlogpdf_dz(z, eta)
+            fzz, fzp, fpp = dist.d2logpdf(z, eta)
+        fzz_z = fz * z
+        w = -0.5 * (fzz_z + 1.0) * isig2
+        des = de[:, self.s0:]  # the residuals' derivatives (mean rows only)
+        S, ce = fam.second(state, D, de, w)
+        if nm and self.mean.ma is not None:
+            # the residuals' second derivatives (an MA part): sum_s c_s d2 e_s with c the
+            # family's weights plus psi_z / sigma on the likelihood positions
+            ce[self.s0:] += fz / sd
+            S[:nm, :nm] += self._ma_second(theta, de, ce)
+        # scores
+        G = np.empty((k, self.nobs))
+        G[:kv] = w * D
+        if nm:
+            G[:nm] += (fz / sd) * des
+        if nd:
+            G[kv:] = dist.dlogpdf_dparams(z, eta)
+        # Hessian, with a = z / (2 sigma2) so that dz = de / sigma - a D: the D D' terms
+        # psi_zz a^2 + (3/4 psi_z z + 1/2) / sigma2^2 gathered in one weight
+        a = 0.5 * z * isig2
+        H = np.empty((k, k))
+        H[:kv, :kv] = ((fzz * a * a + (0.75 * fzz_z + 0.5) * isig2 * isig2) * D) @ D.T + S
+        if nm:
+            isd = 1.0 / sd
+            cross = des @ ((-(fzz * a + 0.5 * fz * isig2) * isd) * D).T  # nm x kv
+            H[:nm, :kv] += cross
+            H[:kv, :nm] += cross.T
+            H[:nm, :nm] += (fzz * isig2 * des) @ des.T
+        if nd:
+            dz = -a * D
+            if nm:
+                dz[:nm] += des * isd
+            H[kv:, :kv] = fzp @ dz.T
+            H[:kv, kv:] = H[kv:, :kv].T
+            H[kv:, kv:] = fpp.sum(axis=-1)
+        H = 0.5 * (H + H.T)
+        if not (np.all(np.isfinite(H)) and np.all(np.isfinite(l))):
+            return self._bad_hessian()
+        return l, G.T, H
+
+    def _ma_second(self, theta, de, c):
+        """sum_s c_s d2 e_s / d(mean)^2 for residuals through the MA filter e_s = w_s - sum_j
+        theta_j e_{s-j}: d2 e = filter(RHS2) with RHS2_s[a, theta_j] = -de_{s-j}[a] (and its
+        transpose), so the sum is sum_s mu_s RHS2_s with mu the filter run backwards over c."""
+        mean = self.mean
+        nm = self.n_mean
+        den = mean.ma.den(theta[mean.ma_idx])
+        mu = lfilter([1.0], den, c[::-1])[::-1]
+        R = np.zeros((nm, nm))
+        n = len(c)
+        for j, idx in enumerate(mean.ma_idx, start=1):
+            v = -(de[:, : n - j] @ mu[j:])
+            R[:, idx] += v
+            R[idx, :] += v
+        return R
+
+    def _bad_hessian(self):
+        k = self.k
+        return np.full(self.nobs, np.nan), np.full((self.nobs, k), np.nan), np.full((k, k), np.nan)
 
     # ------------------------------------------------------------------ series
     def series(self, theta):

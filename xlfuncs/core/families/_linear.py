@@ -160,11 +160,25 @@ class LinearFamily(VarianceFamily):
         return self._run(omega, alpha, gamma, beta, P, N, sbar, shift)[0]
 
     def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
+        return self._derivatives_state(vp, e, de, presample, shift, dshift)[:2]
+
+    def _second_pass(self, vp, e, de, presample, shift=None, dshift=None):
+        _, D, st = self._derivatives_state(vp, e, de, presample, shift, dshift)
+        return st, D
+
+    def _derivatives_state(self, vp, e, de, presample, shift=None, dshift=None):
+        """(sigma2, D, the state :meth:`_adjoint` and :meth:`_second` read)."""
         omega, alpha, gamma, beta = self._coefficients(vp)
         p, q = self.p, self.q
         asym = self.asymmetric
         e2, sbar, neg, P, N = self._inputs(e, presample, np.mean)
         sig2, den, tail, m = self._run(omega, alpha, gamma, beta, P, N, sbar, shift)
+        st = _State()
+        st.e, st.vp = e, vp
+        st.omega, st.alpha, st.gamma, st.beta = omega, alpha, gamma, beta
+        st.mean_mode = presample == "mean"
+        st.sbar, st.neg, st.P, st.N = sbar, neg, P, N
+        st.sig2, st.den, st.tail, st.m = sig2, den, tail, m
         # D_t = RHS_t + sum_j beta_j D_{t-j}; rows: mean parameters, the linear coefficients,
         # then the shift's parameters (their RHS is the shift's derivative, as omega's is 1)
         nm = de.shape[0]
@@ -208,14 +222,11 @@ class LinearFamily(VarianceFamily):
             lag[:j] = sbar
             lag[j:] = sig2[:-j]
             RHS[off + j - 1] = lag
-        if q:
-            D, _ = lfilter([1.0], den, RHS, axis=1, zi=ZI)
-        else:
-            D = RHS
+        D = linear_filter(den, RHS, ZI) if q else RHS
         J = self._jacobian(vp)
         if J is not None:
             D = np.concatenate([D[:nm], J.T @ D[nm: nm + n_lin], D[nm + n_lin:]])
-        return sig2, D
+        return sig2, D, st
 
     # ------------------------------------------------------------------ adjoint
     def _forward(self, vp, e, presample, shift=None):
@@ -272,6 +283,89 @@ class LinearFamily(VarianceFamily):
         J = self._jacobian(st.vp)
         g = g if J is None else J.T @ g
         return g if dshift is None else np.concatenate([g, dshift @ lam])
+
+    # ------------------------------------------------------------------ second derivatives
+    @property
+    def has_second(self):
+        """The second derivatives by :meth:`_second` (families whose parameters are the linear
+        coefficients themselves; a map with a Jacobian of its own goes by differences)."""
+        return type(self)._jacobian is LinearFamily._jacobian
+
+    def _second(self, st, D, de, w):
+        """(S, ce): S = sum_t w_t d2 sigma2_t / d(mean, coefficients, shift)^2 for the weights w
+        on the state of :meth:`_second_pass`, less the residuals' own second derivatives, which it
+        gives as weights ce on the residuals: the whole is S + sum_s ce_s d2 e_s (the mean model
+        contracts that; it is zero where the residuals are linear in the mean parameters).
+
+        Differentiating the recursion twice, d2 sigma2_t = RHS2_t + sum_j beta_j d2 sigma2_{t-j},
+        with RHS2_t = sum_i [alpha_i d2 P_{t-i} + gamma_i d2 N_{t-i}] + sym(e_alpha_i dP_{t-i}' +
+        e_gamma_i dN_{t-i}') + sum_j sym(e_beta_j D_{t-j}'); so, as for the gradient, sum_t w_t
+        d2 sigma2_t = sum_t lam_t RHS2_t plus the presample's share, lam the adjoint variables.
+        d2 e2 = 2 de de' + 2 e d2e.  ``D``: the forward derivatives (rows: mean parameters,
+        coefficients, shift's parameters), ``de``: the residuals'."""
+        p, q = self.p, self.q
+        asym = self.asymmetric
+        m = st.m
+        # the adjoint variables: the recursion's filter run backwards over the weights
+        lam = linear_filter(st.den, np.ascontiguousarray(w[::-1]))[::-1] if q else w
+        nm = de.shape[0]
+        kk = D.shape[0]
+        S = np.zeros((kk, kk))
+        ce = None
+        if nm:
+            e = st.e
+            ce = np.zeros(len(e))
+            k_sbar = 0.0  # the weights of d2 sbar and d2 nbar (presample)
+            k_nbar = 0.0
+            mean_mode = st.mean_mode
+            inv_n = 1.0 / len(e)
+            dE2 = 2.0 * e * de
+            dsbar = dE2.sum(axis=1) * inv_n
+            d2sbar = 2.0 * (de @ de.T) * inv_n
+            if asym:
+                neg = st.neg
+                dN2 = np.where(neg, dE2, 0.0)
+                dnbar = dN2.sum(axis=1) * inv_n
+                den_ = de[:, neg]
+                d2nbar = 2.0 * (den_ @ den_.T) * inv_n
+            for i in range(1, p + 1):
+                lo, hi = p - i, p - i + m  # window in padded coordinates
+                if mean_mode:
+                    pre = max(0, p - lo)
+                    x0, x1 = max(lo - p, 0), hi - p
+                    lpre = lam[:pre].sum()
+                else:
+                    pre, x0, x1, lpre = 0, lo, hi, 0.0
+                lw = lam[pre:]
+                dew = de[:, x0:x1]
+                first = dE2[:, x0:x1] @ lw + dsbar * lpre
+                S[:nm, nm + i] += first
+                S[nm + i, :nm] += first
+                S[:nm, :nm] += st.alpha[i - 1] * (2.0 * (dew * lw) @ dew.T + d2sbar * lpre)
+                ce[x0:x1] += (2.0 * st.alpha[i - 1]) * e[x0:x1] * lw
+                k_sbar += st.alpha[i - 1] * lpre
+                if asym:
+                    firstn = dN2[:, x0:x1] @ lw + dnbar * lpre
+                    S[:nm, nm + p + i] += firstn
+                    S[nm + p + i, :nm] += firstn
+                    lwn = np.where(neg[x0:x1], lw, 0.0)
+                    S[:nm, :nm] += st.gamma[i - 1] * (2.0 * (dew * lwn) @ dew.T + d2nbar * lpre)
+                    ce[x0:x1] += (2.0 * st.gamma[i - 1]) * e[x0:x1] * lwn
+                    k_nbar += st.gamma[i - 1] * lpre
+            if q:
+                S[:nm, :nm] += d2sbar * (lam[:q] @ st.tail)
+                k_sbar += lam[:q] @ st.tail
+            ce += (2.0 * inv_n * k_sbar) * e
+            if asym and k_nbar:
+                ce += np.where(neg, (2.0 * inv_n * k_nbar) * e, 0.0)
+        off = nm + 1 + p * (2 if asym else 1)
+        for j in range(1, q + 1):
+            v = D[:, : m - j] @ lam[j:]
+            if nm:
+                v[:nm] += dsbar * lam[:j].sum()  # the presample variance's derivatives
+            S[off + j - 1] += v
+            S[:, off + j - 1] += v
+        return S, ce
 
     # ------------------------------------------------------------------ many windows at once
     def _window_forecasts(self, vp, e, starts, ends, presample, shift=None):

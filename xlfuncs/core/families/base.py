@@ -118,6 +118,9 @@ class VarianceFamily:
     log_variance: bool = False
     #: the gradient by the adjoint of the recursion (else the likelihood sums the forward scores)
     has_adjoint: bool = False
+    #: the second derivatives of sum_t w_t sigma2_t by the adjoint (``_second``), for the
+    #: likelihood's analytic Hessian (else the estimator differentiates the analytic gradient)
+    has_second: bool = False
     #: the weights are held to sum to one, the last one implied (IGARCH)
     integrated: bool = False
     #: a maximum on the stationarity bound is re-estimated there with the weights held just below one
@@ -311,6 +314,25 @@ class VarianceFamily:
         if dshift is None:
             return self._adjoint(state, w, de, gm)
         return self._adjoint(state, w, de, gm, dshift=np.asarray(dshift, dtype=float))
+
+    def second_pass(self, vp, e, de, presample: str = "mean", shift=None, dshift=None):
+        """(state, D): the forward derivatives D as :meth:`derivatives` gives them, and the
+        recursion's state (``state.sig2`` the variances) that :meth:`second` reads."""
+        if not self.has_second:
+            raise NotImplementedError(f"{self.canonical} has no analytic second derivatives")
+        kw = self._shift_kw(shift, self._lik_length(len(e), presample))
+        if kw:
+            kw["dshift"] = np.asarray(dshift, dtype=float)
+        return self._second_pass(self._vp(vp), np.asarray(e, dtype=float), np.asarray(de, dtype=float), presample, **kw)
+
+    def second(self, state, D, de, w):
+        """sum_t w_t d2 sigma2_t / d(mean, variance, shift parameters)^2 for weights ``w`` on the
+        state of :meth:`second_pass` (``D`` its forward derivatives, ``de`` the residuals'), as
+        (S, ce): S with the residuals' second derivatives left out, and their weights ce (None
+        without mean parameters), the whole being S + sum_s ce_s d2 e_s / d(mean)^2."""
+        if not self.has_second:
+            raise NotImplementedError(f"{self.canonical} has no analytic second derivatives")
+        return self._second(state, D, de, np.asarray(w, dtype=float))
 
     def bad_shift(self, vp, shift) -> np.ndarray:
         """Where the intercept plus ``shift`` leaves the family's domain (a boolean per value;
