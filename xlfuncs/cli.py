@@ -495,7 +495,11 @@ def _cmd_batch(args) -> int:
 def _cmd_report(args) -> int:
     from .report import ReportError, read_csv, read_workbook, write_report
 
-    cmd = "volcast report " + " ".join(shlex.quote(a) for a in sys.argv[2:]) if len(sys.argv) > 2 else None
+    given = [("--column", args.column), ("--model", args.model), ("--dist", args.dist), ("--options", args.options),
+             ("--level", args.level)]
+    cmd = " ".join(["volcast report", shlex.quote(str(args.file)), "-o", shlex.quote(str(args.out))]
+                   + (["--levels"] if args.levels else [])
+                   + [f"{k} {shlex.quote(str(v))}" for k, v in given if v is not None])
     try:
         if str(args.file).lower().endswith((".xlsx", ".xlsm")):
             if args.column or args.levels or args.model or args.dist or args.options:

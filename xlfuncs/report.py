@@ -313,6 +313,8 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
         opts = parse_options(src.options)
     except VolcastError as exc:
         raise ReportError(excerpt(str(exc), 300)) from None
+    if not (isinstance(src.level, (int, float)) and 0.5 <= src.level < 1):
+        raise ReportError(f"the VaR level must be at least 0.5 and below 1, e.g. 0.99, got {src.level:g}")
     if spec.n_regressors or opts.xvar:
         raise ReportError("the report does not take models with regressors yet")
     if n < MIN_RETURNS:
@@ -429,7 +431,9 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
     shocks = np.linspace(-3 * sd, 3 * sd, 61)
     curve = _check_cells(sheet.VOLNEWS(fit_table, _cells(shocks)), "VOLNEWS")
     out["news"] = (shocks, np.array([c[0] for c in curve], dtype=float))
-    out["news_points"] = [(k, k * sd, float(np.interp(k * sd, shocks, out["news"][1]))) for k in (-2, -1, 0, 1, 2)]
+    pts = [k * sd for k in (-2, -1, 0, 1, 2)]
+    at = _check_cells(sheet.VOLNEWS(fit_table, _cells(pts)), "VOLNEWS")
+    out["news_points"] = [(k, e, float(v[0])) for k, e, v in zip((-2, -1, 0, 1, 2), pts, at)]
     out["news_sd"] = sd
 
     per_month = None
@@ -517,10 +521,15 @@ def _figures(src: Source, res: dict) -> dict:
             ax.fill_between(ex, est - 2 * se, est + 2 * se, color=navy, alpha=0.15, lw=0)
             ax.plot(ex, est, color=navy, lw=1.2, marker="o", ms=2.5)
             ax.axhline(full[nm], color=red, lw=1, ls="--")
-            # the axis follows the estimates: a window whose standard error explodes does not flatten the rest
+            # the axis follows the estimates and the typical band: a window whose standard error
+            # explodes does not flatten the rest
             fin = est[np.isfinite(est)]
             if fin.size:
                 lo, hi = min(fin.min(), full[nm]), max(fin.max(), full[nm])
+                band = np.isfinite(se)
+                if band.any():
+                    lo = min(lo, float(np.median((est - 2 * se)[band])))
+                    hi = max(hi, float(np.median((est + 2 * se)[band])))
                 pad = 0.15 * (hi - lo) or 0.1 * max(abs(hi), 1e-3)
                 ax.set_ylim(lo - pad, hi + pad)
             ax.set_title(nm, fontsize=9)
