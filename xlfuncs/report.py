@@ -354,8 +354,9 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
 
     # --- diagnostics, stability ---------------------------------------------------------------
     with clock.step("diagnostics and the Nyblom-Hansen stability test"):
-        out["tests"] = _check_cells(sheet.VOLTESTS(cells, fit_table), "VOLTESTS")
-        out["stability"] = _check_cells(sheet.VOLSTABILITY(cells, fit_table), "VOLSTABILITY")
+        # a test that cannot run says why in its section; the rest of the report still stands
+        out["tests"] = _soft(lambda: _check_cells(sheet.VOLTESTS(cells, fit_table), "VOLTESTS"))
+        out["stability"] = _soft(lambda: _check_cells(sheet.VOLSTABILITY(cells, fit_table), "VOLSTABILITY"))
 
     # --- rolling re-estimation: the windows shared by the parameter paths and the backtest ----
     window = max(spec.min_obs, n // 3)
@@ -383,9 +384,11 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
         try:
             bt = core_backtest(r, spec, dist, opts, window, level, "rolling", refit)
         except VolcastError as exc:
-            raise ReportError(f"the backtest: {excerpt(str(exc), 300)}") from None
+            bt = None
+            out["backtest_error"] = f"the backtest cannot be run: {excerpt(str(exc), 300)}"
+            clock.say(out["backtest_error"])
     out["backtest"] = bt
-    out["backtest_rows"] = _backtest_rows(bt, readings)
+    out["backtest_rows"] = None if bt is None else _backtest_rows(bt, readings)
     decay = EWMA_DECAY.get(freq or "", 0.97 if (periods or 12) <= 52 else 0.94)
     out["ewma_decay"] = decay
     ewma_opts = f"decay={decay}"
@@ -397,9 +400,9 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
             raise ReportError(f"the EWMA baseline: {excerpt(str(exc), 300)}") from None
     out["ewma"], out["ewma_options"] = ew, ewma_opts
     out["ewma_rows"] = _backtest_rows(ew, readings)
-    dm = diebold_mariano(bt.qlike_series, ew.qlike_series)
+    dm = None if bt is None else diebold_mariano(bt.qlike_series, ew.qlike_series)
     out["dm"] = dm
-    out["dm_rows"] = [["mean_diff", dm.mean_diff], ["statistic", dm.statistic], ["p_value", dm.p_value],
+    out["dm_rows"] = None if dm is None else [["mean_diff", dm.mean_diff], ["statistic", dm.statistic], ["p_value", dm.p_value],
                       ["lags", dm.lags], ["pairs", dm.pairs],
                       ["reading", readings.diebold_mariano(dm, "the model", "EWMA")]]
 
@@ -457,6 +460,16 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
     out["seed"] = opts.seed if opts.seed is not None else DEFAULT_SEED
     out["paths_n"] = opts.paths or DEFAULT_PATHS
     return out
+
+
+def _soft(make):
+    """The rows ``make`` returns, or the reason it could not (a text) when it refuses."""
+    try:
+        return make()
+    except ReportError as exc:
+        return str(exc)
+    except VolcastError as exc:
+        return excerpt(str(exc), 300)
 
 
 def _backtest_rows(bt, readings):
@@ -542,12 +555,15 @@ def _figures(src: Source, res: dict) -> dict:
         fig.tight_layout()
         figs["paths"] = _figure_uri(fig)
 
-    bt = res["backtest"]
+    bt = res["backtest"] or res["ewma"]
     bx = [src.dates[i] for i in bt.index] if src.dates else bt.index + 1
     fig, ax = plt.subplots(figsize=(9, 3.4))
+    if res["backtest"] is None:
+        ax.set_title("the model's backtest could not be run; the EWMA baseline alone", fontsize=9)
     ax.plot(bx, bt.actual, color=grey, lw=0.8, label="return")
-    ax.plot(bx, -bt.var, color=red, lw=1.1, label=f"minus VaR {res['level']:.1%} (one step)")
-    ax.plot(bx, -bt.es, color=red, lw=0.8, ls=":", label="minus ES")
+    if res["backtest"] is not None:
+        ax.plot(bx, -bt.var, color=red, lw=1.1, label=f"minus VaR {res['level']:.1%} (one step)")
+        ax.plot(bx, -bt.es, color=red, lw=0.8, ls=":", label="minus ES")
     ax.plot(bx, -res["ewma"].var, color=navy, lw=0.8, ls="--", label="minus VaR of the EWMA baseline")
     xs = bt.exception
     ax.scatter(np.asarray(bx)[xs], bt.actual[xs], color=red, s=16, zorder=3, label="exceptions")
@@ -676,10 +692,7 @@ def _esc(text) -> str:
 
 
 def render(src: Source, res: dict, figs: dict, command: str | None = None) -> str:
-    import scipy
-
     from . import __version__
-    import matplotlib
 
     fit = res["fit"]
     spec, dist, opts = res["spec"], res["dist"], res["opts"]
@@ -758,7 +771,10 @@ def render(src: Source, res: dict, figs: dict, command: str | None = None) -> st
         "Jarque-Bera rejects on almost any return series, which is expected under t, skewed-t or GED shocks; with "
         "eight tests at 5%, one rejection in a good model is not unusual.</p>")
     t = res["tests"]
-    add(_table("tests", t[0], t[1:], [["", "", "", _p_class(row[3]), ""] for row in t[1:]]))
+    if isinstance(t, str):
+        add(f'<p class="caution">The diagnostics cannot be computed: {_esc(t)}</p>')
+    else:
+        add(_table("tests", t[0], t[1:], [["", "", "", _p_class(row[3]), ""] for row in t[1:]]))
     add("</section>")
 
     # 4 stability
@@ -768,8 +784,11 @@ def render(src: Source, res: dict, figs: dict, command: str | None = None) -> st
         "critical values of Hansen (1992, Table 1; 0.470 for one parameter). A statistic above its critical value "
         "says the parameter moved within the sample.</p>")
     st = res["stability"]
-    add(_table("stability", st[0], st[1:], [["", "", "", "reject" if row[3] is True else "ok" if row[3] is False else "",
-                                               ""] for row in st[1:]]))
+    if isinstance(st, str):
+        add(f'<p class="caution">The Nyblom-Hansen test cannot be computed: {_esc(st)}</p>')
+    else:
+        add(_table("stability", st[0], st[1:], [["", "", "", "reject" if row[3] is True else "ok" if row[3] is False
+                                                   else "", ""] for row in st[1:]]))
     ends, paths = res["paths"]
     bad = sum(1 for f in paths if f is None or not f.converged)
     add(f"<p>Rolling re-estimation on {len(ends)} windows of {res['window']} returns, every {res['refit']} "
@@ -795,6 +814,21 @@ def render(src: Source, res: dict, figs: dict, command: str | None = None) -> st
     # 5 backtest
     bt = res["backtest"]
     add('<section id="s5"><h2>5. Walk-forward backtest</h2>')
+    if bt is None:
+        add(f'<p class="caution">{_esc(res["backtest_error"][:1].upper() + res["backtest_error"][1:])}. The model is '
+            f"re-estimated on rolling windows of {res['window']} returns every {res['refit']} periods; a model that "
+            "cannot be estimated or forecast on windows that short needs a longer history.</p>")
+    else:
+        _backtest_section(add, res, spec, dist, src, figs)
+    add("</section>")
+
+    _comparison_section(add, res)
+    _rest(add, src, res, figs, fit, opts, now, command)
+    return "".join(parts)
+
+
+def _backtest_section(add, res, spec, dist, src, figs):
+    bt = res["backtest"]
     add(f"<p>One-step forecasts of the variance, VaR and ES at {res['level']:.1%} for each of the last "
         f"{bt.coverage.forecasts} returns, the model re-estimated on a rolling window of {res['window']} returns every "
         f"{res['refit']} {'period' if res['refit'] == 1 else 'periods'} ({bt.fits} estimations), as "
@@ -812,8 +846,9 @@ def render(src: Source, res: dict, figs: dict, command: str | None = None) -> st
     add(_table("backtest", ["measure", "value"], rows, cls))
     add(_figure(figs["backtest"], "Returns against minus the one-step VaR and ES; exceptions marked. The dashed line is "
                                   "the EWMA baseline's VaR (normal shocks).", "backtest"))
-    add("</section>")
 
+
+def _comparison_section(add, res):
     # 6 comparison
     add('<section id="s6"><h2>6. Model comparison</h2>')
     add("<p>Candidates fitted to the same returns with the same options, as <code>VOLCOMPARE</code> fits them; the "
@@ -828,6 +863,10 @@ def render(src: Source, res: dict, figs: dict, command: str | None = None) -> st
         "two variance forecasts (Newey-West variance, Harvey-Leybourne-Newbold correction, t(n-1) p-value, as "
         "<code>VOLDM</code> computes it on the two QLIKE columns of <code>VOLBACKTEST(..., \"what=series\")</code>). "
         "A negative mean difference means the model's losses are lower.</p>")
+    if res["dm_rows"] is None:
+        add('<p class="caution">No comparison: the model\'s backtest could not be run (section 5).</p>')
+        add("</section>")
+        return
     add(_table("dm", ["measure", "value"], res["dm_rows"],
                [["", _p_class(v) if k == "p_value" else ""] for k, v in res["dm_rows"]]))
     er = dict(res["ewma_rows"])
@@ -838,6 +877,15 @@ def render(src: Source, res: dict, figs: dict, command: str | None = None) -> st
     add(_table("ewma", ["measure", "model", f"EWMA({res['ewma_decay']})"], side))
     add("</section>")
 
+
+def _rest(add, src, res, figs, fit, opts, now, command):
+    import matplotlib
+    import scipy
+
+    from . import __version__
+
+    spec, dist = res["spec"], res["dist"]
+    bt = res["backtest"]
     # 7 news impact
     add('<section id="s7"><h2>7. News-impact curve</h2>')
     add(f"<p>Next-period variance for a shock e this period, the lagged variance at its long-run level (Engle & Ng "
@@ -894,8 +942,6 @@ def render(src: Source, res: dict, figs: dict, command: str | None = None) -> st
         "relying on it.</li></ul></div></section>")
 
     # 10 reproducibility
-    import numpy
-
     add('<section id="s10"><h2>10. Reproducibility</h2>')
     rows = [["Volcast version", __version__], ["made at", now], ["input file", Path(src.path).name],
             ["SHA-256 of the input file", src.file_sha256],
@@ -904,19 +950,19 @@ def render(src: Source, res: dict, figs: dict, command: str | None = None) -> st
             ["returns", src.note], ["model", spec.canonical], ["dist", dist.name],
             ["options (as given)", src.options or ""], ["options (canonical)", opts.canonical],
             ["VaR level", res["level"]],
-            ["backtest", f"rolling window {res['window']}, refit every {res['refit']}, {bt.fits} estimations"],
+            ["backtest", f"rolling window {res['window']}, refit every {res['refit']}, "
+                         + (f"{bt.fits} estimations" if bt is not None else "not run")],
             ["EWMA baseline", f"EWMA, {res['ewma_options']}, normal shocks"],
             ["candidates", ", ".join(res["compare_models"]) + " x " + ", ".join(res["compare_dists"])],
             ["simulation seed (VaR/ES beyond one period)", res["seed"]],
             ["simulated paths", res["paths_n"]],
             ["ES test seed (bootstrap 10,000, Z2 2,000 samples)", 20240531],
-            ["Python", platform.python_version()], ["NumPy", numpy.__version__], ["SciPy", scipy.__version__],
+            ["Python", platform.python_version()], ["NumPy", np.__version__], ["SciPy", scipy.__version__],
             ["Matplotlib", matplotlib.__version__], ["platform", platform.platform()]]
     if command:
         rows.append(["command", command])
     add(_table("repro", ["item", "value"], [[k, _fmt(v)] for k, v in rows]))
     add("</section></body></html>")
-    return "".join(parts)
 
 
 def build_report(src: Source, clock=None, command=None, estimations: int = ESTIMATIONS) -> str:
@@ -947,5 +993,6 @@ def write_report(src: Source, out, clock=None, command=None) -> Path:
         tmp.write_text(text, encoding="utf-8")
         tmp.replace(out)
     except OSError as exc:
+        tmp.unlink(missing_ok=True)
         raise ReportError(f"{out}: cannot be written ({exc.strerror or exc})") from None
     return out
