@@ -492,6 +492,29 @@ def _cmd_batch(args) -> int:
     return 0
 
 
+def _cmd_report(args) -> int:
+    from .report import ReportError, read_csv, read_workbook, write_report
+
+    given = [("--column", args.column), ("--model", args.model), ("--dist", args.dist), ("--options", args.options),
+             ("--level", args.level)]
+    cmd = " ".join(["volcast report", shlex.quote(str(args.file)), "-o", shlex.quote(str(args.out))]
+                   + (["--levels"] if args.levels else [])
+                   + [f"{k} {shlex.quote(str(v))}" for k, v in given if v is not None])
+    try:
+        if str(args.file).lower().endswith((".xlsx", ".xlsm")):
+            if args.column or args.levels or args.model or args.dist or args.options:
+                raise ReportError("a workbook gives its own model, distribution and options (the fit table at the name "
+                                  "fit); --column, --levels, --model, --dist and --options are for a CSV")
+            src = read_workbook(args.file, args.level)
+        else:
+            src = read_csv(args.file, args.column, args.levels, args.model, args.dist, args.options, args.level or 0.99)
+        out = write_report(src, args.out, command=cmd)
+    except ReportError as exc:
+        raise CliError(str(exc)) from None
+    print(f"wrote {out}: {src.model} with {src.dist} shocks on {len(src.returns)} returns")
+    return 0
+
+
 def _column_choice(what: str) -> str:
     """The help description of fit and backtest: how the column is chosen."""
     from .batch import LEVELS_AUTOCORRELATION
@@ -583,6 +606,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--out", required=True, help="output .csv or .parquet (never the panel itself)")
     p.add_argument("--progress", action="store_true", help="show the progress bar even when not on a terminal")
     p.set_defaults(func=_cmd_batch)
+    p = sub.add_parser("report", help="the model-validation pack of a workbook or a CSV column, as one HTML file")
+    p.add_argument("file", help="a workbook made from a shipped template (.xlsx), or a CSV file with a header row")
+    p.add_argument("-o", "--out", required=True, help="the report, an .html file")
+    p.add_argument("--column", help="CSV: the column, as for fit")
+    p.add_argument("--levels", action="store_true", help="CSV: the column holds price levels; use their log returns in percent")
+    p.add_argument("--model", help="CSV: model string (default GARCH(1,1))")
+    p.add_argument("--dist", help="CSV: normal, t, skewt or ged (default normal)")
+    p.add_argument("--options", help='CSV: options string, e.g. "periods=12; returns=log100"')
+    p.add_argument("--level", type=float, help="VaR level (default: the workbook's var_level, else 0.99)")
+    p.set_defaults(func=_cmd_report)
     p = sub.add_parser("demo", help="the main job on the bundled demo data: refresh the monthly template, print the headline")
     p.add_argument("--out", help="folder for the workbook (default: ./volcast-demo)")
     p.set_defaults(func=_cmd_demo)

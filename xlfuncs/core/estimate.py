@@ -888,11 +888,14 @@ def _without_in_mean(r, spec, dist, options, X, lik) -> list:
     return [np.array([d[n] for n in lik.names], dtype=float)]
 
 
-def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult:
+def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None, starts=()) -> FitResult:
     """Estimate ``model`` with shocks ``dist`` on returns ``r`` by maximum likelihood.
 
     ``X`` are the regressors (one row per return, one column per regressor; columns named in
-    the option ``xvar=`` enter the variance, the others the mean), None for none.
+    the option ``xvar=`` enter the variance, the others the mean), None for none.  ``starts``:
+    further full parameter vectors (in the order of the fit's ``names``) to try beside the usual
+    starting points, e.g. the estimate on the previous window of a rolling re-estimation (warm
+    starts); each candidate is ranked by its log-likelihood as the others are.
     """
     spec = model if isinstance(model, ModelSpec) else parse_model(model)
     dist = dist if isinstance(dist, Distribution) else get_distribution(dist)
@@ -910,6 +913,7 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
         elif n in spec.variance_names:
             spec.family.check_fixed(n, v)
     extra = _without_in_mean(r, spec, dist, options, X, lik) if spec.in_mean else []
+    extra = list(extra) + [np.asarray(t, dtype=float) for t in starts if len(t) == lik.k]
     best = _run(problem, r, _start_candidates(problem, r, extra))
     n_free = len(problem.free)
     if spec.family.holds_at_bound and best[0] > -_PENALTY / 2:
