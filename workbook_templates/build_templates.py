@@ -185,7 +185,7 @@ def build(path: Path, cfg: dict) -> Path:
         c.alignment = Alignment(horizontal="right") if name != "data_check" else Alignment(horizontal="left")
         if note:
             summ.cell(i, 3, note).font = NOTE
-            summ.cell(i, 3).alignment = Alignment(indent=1)
+            summ.cell(i, 3).alignment = Alignment(horizontal="left", indent=1)
         if name:
             _name(wb, name, f"Summary!$B${i}")
     r = 4 + len(rows) + 1
@@ -198,7 +198,7 @@ def build(path: Path, cfg: dict) -> Path:
                             f'&" tests reject at 5%"))')
     v.alignment = Alignment(horizontal="right")
     summ.cell(r + 1, 3, "a rejection is a reading, not a failure: read what each one means below").font = NOTE
-    summ.cell(r + 1, 3).alignment = Alignment(indent=1)
+    summ.cell(r + 1, 3).alignment = Alignment(horizontal="left", indent=1)
     _header(summ, r + 2, ["test", "p-value", "reading"])
     for k in range(n_tests):
         i = r + 3 + k
@@ -206,13 +206,13 @@ def build(path: Path, cfg: dict) -> Path:
         c = summ.cell(i, 2, f'=IFERROR(IF(ISNUMBER(INDEX({DIAG}, {k + 2}, 4)), INDEX({DIAG}, {k + 2}, 4), ""), "")')
         c.number_format = PVAL
         c.alignment = Alignment(horizontal="right")
-        summ.cell(i, 3, f'=IFERROR(""&INDEX({DIAG}, {k + 2}, 5), "")').alignment = Alignment(indent=1)
+        summ.cell(i, 3, f'=IFERROR(""&INDEX({DIAG}, {k + 2}, 5), "")').alignment = Alignment(horizontal="left", indent=1)
     i = p2 + 1
     summ.cell(i, 1, "parameter stability (Nyblom, joint)")
     c = summ.cell(i, 2, f'=IFERROR(VLOOKUP("joint", {STAB}, 2, FALSE), "")')
     c.number_format, c.alignment = "0.000", Alignment(horizontal="right")
     summ.cell(i, 3, f'=IFERROR("5% critical value "&FIXED(VLOOKUP("joint", {STAB}, 3, FALSE), 2)&": "'
-                    f'&VLOOKUP("joint", {STAB}, 5, FALSE), "")').alignment = Alignment(indent=1)
+                    f'&VLOOKUP("joint", {STAB}, 5, FALSE), "")').alignment = Alignment(horizontal="left", indent=1)
     last = i + 2
     summ.cell(last, 1, CAUTION).font = WARN
     summ.cell(last, 1).alignment = Alignment(wrap_text=True, vertical="top")
@@ -323,8 +323,12 @@ def build(path: Path, cfg: dict) -> Path:
     model["G16"] = f"=VOLSTABILITY(returns, {FIT})"
     _fmt(model, "H17:I45", "0.000")
     _fmt(model, "J17:J45", BOOL)
-    _widths(model, {"A": 16, "B": 22, "C": 11, "D": 9, "E": 10, "F": 3, "G": 20, "H": 10, "I": 9, "J": 9, "K": 80})
-    _page(model, "A1:K40")
+    for r in range(4, 46):
+        model.cell(r, 11).alignment = Alignment(horizontal="left", indent=1)
+    _widths(model, {"A": 16, "B": 22, "C": 11, "D": 9, "E": 10, "F": 3, "G": 20, "H": 10, "I": 9, "J": 9, "K": 96})
+    # two pages, each at its own scale: the fit table, then the diagnostics and stability
+    _page(model, "A1:E34")
+    model.print_area = ["A1:E34", "G1:K34"]
 
     # ------------------------------------------------------------------ Compare
     comp = wb.create_sheet("Compare")
@@ -355,8 +359,10 @@ def build(path: Path, cfg: dict) -> Path:
     _fmt(fc, f"A4:A{last_fc}", "0")
     _fmt(fc, f"B4:C{last_fc}", "0.000")
     _fmt(fc, f"D4:E{last_fc}", "0.00")
-    fc["I1"] = "VaR and ES: rows VaR, ES in log-return %; rows VaR_value, ES_value as loss in % of value"
+    fc["I1"] = "VaR and expected shortfall at the Inputs' level"
     fc["I1"].font = TITLE
+    fc["I14"] = "rows VaR, ES: loss in log-return %; VaR_value, ES_value: loss in % of value"
+    fc["I14"].font = NOTE
     for j, (months, steps) in enumerate(zip((1, 3, 12), (month, 3 * month, year))):
         col = 9 + 3 * j
         label = f"{months} month{'s' if months > 1 else ''}" + (f" ({steps} {unit}s)" if steps != months else "")
@@ -365,7 +371,8 @@ def build(path: Path, cfg: dict) -> Path:
         for r in range(4, 16):
             fc.cell(r, col + 1).number_format = "0.00"
         # the method row (VOLRISK's 10th) holds a longer text
-        fc.cell(12, col + 1).alignment = Alignment(shrink_to_fit=True)
+        fc.cell(12, col + 1).alignment = Alignment(wrap_text=True, vertical="top")
+    fc.row_dimensions[12].height = 26
     fc.cell(2, 18, f"cumulative variance (%^2), {unit}s 1..{year}").font = Font(bold=True)
     fc.cell(2, 18).alignment = Alignment(wrap_text=True, vertical="bottom")
     fc.row_dimensions[2].height = 45
@@ -373,10 +380,10 @@ def build(path: Path, cfg: dict) -> Path:
     _fmt(fc, f"R3:R{3 + year}", "0.00")
     fc.cell(16, 9, CAUTION).font = NOTE
     fc.cell(16, 9).alignment = Alignment(wrap_text=True, vertical="top")
-    fc.merge_cells("I16:P17")
-    fc.row_dimensions[16].height = fc.row_dimensions[17].height = 24
-    _widths(fc, {"A": 6, "B": 9, "C": 9, "D": 8, "E": 9, "F": 11, "G": 11, "H": 2, "I": 11, "J": 11, "K": 2,
-                 "L": 11, "M": 11, "N": 2, "O": 11, "P": 11, "Q": 2, "R": 18})
+    fc.merge_cells("I16:P17")  # not R: the cumulative variance spills down R
+    fc.row_dimensions[16].height = fc.row_dimensions[17].height = 20
+    _widths(fc, {"A": 6, "B": 9, "C": 9, "D": 8, "E": 9, "F": 11, "G": 11, "H": 2, "I": 11, "J": 14, "K": 2,
+                 "L": 11, "M": 14, "N": 2, "O": 11, "P": 14, "Q": 2, "R": 18})
     fc.row_dimensions[3].height = 30
     for c in ("F3", "G3"):
         fc[c].alignment = Alignment(wrap_text=True, vertical="bottom")
@@ -422,7 +429,9 @@ def build(path: Path, cfg: dict) -> Path:
     _widths(hist, {"A": 17, "B": 11, "C": 6, "D": 22, "E": 6, "F": 10, "G": 10, "H": 8, "I": 8, "J": 8, "K": 8,
                    "L": 24})
     hist.freeze_panes = "A2"
+    # two pages wide: the headline figures, then the estimates and their standard errors
     _page(hist, f"A1:{get_column_letter(len(HISTORY_HEADER))}2", tall=0, titles="1:1")
+    hist.page_setup.fitToWidth = 2
 
     # the formulas of ours spill (Excel 365 dynamic arrays): mark them so in the file
     anchors = {(ws.title, c.coordinate): c.coordinate for ws in wb.worksheets for row in ws.iter_rows()
