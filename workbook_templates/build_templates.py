@@ -380,8 +380,9 @@ def build(path: Path, cfg: dict) -> Path:
     _fmt(fc, f"R3:R{3 + year}", "0.00")
     fc.cell(16, 9, CAUTION).font = NOTE
     fc.cell(16, 9).alignment = Alignment(wrap_text=True, vertical="top")
-    fc.merge_cells("I16:P17")  # not R: the cumulative variance spills down R
-    fc.row_dimensions[16].height = fc.row_dimensions[17].height = 20
+    fc.merge_cells("I16:P18")  # not R: the cumulative variance spills down R
+    for r in (16, 17, 18):
+        fc.row_dimensions[r].height = 20
     _widths(fc, {"A": 6, "B": 9, "C": 9, "D": 8, "E": 9, "F": 11, "G": 11, "H": 2, "I": 11, "J": 14, "K": 2,
                  "L": 11, "M": 14, "N": 2, "O": 11, "P": 14, "Q": 2, "R": 18})
     fc.row_dimensions[3].height = 30
@@ -393,13 +394,13 @@ def build(path: Path, cfg: dict) -> Path:
     term.set_categories(Reference(fc, min_col=1, min_row=4, max_row=3 + cfg["horizon"]))
     term.y_axis.number_format = "0.0"
     term.width, term.height = 17, 7.5
-    fc.add_chart(term, "I19")
+    fc.add_chart(term, "I20")
     # the printout: the first 60 steps at most (the daily template's year is 252 rows on screen)
     shown = min(cfg["horizon"], 60)
     if shown < cfg["horizon"]:
         fc["A2"] = f"the printout shows {unit}s 1 to {shown}; all {cfg['horizon']} are on screen"
         fc["A2"].font = NOTE
-    _page(fc, f"A1:R{max(3 + shown, 34)}", tall=0)
+    _page(fc, f"A1:R{max(3 + shown, 36)}", tall=0)
 
     # ------------------------------------------------------------------ Volatility
     vol = wb.create_sheet("Volatility")
