@@ -419,3 +419,62 @@ def test_a_fit_that_did_not_converge_is_flagged(small, tmp_path, capsys, monkeyp
     _, rows = _history(tmp_path / "nc.xlsx")
     assert rows[-1]["converged"] is False and rows[-1]["moved"].startswith("NOT CONVERGED: iteration limit")
     assert figures_from_file(tmp_path / "nc.xlsx")["converged"] is False
+
+
+def _chart_cells(wb, ref):
+    """The cells of a chart's column reference such as 'Volatility'!$C$2:$C$321."""
+    sheet, rng = ref.rsplit("!", 1)
+    return [c for row in wb[sheet.strip("'")][rng.replace("$", "")] for c in row]
+
+
+def test_charts_over_the_data_grow_with_it_and_end_at_the_last_observation(monthly):
+    """Past the template's rows, the chart over the data's rows (found through its references,
+    not a fixed cell) reads one number per return, up to the last observation, with a date for
+    each; the values copy beside the output holds the same values and no formulas."""
+    d, dates, levels, res = monthly
+    wb = openpyxl.load_workbook(res.out, data_only=True)
+    sheet, r1, _, _, _ = name_range(wb, "returns")
+    last = r1 + len(levels) - 1  # the first level has no return, its row still holds a date
+    series = [s for ws in wb for ch in ws._charts for s in ch.series if s.cat is not None
+              and f"${r1}:" in s.val.numRef.f]
+    assert series
+    nobs = figures_from_file(res.out)["nobs"]
+    for s in series:
+        assert s.val.numRef.f.endswith(f"${last}") and s.cat.numRef.f.endswith(f"${last}")
+        vals = [c.value for c in _chart_cells(wb, s.val.numRef.f)]
+        cats = [c.value for c in _chart_cells(wb, s.cat.numRef.f)]
+        assert sum(isinstance(v, float) for v in vals) == nobs == len(levels) - 1
+        assert [c.date() for c in cats] == dates
+    copy = res.values_copy
+    assert copy == res.out.with_name(res.out.stem + "-values.xlsx") and copy.exists()
+    vals = openpyxl.load_workbook(copy)
+    assert not any(isinstance(c.value, str) and c.value.startswith("=") for ws in vals for row in ws.iter_rows()
+                   for c in row)
+    a, b = figures_from_file(copy), figures_from_file(res.out)
+    assert a.keys() == b.keys()
+    for k in a:  # the copy's writer keeps 16 significant digits
+        if isinstance(b[k], float):
+            assert_allclose(a[k], b[k], rtol=1e-15)
+        else:
+            assert a[k] == b[k], k
+
+
+def test_the_terminal_says_which_file_to_open_where(monthly, tmp_path, capsys):
+    d, dates, levels, res = monthly
+    data = _csv(tmp_path / "next.csv", dates[-3:] + [dt.date(1946, 9, 30)], list(levels[-3:]) + [levels[-1] * 1.01])
+    out = tmp_path / "next.xlsx"
+    assert main(["refresh", str(res.out), "--data", str(data), "-o", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert f"{out} in Excel with the Volcast add-in" in text
+    assert f"{tmp_path / 'next-values.xlsx'} (values, no formulas) in LibreOffice" in text
+    assert (tmp_path / "next-values.xlsx").exists()
+
+
+def test_a_values_copy_that_would_overwrite_the_input_is_refused(monthly, tmp_path, capsys):
+    d, dates, levels, res = monthly
+    book = tmp_path / "book-values.xlsx"
+    shutil.copyfile(res.out, book)
+    data = _csv(tmp_path / "same.csv", dates[-2:], levels[-2:])
+    assert main(["refresh", str(book), "--data", str(data), "-o", str(tmp_path / "book.xlsx")]) == 2
+    assert "would write over the input" in capsys.readouterr().err
+    assert not (tmp_path / "book.xlsx").exists()

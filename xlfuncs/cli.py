@@ -281,7 +281,9 @@ def _cmd_demo(args) -> int:
     print(f"next month's volatility   {h['vol_1m']:6.2f} %  ({h['vol_1m_annualised']:.2f} % annualised)")
     print(f"12-month volatility       {h['vol_12m']:6.2f} %  (of the cumulative 12-month log return)")
     print(f"{h['var_level']:.0%} one-month VaR      {h['var_1m']:6.2f} %  of value (ES {h['es_1m']:.2f} % of value)")
-    print(f"workbook: {h['workbook']}   chart: {h['chart']}")
+    print(f"workbook (Excel with the Volcast add-in): {h['workbook']}")
+    print(f"values copy (LibreOffice, or Excel without Volcast): {h['values_copy']}")
+    print(f"chart: {h['chart']}")
     print("Model estimates, not advice; validate under your model-risk policy.")
     if h["error_cells"]:
         print(f"volcast: {len(h['error_cells'])} cells evaluate to errors", file=sys.stderr)
@@ -307,6 +309,9 @@ def _cmd_refresh(args) -> int:
         print(f"{h['model']} with {h['dist']} shocks on {f['nobs']} returns: vol 1m {f['vol_1m']:.3f} %, "
               f"vol 12m {f['vol_12m']:.3f} %, {f['var_level']:.0%} VaR 1m {f['var_1m']:.3f} % of value, "
               f"ES 1m {f['es_1m']:.3f} % of value" + (f"; moved: {h['moved']}" if h["moved"] else ""))
+    if res.values_copy is not None:
+        print(f"open {res.out} in Excel with the Volcast add-in; {res.values_copy} (values, no formulas) in "
+              "LibreOffice or Excel without Volcast; refresh the first, never the values copy")
     if not f.get("converged", True):
         print("volcast: WARNING: the fit did NOT converge; its figures are not reliable (see the Model sheet; "
               "the History row says NOT CONVERGED)", file=sys.stderr)
@@ -384,7 +389,8 @@ def _cmd_backtest(args) -> int:
     if args.png:
         try:
             with _quiet():
-                _backtest_png(bt, args.png, f"{spec.canonical}-{dist.name}")
+                _backtest_png(bt, args.png, f"{spec.canonical}-{dist.name}",
+                              _csv_dates(args.file, args.column, args.levels, len(series.returns)))
         except (OSError, ValueError) as exc:
             raise CliError(f"{args.png}: the chart cannot be written ({excerpt(exc, 120)})") from None
     c = bt.coverage
@@ -418,21 +424,60 @@ def _check_chart_path(png: str, source: str) -> None:
         raise CliError(f"{png}: the chart cannot be written (no folder {out.resolve().parent})")
 
 
-def _backtest_png(bt, path, title):
+def _csv_dates(path, column, levels: bool, n: int):
+    """The dates of the ``n`` returns read from the CSV ``path`` (a column named date, YYYY-MM-DD),
+    or None when the file has none or they cannot be matched one to one."""
+    import datetime as dt
+
+    try:
+        header, records = _csv_rows(path)
+        low = [h.strip().lower() for h in header]
+        if "date" not in low:
+            return None
+        di, col = low.index("date"), _choose_column(path, header, records, column, levels)
+        rows = [r for _, r in records if col < len(r) and r[col].strip()]
+        dates = [dt.date.fromisoformat(r[di].strip()) for r in rows]
+    except (CliError, ValueError, IndexError):
+        return None
+    if levels:
+        dates = dates[1:]
+    return dates if len(dates) == n else None
+
+
+def _backtest_points(bt, dates=None):
+    """(x, loss, marked) of the backtest chart: the forecast dates (or positions), each period's
+    loss (the negative of the return) and the periods marked as exceptions, those whose loss
+    exceeds the VaR."""
+    import numpy as np
+
+    x = np.asarray(dates, dtype=object)[bt.index] if dates is not None else np.asarray(bt.index)
+    loss = -np.asarray(bt.actual, dtype=float)
+    return x, loss, loss > np.asarray(bt.var, dtype=float)
+
+
+def _backtest_png(bt, path, title, dates=None):
+    """Losses against the one-step VaR: each period's loss (the negative of the return, a gain
+    below zero), the VaR line at its level, exceptions marked where the loss exceeds the VaR;
+    dates on the x-axis when the CSV has them."""
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
     import numpy as np
 
-    fig, ax = plt.subplots(figsize=(10, 4), dpi=110)
-    ax.plot(bt.index, np.abs(bt.actual - bt.mean), color="#9AA5B1", lw=0.8, label="|return - mean forecast|")
-    ax.plot(bt.index, np.sqrt(bt.variance), color="#1F3A5F", lw=1.4, label="forecast volatility")
-    ax.plot(bt.index, bt.var, color="#C0504D", lw=1.0, ls="--", label="VaR")
-    x = bt.exception
-    ax.scatter(bt.index[x], np.abs(bt.actual[x] - bt.mean[x]), color="#C0504D", zorder=3, s=18, label="exceptions")
-    ax.set_title(f"Backtest {title}: {bt.coverage.exceptions} exceptions in {bt.coverage.forecasts} (model estimates)")
-    ax.set_xlabel("observation")
+    level = 1.0 - bt.coverage.expected_rate
+    x, loss, exc = _backtest_points(bt, dates)
+    fig, ax = plt.subplots(figsize=(10, 4.2), dpi=110)
+    ax.vlines(x, 0, loss, color=np.where(loss > 0, "#7F8C9A", "#C9D1D9"), lw=0.8, label="loss (gain below zero)")
+    ax.plot(x, bt.var, color="#C0504D", lw=1.2, label=f"VaR at {level:.1%} (one step ahead)")
+    ax.scatter(x[exc], loss[exc], color="#C0504D", zorder=3, s=20, marker="o",
+               label=f"exceptions: loss above VaR ({bt.coverage.exceptions})")
+    ax.axhline(0, color="#555555", lw=0.6)
+    ax.set_title(f"Backtest {title}, VaR at {level:.1%}: {bt.coverage.exceptions} exceptions in "
+                 f"{bt.coverage.forecasts} forecasts (expected {bt.coverage.expected_rate * bt.coverage.forecasts:.1f}); "
+                 "model estimates", fontsize=9)
+    ax.set_xlabel("date" if dates is not None else "observation (the CSV has no date column)")
+    ax.set_ylabel("loss, in the returns' units (% for returns in percent)")
     ax.grid(alpha=0.3)
     ax.legend(loc="upper left", fontsize=8)
     fig.tight_layout()

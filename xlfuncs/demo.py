@@ -1,7 +1,9 @@
 """The main job on the bundled demo data: ``volcast demo [--out DIR]``.
 
 Copies the monthly template, loads the synthetic equity composite's month-end levels into its
-Data sheet, recalculates it headlessly and returns the headline figures.
+Data sheet, recalculates it headlessly and returns the headline figures.  Writes the workbook
+(formulas, for Excel with the Volcast add-in), its values copy (volcast-demo-values.xlsx, for
+LibreOffice or Excel without the add-in) and a PNG chart.
 """
 
 from __future__ import annotations
@@ -73,6 +75,7 @@ def run_demo(out_dir) -> dict:
     hist = res.history or {}
     return {
         "workbook": res.out,
+        "values_copy": res.values_copy,
         "chart": chart,
         "last_date": res.last_date.isoformat(),
         "model": hist.get("model"),
@@ -98,15 +101,16 @@ def write_chart(wb, png) -> Path:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    data, vol, fc, inp = wb["Data"], wb["Volatility"], wb["Forecast"], wb["Inputs"]
-    scale = float(inp["B8"].value) ** 0.5
+    vol, fc = wb["Volatility"], wb["Forecast"]
     dates, hist = [], []
-    for r in range(2, data.max_row + 1):
-        d, v = data.cell(r, 1).value, vol.cell(r, 1).value
-        if isinstance(d, dt.datetime) and isinstance(v, (int, float)):
+    for r in range(2, vol.max_row + 1):
+        d, v = vol.cell(r, 1).value, vol.cell(r, 3).value  # date, annualised volatility (%)
+        if isinstance(d, (dt.datetime, dt.date)) and isinstance(v, (int, float)) and not isinstance(v, bool):
             dates.append(d)
-            hist.append(v * scale)
+            hist.append(v)
     steps = [fc.cell(r, 6).value for r in range(4, 64) if isinstance(fc.cell(r, 6).value, (int, float))]
+    if not dates:
+        raise ValueError("the workbook holds no in-sample volatility to chart")
     last = dates[-1]
     fdates = [dt.datetime(last.year + (last.month + k - 1) // 12, (last.month + k - 1) % 12 + 1, 28)
               for k in range(1, len(steps) + 1)]
@@ -114,6 +118,7 @@ def write_chart(wb, png) -> Path:
     ax.plot(dates, hist, color="#1F3A5F", lw=1.2, label="in-sample conditional volatility")
     ax.plot([last] + fdates, [hist[-1]] + steps, color="#C0504D", lw=2, label="forecast")
     ax.set_ylabel("annualised volatility (%)")
+    ax.set_xlabel("month end")
     ax.set_title("Synthetic demo series: conditional volatility and forecast (model estimates, not advice)")
     ax.grid(alpha=0.3)
     ax.legend(loc="upper left")

@@ -33,6 +33,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .contract import FIGURES, HISTORY_HEADER, missing_names, name_range
+from .layout import fit_to_data, format_results, values_copy_path, write_values_copy
 from .recalc import RecalcError, cell_name, recalc
 from .xlsxpost import ExcelError, check_package, dynamic_anchors
 
@@ -56,6 +57,7 @@ class RefreshResult:
     report: object
     figures: dict = field(default_factory=dict)
     warnings: list = field(default_factory=list)
+    values_copy: Path | None = None  # NAME-values.xlsx: for applications without the add-in
 
 
 def _date(v):
@@ -196,6 +198,20 @@ def _grow(wb, sheet: str, col: int, first: int, end: int, new_end: int) -> None:
     for r in range(end + 1, new_end + 1):
         c = ws.cell(r, col, _translate(text, src, cell_name(r, col)))
         c.number_format = last.number_format
+    # the other formula columns that run down to the returns' last row (the Volatility sheet's
+    # dates and annualised figures) grow with them
+    for w in wb.worksheets:
+        for cc in range(1, w.max_column + 1):
+            if w.title == sheet and cc == col:
+                continue
+            a, b = w.cell(end, cc).value, w.cell(end - 1, cc).value
+            if not (isinstance(a, str) and a.startswith("=") and isinstance(b, str) and b.startswith("=")):
+                continue
+            if w.cell(end + 1, cc).value is not None:
+                continue
+            fmt = w.cell(end, cc).number_format
+            for r in range(end + 1, new_end + 1):
+                w.cell(r, cc, _translate(a, cell_name(end, cc), cell_name(r, cc))).number_format = fmt
     pattern = re.compile(_END_RE.format(end=end))
 
     def fix(s):
@@ -252,8 +268,10 @@ def _shown(v) -> str:
     return str(v)[:120]
 
 
-def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = False) -> RefreshResult:
-    """Refresh ``book`` with the dates and levels of ``data`` into ``out``."""
+def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = False,
+            values_copy: bool = True) -> RefreshResult:
+    """Refresh ``book`` with the dates and levels of ``data`` into ``out`` and, with
+    ``values_copy``, its values copy NAME-values.xlsx beside it (``layout.write_values_copy``)."""
     import openpyxl
 
     book, data, out = Path(book), Path(data), Path(out)
@@ -261,6 +279,9 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
         raise RecalcError(f"{book}: no such file")
     if out.exists() and out.resolve() == book.resolve():
         raise RecalcError(f"{out}: refusing to write over the input; choose another output with -o")
+    if values_copy and values_copy_path(out).exists() and values_copy_path(out).resolve() == book.resolve():
+        raise RecalcError(f"{values_copy_path(out)}: the values copy of {out.name} would write over the input; "
+                          "choose another output with -o")
     if out.suffix.lower() != ".xlsx":
         raise RecalcError(f"{out.name}: the output must be an .xlsx file")
     try:
@@ -428,7 +449,19 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
                 c.number_format = "yyyy-mm-dd"
             elif h == "run_at":
                 c.number_format = "yyyy-mm-dd hh:mm"
+            elif h in ("nobs",):
+                c.number_format = "0"
+            elif h in ("loglik", "vol_1m", "vol_12m", "var_1m", "es_1m"):
+                c.number_format = "0.00"
+            elif h not in ("model", "dist", "converged", "moved"):
+                c.number_format = "0.0000"
         result.history = row
+
+    def before_write(calc):
+        add_history(calc)
+        fit_to_data(calc.book, sheet, first_row, max(data_end, first_row))
+        tables = [(k[0],) + v for k, v in calc.spills.items()]
+        format_results(calc.book, tables, calc.values)
 
     try:
         out.parent.mkdir(parents=True, exist_ok=True)
@@ -438,9 +471,11 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
     os.close(fd)
     try:
         wb.save(staged)
-        _, report = recalc(staged, out, dynamic_hint=spills, before_write=add_history)
+        _, report = recalc(staged, out, dynamic_hint=spills, before_write=before_write)
     finally:
         if os.path.exists(staged):
             os.remove(staged)
     result.report = report
+    if values_copy:
+        result.values_copy = write_values_copy(out, values_copy_path(out))
     return result
