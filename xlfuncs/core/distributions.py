@@ -40,7 +40,7 @@ import math
 import numpy as np
 from scipy import special
 
-from xlfuncs.core.errors import InputError, excerpt
+from xlfuncs.core.errors import InputError, describe_value, excerpt
 
 __all__ = [
     "Distribution",
@@ -640,7 +640,7 @@ def get_distribution(name):
         return name
     if not isinstance(name, str):
         raise InputError(
-            f"distribution must be a name such as normal, t, skewt or ged, got {excerpt(repr(name))}"
+            f"distribution must be a name such as normal, t, skewt or ged, got {describe_value(name)}"
         )
     key = "".join(name.split()).lower()
     canonical = _ALIASES.get(key.replace("-", "").replace("_", "").replace("'", ""))
