@@ -11,7 +11,6 @@ ordinary handlers still catch them; the worksheet layer turns them into
 import datetime as _dt
 import math
 import numbers
-import unicodedata
 
 __all__ = ["VolcastError", "InputError", "ConvergenceError", "excerpt", "EXCERPT_CHARS", "value_words",
            "describe_value", "number_words"]
@@ -35,9 +34,11 @@ class ConvergenceError(VolcastError):
 def excerpt(text, limit: int = EXCERPT_CHARS) -> str:
     """``text`` as a message may quote it: one printable line of at most ``limit`` characters.
 
-    Control characters (line breaks, tabs, NUL, ...) are written as escapes such as ``\\n`` and
-    ``\\x00``; a longer text is cut and ends with ``...``.  Every message that echoes what a user
-    typed or a file held goes through here, so a huge or binary input never makes a huge message.
+    Characters that do not print (line breaks, tabs, NUL, a no-break space, ...) are written as
+    escapes such as ``\\n``, ``\\x00`` and ``\\xa0``; a longer text is cut and ends with ``...``.
+    Every message that echoes what a user typed or a file held goes through here, so a huge or
+    binary input never makes a huge message.  A value that is not text (a date, TRUE, a number
+    that is not finite) is said in spreadsheet words (:func:`value_words`).
     """
     if not isinstance(text, str):
         text = value_words(text, limit) if _is_value(text) else str(text)
@@ -45,7 +46,7 @@ def excerpt(text, limit: int = EXCERPT_CHARS) -> str:
     for ch in text:
         if ch in "\n\r\t":
             piece = {"\n": "\\n", "\r": "\\r", "\t": "\\t"}[ch]
-        elif unicodedata.category(ch) in ("Cc", "Cf", "Cs", "Co", "Cn", "Zl", "Zp"):
+        elif not ch.isprintable():  # control, format, unassigned, separators other than the space (NBSP)
             piece = f"\\x{ord(ch):02x}" if ord(ch) < 256 else f"\\u{ord(ch):04x}"
         else:
             piece = ch
