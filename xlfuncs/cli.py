@@ -17,7 +17,7 @@ import warnings
 from contextlib import contextmanager
 from dataclasses import dataclass
 
-from .core.errors import InputError, excerpt
+from .core.errors import InputError, excerpt, typed_number
 
 __all__ = ["main", "read_returns_csv", "load_returns_csv"]
 
@@ -370,7 +370,7 @@ def _cmd_backtest(args) -> int:
     except VolcastError as exc:
         raise _core_error(exc) from None
     if not 0.5 <= args.level < 1:  # as the core requires; said before the file is read
-        raise CliError(f"--level must be at least 0.5 and below 1, e.g. 0.99, got {args.level:g}")
+        raise CliError(f"--level must be at least 0.5 and below 1, e.g. 0.99, got {typed_number(args.level)}")
     if args.refit < 1:
         raise CliError(f"--refit must be 1 or more, got {args.refit}")
     if args.png:

@@ -79,13 +79,13 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     spec = layout(spec, X, options.xvar)
     X = check_regressors(X, T, spec)
     if scheme not in ("rolling", "expanding"):
-        raise InputError(f"scheme must be rolling or expanding, got {scheme}")
+        raise InputError(f"scheme must be rolling or expanding, got {value_words(scheme)}")
     check_length(T, spec)
     if not (isinstance(window, int) and spec.min_obs <= window < T):
         raise InputError(f"window must be a whole number from {spec.min_obs} (the least {spec.canonical} can be "
-                         f"estimated on) to {T - 1} (one less than the returns), got {window}")
+                         f"estimated on) to {T - 1} (one less than the returns), got {value_words(window)}")
     if not (isinstance(refit, int) and refit >= 1):
-        raise InputError(f"refit must be a whole number of periods, 1 or more, got {refit}")
+        raise InputError(f"refit must be a whole number of periods, 1 or more, got {value_words(refit)}")
     if not (0.5 <= level < 1):
         raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {value_words(level)}")
     names = tuple(spec.param_names) + tuple(dist.param_names)

@@ -13,7 +13,7 @@ import math
 import numbers
 
 __all__ = ["VolcastError", "InputError", "ConvergenceError", "excerpt", "EXCERPT_CHARS", "value_words",
-           "describe_value", "number_words"]
+           "describe_value", "number_words", "typed_number"]
 
 #: the most characters of a user's input that a message quotes
 EXCERPT_CHARS = 40
@@ -79,6 +79,13 @@ def number_words(x) -> str:
     if x.is_integer() and abs(x) < 1e15:
         return str(int(x))
     return f"{x:.15g}"
+
+
+def typed_number(x) -> str:
+    """A number the user typed on a command line, as typed, with its meaning where it is not finite:
+    0.5, "nan (not a number)", "inf (infinity)"."""
+    x = float(x)
+    return f"{x:g}" if math.isfinite(x) else f"{x:g} ({number_words(x)})"
 
 
 def value_words(value, limit: int = EXCERPT_CHARS) -> str:
