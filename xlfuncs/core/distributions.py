@@ -40,7 +40,7 @@ import math
 import numpy as np
 from scipy import special
 
-from xlfuncs.core.errors import InputError, describe_value, excerpt
+from xlfuncs.core.errors import InputError, describe_value, excerpt, number_words
 
 __all__ = [
     "Distribution",
@@ -57,8 +57,10 @@ _LOG_2PI = math.log(2.0 * math.pi)
 
 
 def _fmt(value):
-    """A number as a user would type it: ``1.5``, ``2``, ``nan``."""
-    return f"{float(value):.10g}"
+    """A number as a user would type it (``1.5``, ``2``), in words where it is not finite
+    ("not a number", "infinity")."""
+    x = float(value)
+    return f"{x:.10g}" if np.isfinite(x) else number_words(x)
 
 
 def _as_array(x):
