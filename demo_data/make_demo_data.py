@@ -181,6 +181,32 @@ BOND = dict(
 )
 
 
+# 4. The house funds: six monthly series over ten years, constant-mean GARCH(1,1) or
+#    GJR-GARCH(1,1) with t shocks, one seed each; the small panel the command line's examples read
+#    (returns, and the same funds as price levels starting at 100).
+FUNDS_FIRST_MONTH, FUNDS_LAST_MONTH = "2016-10", "2026-10"
+FUNDS = [
+    # (column, seed, mu, omega, alpha, gamma, beta, nu)
+    ("global_equity", 20161031, 0.55, 1.60, 0.06, 0.10, 0.80, 7.0),
+    ("emerging_equity", 20161032, 0.60, 3.20, 0.08, 0.08, 0.78, 6.0),
+    ("core_bond", 20161033, 0.25, 0.21, 0.07, 0.0, 0.83, 8.0),
+    ("high_yield", 20161034, 0.45, 0.50, 0.10, 0.05, 0.78, 6.0),
+    ("real_assets", 20161035, 0.40, 1.20, 0.06, 0.0, 0.84, 7.0),
+    ("multi_strategy", 20161036, 0.35, 0.40, 0.05, 0.0, 0.85, 9.0),
+]
+
+
+def write_panel(name: str, dates: np.ndarray, columns: list, decimals: int) -> Path:
+    """A wide panel: a date column and one column per fund."""
+    path = OUT_DIR / name
+    with path.open("w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh, lineterminator="\n")
+        writer.writerow(["date"] + [c for c, _ in columns])
+        for i, d in enumerate(dates):
+            writer.writerow([str(d)] + [f"{v[i]:.{decimals}f}" for _, v in columns])
+    return path
+
+
 def _make(spec: dict, dates: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     rng = np.random.default_rng(spec["seed"])
     ret_dates = dates[1:]  # the first return belongs to the second date
@@ -205,6 +231,22 @@ def main() -> list[Path]:
     bd_dates = business_month_ends(BOND["first_month"], BOND["last_month"])
     bd_levels, _ = _make(BOND, bd_dates)
     written.append(write_csv("bond_index_monthly.csv", ("date", "level"), bd_dates, bd_levels, 4))
+
+    # the equity composite split for the examples of a first load and a monthly refresh
+    written.append(write_csv("equity_history.csv", ("date", "level"), eq_dates[:-1], eq_levels[:-1], 4))
+    written.append(write_csv("equity_new_levels.csv", ("date", "level"), eq_dates[-1:], eq_levels[-1:], 4))
+
+    fd_dates = business_month_ends(FUNDS_FIRST_MONTH, FUNDS_LAST_MONTH)
+    fund_levels, fund_returns = [], []
+    for column, seed, mu, omega, alpha, gamma, beta, nu in FUNDS:
+        rng = np.random.default_rng(seed)
+        r, _ = simulate_returns(rng, len(fd_dates) - 1, mu=mu, phi=0.0, omega=omega, alpha=alpha, gamma=gamma,
+                                beta=beta, nu=nu)
+        levels = levels_from_returns(100.0, r)
+        fund_levels.append((column, levels))
+        fund_returns.append((column, returns_from_levels(levels)))
+    written.append(write_panel("fund_returns_monthly.csv", fd_dates[1:], fund_returns, 6))
+    written.append(write_panel("fund_prices_monthly.csv", fd_dates, fund_levels, 4))
 
     return written
 

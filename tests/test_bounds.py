@@ -263,9 +263,9 @@ def test_every_error_cell_is_capped():
     (np.bool_(False), "holds the logical value FALSE;"),
     ("#N/A", "holds the error #N/A;"),
     ("n/a", 'holds text "n/a";'),
-    (float("nan"), "is not a finite number (NaN);"),
-    (float("inf"), "is not a finite number (infinity);"),
-    (float("-inf"), "is not a finite number (-infinity);"),
+    (float("nan"), "holds a value that is not a number; finite"),
+    (float("inf"), "holds infinity; finite"),
+    (float("-inf"), "holds minus infinity; finite"),
     ("inf", 'holds text "inf";'),  # a spreadsheet takes "inf" as text
 ])
 def test_returns_cells_are_echoed_in_spreadsheet_words(cell, words):
@@ -275,7 +275,7 @@ def test_returns_cells_are_echoed_in_spreadsheet_words(cell, words):
 
 @pytest.mark.parametrize("value, words", [
     (True, "got the logical value TRUE"), (dt.datetime(2021, 3, 4), "got the date 2021-03-04"),
-    (2.5, "got 2.5"), (float("nan"), "got NaN"), (1e300, "got 1e+300"), ("twelve", 'got text "twelve"'),
+    (2.5, "got 2.5"), (float("nan"), "got a value that is not a number"), (1e300, "got 1e+300"), ("twelve", 'got text "twelve"'),
 ])
 def test_scalar_arguments_are_echoed_in_spreadsheet_words(value, words):
     table = VOLFIT(R, "ARCH(1)")
@@ -284,7 +284,7 @@ def test_scalar_arguments_are_echoed_in_spreadsheet_words(value, words):
 
 @pytest.mark.parametrize("value, text", [
     (None, "a blank cell"), (True, "TRUE"), (False, "FALSE"), (dt.datetime(2020, 1, 31), "2020-01-31"),
-    (float("nan"), "NaN"), (float("inf"), "infinity"), (-float("inf"), "-infinity"), (3, "3"), (0.1, "0.1"),
+    (float("nan"), "not a number"), (float("inf"), "infinity"), (-float("inf"), "minus infinity"), (3, "3"), (0.1, "0.1"),
     ("a\nb", '"a\\nb"'), ("x" * 100, '"' + "x" * (EXCERPT_CHARS - 3) + '..."'),
 ])
 def test_shown(value, text):

@@ -192,7 +192,8 @@ def test_bad_input_exits_2_with_one_line(tmp_path, returns_csv, capsys, name, ar
     assert re.search(pattern, lines[0]), lines[0]
 
 
-@pytest.mark.parametrize("argv", [["fit"], ["fit", "x.csv", "--bogus"], []], ids=["no_file", "unknown_flag", "no_command"])
+@pytest.mark.parametrize("argv", [["fit"], ["fit", "x.csv", "--bogus"], ["bogus"]],
+                         ids=["no_file", "unknown_flag", "unknown_command"])
 def test_usage_errors_exit_2_with_one_line(capsys, argv):
     rc, out, err = run(argv, capsys)
     assert rc == 2

@@ -6,6 +6,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 from scipy import stats
+from hypothesis import given, settings, strategies as st
 
 from xlfuncs.core import InputError, fit, in_sample
 from xlfuncs.core.diagnostics import (
@@ -273,9 +274,9 @@ _z = np.random.default_rng(1).standard_normal(40)
         (lambda: run_tests(_z, True, 0, 0), r"lags must be a whole number"),
         (lambda: ljung_box(_z, -1), r"lags must be a whole number"),
         (lambda: arch_lm(_z, 25), r"lags must be a whole number from 1 to 19"),
-        (lambda: run_tests(_z[:MIN_OBS - 1], 2, 0, 0), rf"at least {MIN_OBS} residuals, got {MIN_OBS - 1}"),
+        (lambda: ljung_box(_z[:MIN_OBS - 1], 2), rf"at least {MIN_OBS} residuals, got {MIN_OBS - 1}"),
         (lambda: jarque_bera([1.0, 2.0, 3.0]), r"at least 10 residuals, got 3"),
-        (lambda: sign_bias(np.r_[_z, np.nan]), r"finite numbers; value 41 is nan"),
+        (lambda: sign_bias(np.r_[_z, np.nan]), r"finite numbers; value 41 is not a number"),
         (lambda: ljung_box(_z, 4, 4), r"lags must be at least 5, one more than dof_used = 4, .*; got 4"),
         (lambda: run_tests(_z, 3, -1, 0), r"arma_order must be a whole number of at least 0, got -1"),
         (lambda: run_tests(np.ones((5, 8)), 2, 0, 0), r"one column or one row"),
@@ -366,3 +367,70 @@ def test_arch_and_asymmetry_readings(leverage):
                                           "try an asymmetric model (GJR-GARCH, EGARCH)")
     gjr = _readings(leverage, "GJR-GARCH(1,1)", "normal")
     assert gjr["Negative size bias"] == "no negative size bias left" and gjr["Joint sign bias"] == "no asymmetry left"
+
+
+# ----------------------------------------------------------------------------------------
+# every row computed where it can be, blank with its reason where it cannot (issue 14)
+def test_voltests_lag_one_on_an_ar1_garch_fit_computes_arch_lm_1(ar1):
+    """VOLTESTS(returns, fit, 1) on an AR(1)-GARCH(1,1) fit: both Ljung-Box rows are blank with
+    their reasons; ARCH-LM(1) is computed and is statsmodels' het_arch on the same residuals."""
+    from xlfuncs import VOLFIT, VOLSERIES, VOLTESTS
+
+    cells = [[float(v)] for v in ar1]
+    fit = VOLFIT(cells, "AR(1)-GARCH(1,1)")
+    out = VOLTESTS(cells, fit, 1)
+    rows = {r[0]: r for r in out[1:]}
+    assert rows["Ljung-Box z"][1:4] == [None, None, None]
+    assert rows["Ljung-Box z"][4].startswith("not computed: needs lags of at least 2")
+    assert rows["Ljung-Box z^2"][1:4] == [None, None, None]
+    assert rows["Ljung-Box z^2"][4].startswith("not computed: needs lags of at least 3")
+    z = np.array([r[0] for r in VOLSERIES(cells, fit, "stdresid") if r[0] is not None])
+    ref, p_ref = _arch_ref(z, 1)  # source: statsmodels het_arch
+    np.testing.assert_allclose(rows["ARCH-LM"][1], ref, rtol=1e-8)
+    np.testing.assert_allclose(rows["ARCH-LM"][3], p_ref, rtol=1e-8)
+    assert rows["ARCH-LM"][2] == 1
+    for label in LABELS[2:]:
+        assert isinstance(rows[label][1], float), label
+
+
+@given(lags=st.integers(1, 12), arma=st.integers(0, 4), var=st.integers(0, 4))
+@settings(max_examples=60, deadline=None)
+def test_a_row_is_blank_exactly_when_its_reading_says_why(lags, arma, var):
+    """Whatever the lags and orders: a row's statistic is missing exactly when its reading begins
+    "not computed:", and the Ljung-Box rows are missing exactly when the lags do not exceed their
+    order (the degrees of freedom lags - order would be <= 0); the other rows are computed."""
+    from xlfuncs.core import readings
+    from xlfuncs.core.spec import parse_model
+    from xlfuncs.core.distributions import get_distribution
+
+    rows = run_tests(_z, lags, arma, var)
+    texts = readings.diagnostics(rows, parse_model("GARCH(1,1)"), get_distribution("normal"), _z)
+    for row, text in zip(rows, texts):
+        assert np.isnan(row.statistic) == text.startswith("not computed:"), (row, text)
+        assert np.isnan(row.statistic) == (row.df is None) == np.isnan(row.p_value)
+    assert np.isnan(rows[0].statistic) == (lags <= arma)
+    assert np.isnan(rows[1].statistic) == (lags <= var)
+    assert all(np.isfinite(r.statistic) for r in rows[2:])
+
+
+@pytest.mark.parametrize("z,blank,why", [
+    (np.ones(30), set(LABELS), "all the same number"),
+    ((-1.0) ** np.arange(30), {"Ljung-Box z^2", "ARCH-LM", "Sign bias", "Negative size bias", "Positive size bias",
+                               "Joint sign bias"}, "every squared standardised residual is the same number"),
+    (1.0 + 0.1 * (np.arange(30) % 3), {"Sign bias", "Negative size bias", "Joint sign bias"},
+     "every residual has the same sign"),
+    (np.arange(1.0, 8.0), set(LABELS), "the tests need at least 10 standardised residuals, got 7"),
+])
+def test_degenerate_residuals_say_why_in_their_rows(z, blank, why):
+    """Residuals with nothing to test leave those rows blank with the reason; the rest computed
+    (a constant series has no variation for any test; alternating +-1 has constant squares; one
+    sign throughout makes the sign regressor constant: common practice, the regressions are
+    singular)."""
+    rows = run_tests(z, 2, 0, 0)
+    assert {r.label for r in rows if np.isnan(r.statistic)} == blank
+    for r in rows:
+        if r.label in blank:
+            assert r.note.startswith("not computed:") and why in r.note, r.note
+            assert r.df is None and np.isnan(r.p_value)
+        else:
+            assert r.note is None and np.isfinite(r.p_value)

@@ -392,8 +392,8 @@ def test_param_names_bounds_and_start():
     [
         ("t", [1.5], "nu must be greater than 2 for the t distribution, got 1.5"),
         ("t", [2.0], "nu must be greater than 2 for the t distribution, got 2"),
-        ("t", [float("nan")], "nu must be greater than 2 for the t distribution, got nan"),
-        ("t", [float("inf")], "nu must be greater than 2 for the t distribution, got inf"),
+        ("t", [float("nan")], "nu must be greater than 2 for the t distribution, got not a number"),
+        ("t", [float("inf")], "nu must be greater than 2 for the t distribution, got infinity"),
         ("skewt", [1.0, 0.0], "nu must be greater than 2 for the skewt distribution, got 1"),
         ("skewt", [5.0, 1.0], "lambda must be between -1 and 1 for the skewt distribution, got 1"),
         ("skewt", [5.0, -1.2], "lambda must be between -1 and 1 for the skewt distribution, got -1.2"),

@@ -294,7 +294,7 @@ def test_risk_argument_overrides_the_options(series):
     rk = risk(f, series, 0.99, returns="LOG100")
     assert rk.returns == "log100"
     assert_allclose(rk.var_value, _value_loss(rk.var, 0.01), rtol=1e-14)
-    with pytest.raises(InputError, match=r"returns must be one of log100, log, simple100, simple, got 'pct'"):
+    with pytest.raises(InputError, match=r"returns must be one of log100, log, simple100, simple, got \"pct\""):
         risk(f, series, 0.99, returns="pct")
 
 

@@ -451,8 +451,8 @@ BAD_RETURNS = [
     ("false", _with(False, at=0), r"returns row 1 holds the logical value FALSE"),
     ("na", _with("#N/A"), r"returns row 6 holds the error #N/A"),
     ("div0", _with("#DIV/0!"), r"returns row 6 holds the error #DIV/0!"),
-    ("nan", _with(float("nan"), at=3), r"returns row 4 is not a finite number"),
-    ("inf", _with(float("-inf"), at=3), r"returns row 4 is not a finite number"),
+    ("nan", _with(float("nan"), at=3), r"returns row 4 holds a value that is not a number; finite numbers only$"),
+    ("inf", _with(float("-inf"), at=3), r"returns row 4 holds minus infinity; finite numbers only$"),
     ("blank_inside", _with(None), r"returns row 6 is blank inside the data; fill it, or add missing=skip"),
     ("empty_text_inside", _with(""), r"returns row 6 is blank inside the data"),
     ("row_counts_leading_blanks", [[None], [None]] + _with("x", at=1), r'returns row 4 holds text "x"'),
@@ -461,7 +461,7 @@ BAD_RETURNS = [
     ("empty", [], r"returns is empty"),
     ("two_d", [[1.0, 2.0], [3.0, 4.0], [5.0, 6.0]], r"returns must be a single column or a single row, got 3 rows by 2 columns"),
     ("error_text", "ERROR: returns row 3 holds text", r"returns holds an error from another cell"),
-    ("nested", [[[1.0, 2.0]]] + _R, r"returns row 1 holds list"),
+    ("nested", [[[1.0, 2.0]]] + _R, r"returns row 1 holds a list"),
 ]
 
 

@@ -27,7 +27,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .core.errors import excerpt
+from .core.errors import excerpt, typed_number
 from .csvtext import MAX_FIELD_CHARS, PanelError, check_row_widths, decimal_comma_hint, read_csv_records
 
 __all__ = ["read_panel", "load_panel", "Panel", "PanelError", "run_one", "run_batch", "write_tidy", "check_output",
@@ -496,7 +496,7 @@ def check_arguments(model, dist, options, horizon, level) -> None:
     if not (isinstance(horizon, int) and 1 <= horizon <= MAX_HORIZON):
         raise PanelError(f"--horizon must be a whole number from 1 to {MAX_HORIZON}, got {horizon}")
     if not (isinstance(level, float) and 0.5 <= level < 1):
-        raise PanelError(f"--level must be at least 0.5 and below 1, e.g. 0.99, got {level:g}")
+        raise PanelError(f"--level must be at least 0.5 and below 1, e.g. 0.99, got {typed_number(level)}")
     try:
         spec, d, opts = parse_model(model), get_distribution(dist), parse_options(options)
     except InputError as exc:

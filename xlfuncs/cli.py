@@ -1,7 +1,8 @@
 """The ``volcast`` command.
 
 ``volcast fit FILE.csv [--column C] [--model M] [--dist D] [--options O]`` prints the fit table;
-``volcast recalc BOOK.xlsx [-o OUT.xlsx] [--values-only]`` recalculates a workbook headlessly.
+``volcast recalc BOOK.xlsx [-o OUT.xlsx] [--values-only]`` recalculates a workbook headlessly;
+``volcast`` alone prints the help, ``volcast --version`` the version.
 Exit status 0 on success, 2 on bad input with a one-line reason on standard error.
 """
 
@@ -16,7 +17,7 @@ import warnings
 from contextlib import contextmanager
 from dataclasses import dataclass
 
-from .core.errors import InputError, excerpt
+from .core.errors import InputError, excerpt, typed_number
 
 __all__ = ["main", "read_returns_csv", "load_returns_csv"]
 
@@ -374,7 +375,7 @@ def _cmd_backtest(args) -> int:
     except VolcastError as exc:
         raise _core_error(exc) from None
     if not 0.5 <= args.level < 1:  # as the core requires; said before the file is read
-        raise CliError(f"--level must be at least 0.5 and below 1, e.g. 0.99, got {args.level:g}")
+        raise CliError(f"--level must be at least 0.5 and below 1, e.g. 0.99, got {typed_number(args.level)}")
     if args.refit < 1:
         raise CliError(f"--refit must be 1 or more, got {args.refit}")
     if args.png:
@@ -572,24 +573,96 @@ def _column_choice(what: str) -> str:
 
 def _column_args(p):
     """--column and --levels, the same for fit and backtest."""
-    p.add_argument("--column", help='column name or 1-based number (default: a column named "return", else the last '
-                                    'numeric one; with --levels, the last numeric one not named "return"). A column '
-                                    "named here is taken as asked, even when it looks like price levels")
+    p.add_argument("--column", metavar="C",
+                   help='column name or 1-based number (default: a column named "return", else the last numeric '
+                        'one; with --levels, the last numeric one not named "return"). A column named here is taken '
+                        "as asked, even when it looks like price levels")
     p.add_argument("--levels", action="store_true",
                    help="the column holds price levels p (all above zero): use their log returns in percent, "
-                        "100*ln(p[t]/p[t-1])")
+                        "100*ln(p[t]/p[t-1]) (default: off, the column holds returns)")
 
 
 def _model_args(p):
     """--model, --dist and --options, the same for every command that fits."""
-    p.add_argument("--model", default="GARCH(1,1)", help="model string, e.g. AR(1)-GJR-GARCH(1,1) (default GARCH(1,1))")
-    p.add_argument("--dist", default="normal", help="normal, t, skewt or ged (default normal)")
-    p.add_argument("--options", default=None, help='options string, e.g. "se=hessian; nu=8"')
+    p.add_argument("--model", metavar="M", default="GARCH(1,1)",
+                   help="model string, e.g. AR(1)-GJR-GARCH(1,1) (default: %(default)s)")
+    p.add_argument("--dist", metavar="D", default="normal",
+                   help="shock distribution: normal, t, skewt or ged (default: %(default)s)")
+    p.add_argument("--options", metavar="O", default=None,
+                   help='options string, e.g. "se=hessian; nu=8" (default: none, i.e. presample=mean; se=robust; '
+                        "missing=error)")
+
+
+def _progress_arg(p):
+    p.add_argument("--progress", action="store_true",
+                   help="show the progress bar even when standard error is not a terminal (default: only on a "
+                        "terminal)")
+
+
+def _version() -> str:
+    """The installed distribution's version, else the package's own (a source checkout)."""
+    try:
+        from importlib.metadata import PackageNotFoundError, version
+
+        return version("volcast")
+    except (ImportError, PackageNotFoundError):
+        from . import __version__
+
+        return __version__
+
+
+EXAMPLE_FILES = {
+    "demo_returns.csv": "monthly returns (percent log returns) of the Harrowgate Lane Global Equity Composite",
+    "equity_composite_monthly.csv": "the equity composite's month-end levels (date, level)",
+    "equity_history.csv": "the same levels without the last month: a first load",
+    "equity_new_levels.csv": "the last month's level: a monthly refresh",
+    "bond_index_monthly.csv": "month-end levels of the Harrowgate Lane Core Bond Index",
+    "commodity_basket_daily.csv": "daily levels of the Harrowgate Lane Commodity Basket",
+    "fund_returns_monthly.csv": "a wide panel: monthly returns of six Harrowgate Lane funds",
+    "fund_prices_monthly.csv": "the same six funds as month-end price levels",
+}
+
+
+def _cmd_examples(args) -> int:
+    import shutil
+    from pathlib import Path
+
+    from .demo import data_file
+
+    out = Path(args.dir)
+    if out.exists() and not out.is_dir():
+        raise CliError(f"{out}: exists and is not a folder")
+    clash = [n for n in EXAMPLE_FILES if (out / n).exists()]
+    if clash and not args.force:
+        more = f" and {len(clash) - 1} more" if len(clash) > 1 else ""
+        raise CliError(f"{out / clash[0]} exists{more}; choose another folder or pass --force")
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        for name in EXAMPLE_FILES:
+            shutil.copyfile(data_file(name), out / name)
+    except OSError as exc:
+        raise CliError(f"{out}: cannot write there ({exc.strerror or excerpt(exc, 120)})") from None
+    print(f"wrote {len(EXAMPLE_FILES)} example files (synthetic data of a fictional asset manager) to {out}:")
+    width = max(map(len, EXAMPLE_FILES))
+    for name, what in EXAMPLE_FILES.items():
+        print(f"  {name.ljust(width)}  {what}")
+    return 0
+
+
+_EPILOG = """examples (in a folder where `volcast examples .` copied the example files):
+  volcast fit demo_returns.csv --model "AR(1)-GJR-GARCH(1,1)" --dist t
+  volcast backtest demo_returns.csv --window 120 --refit 6
+  volcast batch fund_returns_monthly.csv --dist t -o results.csv
+Exit status 0 on success, 2 on bad input with a one-line reason on standard error.
+Model estimates, not advice; validate them under your firm's model-risk policy."""
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.")
-    sub = parser.add_subparsers(dest="command", required=True)
+    parser = _Parser(prog="volcast", description="ARCH/GARCH-family variance models for spreadsheets.",
+                     epilog=_EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--version", action="version", version=f"volcast {_version()}",
+                        help="print the version and exit")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     p = sub.add_parser("fit", help="estimate a model on a CSV column and print the fit table",
                        description=_column_choice("Estimates a model on one column of a CSV file and prints "
                                                   "the fit table"))
@@ -597,24 +670,35 @@ def build_parser() -> argparse.ArgumentParser:
     _column_args(p)
     _model_args(p)
     p.set_defaults(func=_cmd_fit)
-    p = sub.add_parser("recalc", help="recalculate a workbook with no Excel; keeps formulas, stores values")
+    p = sub.add_parser("recalc", help="recalculate a workbook with no Excel; keeps formulas, stores values",
+                       description="Recalculates every formula of a workbook with no Excel and writes a copy "
+                                   "with the formulas and their values; the input is never written over.")
     p.add_argument("book", help="the .xlsx workbook to recalculate (never written over)")
     p.add_argument("-o", "--out", help="output workbook (default: BOOK.recalc.xlsx beside the input)")
-    p.add_argument("--values-only", action="store_true", help="write plain values instead of formulas with values")
+    p.add_argument("--values-only", action="store_true",
+                   help="write plain values instead of formulas with values, for LibreOffice or any application "
+                        "without the add-in (default: off)")
     p.set_defaults(func=_cmd_recalc)
-    p = sub.add_parser("refresh", help="append new observations from a CSV, recalculate, add an estimate-history row")
+    p = sub.add_parser("refresh", help="append new observations from a CSV, recalculate, add an estimate-history row",
+                       description="Appends the new dates and levels of a CSV file to a workbook made from a "
+                                   "shipped template, recalculates it and adds a row to its estimate history.")
     p.add_argument("book", help="a workbook made from a shipped template (an empty one for the first load); never written over")
-    p.add_argument("--data", required=True, help="CSV with a header row naming columns date (YYYY-MM-DD) and level")
-    p.add_argument("-o", "--out", required=True, help="output workbook")
+    p.add_argument("--data", required=True,
+                   help="CSV with a header row naming columns date (YYYY-MM-DD) and level (required)")
+    p.add_argument("-o", "--out", required=True, help="output workbook (required)")
     p.add_argument("--accept-jumps", action="store_true",
-                   help="take new returns beyond the outlier bound (checked by default: a misplaced decimal point)")
+                   help="take new returns beyond the outlier bound (default: off, such a return stops the run: a "
+                        "misplaced decimal point?)")
     p.add_argument("--accept-gaps", action="store_true",
-                   help="take calendar gaps much longer than the series' usual spacing (checked by default: missing rows)")
+                   help="take calendar gaps much longer than the series' usual spacing (default: off, such a gap "
+                        "stops the run: missing rows?)")
     p.set_defaults(func=_cmd_refresh)
-    p = sub.add_parser("template", help="write an empty shipped template, to load a history into with refresh")
+    p = sub.add_parser("template", help="write an empty shipped template, to load a history into with refresh",
+                       description="Writes an empty shipped template; load a history of dates and levels into it "
+                                   "with volcast refresh.")
     p.add_argument("kind", choices=("monthly", "daily"), help="monthly, or daily (a month is 21 trading days)")
-    p.add_argument("-o", "--out", required=True, help="output workbook")
-    p.add_argument("--force", action="store_true", help="write over an existing file")
+    p.add_argument("-o", "--out", required=True, help="output workbook, .xlsx (required)")
+    p.add_argument("--force", action="store_true", help="write over an existing file (default: off, refuse)")
     p.set_defaults(func=_cmd_template)
     p = sub.add_parser("backtest", help="walk-forward backtest of one-step variance and VaR forecasts on a CSV column",
                        description=_column_choice("Walk-forward backtest of one-step variance and VaR "
@@ -622,48 +706,83 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("file", help="CSV file with a header row")
     _column_args(p)
     _model_args(p)
-    p.add_argument("--window", type=int, required=True, help="estimation window (observations)")
-    p.add_argument("--level", type=float, default=0.99)
-    p.add_argument("--scheme", choices=("rolling", "expanding"), default="rolling")
-    p.add_argument("--refit", type=int, default=1, help="re-estimate every N periods (default 1)")
-    p.add_argument("--png", help="write a chart of forecast volatility, absolute returns and exceptions")
-    p.add_argument("--progress", action="store_true", help="show the progress bar even when not on a terminal")
+    p.add_argument("--window", type=int, required=True, metavar="N",
+                   help="estimation window: the N returns before each forecast (required)")
+    p.add_argument("--level", type=float, default=0.99, metavar="L",
+                   help="VaR level, from 0.5 to below 1: the one-step VaR is exceeded with probability 1 - L "
+                        "(default: %(default)s)")
+    p.add_argument("--scheme", choices=("rolling", "expanding"), default="rolling",
+                   help="rolling: every fit uses the last N returns; expanding: every fit uses all returns so far, "
+                        "starting from N (default: %(default)s)")
+    p.add_argument("--refit", type=int, default=1, metavar="K",
+                   help="re-estimate every K forecasts, keeping the parameters in between (default: %(default)s)")
+    p.add_argument("--png", metavar="FILE",
+                   help="also write a chart of forecast volatility, VaR, absolute returns and exceptions "
+                        "(.png, .svg, .pdf or .jpg; default: no chart)")
+    _progress_arg(p)
     p.set_defaults(func=_cmd_backtest)
-    p = sub.add_parser("batch", help="fit many series from one CSV or Parquet panel in parallel; tidy output")
+    p = sub.add_parser("batch", help="fit many series from one CSV or Parquet panel in parallel; tidy output",
+                       description="Fits every series of a panel in parallel processes (or on a Dask cluster) and "
+                                   "writes tidy rows: id, kind, name, value, std_error, message.")
     p.add_argument("panel", help="CSV or Parquet: wide (a column per series) or long (with --id and --value)")
-    p.add_argument("--id", help="long panel: the series id column")
-    p.add_argument("--value", help="long panel: the column of values; values that look like price levels are still "
-                                   "refused unless --levels or --as-returns is given")
+    p.add_argument("--id", help="long panel: the series id column (default: none, the panel is wide)")
+    p.add_argument("--value", help="long panel: the column of values (default: none, the panel is wide); values "
+                                   "that look like price levels are still refused unless --levels or --as-returns "
+                                   "is given")
     how = p.add_mutually_exclusive_group()
     how.add_argument("--levels", action="store_true",
                      help="the series are price levels (above zero): fit each one's log returns in percent, "
-                          "100*ln(p[t]/p[t-1])")
+                          "100*ln(p[t]/p[t-1]) (default: off)")
     how.add_argument("--as-returns", action="store_true",
-                     help="take every series as returns even when it looks like price levels")
+                     help="take every series as returns even when it looks like price levels (default: off, such "
+                          "a panel is refused)")
     _model_args(p)
-    p.add_argument("--horizon", type=int, default=12)
-    p.add_argument("--level", type=float, default=0.99)
-    p.add_argument("--workers", type=int, default=None, help="processes (default: one per core)")
-    p.add_argument("--cluster", help="address of a Dask scheduler (needs volcast[cluster])")
+    p.add_argument("--horizon", type=int, default=12, metavar="H",
+                   help="forecast horizon in periods: each series gets vol_H (the H-th period's volatility) and "
+                        "cumvol_H (of the cumulative H-period return) (default: %(default)s)")
+    p.add_argument("--level", type=float, default=0.99, metavar="L",
+                   help="level of the one-period VaR and ES rows, from 0.5 to below 1 (default: %(default)s)")
+    p.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="worker processes (default: one per core)")
+    p.add_argument("--cluster", metavar="ADDRESS",
+                   help="address of a Dask scheduler, e.g. tcp://host:8786; needs volcast[cluster] (default: none, "
+                        "local processes)")
     p.add_argument("--skip-bad", action="store_true",
                    help="leave out the cells inside a series that are not numbers (text, n/a, inf, blanks) instead "
-                        "of giving that series an error row; each series' tidy rows say how many were left out")
-    p.add_argument("-o", "--out", required=True, help="output .csv or .parquet (never the panel itself)")
-    p.add_argument("--progress", action="store_true", help="show the progress bar even when not on a terminal")
+                        "of giving that series an error row; each series' tidy rows say how many were left out "
+                        "(default: off)")
+    p.add_argument("-o", "--out", required=True, help="output .csv or .parquet, never the panel itself (required)")
+    _progress_arg(p)
     p.set_defaults(func=_cmd_batch)
-    p = sub.add_parser("report", help="the model-validation pack of a workbook or a CSV column, as one HTML file")
-    p.add_argument("file", help="a workbook made from a shipped template (.xlsx), or a CSV file with a header row")
-    p.add_argument("-o", "--out", required=True, help="the report, an .html file")
-    p.add_argument("--column", help="CSV: the column, as for fit")
-    p.add_argument("--levels", action="store_true", help="CSV: the column holds price levels; use their log returns in percent")
-    p.add_argument("--model", help="CSV: model string (default GARCH(1,1))")
-    p.add_argument("--dist", help="CSV: normal, t, skewt or ged (default normal)")
-    p.add_argument("--options", help='CSV: options string, e.g. "periods=12; returns=log100"')
+    p = sub.add_parser("report", help="the model-validation pack of a workbook or a CSV column, as one HTML file",
+                       description="Writes one self-contained HTML file a model validator can read without Volcast: "
+                                   "data, fit with three kinds of standard errors, diagnostics with readings, "
+                                   "stability, walk-forward backtest, comparison, news impact, term structure with "
+                                   "VaR/ES, cautions and a reproducibility block.")
+    p.add_argument("file", help="a workbook made from a shipped template (.xlsx), or a CSV file with a header row "
+                                "(required)")
+    p.add_argument("-o", "--out", required=True, help="the report, an .html file (required)")
+    p.add_argument("--column", metavar="C", help="CSV: column name or 1-based number, chosen as for fit (default: as for fit)")
+    p.add_argument("--levels", action="store_true",
+                   help="CSV: the column holds price levels; use their log returns in percent (default: off)")
+    p.add_argument("--model", help="CSV: model string (default: GARCH(1,1))")
+    p.add_argument("--dist", help="CSV: normal, t, skewt or ged (default: normal)")
+    p.add_argument("--options", help='CSV: options string, e.g. "periods=12; returns=log100" (default: none)')
     p.add_argument("--level", type=float, help="VaR level (default: the workbook's var_level, else 0.99)")
     p.set_defaults(func=_cmd_report)
-    p = sub.add_parser("demo", help="the main job on the bundled demo data: refresh the monthly template, print the headline")
-    p.add_argument("--out", help="folder for the workbook (default: ./volcast-demo)")
+    p = sub.add_parser("demo", help="the main job on the bundled demo data: refresh the monthly template, print the headline",
+                       description="Loads the bundled synthetic equity composite into the monthly template, "
+                                   "recalculates it, prints the headline forecast and writes the workbook and a chart.")
+    p.add_argument("--out", metavar="DIR", help="folder for the workbook and chart (default: ./volcast-demo)")
     p.set_defaults(func=_cmd_demo)
+    p = sub.add_parser("examples", help="copy the example CSV files (synthetic) into a folder, to try the commands on",
+                       description="Copies the bundled example files (synthetic data of a fictional asset manager: "
+                                   "returns, levels and a panel of six funds) into a folder; the README's examples "
+                                   "run on them.")
+    p.add_argument("dir", nargs="?", default="volcast-examples",
+                   help="folder to copy them into, made if missing (default: %(default)s)")
+    p.add_argument("--force", action="store_true", help="write over files of the same names (default: off, refuse)")
+    p.set_defaults(func=_cmd_examples)
     return parser
 
 
@@ -676,6 +795,9 @@ def main(argv=None) -> int:
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
+        if getattr(args, "func", None) is None:  # bare `volcast`: what it can do, not an error
+            parser.print_help()
+            return 0
         return args.func(args)
     except CliError as exc:
         print(f"volcast: {_one_reason(exc)}", file=sys.stderr)

@@ -101,8 +101,8 @@ def check_row_widths(path, records) -> None:
         if any(row[width:]):
             first = next(c for c in row[width:] if c)
             split = len(row) == width + 1 and re.fullmatch(r"[-+]?\d+", row[width - 1] or "x") and first.isdigit()
-            hint = ("a decimal comma in a comma-separated file? write 0.5, or separate the fields with semicolons"
-                    if split else "quote a field that holds the separator, or name every column")
+            hint = (f"a decimal comma in a comma-separated file? write {row[width - 1]}.{first}, or separate the "
+                    "fields with semicolons" if split else "quote a field that holds the separator, or name every column")
             raise PanelError(f"{path} line {lineno}: {len(row)} fields but the header names {width} "
                              f"column{'s' if width != 1 else ''} (\"{excerpt(first)}\" has none); {hint}")
 

@@ -28,14 +28,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from .coverage import Coverage, coverage
-from .errors import InputError
+from .errors import InputError, value_words
 from .esbacktest import ESTests, es_tests
 from .estimate import check_params, evaluate, fit
 from .forecast import forecast
 from .likelihood import Likelihood
 from .mean import check_regressors, layout
 
-__all__ = ["Backtest", "backtest"]
+__all__ = ["Backtest", "backtest", "check_length"]
 
 
 @dataclass
@@ -59,6 +59,16 @@ class Backtest:
         return np.log(self.variance) + (self.actual - self.mean) ** 2 / self.variance
 
 
+def check_length(T: int, spec) -> None:
+    """Refuse a series too short for any walk-forward backtest of ``spec``: the smallest window
+    (the fewest returns the model is estimated on) plus one return to forecast."""
+    need = spec.min_obs + 1
+    if T < need:
+        raise InputError(f"returns: {T} number{'s are' if T != 1 else ' is'} too few for a backtest of "
+                         f"{spec.canonical}; it needs at least {need} (a window of {spec.min_obs}, the fewest "
+                         f"{spec.canonical} is estimated on, and one return to forecast)")
+
+
 def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: str = "rolling",
              refit: int = 1, params=None, progress=None, X=None, refilter: bool = False) -> Backtest:
     """Walk forward over ``r`` (module docstring).  ``X``: the regressors, one row per return; each
@@ -69,14 +79,15 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     spec = layout(spec, X, options.xvar)
     X = check_regressors(X, T, spec)
     if scheme not in ("rolling", "expanding"):
-        raise InputError(f"scheme must be rolling or expanding, got {scheme}")
+        raise InputError(f"scheme must be rolling or expanding, got {value_words(scheme)}")
+    check_length(T, spec)
     if not (isinstance(window, int) and spec.min_obs <= window < T):
         raise InputError(f"window must be a whole number from {spec.min_obs} (the least {spec.canonical} can be "
-                         f"estimated on) to {T - 1} (one less than the returns), got {window}")
+                         f"estimated on) to {T - 1} (one less than the returns), got {value_words(window)}")
     if not (isinstance(refit, int) and refit >= 1):
-        raise InputError(f"refit must be a whole number of periods, 1 or more, got {refit}")
+        raise InputError(f"refit must be a whole number of periods, 1 or more, got {value_words(refit)}")
     if not (0.5 <= level < 1):
-        raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {level}")
+        raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {value_words(level)}")
     names = tuple(spec.param_names) + tuple(dist.param_names)
     if params is not None and len(params) != len(names):
         raise InputError(f"{spec.canonical} with {dist.name} shocks takes {len(names)} parameters, got {len(params)}")

@@ -30,7 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from .errors import InputError
+from .errors import InputError, value_words
 
 __all__ = ["DieboldMariano", "diebold_mariano", "default_lags", "max_lags", "MIN_PAIRS"]
 
@@ -85,7 +85,7 @@ def diebold_mariano(a, b, lags=None) -> DieboldMariano:
         L = default_lags(n)
     else:
         if isinstance(lags, bool) or not isinstance(lags, (int, np.integer)) or not 0 <= lags <= hi:
-            raise InputError(f"lags must be a whole number from 0 to {hi} for {n} pairs, got {lags}")
+            raise InputError(f"lags must be a whole number from 0 to {hi} for {n} pairs, got {value_words(lags)}")
         L = int(lags)
     d = a - b
     dbar = float(d.mean())

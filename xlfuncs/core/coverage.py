@@ -18,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from .errors import InputError
+from .errors import InputError, value_words
 
 __all__ = ["Coverage", "coverage", "kupiec", "christoffersen", "zone", "news_impact"]
 
@@ -86,7 +86,7 @@ def coverage(returns, var, level: float) -> Coverage:
     """Coverage of a VaR series (losses positive) against the realised returns, row by row.
     An exception is a return below minus the VaR."""
     if not (isinstance(level, (int, float)) and 0.5 <= level < 1):
-        raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {level}")
+        raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {value_words(level)}")
     r = np.asarray(returns, dtype=float)
     v = np.asarray(var, dtype=float)
     if r.shape != v.shape:

@@ -35,7 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from .errors import InputError
+from .errors import InputError, describe_value, value_words
 
 __all__ = [
     "LABELS",
@@ -99,7 +99,7 @@ def _series(x, what: str = "z") -> np.ndarray:
         raise InputError(f"{what} must be one column or one row of numbers, got shape {a.shape}")
     if not np.all(np.isfinite(a)):
         bad = int(np.flatnonzero(~np.isfinite(a))[0]) + 1
-        raise InputError(f"{what} must be finite numbers; value {bad} is {a[bad - 1]} (drop undefined values first)")
+        raise InputError(f"{what} must be finite numbers; value {bad} is {value_words(a[bad - 1])} (drop undefined values first)")
     if len(a) < MIN_OBS:
         raise InputError(f"the tests need at least {MIN_OBS} residuals, got {len(a)}")
     return a
@@ -107,11 +107,11 @@ def _series(x, what: str = "z") -> np.ndarray:
 
 def _whole(value, name: str, lo: int, hi: int | None = None) -> int:
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer, float, np.floating)):
-        raise InputError(f"{name} must be a whole number, got {value!r}")
+        raise InputError(f"{name} must be a whole number, got {describe_value(value)}")
     x = float(value)
     ok = math.isfinite(x) and x.is_integer() and x >= lo and (hi is None or x <= hi)
     if not ok:
-        shown = int(x) if math.isfinite(x) and x.is_integer() else value
+        shown = value_words(x)
         if hi is None:
             raise InputError(f"{name} must be a whole number of at least {lo}, got {shown}")
         raise InputError(f"{name} must be a whole number from {lo} to {hi}, got {shown}")
@@ -250,6 +250,18 @@ def sign_bias(z):
     return out
 
 
+def _undefined_reason(a: np.ndarray, label: str) -> str:
+    """Why a row's statistic is undefined for the residuals ``a`` (its regression or
+    autocorrelation has nothing that varies)."""
+    if np.ptp(a) == 0:
+        return "not computed: the standardised residuals are all the same number, so there is nothing to test"
+    if label != LABELS[0] and label != LABELS[3] and np.ptp(a ** 2) == 0:
+        return "not computed: every squared standardised residual is the same number, so there is no variation to test"
+    if label in LABELS[4:] and (np.all(a[:-1] < 0) or np.all(a[:-1] >= 0)):
+        return "not computed: every residual has the same sign, so the sign regressors do not vary"
+    return "not computed: the test's regression is singular for these residuals (a regressor does not vary)"
+
+
 def run_tests(z, lags: int, arma_order: int, variance_order: int) -> list[TestResult]:
     """The eight tests of :data:`LABELS`, in that order, on standardised residuals ``z``.
 
@@ -259,8 +271,20 @@ def run_tests(z, lags: int, arma_order: int, variance_order: int) -> list[TestRe
     constant variance).  Reducing the z^2 degrees of freedom by the variance order is
     common practice rather than an exact result.  A Ljung-Box test whose ``lags`` do not
     exceed its order has no degree of freedom left: its row is ``nan`` with a ``note``
-    saying what it needs, and the other rows are computed as usual.
+    saying what it needs, and the other rows are computed as usual.  Every row that is
+    ``nan`` has a ``note`` saying why: fewer than :data:`MIN_OBS` residuals (every row),
+    residuals or squared residuals that do not vary, residuals all of one sign.
     """
+    try:
+        a = np.asarray(z, dtype=float)
+    except (TypeError, ValueError):
+        a = None
+    if a is not None and a.ndim == 1 and len(a) < MIN_OBS and np.all(np.isfinite(a)):
+        _whole(lags, "lags", 1)
+        _whole(arma_order, "arma_order", 0)
+        _whole(variance_order, "variance_order", 0)
+        why = f"not computed: the tests need at least {MIN_OBS} standardised residuals, got {len(a)}"
+        return [TestResult(label, math.nan, None, math.nan, why) for label in LABELS]
     a = _series(z)
     n = len(a)
     L = _lags(lags, n)
@@ -281,9 +305,16 @@ def run_tests(z, lags: int, arma_order: int, variance_order: int) -> list[TestRe
         jarque_bera(a),
         *sign_bias(a),
     ]
-    return [TestResult(label, float(s), None if df is None or not math.isfinite(df) else float(df), float(pv),
-                       notes.get(label))
-            for label, (s, df, pv) in zip(LABELS, rows)]
+    out = []
+    for label, (s, df, pv) in zip(LABELS, rows):
+        note = notes.get(label)
+        if note is None and not (math.isfinite(s) and math.isfinite(pv)):
+            note = _undefined_reason(a, label)
+        if note is not None:  # a row not computed is blank throughout, its reason in the note
+            s, df, pv = math.nan, None, math.nan
+        out.append(TestResult(label, float(s), None if df is None or not math.isfinite(df) else float(df), float(pv),
+                              note))
+    return out
 
 
 def default_lags(n, order: int = 0) -> int:

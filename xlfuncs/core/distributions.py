@@ -40,7 +40,7 @@ import math
 import numpy as np
 from scipy import special
 
-from xlfuncs.core.errors import InputError, excerpt
+from xlfuncs.core.errors import InputError, describe_value, excerpt, number_words
 
 __all__ = [
     "Distribution",
@@ -57,8 +57,10 @@ _LOG_2PI = math.log(2.0 * math.pi)
 
 
 def _fmt(value):
-    """A number as a user would type it: ``1.5``, ``2``, ``nan``."""
-    return f"{float(value):.10g}"
+    """A number as a user would type it (``1.5``, ``2``), in words where it is not finite
+    ("not a number", "infinity")."""
+    x = float(value)
+    return f"{x:.10g}" if np.isfinite(x) else number_words(x)
 
 
 def _as_array(x):
@@ -759,7 +761,7 @@ def get_distribution(name):
         return name
     if not isinstance(name, str):
         raise InputError(
-            f"distribution must be a name such as normal, t, skewt or ged, got {excerpt(repr(name))}"
+            f"distribution must be a name such as normal, t, skewt or ged, got {describe_value(name)}"
         )
     key = "".join(name.split()).lower()
     canonical = _ALIASES.get(key.replace("-", "").replace("_", "").replace("'", ""))

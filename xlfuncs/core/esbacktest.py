@@ -30,7 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
-from .errors import InputError
+from .errors import InputError, value_words
 
 __all__ = ["ESTests", "BOOTSTRAP", "SIMULATIONS", "SEED", "exceedance_residuals", "mcneil_frey", "z2_statistic",
            "z2_pvalue", "es_tests"]
@@ -61,7 +61,7 @@ def _check(r, v, s, level):
     if r.size == 0:
         raise InputError("the ES tests need at least one forecast")
     if isinstance(level, bool) or not isinstance(level, (int, float)) or not 0.5 <= level < 1:
-        raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {level}")
+        raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {value_words(level)}")
     for name, x in (("returns", r), ("VaR", v), ("ES", s)):
         if not np.all(np.isfinite(x)):
             raise InputError(f"{name} row {int(np.flatnonzero(~np.isfinite(x))[0]) + 1} is not a finite number")

@@ -29,7 +29,7 @@ import numpy as np
 from scipy import optimize, stats
 
 from .distributions import Distribution, get_distribution
-from .errors import ConvergenceError, InputError
+from .errors import ConvergenceError, InputError, describe_value
 from .families import FAMILIES, stationary
 from .likelihood import Likelihood
 from .mean import layout
@@ -136,7 +136,7 @@ def check_params(spec: ModelSpec, dist: Distribution, names, params) -> None:
     d = dict(zip(names, params))
     for n, v in d.items():
         if not math.isfinite(v):
-            raise InputError(f"parameter {n} must be a finite number, got {v}")
+            raise InputError(f"parameter {n} must be a finite number, got {describe_value(v)}")
     eta = np.array([d[n] for n in dist.param_names])
     dist.check(eta)
     vp = np.array([d[n] for n in spec.variance_names], dtype=float)

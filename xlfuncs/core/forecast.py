@@ -29,7 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InputError
+from .errors import InputError, value_words
 from .families import FAMILIES, History
 from .likelihood import Likelihood
 from .mean import regressor_list
@@ -165,7 +165,7 @@ def forecast(fit, r, horizon: int, seed: int | None = None, paths: int | None = 
     out (zeros), and a model whose only regressors enter the mean needs no future values.
     """
     if not (isinstance(horizon, (int, np.integer)) and 1 <= horizon <= MAX_HORIZON):
-        raise InputError(f"horizon must be a whole number from 1 to {MAX_HORIZON}, got {horizon}")
+        raise InputError(f"horizon must be a whole number from 1 to {MAX_HORIZON}, got {value_words(horizon)}")
     spec = fit.spec
     H = int(horizon)
     needed = spec.n_regressors and (mean or spec.xvar)

@@ -120,7 +120,7 @@ def diagnostics(results, spec, dist, z) -> list[str]:
             out.append(note)
             continue
         if not _finite(t.statistic) or not _finite(t.p_value):
-            out.append("undefined for these residuals (no variation to test)")
+            out.append("not computed: undefined for these residuals (no variation to test)")
             continue
         p = t.p_value
         if t.label == "Ljung-Box z":

@@ -63,7 +63,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import integrate, special
 
-from .errors import InputError
+from .errors import InputError, value_words
 from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
 from .spec import RETURN_DEFINITIONS
@@ -111,20 +111,20 @@ def _real(x) -> float | None:
 def _whole(x, name: str, lo: int, hi: int) -> int:
     v = _real(x)
     if v is None or not (math.isfinite(v) and v.is_integer() and lo <= v <= hi):
-        raise InputError(f"{name} must be a whole number from {lo} to {hi}, got {x!r}")
+        raise InputError(f"{name} must be a whole number from {lo} to {hi}, got {value_words(x)}")
     return int(v)
 
 
 def _check_level(level) -> float:
     v = _real(level)
     if v is None or not (0.5 <= v < 1.0):  # also rejects nan
-        raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {level!r}")
+        raise InputError(f"level must be between 0.5 and 1, e.g. 0.99, got {value_words(level)}")
     return v
 
 
 def _check_returns(returns) -> str:
     if not (isinstance(returns, str) and returns.strip().lower() in RETURN_DEFINITIONS):
-        raise InputError(f"returns must be one of {', '.join(RETURN_DEFINITIONS)}, got {returns!r}")
+        raise InputError(f"returns must be one of {', '.join(RETURN_DEFINITIONS)}, got {value_words(returns)}")
     return returns.strip().lower()
 
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 
 from .distributions import Distribution
-from .errors import InputError
+from .errors import InputError, describe_value
 from .families import History
 from .forecast import future_regressors, future_shift, in_sample
 from .mean import regressor_list
@@ -147,9 +147,9 @@ def simulate_forward(fit, r, horizon: int, paths: int, rng: np.random.Generator 
     gives the same paths whatever is done with them.
     """
     if not (isinstance(horizon, (int, np.integer)) and not isinstance(horizon, bool) and horizon >= 1):
-        raise InputError(f"horizon must be a whole number of 1 or more, got {horizon!r}")
+        raise InputError(f"horizon must be a whole number of 1 or more, got {describe_value(horizon)}")
     if not (isinstance(paths, (int, np.integer)) and not isinstance(paths, bool) and paths >= 1):
-        raise InputError(f"paths must be a whole number of 1 or more, got {paths!r}")
+        raise InputError(f"paths must be a whole number of 1 or more, got {describe_value(paths)}")
     rng = rng or np.random.default_rng()
     rets = np.empty((int(horizon), int(paths)))
     vars_ = np.empty((int(horizon), int(paths))) if return_variance else None

@@ -29,7 +29,7 @@ import math
 import re
 from dataclasses import dataclass, field, replace
 
-from .errors import InputError, excerpt
+from .errors import InputError, describe_value, excerpt, number_words
 from .families import FAMILIES, WORDS, family_for
 
 __all__ = [
@@ -234,7 +234,7 @@ def parse_model(text) -> ModelSpec:
     if text is None or (isinstance(text, str) and not text.strip()):
         return ModelSpec(mean="const", variance="garch", p=1, q=1)
     if not isinstance(text, str):
-        raise InputError(f"model must be text such as GARCH(1,1), got {excerpt(repr(text))}")
+        raise InputError(f"model must be text such as GARCH(1,1), got {describe_value(text)}")
     raw = text
     s = re.sub(r"\s+", "", text).upper()
     if s.count("(") != s.count(")"):
@@ -419,6 +419,17 @@ def _fmt_number(x: float) -> str:
     return repr(float(x))
 
 
+def _typed_value(value: str) -> str:
+    """An options value as typed, with its meaning where Python would read it as a number that is
+    not finite (nan, inf): "nan (not a number)", "-inf (minus infinity)"."""
+    shown = excerpt(value)
+    try:
+        x = float(value)
+    except ValueError:
+        return shown
+    return shown if math.isfinite(x) else f"{shown} ({number_words(x)})"
+
+
 def _columns(value: str, shown_value: str) -> tuple:
     """The column numbers of ``xvar=2,3`` (ascending, each once)."""
     cols = []
@@ -437,9 +448,7 @@ def parse_options(text) -> Options:
     if text is None:
         return Options()
     if not isinstance(text, str):
-        if isinstance(text, (int, float)) and not isinstance(text, bool):
-            raise InputError(f"options must be text such as \"se=hessian; nu=8\", got the number {text}")
-        raise InputError(f"options must be text such as \"se=hessian; nu=8\", got {excerpt(repr(text))}")
+        raise InputError(f"options must be text such as \"se=hessian; nu=8\", got {describe_value(text)}")
     values = dict(_DEFAULTS)
     ints: dict = {}
     fixed: dict = {}
@@ -453,7 +462,7 @@ def parse_options(text) -> Options:
         key, _, value = chunk.partition("=")
         key = re.sub(r"\s+", "", key).lower()
         value = value.strip()
-        shown_key, shown_value = excerpt(key), excerpt(value)
+        shown_key, shown_value = excerpt(key), _typed_value(value)
         low = value.lower()
         if not value:
             raise InputError(f'options: {shown_key}= has no value')

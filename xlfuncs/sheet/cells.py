@@ -9,7 +9,6 @@ a traceback).
 
 from __future__ import annotations
 
-import datetime as dt
 import functools
 import math
 import warnings
@@ -17,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..core.errors import EXCERPT_CHARS, InputError, VolcastError, excerpt
+from ..core.errors import EXCERPT_CHARS, InputError, VolcastError, describe_value, excerpt, value_words
 
 __all__ = [
     "SheetError",
@@ -60,33 +59,15 @@ def shown(value, limit: int = EXCERPT_CHARS) -> str:
 
     The one helper through which the worksheet layer echoes input: text in double quotes, cut to
     ``limit`` characters with "..." and its control characters escaped; TRUE/FALSE for logical
-    values; a date as 2020-01-31 (with the time only when it is not midnight); NaN, infinity and
-    -infinity for the numbers that are not finite; an error value as Excel writes it (#N/A).
+    values; a date as 2020-01-31 (with the time only when it is not midnight); "not a number",
+    "infinity" and "minus infinity" for the numbers that are not finite; "a blank cell" for an
+    empty one; an error value as Excel writes it (#N/A).  See ``core.errors.value_words``.
     """
     if value is None:
         return "a blank cell"
-    if isinstance(value, (bool, np.bool_)):
-        return "TRUE" if value else "FALSE"
     if _is_excel_error(value):
         return excerpt(str(value).strip(), limit)
-    if isinstance(value, dt.datetime):
-        if value.time() == dt.time(0, 0) and value.tzinfo is None:
-            return value.date().isoformat()
-        return excerpt(value.isoformat(sep=" "), limit)
-    if isinstance(value, (dt.date, dt.time)):
-        return value.isoformat()
-    if isinstance(value, (int, np.integer)):
-        return excerpt(str(int(value)), limit)
-    if isinstance(value, (float, np.floating)):
-        x = float(value)
-        if math.isnan(x):
-            return "NaN"
-        if math.isinf(x):
-            return "infinity" if x > 0 else "-infinity"
-        return f"{x:.15g}"
-    if isinstance(value, str):
-        return f'"{excerpt(value, limit)}"'
-    return f"{type(value).__name__} {excerpt(repr(value), limit)}"
+    return value_words(value, limit)
 
 
 def is_error_text(value) -> bool:
@@ -163,19 +144,22 @@ class Returns:
 
 def describe(v) -> str:
     """What a cell holds, for "returns row 3 holds ...": the value's kind and ``shown`` value."""
-    if isinstance(v, (bool, np.bool_)):
-        return f"the logical value {shown(v)}"
+    if v is None:
+        return "a blank cell"
     if _is_excel_error(v):
         return f"the error {shown(v)}"
     if is_error_text(v):
         return f"an error from another cell: {excerpt(v.strip()[6:].strip(), CHAINED_ERROR_CHARS)}"
-    if isinstance(v, str):
-        return f"text {shown(v)}"
-    if isinstance(v, dt.datetime) or isinstance(v, dt.date):
-        return f"the date {shown(v)}"
-    if isinstance(v, (int, float, np.integer, np.floating)):
-        return f"the number {shown(v)}"
-    return shown(v)
+    return describe_value(v)
+
+
+def _got(v) -> str:
+    """A value for "must be ..., got ...": a finite number as it is (2.5), anything else with its
+    kind (the date 2020-01-31, a value that is not a number, infinity)."""
+    if isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_)) \
+            and math.isfinite(float(v)):
+        return shown(v)
+    return describe(v)
 
 
 def _chained(value) -> str:
@@ -226,7 +210,7 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
         except (TypeError, ValueError):
             raise SheetError(f"{arg} {unit} {i + 1} holds {describe(v)}; numbers only") from None
         if not math.isfinite(x):
-            raise SheetError(f"{arg} {unit} {i + 1} is not a finite number ({shown(x)}); numbers only")
+            raise SheetError(f"{arg} {unit} {i + 1} holds {describe(x)}; finite numbers only")
         vals.append(x)
         pos.append(i)
     return Returns(np.array(vals), np.array(pos, dtype=int), n, orientation)
@@ -242,7 +226,7 @@ def _cell_number(v, where: str) -> float:
     except (TypeError, ValueError):
         raise SheetError(f"{where} holds {describe(v)}; numbers only") from None
     if not math.isfinite(x):
-        raise SheetError(f"{where} is not a finite number ({shown(x)}); numbers only")
+        raise SheetError(f"{where} holds {describe(x)}; finite numbers only")
     return x
 
 
@@ -393,7 +377,7 @@ def int_arg(value, arg: str, lo: int, hi: int, default=None) -> int:
     x = _number(v, arg, wanted)
     if not math.isfinite(x) or not x.is_integer() or not lo <= x <= hi:
         whole = math.isfinite(x) and x.is_integer() and abs(x) < 1e15
-        raise SheetError(f"{arg} must be {wanted}, got {shown(int(x) if whole else v)}")
+        raise SheetError(f"{arg} must be {wanted}, got {shown(int(x)) if whole else _got(v)}")
     return int(x)
 
 
@@ -407,5 +391,5 @@ def float_arg(value, arg: str, default=None, example: str = "") -> float:
         return default
     x = _number(v, arg, wanted)
     if not math.isfinite(x):
-        raise SheetError(f"{arg} must be a finite number, got {shown(x)}")
+        raise SheetError(f"{arg} must be a finite number, got {describe(x)}")
     return x

@@ -35,7 +35,7 @@ from ..core.forecast import MAX_HORIZON, forecast as core_forecast, in_sample, l
 from ..core.spec import parse_model, parse_options
 from .cache import FIT_CACHE
 from ..core.diagnostics import MIN_OBS as MIN_TEST_OBS, default_lags, max_lags, run_tests
-from ..core.backtest import backtest as core_backtest
+from ..core.backtest import backtest as core_backtest, check_length
 from ..core.coverage import coverage as core_coverage, news_impact
 from ..core.comparison import MIN_PAIRS as DM_MIN_PAIRS, diebold_mariano, max_lags as dm_max_lags
 from ..core.esbacktest import es_tests as core_es_tests
@@ -231,7 +231,7 @@ def _paths(opts) -> int:
 _COMPARE_HEADER = ["model", "dist", "loglik", "params", "aic", "bic", "persistence", "converged", "rank_bic"]
 
 
-def _split_list(value, arg: str) -> list:
+def _split_list(value, arg: str, example: str = "GARCH(1,1)") -> list:
     """Texts from a range, each cell holding one item or several separated by commas or
     semicolons (commas inside parentheses, as in GARCH(1,1), do not separate)."""
     items = []
@@ -240,7 +240,7 @@ def _split_list(value, arg: str) -> list:
             if is_blank(cell):
                 continue
             if is_error_text(cell) or not isinstance(cell, str):
-                raise SheetError(f"{arg} must be text such as GARCH(1,1), got {describe(cell)}")
+                raise SheetError(f"{arg} must be text such as {example}, got {describe(cell)}")
             depth, start = 0, 0
             for i, ch in enumerate(cell + ","):
                 if ch == "(":
@@ -261,7 +261,7 @@ def VOLCOMPARE(returns, models, dist=None, options=None):
     model_list = _split_list(models, "models")
     if not model_list:
         raise SheetError("models is empty; give model strings such as GARCH(1,1), GJR-GARCH(1,1)")
-    dist_list = _split_list(dist, "dist") or ["normal"]
+    dist_list = _split_list(dist, "dist", "t (or several: normal, t, skewt)") or ["normal"]
     parsed = []
     for m in model_list:
         for d in dist_list:
@@ -306,11 +306,11 @@ def VOLTESTS(returns, fit, lags=None, regressors=None):
         z = resid / np.sqrt(var)
     z = z[np.isfinite(z)]
     n = len(z)
-    if n < MIN_TEST_OBS:
-        raise SheetError(f"returns: the tests need at least {MIN_TEST_OBS} standardised residuals, got {n}")
     spec = table.spec
     var_order = spec.family.diagnostic_order
-    L = int_arg(lags, "lags", 1, max_lags(n), default=default_lags(n, max(spec.ar + spec.ma, var_order)))
+    # too few residuals: every row says so (the lags are still read, so a bad one is named)
+    L = int_arg(lags, "lags", 1, max_lags(n) if n >= MIN_TEST_OBS else 10_000,
+                default=default_lags(n, max(spec.ar + spec.ma, var_order)))
     out = [["test", "statistic", "df", "p_value", "reading"]]
     results = run_tests(z, L, spec.ar + spec.ma, var_order)
     for t, reading in zip(results, readings.diagnostics(results, spec, table.dist, z)):
@@ -565,7 +565,8 @@ def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None, re
         spec = layout(spec, X, opts.xvar)
     else:
         _needs_regressors(spec, X, _LAST)
-    w = int_arg(window, "window", 1, max(1, len(data.values) - 1))
+    check_length(len(data.values), spec)  # a series too short for any window says so first
+    w = int_arg(window, "window", 1, len(data.values) - 1)
     check_backtest(spec, dist, len(data.values), w, own.get("scheme", "rolling"), own.get("refit", 1),
                    estimating=params is None, paths=_paths(opts))
     key = ("backtest",) + FIT_CACHE.key(data.values, spec.canonical, dist.name, opts.estimation_key, X) + (

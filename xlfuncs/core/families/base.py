@@ -52,7 +52,7 @@ import math
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, describe_value
 
 __all__ = ["VarianceFamily", "History", "stationary"]
 
@@ -219,7 +219,7 @@ class VarianceFamily:
         vp = self._vp(vp)
         for n, v in zip(self.param_names, vp):
             if not math.isfinite(v):
-                raise InputError(f"parameter {n} must be a finite number, got {v}")
+                raise InputError(f"parameter {n} must be a finite number, got {describe_value(v)}")
         self._check(self._named(vp), np.asarray(eta, dtype=float), dist)
 
     def _check(self, d, eta, dist):
