@@ -32,6 +32,7 @@ import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from ..core.errors import value_words
 from .contract import FIGURES, HISTORY_HEADER, missing_names, name_range
 from .layout import fit_to_data, format_results, values_copy_path, write_values_copy
 from .recalc import RecalcError, cell_name, recalc
@@ -93,11 +94,11 @@ def _read_new(path: Path) -> list:
         try:
             d = dt.date.fromisoformat(raw_d)
         except ValueError:
-            raise RecalcError(f"{path} line {lineno}: cannot read a date (YYYY-MM-DD) from {raw_d[:40]!r}") from None
+            raise RecalcError(f"{path} line {lineno}: cannot read a date (YYYY-MM-DD) from {value_words(raw_d)}") from None
         try:
             v = float(raw_v)
         except ValueError:
-            raise RecalcError(f"{path} line {lineno}: the level {raw_v[:40]!r} on {d} is not a number"
+            raise RecalcError(f"{path} line {lineno}: the level {value_words(raw_v)} on {d} is not a number"
                               f"{decimal_comma_hint(raw_v)}") from None
         if not math.isfinite(v) or v <= 0:
             raise RecalcError(f"{path} line {lineno}: the level on {d} must be a positive finite number, got {raw_v[:40]}")
