@@ -68,8 +68,12 @@ from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
 from .spec import RETURN_DEFINITIONS
 
-__all__ = ["Risk", "risk", "DEFAULT_PATHS", "MIN_PATHS", "MAX_PATHS", "RETURN_DEFINITIONS"]
+__all__ = ["Risk", "risk", "DEFAULT_PATHS", "RISK_PATHS", "MIN_PATHS", "MAX_PATHS", "RETURN_DEFINITIONS"]
 
+#: the simulated paths behind the risk figures beyond one period when the fit's options do not
+#: say (a power of two: the balanced point sets of the Sobol' sequence; 2^15 paths keep 600
+#: periods within the worksheet's bound on draws, xlfuncs/sheet/bounds.py)
+RISK_PATHS = 2 ** 15
 MIN_PATHS = 1000
 MAX_PATHS = 1_000_000
 _MAX_SEED = 2**31 - 1
@@ -187,11 +191,56 @@ def _conditional_var(dist, eta, a, s, w, alpha: float, start: float):
                 nx, width = x + width, 2.0 * width
             else:
                 nx = 0.5 * (lo + hi)
-        done = abs(nx - x) <= 1e-13 * (1.0 + abs(x))
+        done = abs(nx - x) <= 1e-11 * (1.0 + abs(x))
         x = nx
         if done:
             break
     return -x
+
+
+#: the share of the normal-theory shift of the sum's quantile that the normal scores of steps
+#: 1..h-1 are moved by (measured in benchmarks/risk_accuracy.py)
+TILT = 0.8
+SCALE = 1.15
+
+
+def _scores(horizon: int, paths: int, seed: int, alpha: float):
+    """Normal scores of the shocks, shape (paths, horizon), and each path's log likelihood ratio.
+
+    Randomised quasi-Monte Carlo: the points of a Sobol' sequence in ``horizon`` dimensions,
+    scrambled (Owen's nested scrambling with the seed; the estimator stays unbiased), turned into
+    standard-normal scores.  The scores of steps 1..h-1 are then moved down by theta (the shift of
+    the sum of h unit shocks to its alpha-quantile, spread over the steps: common practice), the
+    last step's are left as fitted; the log likelihood ratio of a path is
+    sum (theta x + theta^2 / 2) over its shifted scores x.
+    """
+    from scipy.stats import qmc  # only here: the module is slow to import
+
+    sob = qmc.Sobol(horizon, scramble=True, rng=np.random.default_rng(seed))
+    m = max(int(math.ceil(math.log2(paths))), 0)
+    u = sob.random_base2(m)[:paths]  # the first points of 2^m (2^m = paths gives the balanced set)
+    np.clip(u, 2.0 ** -60, 1.0 - 2.0 ** -53, out=u)  # a scrambled point can land on 0 exactly
+    x = special.ndtri(u, out=u)
+    theta = TILT * -float(special.ndtri(alpha)) / math.sqrt(horizon)
+    n = x[:, : horizon - 1]
+    logw = 0.5 * np.sum(n * n, axis=1)
+    n *= SCALE
+    n -= theta
+    logw += -0.5 * np.sum(n * n, axis=1) + (horizon - 1) * math.log(SCALE)
+    return x, logw
+
+
+def _conditional_es(dist, eta, a, s, w, cut: float) -> float:
+    """ES, as a loss, of R = a + s z beyond ``cut``, z from ``dist`` independent of (a, s), over weighted paths.
+
+    Given a path, E[R 1(R <= cut)] = a F(k) + s M(k) with k = (cut - a) / s and M(k) the
+    integral of z f(z) up to k, so ES = -sum w (a F(k) + s M(k)) / sum w F(k): conditional
+    Monte Carlo, as for the VaR.
+    """
+    k = (cut - a) / s
+    p = w * dist.cdf(k, eta)
+    m = w * (s * dist._partial_first_moment(k, np.asarray(eta, dtype=float)))
+    return -float((p @ a + np.sum(m)) / np.sum(p))
 
 
 def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=None, Xf=None) -> Risk:
@@ -200,7 +249,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     ``fit`` is a :class:`~xlfuncs.core.estimate.FitResult` and ``r`` the returns it describes
     (most recent last).  ``level`` is the confidence, 0.5 <= level < 1.  At horizon 1 the
     figures are exact under the fitted distribution; beyond, they come from ``paths``
-    simulated paths (default :data:`DEFAULT_PATHS`) drawn with ``seed`` (default
+    simulated paths (default :data:`RISK_PATHS`) drawn with ``seed`` (default
     :data:`~xlfuncs.core.forecast.DEFAULT_SEED`), so the same inputs give the same numbers.
     ``mean`` and ``sd`` are always the analytic forecast's (exact for every family with a
     closed-form variance forecast, EGARCH's included).
@@ -215,7 +264,8 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     """
     level = _check_level(level)
     horizon = _whole(horizon, "horizon", 1, MAX_HORIZON)
-    paths = DEFAULT_PATHS if paths is None else _whole(paths, "paths", MIN_PATHS, MAX_PATHS)
+    fc_paths = None if paths is None else _whole(paths, "paths", MIN_PATHS, MAX_PATHS)
+    paths = RISK_PATHS if fc_paths is None else fc_paths
     seed = DEFAULT_SEED if seed is None else _whole(seed, "seed", 0, _MAX_SEED)
     if returns is None:
         returns = getattr(getattr(fit, "options", None), "returns", None)
@@ -227,7 +277,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     params = np.asarray(fit.params, dtype=float)
     eta = params[len(params) - nd:]
 
-    fc = forecast(fit, r, horizon, seed=seed, paths=paths, X=X, Xf=Xf)
+    fc = forecast(fit, r, horizon, seed=seed, paths=fc_paths, X=X, Xf=Xf)  # as VOLFORECAST's
     mean = float(np.sum(fc.mean))
     sd = math.sqrt(float(fc.cumvar[-1]))
     sd_note = fc.why if fc.finite_steps is not None and fc.finite_steps < horizon else None
@@ -250,28 +300,23 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
         elif defn == "simple":
             var_value, es_value = 100.0 * var, 100.0 * es
     else:
-        rng = np.random.default_rng(seed)
         alpha = 1.0 - level
-        # importance sampling: the shocks of steps 1..h-1 are drawn shifted down (the shift of the
-        # sum of h iid unit shocks to its alpha-quantile, spread over the steps: common practice),
-        # so more paths end in the lower tail; each path carries the likelihood ratio of its shocks
-        theta = fit.dist.tilt * -float(special.ndtri(alpha)) / math.sqrt(horizon)
-        logw = np.zeros(paths)
+        x, logw = _scores(horizon, paths, seed, alpha)
+        to_shock = fit.dist.normal_scores(eta)
+
         last: list = []
 
         def draw(h):
-            if h == horizon - 1:  # the last step is drawn as fitted and integrated exactly below
-                last.append(fit.dist.rvs(paths, eta, rng))
-                return last[0]
-            z, lw = fit.dist.shifted_rvs(paths, eta, rng, theta)
-            np.add(logw, lw, out=logw)
+            z = to_shock(x[:, h])
+            if h == horizon - 1:  # the last step's shock, integrated exactly in the VaR and ES below
+                last.append(z)
             return z
 
         cum = np.zeros(paths)
         # log of the value factor prod (1 + c r), for simple returns only
         log_factor = np.zeros(paths) if defn in ("simple100", "simple") else None
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            for h, (ret, s2) in enumerate(forward_steps(fit, r, horizon, paths, rng, X, Xf, draw=draw)):
+            for h, (ret, s2) in enumerate(forward_steps(fit, r, horizon, paths, None, X, Xf, draw=draw)):
                 if h == horizon - 1:
                     # given the first h-1 steps, R = a + s z with the last shock z independent of (a, s)
                     s_last = np.sqrt(s2)
@@ -279,20 +324,28 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
                 cum += ret
                 if log_factor is not None:
                     log_factor += np.log1p(np.maximum(c * ret, -1.0))  # a factor below 0 is the value gone
+        del x
         w = np.exp(logw)
         cut = _weighted_quantile(cum, w, alpha)
         var = _conditional_var(fit.dist, eta, a_last, s_last, w, alpha, cut)
+        es = None
         if var is not None:  # else the paths left the finite numbers: the weighted empirical quantile
             cut = -var
+            es = _conditional_es(fit.dist, eta, a_last, s_last, w, cut)
         tail = cum <= cut
-        # the tail means over the same weighted paths, so that ES and ES_value agree (Jensen)
-        es = -_weighted_tail_mean(cum, w, tail)
+        es_paths = -_weighted_tail_mean(cum, w, tail)
+        if es is None or not math.isfinite(es):
+            es = es_paths
         var = -cut
-        method = f"simulation ({paths} paths, seed {seed}; importance sampling, last step exact)"
+        method = f"simulation ({paths} paths, seed {seed}; scrambled Sobol points, importance sampling, last step exact)"
         if is_log:
             var_value = -100.0 * math.expm1(-c * var)
             with np.errstate(over="ignore"):
                 es_value = -100.0 * _weighted_tail_mean(np.expm1(c * cum), w, tail)
+            if es_note is None and es != es_paths:
+                # a control variate: the tail paths' value loss moved by the value map's change between
+                # their ES and the conditional one; the Jensen gap stays the tail paths' own (>= 0)
+                es_value += 100.0 * (math.expm1(-c * es_paths) - math.expm1(-c * es))
         elif log_factor is not None:
             with np.errstate(invalid="ignore"):
                 change = np.expm1(log_factor)  # V = value(T+h)/value(T) - 1
