@@ -342,13 +342,8 @@ class Workbook:
         for key, text in self.formulas.items():
             if key in self.arrays or key in self._anchors:
                 continue
-            names = function_names(text)
-            if not names <= _ELEMENTWISE | _LOGICAL:
+            if not function_names(text) <= _ELEMENTWISE | _LOGICAL:
                 continue
-            if names & _LOGICAL:  # OR/AND reduce a whole array: batched only as element-wise arithmetic
-                text = elementwise_logic(text)
-                if text is None:
-                    continue
             tokens = _ref_tokens(text)
             if not tokens or any(":" in t or t.endswith("#") for _, _, t in tokens):
                 continue
@@ -357,6 +352,12 @@ class Workbook:
             if len(members) < min_size:
                 continue
             key0, text0, tokens0 = members[0]
+            if function_names(text0) & _LOGICAL:
+                # OR/AND reduce a whole array: batched only as element-wise arithmetic, which reads
+                # the same references in the same order (one rewrite serves the group's shape)
+                text0 = elementwise_logic(text0)
+                if text0 is None:
+                    continue
             try:
                 compiled = compile_formula(text0)
             except FormulaError:
