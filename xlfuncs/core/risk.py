@@ -191,7 +191,7 @@ def _conditional_var(dist, eta, a, s, w, alpha: float, start: float):
                 nx, width = x + width, 2.0 * width
             else:
                 nx = 0.5 * (lo + hi)
-        done = abs(nx - x) <= 1e-11 * (1.0 + abs(x))
+        done = abs(nx - x) <= 1e-10 * (1.0 + abs(x))
         x = nx
         if done:
             break
