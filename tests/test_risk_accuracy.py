@@ -72,3 +72,27 @@ def test_estimator_matches_a_long_plain_simulation(series, model, dist, params):
     # the variance reduction: below the plain estimator's standard errors at the same path count
     assert sd[0] < se_var_ref * math.sqrt(N_REF / PATHS)
     assert sd[1] < se_es_ref * math.sqrt(N_REF / PATHS)
+
+
+def test_deterministic_variance_gives_the_exact_normal_sum(series):
+    """GARCH(1,1)-normal with alpha = 0: sigma2[T+t] = omega + beta sigma2[T+t-1] is known at T, so the
+    22-period sum is exactly N(22 mu, sum sigma2[T+t]) (common practice: a sum of independent normals).
+    Its VaR and ES in closed form (the normal quantile and tail mean, SciPy) against the estimator at
+    its default paths over eight seeds: no bias beyond the seeds' own spread, and each seed within
+    0.5% (measured here: at most 0.27%, a standard deviation of about 0.1%; the plain estimator at
+    20,000 paths spreads about 1%)."""
+    from scipy import stats
+
+    params = {"mu": 0.02, "omega": 0.05, "alpha[1]": 0.0, "beta[1]": 0.9}
+    f = _fit("GARCH(1,1)", "normal", params, series)
+    h, a = 22, 1 - LEVEL
+    _, s2 = simulate_forward(f, series, h, 2, np.random.default_rng(0), return_variance=True)
+    assert np.ptp(s2, axis=1).max() == 0.0  # the variance path is the same on every path: deterministic
+    S = math.sqrt(float(s2[:, 0].sum()))
+    exact_var = -(h * params["mu"] + S * stats.norm.ppf(a))
+    exact_es = -h * params["mu"] + S * stats.norm.pdf(stats.norm.ppf(a)) / a
+    est = np.array([[rk.var, rk.es] for rk in (risk(f, series, LEVEL, h, seed=s) for s in SEEDS)])
+    rel = est / [exact_var, exact_es] - 1
+    k = len(SEEDS)
+    assert np.all(np.abs(rel.mean(axis=0)) < Z_TOL * rel.std(axis=0, ddof=1) / math.sqrt(k) + 1e-9)
+    assert np.max(np.abs(rel)) < 0.005
