@@ -54,7 +54,16 @@ CASES = [
 
 @pytest.mark.parametrize("model,dist,params", CASES, ids=[c[0] + "-" + c[1] for c in CASES])
 def test_estimator_matches_a_long_plain_simulation(series, model, dist, params):
-    f = _fit(model, dist, params, series)
+    _check_against_plain(_fit(model, dist, params, series), series, H)
+
+
+def test_long_horizon_matches_a_long_plain_simulation(series):
+    """80 periods: beyond the quasi-random steps (QMC_STEPS = 64, then pseudo-random scores) and
+    with the widening of the proposal shrunk with the horizon; the same checks as above."""
+    _check_against_plain(_fit(*CASES[0][:2], CASES[0][2], series), series, 80)
+
+
+def _check_against_plain(f, series, H):
     a = 1 - LEVEL
     cum = simulate_forward(f, series, H, N_REF, np.random.default_rng(99)).sum(axis=0)
     q = np.quantile(cum, a)

@@ -12,15 +12,19 @@ horizon        how
 1              exact: R = m + s z with the one-step mean forecast m, the one-step
                volatility forecast s and z from the fitted distribution, so
                VaR = -(m + s ppf(1 - level)) and ES = -m + s ES_z(level)
-2 and more     seeded simulation of ``paths`` future paths that continue the fitted
-               recursions from the end of the sample (:func:`forward_steps`), with
-               two variance reductions: importance sampling (the shocks of steps
-               1..h-1 drawn moved towards losses by the distribution's
-               ``shifted_rvs``, each path weighted by its likelihood ratio) and
-               conditional Monte Carlo for the last step in the VaR (given the earlier steps,
+2 and more     seeded simulation of ``paths`` future paths (default :data:`RISK_PATHS`)
+               that continue the fitted recursions from the end of the sample
+               (:func:`forward_steps`), with three variance reductions:
+               scrambled Sobol' points (randomised quasi-Monte Carlo) as the shocks'
+               normal scores, each shock the fitted law's quantile of its score's
+               normal probability (``Distribution.normal_scores``); importance
+               sampling (the scores of steps 1..h-1 widened and moved towards losses,
+               each path weighted by its likelihood ratio, :class:`_Scores`); and
+               conditional Monte Carlo for the last step (given the earlier steps,
                R = a + s z with z independent, so the distribution function of R is
-               the weighted mean of F((x - a)/s), and VaR solves F_R(x) = 1 - level);
-               ES is the weighted mean of the paths beyond it
+               the weighted mean of F((x - a)/s) and VaR solves F_R(x) = 1 - level;
+               ES is the weighted mean of a F(k) + s M(k), M the partial first
+               moment of z, over the weighted mean of F(k), k = (x - a)/s)
 =============  ====================================================================
 
 The ``mean`` and ``sd`` reported with them are those of R from the analytic forecast (the
@@ -47,7 +51,9 @@ as positive percentages of the value:
   R <= -VaR], the mean of the value loss over the tail -- smaller than the transform of ES
   (Jensen).  At horizon 1, R = m + s z and the tail mean is a one-dimensional integral over
   the fitted density of z, computed by adaptive quadrature; beyond, it is the weighted mean over
-  the simulated tail paths.
+  the simulated tail paths, moved by 100 (exp(-c ES_paths) - exp(-c ES)) with ES_paths the same
+  paths' tail mean of R (a control variate: the value map's change from their ES to the
+  conditional one, so the Jensen gap stays that of the tail paths).
 * simple returns: V = prod_t (1 + c r[T+t]) - 1.  At horizon 1 that is c R, so VaR_value and
   ES_value are VaR and ES times 100 c.  Beyond, VaR_value and ES_value are the weighted empirical
   quantile and tail mean of V over the simulated paths (a factor 1 + c r below zero, a loss
@@ -199,35 +205,51 @@ def _conditional_var(dist, eta, a, s, w, alpha: float, start: float):
 
 
 #: the share of the normal-theory shift of the sum's quantile that the normal scores of steps
-#: 1..h-1 are moved by (measured in benchmarks/risk_accuracy.py)
+#: 1..h-1 are moved by, and the factor their spread is widened by at 22 periods (measured in
+#: benchmarks/risk_accuracy.py: the widening samples the heavy-tailed paths more often); the
+#: widening is 1 + (SCALE - 1) sqrt(21 / (h - 1)) beyond 22 periods, so that the spread of the
+#: paths' weights, which grows as (s^2 / sqrt(2 s^2 - 1))^(h-1), stays as at 22 periods
 TILT = 0.8
 SCALE = 1.15
+#: the steps that take quasi-random scores; later steps of a long horizon take pseudo-random ones
+#: (padding, common practice), so the points held stay paths x QMC_STEPS
+QMC_STEPS = 64
 
 
-def _scores(horizon: int, paths: int, seed: int, alpha: float):
-    """Normal scores of the shocks, shape (paths, horizon), and each path's log likelihood ratio.
+class _Scores:
+    """Normal scores of the shocks, one step at a time, and each path's log likelihood ratio.
 
-    Randomised quasi-Monte Carlo: the points of a Sobol' sequence in ``horizon`` dimensions,
-    scrambled (Owen's nested scrambling with the seed; the estimator stays unbiased), turned into
-    standard-normal scores.  The scores of steps 1..h-1 are then moved down by theta (the shift of
-    the sum of h unit shocks to its alpha-quantile, spread over the steps: common practice), the
-    last step's are left as fitted; the log likelihood ratio of a path is
-    sum (theta x + theta^2 / 2) over its shifted scores x.
+    Randomised quasi-Monte Carlo: the points of a Sobol' sequence in min(h, QMC_STEPS)
+    dimensions, scrambled with the seed (the estimator stays unbiased), turned into standard-normal
+    scores; steps beyond take pseudo-random scores from the same seeded generator.  The scores y of
+    steps 1..h-1 are then widened and moved down, x = s y - theta (s from SCALE), theta = TILT times the shift
+    of the sum of h unit shocks to its alpha-quantile spread over the steps (common practice); the
+    last step's are left as fitted.  A path's log likelihood ratio, the standard normal density over
+    the proposal's N(-theta, s^2), is the sum over its moved scores of (y^2 - x^2) / 2 + ln s.
     """
-    from scipy.stats import qmc  # only here: the module is slow to import
 
-    sob = qmc.Sobol(horizon, scramble=True, rng=np.random.default_rng(seed))
-    m = max(int(math.ceil(math.log2(paths))), 0)
-    u = sob.random_base2(m)[:paths]  # the first points of 2^m (2^m = paths gives the balanced set)
-    np.clip(u, 2.0 ** -60, 1.0 - 2.0 ** -53, out=u)  # a scrambled point can land on 0 exactly
-    x = special.ndtri(u, out=u)
-    theta = TILT * -float(special.ndtri(alpha)) / math.sqrt(horizon)
-    n = x[:, : horizon - 1]
-    logw = 0.5 * np.sum(n * n, axis=1)
-    n *= SCALE
-    n -= theta
-    logw += -0.5 * np.sum(n * n, axis=1) + (horizon - 1) * math.log(SCALE)
-    return x, logw
+    def __init__(self, horizon: int, paths: int, seed: int, alpha: float):
+        from scipy.stats import qmc  # only here: the module is slow to import
+
+        self.horizon, self.paths = horizon, paths
+        self.dims = min(horizon, QMC_STEPS)
+        self.rng = np.random.default_rng(seed)
+        sob = qmc.Sobol(self.dims, scramble=True, rng=self.rng)
+        m = max(int(math.ceil(math.log2(paths))), 0)
+        u = sob.random_base2(m)[:paths]  # the first points of 2^m (2^m = paths gives the balanced set)
+        np.clip(u, 2.0 ** -60, 1.0 - 2.0 ** -53, out=u)  # a scrambled point can land on 0 exactly
+        self.y = special.ndtri(u, out=u)
+        self.theta = TILT * -float(special.ndtri(alpha)) / math.sqrt(horizon)
+        self.scale = 1.0 + (SCALE - 1.0) * min(1.0, math.sqrt(21.0 / max(horizon - 1, 1)))
+        self.logw = np.zeros(paths)
+
+    def step(self, h: int) -> np.ndarray:
+        y = self.y[:, h] if h < self.dims else self.rng.standard_normal(self.paths)
+        if h == self.horizon - 1:
+            return np.array(y)
+        x = self.scale * y - self.theta
+        self.logw += 0.5 * (y * y - x * x) + math.log(self.scale)
+        return x
 
 
 def _conditional_es(dist, eta, a, s, w, cut: float) -> float:
@@ -301,13 +323,13 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
             var_value, es_value = 100.0 * var, 100.0 * es
     else:
         alpha = 1.0 - level
-        x, logw = _scores(horizon, paths, seed, alpha)
+        scores = _Scores(horizon, paths, seed, alpha)
         to_shock = fit.dist.normal_scores(eta)
 
         last: list = []
 
         def draw(h):
-            z = to_shock(x[:, h])
+            z = to_shock(scores.step(h))
             if h == horizon - 1:  # the last step's shock, integrated exactly in the VaR and ES below
                 last.append(z)
             return z
@@ -324,8 +346,8 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
                 cum += ret
                 if log_factor is not None:
                     log_factor += np.log1p(np.maximum(c * ret, -1.0))  # a factor below 0 is the value gone
-        del x
-        w = np.exp(logw)
+        w = np.exp(scores.logw)
+        del scores
         cut = _weighted_quantile(cum, w, alpha)
         var = _conditional_var(fit.dist, eta, a_last, s_last, w, alpha, cut)
         es = None
