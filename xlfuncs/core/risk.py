@@ -234,10 +234,13 @@ class _Scores:
         self.horizon, self.paths = horizon, paths
         self.dims = min(horizon, QMC_STEPS)
         self.rng = np.random.default_rng(seed)
-        sob = qmc.Sobol(self.dims, scramble=True, rng=self.rng)
+        # 64 bits: with SciPy's default 30 a point sits on the left edge of its cell of width
+        # 2^-30, which moves the far scores (and, through a heavy-tailed law, the shocks) down:
+        # measured +0.26% on the ES of a GARCH(1,1)-t at 22 periods
+        sob = qmc.Sobol(self.dims, scramble=True, rng=self.rng, bits=64)
         m = max(int(math.ceil(math.log2(paths))), 0)
         u = sob.random_base2(m)[:paths]  # the first points of 2^m (2^m = paths gives the balanced set)
-        np.clip(u, 2.0 ** -60, 1.0 - 2.0 ** -53, out=u)  # a scrambled point can land on 0 exactly
+        np.clip(u, 2.0 ** -1074, 1.0 - 2.0 ** -53, out=u)  # keep the scores finite
         self.y = special.ndtri(u, out=u)
         self.theta = TILT * -float(special.ndtri(alpha)) / math.sqrt(horizon)
         self.scale = 1.0 + (SCALE - 1.0) * min(1.0, math.sqrt(21.0 / max(horizon - 1, 1)))
