@@ -448,3 +448,28 @@ def test_get_distribution_unknown_name(bad):
 def test_get_distribution_rejects_non_text():
     with pytest.raises(InputError, match="distribution must be a name"):
         get_distribution(3.0)
+
+
+@pytest.mark.parametrize("name,params,ref", [
+    ("normal", [], lambda law: law),
+    # source: SciPy's Student t, rescaled to unit variance
+    ("t", [4.5], lambda law: law(stats.t(4.5, scale=math.sqrt(2.5 / 4.5)))),
+    # source: SciPy's gennorm (beta = nu), rescaled to unit variance; nu < 1 has a cusp at 0
+    ("ged", [1.4], lambda law: law(stats.gennorm(1.4, scale=math.sqrt(math.gamma(1 / 1.4) / math.gamma(3 / 1.4))))),
+    ("ged", [0.8], lambda law: law(stats.gennorm(0.8, scale=math.sqrt(math.gamma(1 / 0.8) / math.gamma(3 / 0.8))))),
+    # Hansen's skewed t has no SciPy counterpart: its own ppf, itself checked against its cdf above
+    ("skewt", [5.0, -0.3], None),
+])
+def test_normal_scores_map_is_the_quantile_of_the_normal_cdf(name, params, ref):
+    """G(x) = F^-1(Phi(x)), the map behind the multi-period VaR/ES's quasi-random draws."""
+    d = get_distribution(name)
+    x = np.concatenate([np.linspace(-9.5, 9.5, 2001), np.random.default_rng(3).normal(0, 2.5, 5000)])
+    if ref is None:
+        keep = np.abs(x) <= 5.0  # beyond, 1 - Phi(x) in the upper half loses the digits the check needs
+        want = d.ppf(special.ndtr(x[keep]), params)
+    else:  # the upper half through the reference's isf of the upper tail's probability
+        keep = np.ones(len(x), dtype=bool)
+        law = ref(stats.norm) if name == "normal" else ref(lambda frozen: frozen)
+        want = np.where(x <= 0, law.ppf(special.ndtr(x)), law.isf(special.ndtr(-x)))
+    # GED's density has a kink at 0 (|z|^nu), so the cubic pieces beside x = 0 are a little less exact
+    assert_allclose(d.normal_scores(params)(x)[keep], want, rtol=1e-7, atol=1e-6 if name == "ged" else 1e-8)

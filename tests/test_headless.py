@@ -271,6 +271,42 @@ def test_batched_columns_equal_cell_by_cell_evaluation(tmp_path):
         assert batched.values[k] == v, k
 
 
+def test_or_and_columns_are_batched_and_equal_cell_by_cell_evaluation(tmp_path):
+    """OR and AND over comparisons (the templates' return formula) go into the column batch as
+    element-wise arithmetic; every cell equals the engine's OR/AND evaluated cell by cell (the
+    formula engine's own functions are the reference), blanks, texts, zeros and errors included."""
+    from xlfuncs.headless.recalc import Workbook, elementwise_logic
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    special = {7: None, 20: None, 12: "n/a", 30: 0.0, 31: -5.0}
+    for i in range(1, 41):
+        ws.cell(i, 1, special.get(i, 100.0 + (i % 7) * 3.5))
+        ws.cell(i, 7, None if i % 5 == 0 else i % 3)
+        if i > 1:
+            ws.cell(i, 2, f'=IF(OR(A{i}="",A{i - 1}=""),"",LN(A{i}/A{i - 1})*100)')
+            ws.cell(i, 3, f'=IF(AND(A{i}>101,A{i - 1}<>""),1,0)')
+            ws.cell(i, 4, f'=OR(A{i}>110, A{i}=0, G{i}=2)')
+            ws.cell(i, 5, f'=AND(G{i}<>"", G{i}>=1, A{i}<108)')
+            ws.cell(i, 6, f'=IF(OR(A{i}<0,"x,y"=A{i}),-1,IFERROR(SQRT(A{i}),-2))')
+    wb.save(tmp_path / "b.xlsx")
+    batched = Workbook(tmp_path / "b.xlsx")
+    batched._batch_elementwise()
+    for col in range(2, 7):  # each column went through the batch
+        assert all((ws.title, i, col) in batched.values for i in range(2, 41)), col
+    batched.evaluate_all()
+    single = Workbook(tmp_path / "b.xlsx")
+    single._batch_elementwise = lambda *a, **k: None
+    single.evaluate_all()
+    assert batched.values.keys() == single.values.keys()
+    for k, v in single.values.items():
+        assert batched.values[k] == v, (k, v, batched.values[k])
+    assert isinstance(single.values[(ws.title, 2, 2)], float)  # a sanity check of the layout: a return
+    # arguments that are not comparisons (OR skips texts and blanks in them) are not rewritten
+    assert elementwise_logic("=OR(A1, B1=2)") is None
+    assert elementwise_logic("=AND(OR(A1=1), B1=2)") is None
+
+
 _SHAPES = [
     '=IF(ISNUMBER({r}),{r}*2,"")',  # the reference twice, as the templates' columns read a spill
     "=IFERROR({r}*2+{r}/{r},-1)",

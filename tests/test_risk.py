@@ -24,7 +24,7 @@ from xlfuncs.core import forecast, get_distribution, in_sample, parse_model, par
 from xlfuncs.core.errors import InputError
 from xlfuncs.core.estimate import evaluate
 from xlfuncs.core.forecast import DEFAULT_SEED, MAX_HORIZON
-from xlfuncs.core.risk import DEFAULT_PATHS, Risk, risk
+from xlfuncs.core.risk import DEFAULT_PATHS, RISK_PATHS, Risk, risk
 from xlfuncs.core.simulate import simulate_forward
 
 Z_TOL = 4.5  # Monte Carlo tolerance, in standard errors
@@ -195,7 +195,7 @@ def test_iid_normal_cumulative_var_is_the_normal_quantile(series, level):
     assert abs(rk.es - exact_es) < Z_TOL * se_es
     # mean and sd come from the analytic forecast, exactly
     assert_allclose([rk.mean, rk.sd], [h * mu, S], rtol=1e-12)
-    assert rk.method == f"simulation ({n} paths, seed {DEFAULT_SEED}; importance sampling, last step exact)"
+    assert rk.method == f"simulation ({n} paths, seed {DEFAULT_SEED}; scrambled Sobol points, importance sampling, last step exact)"
 
 
 GARCH = {"mu": 0.02, "omega": 0.05, "alpha[1]": 0.1, "beta[1]": 0.85}
@@ -310,9 +310,9 @@ def test_risk_is_reproducible_and_uses_the_seeded_paths(series):
     a = risk(f, series, 0.99, 10)
     b = risk(f, series, 0.99, 10)
     assert a == b
-    assert a.method == f"simulation ({DEFAULT_PATHS} paths, seed {DEFAULT_SEED}; importance sampling, last step exact)"
+    assert a.method == f"simulation ({RISK_PATHS} paths, seed {DEFAULT_SEED}; scrambled Sobol points, importance sampling, last step exact)"
     c = risk(f, series, 0.99, 10, paths=5000, seed=3)
-    assert c.var != a.var and c.method == "simulation (5000 paths, seed 3; importance sampling, last step exact)"
+    assert c.var != a.var and c.method == "simulation (5000 paths, seed 3; scrambled Sobol points, importance sampling, last step exact)"
     # (the accuracy of the estimator against long plain simulations: tests/test_risk_accuracy.py)
     # analytic mean and sd do not depend on the paths
     assert (c.mean, c.sd) == (a.mean, a.sd)

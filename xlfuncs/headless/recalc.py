@@ -342,7 +342,7 @@ class Workbook:
         for key, text in self.formulas.items():
             if key in self.arrays or key in self._anchors:
                 continue
-            if not function_names(text) <= _ELEMENTWISE:
+            if not function_names(text) <= _ELEMENTWISE | _LOGICAL:
                 continue
             tokens = _ref_tokens(text)
             if not tokens or any(":" in t or t.endswith("#") for _, _, t in tokens):
@@ -352,6 +352,12 @@ class Workbook:
             if len(members) < min_size:
                 continue
             key0, text0, tokens0 = members[0]
+            if function_names(text0) & _LOGICAL:
+                # OR/AND reduce a whole array: batched only as element-wise arithmetic, which reads
+                # the same references in the same order (one rewrite serves the group's shape)
+                text0 = elementwise_logic(text0)
+                if text0 is None:
+                    continue
             try:
                 compiled = compile_formula(text0)
             except FormulaError:
@@ -521,7 +527,72 @@ class Workbook:
 
 
 _ELEMENTWISE = {"LN", "LOG", "LOG10", "EXP", "SQRT", "ABS", "IF", "IFERROR", "ROUND", "ISNUMBER", "ISBLANK", "SIGN", "POWER"}
+_LOGICAL = {"OR", "AND"}
 _STRING_RE = re.compile(r'"(?:[^"]|"")*"')
+_LOGIC_RE = re.compile(r"(?<![A-Za-z0-9_.!$:])(OR|AND)\s*\(", re.IGNORECASE)
+
+
+def elementwise_logic(text: str) -> str | None:
+    """``text`` with each OR(...) and AND(...) whose arguments are all comparisons written as
+    element-wise arithmetic, so that a column of such formulas can be evaluated in one call;
+    None if some OR or AND has an argument that is not a comparison (or nests another).
+
+    In Excel, OR and AND reduce every value of their arguments (a range, an array) to one
+    TRUE or FALSE, so a batch of cells cannot go through them as they are.  An argument that is
+    a comparison (its top level holds =, <>, <, >, <= or >=, which bind last) is one TRUE, FALSE
+    or error per cell, never a blank or a text, which OR and AND would skip; on such arguments
+    OR(c1, ..., cn) is ((c1)+...+(cn))<>0 and AND(c1, ..., cn) is ((c1)*...*(cn))<>0: TRUE and
+    FALSE count as 1 and 0 in arithmetic, and an error in any argument is the result, as in
+    OR and AND.  ``tests/test_headless.py`` checks the batch against the engine cell by cell.
+    """
+    masked = _STRING_RE.sub(lambda m: "_" * len(m.group(0)), text)
+    calls = list(_LOGIC_RE.finditer(masked))
+    if not calls:
+        return text
+    pieces, pos = [], 0
+    for m in calls:
+        if m.start() < pos:  # inside the previous call's arguments: a nested OR/AND
+            return None
+        depth, args, start, end = 0, [], m.end(), None
+        for i in range(m.end(), len(masked)):
+            ch = masked[i]
+            if ch == "(":
+                depth += 1
+            elif ch == ")":
+                if depth == 0:
+                    args.append((start, i))
+                    end = i + 1
+                    break
+                depth -= 1
+            elif ch == "," and depth == 0:
+                args.append((start, i))
+                start = i + 1
+        if end is None:
+            return None
+        for a, b in args:
+            if not _is_comparison(masked[a:b]):
+                return None
+        op = "+" if m.group(1).upper() == "OR" else "*"
+        pieces.append(text[pos:m.start()])
+        pieces.append("((" + f"){op}(".join(text[a:b].strip() for a, b in args) + ")<>0)")
+        pos = end
+    pieces.append(text[pos:])
+    return "".join(pieces)
+
+
+def _is_comparison(masked: str) -> bool:
+    """Whether an argument (string literals masked) has a comparison operator at its top level."""
+    depth = 0
+    for ch in masked:
+        if ch == "(":
+            depth += 1
+        elif ch == ")":
+            depth -= 1
+        elif depth == 0 and ch in "=<>":
+            return True
+    return False
+
+
 _TOKEN_RE = re.compile(
     r"(?<![A-Za-z0-9_.$])((?:'(?:[^']|'')+'|[A-Za-z0-9_.]+)!)?(\$?[A-Za-z]{1,3}\$?\d+(?::\$?[A-Za-z]{1,3}\$?\d+)?)(#?)(?![A-Za-z0-9_(!])"
 )
