@@ -205,3 +205,17 @@ def test_es_tests_with_a_distribution_scale_by_the_volatility():
     x = exceedance_residuals(r, v, e, sd)
     assert t.exceptions == x.size > 0
     assert_allclose(t.mf_mean, np.mean((-r[r < -v] - e[r < -v]) / sd[r < -v]), rtol=1e-12)
+
+
+def test_volbacktest_keeps_coverage_when_an_es_forecast_is_a_gain():
+    """A series with a mean far above its spread (common practice: a 90% VaR of such a series is a
+    gain, so its ES is negative): the ES tests cannot run (Z2 divides by ES), and the backtest says
+    why in the ES reading instead of losing the coverage tests to one ERROR cell."""
+    rng = np.random.default_rng(7)
+    r = 5.0 + 0.1 * rng.standard_normal(300)
+    out = _d(VOLBACKTEST(_column(r), "GARCH(1,1)", 200, 0.9))
+    assert out["forecasts"] == 100 and isinstance(out["Kupiec p_value"], float)
+    assert out["McNeil-Frey t"] is None and out["Acerbi-Szekely Z2"] is None
+    assert out["ES reading"].startswith("not computed: ES row ") and "not a positive loss" in out["ES reading"]
+    series = VOLBACKTEST(_column(r), "GARCH(1,1)", 200, 0.9, "what=series")
+    assert min(row[5] for row in series[1:]) < 0  # the gain the reading speaks of

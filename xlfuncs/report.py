@@ -473,15 +473,12 @@ def _soft(make):
 
 
 def _backtest_rows(bt, readings):
-    c, t = bt.coverage, bt.es_tests
-    return [["forecasts", c.forecasts], ["exceptions", c.exceptions], ["exception rate", c.rate],
-            ["expected rate", c.expected_rate], ["Kupiec LR", c.lr_uc], ["Kupiec p_value", c.p_uc],
-            ["independence LR", c.lr_ind], ["independence p_value", c.p_ind],
-            ["conditional coverage LR", c.lr_cc], ["conditional coverage p_value", c.p_cc], ["zone", c.zone],
-            ["mean QLIKE", bt.qlike], ["mean MSE", bt.mse], ["estimations", bt.fits],
-            ["coverage reading", readings.coverage(c)],
-            ["McNeil-Frey t", t.mf_t], ["McNeil-Frey p_value", t.mf_p], ["Acerbi-Szekely Z2", t.z2],
-            ["Z2 p_value", t.z2_p], ["Z2 null", t.z2_null], ["ES reading", readings.expected_shortfall(t)]]
+    """The rows VOLBACKTEST shows, from the same core backtest (the worksheet layer lays them out)."""
+    from .sheet.functions import coverage_rows, es_rows
+
+    c = bt.coverage
+    return (coverage_rows(c) + [["mean QLIKE", bt.qlike], ["mean MSE", bt.mse], ["estimations", bt.fits],
+                                ["coverage reading", readings.coverage(c)]] + es_rows(bt.es_tests, bt.es_reason))
 
 
 # ---------------------------------------------------------------------------------------------

@@ -52,6 +52,7 @@ class Backtest:
     fits: int  # estimations made
     es: np.ndarray | None = None  # expected shortfall, a positive loss
     es_tests: ESTests | None = None
+    es_reason: str = ""  # why the ES tests were not computed (es_tests None), e.g. an ES forecast <= 0
 
     @property
     def qlike_series(self) -> np.ndarray:
@@ -132,10 +133,15 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
     cov = coverage(actual, vr, level)
     e2 = (actual - mean) ** 2
     es = _es_forecasts(dist, etas, level, mean, var_)
-    tests = es_tests(actual, vr, es, level, mean=mean, sd=np.sqrt(var_), dist=dist, eta=etas)
+    tests, reason = None, ""
+    try:
+        tests = es_tests(actual, vr, es, level, mean=mean, sd=np.sqrt(var_), dist=dist, eta=etas)
+    except InputError as exc:  # e.g. an ES forecast that is a gain: the coverage tests still stand
+        reason = str(exc)
     return Backtest(index=np.arange(window, T), mean=mean, variance=var_, var=vr, actual=actual,
                     exception=actual < -vr, coverage=cov, qlike=float(np.mean(np.log(var_) + e2 / var_)),
-                    mse=float(np.mean((e2 - var_) ** 2)), fits=fits, es=es, es_tests=tests)
+                    mse=float(np.mean((e2 - var_) ** 2)), fits=fits, es=es, es_tests=tests,
+                    es_reason=reason)
 
 
 def _one_pass(r, X, spec, dist, options):

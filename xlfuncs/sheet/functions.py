@@ -448,14 +448,14 @@ def VOLCOVERAGE(returns, var, level=None, es=None):
     vmap = dict(zip(v.positions.tolist(), v.values.tolist()))
     rr, vv = [rmap[i] for i in common], [vmap[i] for i in common]
     c = core_coverage(rr, vv, lv)
-    rows = _coverage_rows(c) + [["coverage reading", readings.coverage(c)]]
+    rows = coverage_rows(c) + [["coverage reading", readings.coverage(c)]]
     if e is not None:
         emap = dict(zip(e.positions.tolist(), e.values.tolist()))
         try:
             t = core_es_tests(rr, vv, [emap[i] for i in common], lv)
         except VolcastError as exc:
             raise SheetError(_row_words(str(exc), common, r.orientation)) from None
-        rows += _es_rows(t)
+        rows += es_rows(t)
     return _measure_rows(rows)
 
 
@@ -470,13 +470,17 @@ def _row_words(message: str, common, orientation) -> str:
     return re.sub(r"\b(ES|VaR|returns) row (\d+)", repl, message)
 
 
-def _es_rows(t):
+def es_rows(t, reason=""):
+    """The ES tests' rows of a backtest; blank with the reason in the reading when not computed."""
+    if t is None:
+        return [[name, None] for name in ("McNeil-Frey t", "McNeil-Frey p_value", "Acerbi-Szekely Z2",
+                                          "Z2 p_value", "Z2 null")] + [["ES reading", f"not computed: {reason}"]]
     return [["McNeil-Frey t", t.mf_t],
             ["McNeil-Frey p_value", t.mf_p], ["Acerbi-Szekely Z2", t.z2], ["Z2 p_value", t.z2_p],
             ["Z2 null", t.z2_null], ["ES reading", readings.expected_shortfall(t)]]
 
 
-def _coverage_rows(c):
+def coverage_rows(c):
     return [["forecasts", c.forecasts], ["exceptions", c.exceptions],
             ["exception rate", c.rate], ["expected rate", c.expected_rate],
             ["Kupiec LR", c.lr_uc], ["Kupiec p_value", c.p_uc],
@@ -580,7 +584,7 @@ def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None, re
                                            bt.qlike_series):
             out.append([int(data.positions[i]) + 1, float(v), float(var), float(a), bool(x), float(es), float(ql)])
         return out
-    return _measure_rows(_coverage_rows(bt.coverage) + [
+    return _measure_rows(coverage_rows(bt.coverage) + [
         ["mean QLIKE", bt.qlike], ["mean MSE", bt.mse], ["scheme", own.get("scheme", "rolling")],
         ["refit every", own.get("refit", 1)], ["estimations", bt.fits],
-        ["coverage reading", readings.coverage(bt.coverage)]] + _es_rows(bt.es_tests))
+        ["coverage reading", readings.coverage(bt.coverage)]] + es_rows(bt.es_tests, bt.es_reason))
