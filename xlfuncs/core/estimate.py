@@ -38,7 +38,8 @@ _PENALTY = 1e12
 _DECREMENT_TOL = 1e-6  # converged: the log-likelihood is within about tol/2 of its maximum
 _POLISH_TOL = 1e-12  # Newton polishing stops here
 _NUMERIC_POLISH_TOL = 1e-9  # ... and here for an in-mean model (numerical derivatives)
-_BOUND_GAP = 1e-6  # a fit on the stationarity bound holds persistence at 1 - gap
+_HELD = 1.0  # a fit on the stationarity bound holds persistence at one: the integrated (IGARCH-type) fit
+_HELD_TOL = 1e-9  # ... and is re-checked there after the fit
 
 
 # ---------------------------------------------------------------------------------------
@@ -742,29 +743,35 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
     extra = _without_in_mean(r, spec, dist, options, X, lik) if spec.in_mean else []
     best = _run(problem, r, _start_candidates(problem, r, extra))
     n_free = len(problem.free)
+    off_bound = None  # a held fit whose persistence is not the bound (re-checked below)
     if spec.family.holds_at_bound and best[0] > -_PENALTY / 2:
         pers = persistence_of(spec, dist, problem.full(best[1]))
         first_ok = math.isfinite(best[3]) and best[3] < _DECREMENT_TOL
-        if pers > 1.0 - 1e-3 or (pers > 0.9 and not first_ok):
-            # the maximum lies on the stationarity bound: maximise on the bound itself
+        if pers is not None and (pers > 1.0 - 1e-3 or (pers > 0.9 and not first_ok)):
+            # the maximum lies on the stationarity bound: maximise on the bound itself, persistence
+            # one (so the fit is the integrated model's and never scores below it), with the
+            # implied weight set at every trial point from the moments at that point's shape
             eta = problem.full(best[1])[lik.k - len(dist.param_names):]
-            held = _Problem(lik, options, sum_to=1.0 - _BOUND_GAP, eta=eta)
+            held = _Problem(lik, options, sum_to=_HELD, eta=eta)
             t0 = problem.full(best[1])
-            alt = _run(held, r, [t0])
+            alt = _run(held, r, [t0] + _start_candidates(held, r)[:2])
             if alt[0] >= best[0] - 1e-9:
                 problem, best = held, alt
+                pers = persistence_of(spec, dist, problem.full(best[1]))
+                if pers is None or not abs(pers - _HELD) < _HELD_TOL:
+                    off_bound = pers
     ll, u, H, dec, active, res, steps = best
     if not ll > -_PENALTY / 2:
         raise ConvergenceError(
             f"no admissible estimate of {spec.canonical} with {dist.name} shocks was found from the starting points tried"
         )
-    converged = bool(math.isfinite(dec) and dec < _DECREMENT_TOL)
+    converged = bool(math.isfinite(dec) and dec < _DECREMENT_TOL) and off_bound is None
     gradient_only = False
     kinks = None
-    if not converged:
+    if not converged and off_bound is None:
         kinks = _kink_maximum(problem, u, H, active)
         converged = kinks is not None
-    if not converged and not math.isfinite(dec):
+    if not converged and not math.isfinite(dec) and off_bound is None:
         # the Hessian is not negative definite (a flat or kinked likelihood): use the score
         # (LM) statistic g' (G'G)^-1 g with the outer product of the scores as the metric
         _, G = problem.scores_free(u)
@@ -796,7 +803,12 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
         if held_names:
             msg += "; at a bound: " + ", ".join(held_names)
         if problem.sum_to is not None and not spec.family.integrated:
-            msg += f"; persistence held at the stationarity bound {1 - _BOUND_GAP:.6f} (the data favour IGARCH)"
+            msg += (f"; persistence held at the stationarity bound 1: the data favour an integrated variance, so "
+                    f"this is the IGARCH-type fit ({lik.names[problem.implied]} implied by the other weights; "
+                    f"no unconditional variance or half-life)")
+    elif off_bound is not None:
+        msg = (f"NOT converged: the fit held at the stationarity bound ends with persistence {off_bound!s}, "
+               f"not 1; the estimates are not the maximum on the bound")
     else:
         msg = f"NOT converged: {res.message if isinstance(res.message, str) else res.message!s}; Newton decrement {dec:.2g} (tolerance {_DECREMENT_TOL:g})"
     se, cov = _std_errors(problem, u, H, active, options.se)
@@ -915,16 +927,16 @@ def free_scores(r, fit: FitResult):
     implies or variance targeting sets; a parameter whose ``fit.status`` is ``'bound'`` (held
     at a box bound) is left out too, and a fit held at the stationarity bound (a weight
     ``'implied'`` in a family that is not integrated, or parameters whose persistence is the
-    held value 1 - 1e-6, as a fit table shows them) keeps that weight implied.
+    held value 1, as a fit table shows them) keeps that weight implied.
     """
     r = np.asarray(r, dtype=float)
     lik = Likelihood(r, fit.spec, fit.dist, fit.options.presample)
     fam = fit.spec.family
     theta = np.array([fit.param_dict[n] for n in lik.names], dtype=float)
     held = not fam.integrated and ("implied" in fit.status or (
-        fam.holds_at_bound and abs((persistence_of(fit.spec, fit.dist, theta) or 0.0) - (1.0 - _BOUND_GAP)) < 1e-9))
+        fam.holds_at_bound and abs((persistence_of(fit.spec, fit.dist, theta) or 0.0) - _HELD) < _HELD_TOL))
     eta = theta[lik.k - len(fit.dist.param_names):]
-    problem = _Problem(lik, fit.options, sum_to=1.0 - _BOUND_GAP if held else None, eta=eta)
+    problem = _Problem(lik, fit.options, sum_to=_HELD if held else None, eta=eta)
     scales, _ = _scale_and_bounds(problem, r)
     problem.steps = 1e-5 * scales
     _, G = problem.scores_free(theta[problem.free])

@@ -32,7 +32,7 @@ import numpy as np
 from scipy.signal import lfilter
 
 from ..errors import InputError
-from .base import VarianceFamily
+from .base import UNIT_TOL, VarianceFamily
 
 try:  # SciPy's C filter without lfilter's argument checks: the recursions call it thousands of times
     from scipy.signal._sigtools import _linear_filter as _raw_filter
@@ -339,7 +339,7 @@ class LinearFamily(VarianceFamily):
 
     def _uncond_variance(self, vp, eta, dist):
         pers = self._persistence(vp, eta, dist)
-        if pers is None or pers >= 1.0:
+        if pers is None or pers >= 1.0 - UNIT_TOL:  # one, to the rounding of the weights' sum
             return None
         return float(self._coefficients(vp)[0] / (1.0 - pers))
 

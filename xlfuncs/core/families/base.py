@@ -54,7 +54,12 @@ import numpy as np
 
 from ..errors import InputError
 
-__all__ = ["VarianceFamily", "History", "stationary"]
+__all__ = ["VarianceFamily", "History", "stationary", "UNIT_TOL"]
+
+#: a persistence within this of one is one: a fit held on the stationarity bound sums its weights
+#: to one, and a floating-point sum may land an ulp below; such a model has no unconditional
+#: variance and no half-life
+UNIT_TOL = 1e-12
 
 
 def stationary(coefs) -> bool:
@@ -120,7 +125,7 @@ class VarianceFamily:
     has_adjoint: bool = False
     #: the weights are held to sum to one, the last one implied (IGARCH)
     integrated: bool = False
-    #: a maximum on the stationarity bound is re-estimated there with the weights held just below one
+    #: a maximum on the stationarity bound is re-estimated there with the persistence held at one
     holds_at_bound: bool = False
     #: the parameter variance targeting implies (``target=yes``), or None where it does not apply
     targeted: str | None = None
@@ -423,7 +428,7 @@ class VarianceFamily:
 
     def _half_life(self, vp, eta, dist):
         pers = self._persistence(vp, eta, dist)
-        if pers is None or not (0.0 < pers < 1.0):
+        if pers is None or not (0.0 < pers < 1.0 - UNIT_TOL):
             return None
         return math.log(0.5) / math.log(pers)
 
