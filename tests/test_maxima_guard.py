@@ -208,3 +208,31 @@ def test_the_dem_gbp_cases_of_the_estimator_check():
     assert f.loglik >= other.loglik, (f.loglik, other.loglik)
     assert f.persistence == pytest.approx(1.0, abs=1e-12)
     assert fitted("dmbp", "GARCH(1,1)", "t").loglik >= fitted("dmbp", "IGARCH(1,1)", "t").loglik - 1e-9
+
+
+def test_the_fit_table_says_what_the_readme_says():
+    """README ("Fit table"): an implied weight's std_error cell is its delta-method standard error
+    (IGARCH(1,1): beta = 1 - alpha, so alpha's), a parameter held at a bound of its range reads
+    `at bound` and is named in the `converged` message; a fit held on the stationarity bound reads
+    persistence 1 with uncond_variance and half_life blank and says so in words.  DEM/GBP, where
+    GARCH(1,1)-t is held on the stationarity bound and GARCH(2,1)'s alpha[2] sits at 0."""
+    from xlfuncs import VOLFIT
+    from helpers import column
+
+    R = column(series("dmbp"))
+    for model, dist in (("IGARCH(1,1)", "t"), ("GARCH(1,1)", "t"), ("GJR-GARCH(1,1)", "skewt")):
+        rows = {row[0]: row for row in VOLFIT(R, model, dist)}
+        beta, alpha = rows["beta[1]"], rows["alpha[1]"]
+        assert isinstance(beta[2], float) and beta[2] > 0 and beta[3] == pytest.approx(beta[1] / beta[2])
+        if dist == "t":  # beta = 1 - alpha: the same standard error
+            assert beta[2] == pytest.approx(alpha[2], rel=1e-10)
+        else:  # the shape enters through E[z^2 1(z<0)]: not alpha's alone
+            assert abs(beta[2] - alpha[2]) > 1e-4 * alpha[2]
+        assert rows["persistence"][1] == pytest.approx(1.0, abs=1e-12)
+        assert rows["uncond_variance"][1] is None and rows["half_life"][1] is None
+        if model != "IGARCH(1,1)":
+            assert rows["converged"][1] is True
+            assert "stationarity bound" in rows["converged"][2] and "IGARCH-type" in rows["converged"][2]
+    rows = {row[0]: row for row in VOLFIT(R, "GARCH(2,1)", "normal")}
+    assert rows["alpha[2]"][2] == "at bound" and rows["alpha[2]"][3] is None
+    assert rows["converged"][1] is True and "at a bound: alpha[2]" in rows["converged"][2]
