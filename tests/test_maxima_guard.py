@@ -8,7 +8,7 @@ practice for the simplex method), on the full-parameter log-likelihood that ``ev
 no sum rule, no scoring, no Newton steps.  Its constraints are the model's own, written out here:
 the parameter domains (``evaluate`` refuses a point outside them), persistence at most one, and the
 estimator's boxes (t and skewed-t nu <= 300, GED nu <= 50, |lambda| <= 0.995, weights in [0, 1],
-|gamma| < 1, APARCH's 0.1 <= delta <= 4).  An IGARCH model, and a fit the estimator holds on the
+|gamma| < 1, APARCH's 0.1 <= delta <= 4, CGARCH's rho <= 0.9999).  An IGARCH model, and a fit the estimator holds on the
 stationarity bound, are also restarted on the bound itself: the implied weight is solved here
 from the model's persistence (linear in that weight) at every trial point, so every moment of the
 shocks the persistence uses is the trial point's.
@@ -90,6 +90,8 @@ def _in_box(names, theta, dist) -> bool:
         if n.startswith("gamma") and not abs(v) < 1.0:
             return False
         if n == "delta" and not 0.1 <= v <= 4.0:
+            return False
+        if n == "rho" and not v <= 0.9999:  # CGARCH's cap on rho (cgarch.RHO_CAP, documented there)
             return False
     return True
 

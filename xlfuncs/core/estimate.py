@@ -160,7 +160,7 @@ def check_intercept(lik: Likelihood, theta, rows=None) -> None:
 class _Problem:
     """Free-parameter view of a likelihood: mapping, bounds, objective and gradient."""
 
-    def __init__(self, lik: Likelihood, options: Options, sum_to: float | None = None, eta=None):
+    def __init__(self, lik: Likelihood, options: Options, sum_to: float | None = None, eta=None, edges=()):
         self.lik = lik
         self.spec = spec = lik.spec
         self.family = fam = spec.family
@@ -204,6 +204,11 @@ class _Problem:
             if tname in fixed:
                 raise InputError(f"options: target=yes implies {tname}; do not also fix {tname}")
             status[lik.idx[tname]] = "target"
+        # edges of the admissible region the fit is held on (VarianceFamily.edges): each implies
+        # one parameter from the others, sum w_i p_i = c; shown as held at a bound
+        self.edges = tuple(edges)
+        for name, _, _, _ in self.edges:
+            status[lik.idx[name]] = "bound"
         self.status = status
         self.free = np.array([i for i, s in enumerate(status) if s == "free"], dtype=int)
         if len(self.free) == 0:
@@ -211,16 +216,19 @@ class _Problem:
         self.base = np.zeros(k)
         for n, v in fixed.items():
             self.base[lik.idx[n]] = v
-        # affine map full = base + A u (IGARCH implied parameter included)
+        # affine map full = base + A u (edge-implied parameters, then the sum rule's, included)
         A = np.zeros((k, len(self.free)))
         A[self.free, np.arange(len(self.free))] = 1.0
+        for name, weights, const, _ in self.edges:
+            j = lik.idx[name]
+            others = {lik.idx[n]: w for n, w in weights.items() if n != name}
+            self.base[j] = (const - sum(w * self.base[i] for i, w in others.items())) / weights[name]
+            A[j] = -sum(w * A[i] for i, w in others.items()) / weights[name]
         if self.implied is not None and not self.held_by_family:
             weights = {lik.idx[n]: w for n, w in rule[1].items()}
             weights.pop(self.implied)
-            self.base[self.implied] = self.sum_to - sum(w * self.base[i] for i, w in weights.items() if status[i] == "fixed")
-            for col, i in enumerate(self.free):
-                if i in weights:
-                    A[self.implied, col] = -weights[i]
+            self.base[self.implied] = self.sum_to - sum(w * self.base[i] for i, w in weights.items())
+            A[self.implied] = -sum(w * A[i] for i, w in weights.items())
         self.A = A
         self.analytic = lik.linear and not self.target
         # scoring iterations (BHHH): with analytic scores, or numerical ones for an in-mean model,
@@ -760,6 +768,13 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
                 pers = persistence_of(spec, dist, problem.full(best[1]))
                 if pers is None or not abs(pers - _HELD) < _HELD_TOL:
                     off_bound = pers
+    if best[0] > -_PENALTY / 2 and not (math.isfinite(best[3]) and best[3] < _DECREMENT_TOL):
+        # not converged: a maximum pressed against an edge of the admissible region (GJR's
+        # alpha + gamma >= 0, FIGARCH's positivity conditions) is the maximum on that edge
+        on_edge = _edge_fit(problem, best, r)
+        if on_edge is not None:
+            problem, best = on_edge
+            off_bound = None
     ll, u, H, dec, active, res, steps = best
     if not ll > -_PENALTY / 2:
         raise ConvergenceError(
@@ -800,6 +815,7 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
                    f"(a residual at zero; the slopes either side fall away from the estimate, and the other "
                    f"parameters' Newton decrement is below {_DECREMENT_TOL:g}) after {res.nit} iterations")
         held_names = [lik.names[problem.free[c]] for c in np.flatnonzero(active)]
+        held_names += [f"{name} (on the edge {words})" for name, _, _, words in problem.edges]
         if held_names:
             msg += "; at a bound: " + ", ".join(held_names)
         if problem.sum_to is not None and not spec.family.integrated:
@@ -817,6 +833,72 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
         status=tuple(status), loglik=ll, nobs=lik.nobs, n_free=int(n_free),
         converged=converged, message=msg, cov=cov,
     )
+
+
+def _edge_fit(problem: _Problem, best, r):
+    """(problem, best) of the fit held on the edges of the admissible region the estimate ``best``
+    presses against (:meth:`VarianceFamily.edges`), when that fit converges, scores at least as
+    much and gains nothing by stepping off each edge into the region; else None."""
+    lik, spec, options = problem.lik, problem.spec, problem.options
+    theta = problem.full(best[1])
+    rule_names = set()
+    if problem.implied is not None:
+        rule_names.add(lik.names[problem.implied])
+    usable, near, taken = [], [], set()
+    for edge in spec.family.edges():
+        name, weights, const, _ = edge
+        if problem.status[lik.idx[name]] != "free" or rule_names & set(weights):
+            continue
+        usable.append(edge)
+        vals = [w * theta[lik.idx[n]] for n, w in weights.items()]
+        if name not in taken and sum(vals) - const < 1e-3 * max(1.0, sum(abs(v) for v in vals)):
+            near.append(edge)
+            taken.add(name)
+    # the edges the estimate presses against together, then each edge alone (the optimiser may
+    # have stalled away from the edge the maximum lies on)
+    sets = ([near] if near else []) + [[e] for e in usable if [e] != near]
+    if not sets:
+        return None
+    eta = theta[lik.k - len(problem.dist.param_names):]
+    sums = [problem.sum_to]
+    if problem.sum_to is None and spec.family.holds_at_bound:
+        pers = persistence_of(spec, problem.dist, theta)
+        if pers is not None and pers > 0.9:
+            sums.append(_HELD)
+    found = None
+    for edges in sets[:4]:
+        for total in sums:
+            try:
+                edged = _Problem(lik, options, sum_to=total, eta=eta, edges=edges)
+            except InputError:
+                continue
+            alt = _run(edged, r, [theta] + _start_candidates(edged, r)[:2])
+            if not (math.isfinite(alt[3]) and alt[3] < _DECREMENT_TOL and alt[0] >= best[0] - 1e-9):
+                continue
+            if total is not None and not spec.family.integrated:
+                pers = persistence_of(spec, problem.dist, edged.full(alt[1]))
+                if pers is None or not abs(pers - total) < _HELD_TOL:
+                    continue
+            if not _off_edge_gains(edged, alt[1]) and (found is None or alt[0] > found[1][0]):
+                found = (edged, alt)
+    return found
+
+
+def _off_edge_gains(edged: _Problem, u) -> bool:
+    """True if one step off an edge into the admissible region (the implied parameter moved, the
+    others kept) raises the log-likelihood: then the edge does not hold the maximum."""
+    lik = edged.lik
+    t = edged.full(u)
+    f0 = lik.loglik(t)
+    eta = t[lik.k - len(edged.dist.param_names):]
+    for name, weights, _, _ in edged.edges:
+        j = lik.idx[name]
+        step = t.copy()
+        step[j] += math.copysign(1e-5 * max(abs(t[j]), 1e-2), weights[name])
+        if edged.family.admissible(step[lik._vs], eta, edged.dist, held=edged.sum_to is not None) \
+                and lik.loglik(step) > f0 + 1e-9:
+            return True
+    return False
 
 
 def _kink_maximum(problem: _Problem, u, H, active):
@@ -889,7 +971,7 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
     ok = d > 0
     se[ok] = np.sqrt(d[ok])
     for i, s in enumerate(problem.status):
-        if s in ("fixed", "target"):
+        if s in ("fixed", "target", "bound"):  # 'bound': held on an edge of the region
             se[i] = np.nan
     for col, i in enumerate(problem.free):
         if active[col]:

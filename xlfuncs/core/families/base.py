@@ -575,6 +575,17 @@ class VarianceFamily:
     def _sum_rule(self, eta, dist):
         return None
 
+    def edges(self) -> list:
+        """The linear edges of the admissible region (besides the box bounds and the stationarity
+        bound) on which a maximum may lie: one (implied parameter, {parameter: weight}, constant,
+        words) per condition sum_i weight_i p_i >= constant.  On the edge the estimator holds the
+        equality, the implied parameter solved from the others; ``words`` state the condition for
+        the fit's message.  Default: none."""
+        return list(self._edges())
+
+    def _edges(self):
+        return []
+
     def hold(self, vp, total: float, eta=(), dist=None) -> np.ndarray:
         """For a sum rule given without weights: set the implied parameter in ``vp`` (in place) so
         that the persistence is ``total``; returns its derivatives in the variance parameters, then

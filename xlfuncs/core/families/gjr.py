@@ -34,6 +34,12 @@ class Gjr(LinearFamily):
     def _grid(self):
         return [(0.5 * a, a, b) for a, _, b in super()._grid()]
 
+    def _edges(self):
+        """alpha_i + gamma_i >= 0 (a negative shock never lowers the variance): on the edge gamma_i
+        is implied, -alpha_i."""
+        return [(f"gamma[{i}]", {f"alpha[{i}]": 1.0, f"gamma[{i}]": 1.0}, 0.0, f"alpha[{i}] + gamma[{i}] >= 0")
+                for i in range(1, self.p + 1)]
+
     # ------------------------------------------------------------------ held on the bound
     @staticmethod
     def _shape_moves_kappa(dist):
