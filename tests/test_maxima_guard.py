@@ -72,10 +72,10 @@ def series(name):
     return _SERIES[name]
 
 
-def fitted(name, model, dist):
-    key = (name, model, dist)
+def fitted(name, model, dist, options=None):
+    key = (name, model, dist, options)
     if key not in _FITS:
-        _FITS[key] = fit(series(name), model, dist)
+        _FITS[key] = fit(series(name), model, dist, options)
     return _FITS[key]
 
 
@@ -132,7 +132,7 @@ def _restart(r, f, on_bound):
             pers = persistence_of(f.spec, f.dist, th)
             if pers is not None and not pers <= 1.0 + 1e-12:
                 return -math.inf
-            val = evaluate(r, f.spec, f.dist, names, th).loglik
+            val = evaluate(r, f.spec, f.dist, names, th, f.options).loglik
         except (InputError, ValueError, FloatingPointError):
             return -math.inf
         return val if math.isfinite(val) else -math.inf
@@ -167,6 +167,29 @@ def test_an_independent_restart_gains_nothing(name, model, dist):
     if not integrated:  # and off it: every parameter free, persistence at most one
         gain, _ = _restart(r, f, on_bound=False)
         assert gain < TOL, f"{name} {model}-{dist}: Nelder-Mead gains {gain:.3g}"
+
+
+# fits whose maximum lies on an edge of the admissible region other than the stationarity bound:
+# on DEM/GBP, GJR-GARCH(2,1)'s on alpha[2] + gamma[2] >= 0 (with alpha[2] at 0), FIGARCH's under
+# presample=drop on its positivity condition varphi <= (2 - d)/3 (Baillie, Bollerslev & Mikkelsen 1996)
+EDGE_CASES = [("GJR-GARCH(2,1)", "normal", None, "gamma[2]"), ("GJR-GARCH(2,1)", "skewt", None, "gamma[2]"),
+              ("FIGARCH(1,d,1)", "normal", "presample=drop", "varphi")]
+
+
+@pytest.mark.parametrize("model, dist, options, on_edge", EDGE_CASES)
+def test_a_maximum_on_an_edge_is_the_maximum_there(model, dist, options, on_edge):
+    r = series("dmbp")
+    f = fitted("dmbp", model, dist, options)
+    assert f.converged, f.message
+    i = f.names.index(on_edge)
+    assert f.status[i] == "bound" and math.isnan(f.std_errors[i]) and f"{on_edge} (on the edge" in f.message
+    held = "implied" in f.status
+    gain, base = _restart(r, f, on_bound=held)
+    assert abs(base) < 1e-9 and gain < TOL, (base, gain)
+    if held:
+        assert _restart(r, f, on_bound=False)[0] < TOL
+    if model.startswith("GJR"):  # GJR-GARCH(1,1) is GJR-GARCH(2,1) with alpha[2] = gamma[2] = 0
+        assert f.loglik >= fitted("dmbp", "GJR-GARCH(1,1)", dist).loglik - TOL
 
 
 @pytest.mark.parametrize("name", list(GRID))

@@ -25,7 +25,7 @@ the shocks' distribution read it, the others ignore it).
 | ``_sim_start``, ``_sim_continue``, ``_sim_variance``, ``_sim_push`` | one simulation step at a time |
 | ``_news_impact`` | next period's variance against this period's shock |
 | ``_long_run``, ``_long_run_forecast`` | the long-run component, in sample and ahead (component models only) |
-| ``_starts``, ``_target``, ``_sum_rule``, ``_hold`` | what the estimator needs: start values, variance targeting, the implied weight |
+| ``_starts``, ``_target``, ``_sum_rule``, ``_hold``, ``_edges`` | what the estimator needs: start values, variance targeting, the implied weight, the linear edges of the admissible region |
 | ``_filter_start`` (and optionally a faster ``_filter``) | the recursion one observation at a time, for a mean that reads sigma[t] (GARCH-in-mean) |
 | ``_bad_shift`` | where an intercept series (variance regressors) leaves the family's domain (``takes_shift`` families) |
 | ``_window_forecasts`` | the one-step variance after each of many windows of one residual series, without re-filtering each (``window_forecasts`` families) |
