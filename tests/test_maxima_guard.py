@@ -261,3 +261,37 @@ def test_the_fit_table_says_what_the_readme_says():
     rows = {row[0]: row for row in VOLFIT(R, "GARCH(2,1)", "normal")}
     assert rows["alpha[2]"][2] == "at bound" and rows["alpha[2]"][3] is None
     assert rows["converged"][1] is True and "at a bound: alpha[2]" in rows["converged"][2]
+
+
+@pytest.mark.parametrize("model", ["GJR-GARCH(1,1)", "GJR-GARCH(2,1)", "GJR-GARCH(2,0)"])
+def test_the_gjr_weight_held_with_skewed_shocks(model):
+    """With skewed-t shocks GJR's persistence alpha + kappa gamma + beta moves with the shape
+    (kappa = E[z^2 1(z<0)], Hansen 1994's density): hold() sets the implied weight so that the
+    persistence (the family's own definition) is the target at the shape given, and its gradient
+    agrees with central differences of the weight it sets (common practice)."""
+    from xlfuncs.core import get_distribution, parse_model
+
+    fam = parse_model(model).family
+    d = get_distribution("skewt")
+    vp = np.array([0.05] + [0.06] * fam.p + [0.04] * fam.p + [0.8] * fam.q)
+    x = 2 * fam.p + fam.q if fam.q else fam.p
+    full = np.concatenate([vp, [5.0, -0.2]])
+
+    def implied(f):
+        v = f[: fam.n_params].copy()
+        fam.hold(v, 0.995, f[fam.n_params:], d)
+        return v[x], v
+
+    val, v = implied(full)
+    assert fam.persistence(v, full[fam.n_params:], d) == pytest.approx(0.995, abs=1e-14)
+    assert abs(d.neg_sq_moment([5.0, -0.2]) - 0.5) > 1e-2  # the shape matters here
+    v2 = vp.copy()
+    grad = fam.hold(v2, 0.995, full[fam.n_params:], d)
+    for j in range(len(full)):
+        if j == x:
+            continue
+        h = 1e-6 * max(1.0, abs(full[j]))
+        up, dn = full.copy(), full.copy()
+        up[j] += h
+        dn[j] -= h
+        assert grad[j] == pytest.approx((implied(up)[0] - implied(dn)[0]) / (2 * h), abs=1e-7)
