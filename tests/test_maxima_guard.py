@@ -8,7 +8,7 @@ practice for the simplex method), on the full-parameter log-likelihood that ``ev
 no sum rule, no scoring, no Newton steps.  Its constraints are the model's own, written out here:
 the parameter domains (``evaluate`` refuses a point outside them), persistence at most one, and the
 estimator's boxes (t and skewed-t nu <= 300, GED nu <= 50, |lambda| <= 0.995, weights in [0, 1],
-|gamma| < 1, APARCH's 0.1 <= delta <= 4, CGARCH's rho <= 0.9999).  An IGARCH model, and a fit the estimator holds on the
+|gamma| < 1, APARCH's |gamma| <= 0.9999 and 0.1 <= delta <= 4, CGARCH's rho <= 0.9999).  An IGARCH model, and a fit the estimator holds on the
 stationarity bound, are also restarted on the bound itself: the implied weight is solved here
 from the model's persistence (linear in that weight) at every trial point, so every moment of the
 shocks the persistence uses is the trial point's.
@@ -79,7 +79,8 @@ def fitted(name, model, dist, options=None):
     return _FITS[key]
 
 
-def _in_box(names, theta, dist) -> bool:
+def _in_box(names, theta, dist, family) -> bool:
+    gamma_cap = 0.9999 if family == "aparch" else 1.0  # APARCH's estimates stop at |gamma| = 0.9999
     for n, v in zip(names, theta):
         if n == "nu" and not v <= (50.0 if dist == "ged" else 300.0):
             return False
@@ -87,7 +88,7 @@ def _in_box(names, theta, dist) -> bool:
             return False
         if (n.startswith("alpha") or n.startswith("beta")) and not v <= 1.0:
             return False
-        if n.startswith("gamma") and not abs(v) < 1.0:
+        if n.startswith("gamma") and not (abs(v) < 1.0 and abs(v) <= gamma_cap):
             return False
         if n == "delta" and not 0.1 <= v <= 4.0:
             return False
@@ -126,7 +127,7 @@ def _restart(r, f, on_bound):
 
     def loglik(x):
         th = full(x)
-        if th is None or not _in_box(names, th, f.dist.name):
+        if th is None or not _in_box(names, th, f.dist.name, f.spec.variance):
             return -math.inf
         try:
             pers = persistence_of(f.spec, f.dist, th)

@@ -815,7 +815,7 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
                    f"(a residual at zero; the slopes either side fall away from the estimate, and the other "
                    f"parameters' Newton decrement is below {_DECREMENT_TOL:g}) after {res.nit} iterations")
         held_names = [lik.names[problem.free[c]] for c in np.flatnonzero(active)]
-        held_names += [f"{name} (on the edge {words})" for name, _, _, words in problem.edges]
+        held_names += [name if words is None else f"{name} (on the edge {words})" for name, _, _, words in problem.edges]
         if held_names:
             msg += "; at a bound: " + ", ".join(held_names)
         if problem.sum_to is not None and not spec.family.integrated:
@@ -854,8 +854,21 @@ def _edge_fit(problem: _Problem, best, r):
         if name not in taken and sum(vals) - const < 1e-3 * max(1.0, sum(abs(v) for v in vals)):
             near.append(edge)
             taken.add(name)
-    # the edges the estimate presses against together, then each edge alone (the optimiser may
-    # have stalled away from the edge the maximum lies on)
+    # box bounds the estimate presses against are edges too (p >= lo, -p >= -hi): a maximum with
+    # a weight at 0 where the others still move (GARCH(1,2)'s beta[2]) is the maximum there
+    scales, bounds = _scale_and_bounds(problem, r)
+    for col, i in enumerate(problem.free):
+        name, (lo, hi), sc = lik.names[i], bounds[col], scales[col]
+        if name in taken or lik.names[i] in rule_names:
+            continue
+        if lo is not None and theta[i] - lo < 1e-2 * sc:
+            near.append((name, {name: 1.0}, float(lo), None))
+            taken.add(name)
+        elif hi is not None and hi - theta[i] < 1e-2 * sc:
+            near.append((name, {name: -1.0}, -float(hi), None))
+            taken.add(name)
+    # the edges the estimate presses against together, then each of the family's edges alone (the
+    # optimiser may have stalled away from the edge the maximum lies on)
     sets = ([near] if near else []) + [[e] for e in usable if [e] != near]
     if not sets:
         return None
