@@ -763,7 +763,7 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None) -> FitResult
             held = _Problem(lik, options, sum_to=_HELD, eta=eta)
             t0 = problem.full(best[1])
             alt = _run(held, r, [t0] + _start_candidates(held, r)[:2])
-            if alt[0] >= best[0] - 1e-9:
+            if alt[0] >= best[0] - 1e-9 and not _off_edge_gains(held, alt[1]):
                 problem, best = held, alt
                 pers = persistence_of(spec, dist, problem.full(best[1]))
                 if pers is None or not abs(pers - _HELD) < _HELD_TOL:
@@ -874,10 +874,9 @@ def _edge_fit(problem: _Problem, best, r):
         return None
     eta = theta[lik.k - len(problem.dist.param_names):]
     sums = [problem.sum_to]
-    if problem.sum_to is None and spec.family.holds_at_bound:
+    if spec.family.holds_at_bound:  # on the stationarity bound and off it
         pers = persistence_of(spec, problem.dist, theta)
-        if pers is not None and pers > 0.9:
-            sums.append(_HELD)
+        sums = [None] + ([_HELD] if pers is not None and pers > 0.9 else [])
     found = None
     for edges in sets[:4]:
         for total in sums:
@@ -899,16 +898,20 @@ def _edge_fit(problem: _Problem, best, r):
 
 def _off_edge_gains(edged: _Problem, u) -> bool:
     """True if one step off an edge into the admissible region (the implied parameter moved, the
-    others kept) raises the log-likelihood: then the edge does not hold the maximum."""
+    others kept) raises the log-likelihood: then the edge does not hold the maximum.  The
+    stationarity bound of a fit held there is such an edge (its implied weight lowered)."""
     lik = edged.lik
     t = edged.full(u)
     f0 = lik.loglik(t)
     eta = t[lik.k - len(edged.dist.param_names):]
-    for name, weights, _, _ in edged.edges:
-        j = lik.idx[name]
+    held = edged.sum_to is not None
+    moves = [(lik.idx[name], weights[name], held) for name, weights, _, _ in edged.edges]
+    if held and not edged.family.integrated:
+        moves.append((edged.implied, -1.0, False))
+    for j, sign, on_bound in moves:
         step = t.copy()
-        step[j] += math.copysign(1e-5 * max(abs(t[j]), 1e-2), weights[name])
-        if edged.family.admissible(step[lik._vs], eta, edged.dist, held=edged.sum_to is not None) \
+        step[j] += math.copysign(1e-5 * max(abs(t[j]), 1e-2), sign)
+        if edged.family.admissible(step[lik._vs], eta, edged.dist, held=on_bound) \
                 and lik.loglik(step) > f0 + 1e-9:
             return True
     return False
