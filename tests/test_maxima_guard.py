@@ -301,3 +301,19 @@ def test_the_gjr_weight_held_with_skewed_shocks(model):
         up[j] += h
         dn[j] -= h
         assert grad[j] == pytest.approx((implied(up)[0] - implied(dn)[0]) / (2 * h), abs=1e-7)
+
+
+def test_the_news_impact_of_a_fit_held_on_the_bound():
+    """A fit held at persistence one has no long-run variance to hold the lagged variance at:
+    its news-impact curve (Engle & Ng 1993) is omega + (alpha + gamma 1(e<0)) e^2, the convention
+    IGARCH's curve follows (written out here), not an error and not the level omega / (1 - pers)."""
+    from xlfuncs import VOLNEWS, VOLFIT
+    from helpers import column
+
+    table = VOLFIT(column(series("dmbp")), "GJR-GARCH(1,1)", "skewt")
+    p = {row[0]: row[1] for row in table}
+    assert p["persistence"] == pytest.approx(1.0, abs=1e-12)
+    shocks = [-2.0, -0.5, 0.0, 0.5, 2.0]
+    got = [row[0] for row in VOLNEWS(table, [[s] for s in shocks])]
+    want = [p["omega"] + (p["alpha[1]"] + p["gamma[1]"] * (s < 0)) * s * s for s in shocks]
+    assert got == pytest.approx(want, rel=1e-12)

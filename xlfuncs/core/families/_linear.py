@@ -545,9 +545,14 @@ class LinearFamily(VarianceFamily):
 
     # ------------------------------------------------------------------ news impact
     def _news_level(self, vp, eta, dist):
-        """The lagged variance the news-impact curve holds fixed: the unconditional one."""
+        """The lagged variance the news-impact curve holds fixed: the unconditional one; at
+        persistence one (a fit held on the stationarity bound) there is none, and the curve leaves
+        the lagged terms out, as IGARCH's does."""
         s2 = self._uncond_variance(vp, eta, dist)
         if s2 is None:
+            pers = self._persistence(vp, eta, dist)
+            if pers is not None and abs(pers - 1.0) < UNIT_TOL:
+                return 0.0
             raise InputError("the news-impact curve needs a stationary model (persistence below 1)")
         return s2
 

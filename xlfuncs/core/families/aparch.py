@@ -583,7 +583,10 @@ class Aparch(VarianceFamily):
         omega, alpha, gamma, beta, delta = self._split(vp)
         level = self.power_mean(vp, eta, dist)
         if level is None:
-            raise InputError("the news-impact curve needs a stationary model (persistence below 1)")
+            pers = self._persistence(vp, eta, dist)
+            if pers is None or not abs(pers - 1.0) < UNIT_TOL:
+                raise InputError("the news-impact curve needs a stationary model (persistence below 1)")
+            level = 0.0  # persistence one (held on the bound): no long-run level; as IGARCH, lags left out
         kap = self._kappa(vp, eta, dist)
         rest = float(alpha[1:] @ kap[1:]) * level + float(beta.sum()) * level
         S = omega + alpha[0] * self._news_of(e, gamma[:1], delta)[0] + rest
