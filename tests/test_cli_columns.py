@@ -72,7 +72,10 @@ def assert_table_matches(out, reference_rows):
     for name in ("mu", "omega", "alpha[1]", "beta[1]", "loglik", "aic", "bic"):
         assert float(lines[name].split()[1]) == pytest.approx(ref[name][1], rel=1e-5), name
     for name in ("mu", "omega", "alpha[1]", "beta[1]"):
-        assert float(lines[name].split()[2]) == pytest.approx(ref[name][2], rel=1e-5), name
+        if isinstance(ref[name][2], str):  # a parameter not estimated says why (`at bound`, `implied`)
+            assert ref[name][2] in lines[name], name
+        else:
+            assert float(lines[name].split()[2]) == pytest.approx(ref[name][2], rel=1e-5), name
 
 
 # ---------------------------------------------------------------------------------------------

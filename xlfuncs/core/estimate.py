@@ -41,7 +41,8 @@ _PENALTY = 1e12
 _DECREMENT_TOL = 1e-6  # converged: the log-likelihood is within about tol/2 of its maximum
 _POLISH_TOL = 1e-12  # Newton polishing stops here
 _NUMERIC_POLISH_TOL = 1e-9  # ... and here for an in-mean model (numerical derivatives)
-_BOUND_GAP = 1e-6  # a fit on the stationarity bound holds persistence at 1 - gap
+_HELD = 1.0  # a fit on the stationarity bound holds persistence at one: the integrated (IGARCH-type) fit
+_HELD_TOL = 1e-9  # ... and is re-checked there after the fit
 _SCORING_TOL = 0.05  # scoring iterations hand over to Newton steps below this decrement
 _SCORING_EXACT = 0.5  # ... and below this one where the Hessian is in closed form (measured:
 # fewer passes in all on DEM/GBP and simulated GARCH, GJR and IGARCH fits than 0.05 or 2)
@@ -165,7 +166,7 @@ def check_intercept(lik: Likelihood, theta, rows=None) -> None:
 class _Problem:
     """Free-parameter view of a likelihood: mapping, bounds, objective and gradient."""
 
-    def __init__(self, lik: Likelihood, options: Options, sum_to: float | None = None, eta=None):
+    def __init__(self, lik: Likelihood, options: Options, sum_to: float | None = None, eta=None, edges=()):
         self.lik = lik
         self.spec = spec = lik.spec
         self.family = fam = spec.family
@@ -209,6 +210,11 @@ class _Problem:
             if tname in fixed:
                 raise InputError(f"options: target=yes implies {tname}; do not also fix {tname}")
             status[lik.idx[tname]] = "target"
+        # edges of the admissible region the fit is held on (VarianceFamily.edges): each implies
+        # one parameter from the others, sum w_i p_i = c; shown as held at a bound
+        self.edges = tuple(edges)
+        for name, _, _, _ in self.edges:
+            status[lik.idx[name]] = "bound"
         self.status = status
         self.free = np.array([i for i, s in enumerate(status) if s == "free"], dtype=int)
         if len(self.free) == 0:
@@ -216,16 +222,19 @@ class _Problem:
         self.base = np.zeros(k)
         for n, v in fixed.items():
             self.base[lik.idx[n]] = v
-        # affine map full = base + A u (IGARCH implied parameter included)
+        # affine map full = base + A u (edge-implied parameters, then the sum rule's, included)
         A = np.zeros((k, len(self.free)))
         A[self.free, np.arange(len(self.free))] = 1.0
+        for name, weights, const, _ in self.edges:
+            j = lik.idx[name]
+            others = {lik.idx[n]: w for n, w in weights.items() if n != name}
+            self.base[j] = (const - sum(w * self.base[i] for i, w in others.items())) / weights[name]
+            A[j] = -sum(w * A[i] for i, w in others.items()) / weights[name]
         if self.implied is not None and not self.held_by_family:
             weights = {lik.idx[n]: w for n, w in rule[1].items()}
             weights.pop(self.implied)
-            self.base[self.implied] = self.sum_to - sum(w * self.base[i] for i, w in weights.items() if status[i] == "fixed")
-            for col, i in enumerate(self.free):
-                if i in weights:
-                    A[self.implied, col] = -weights[i]
+            self.base[self.implied] = self.sum_to - sum(w * self.base[i] for i, w in weights.items())
+            A[self.implied] = -sum(w * A[i] for i, w in weights.items())
         self.A = A
         self.analytic = lik.linear and not self.target
         # scoring iterations (BHHH): with analytic scores, or numerical ones for an in-mean model,
@@ -915,30 +924,49 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None, starts=()) -
     extra = _without_in_mean(r, spec, dist, options, X, lik) if spec.in_mean else []
     extra = list(extra) + [np.asarray(t, dtype=float) for t in starts if len(t) == lik.k]
     best = _run(problem, r, _start_candidates(problem, r, extra))
+    if best[0] > -_PENALTY / 2 and not (math.isfinite(best[3]) and best[3] < _DECREMENT_TOL):
+        # not converged: the optimiser restarted from its own end, with a fresh memory (L-BFGS-B
+        # can stop on a relative reduction far from the maximum: CGARCH-skewt on SP500, 2.4 short)
+        again = _run(problem, r, [problem.full(best[1])])
+        if again[0] >= best[0] - 1e-9:
+            best = again
     n_free = len(problem.free)
+    off_bound = None  # a held fit whose persistence is not the bound (re-checked below)
     if spec.family.holds_at_bound and best[0] > -_PENALTY / 2:
         pers = persistence_of(spec, dist, problem.full(best[1]))
         first_ok = math.isfinite(best[3]) and best[3] < _DECREMENT_TOL
-        if pers > 1.0 - 1e-3 or (pers > 0.9 and not first_ok):
-            # the maximum lies on the stationarity bound: maximise on the bound itself
+        if pers is not None and (pers > 1.0 - 1e-3 or (pers > 0.9 and not first_ok)):
+            # the maximum lies on the stationarity bound: maximise on the bound itself, persistence
+            # one (so the fit is the integrated model's and never scores below it), with the
+            # implied weight set at every trial point from the moments at that point's shape
             eta = problem.full(best[1])[lik.k - len(dist.param_names):]
-            held = _Problem(lik, options, sum_to=1.0 - _BOUND_GAP, eta=eta)
+            held = _Problem(lik, options, sum_to=_HELD, eta=eta)
             t0 = problem.full(best[1])
-            alt = _run(held, r, [t0])
-            if alt[0] >= best[0] - 1e-9:
+            alt = _run(held, r, [t0] + _start_candidates(held, r)[:2])
+            if alt[0] >= best[0] - 1e-9 and not _off_edge_gains(held, alt[1]):
                 problem, best = held, alt
+                pers = persistence_of(spec, dist, problem.full(best[1]))
+                if pers is None or not abs(pers - _HELD) < _HELD_TOL:
+                    off_bound = pers
+    if best[0] > -_PENALTY / 2 and not (math.isfinite(best[3]) and best[3] < _DECREMENT_TOL):
+        # not converged: a maximum pressed against an edge of the admissible region (GJR's
+        # alpha + gamma >= 0, FIGARCH's positivity conditions) is the maximum on that edge
+        on_edge = _edge_fit(problem, best, r)
+        if on_edge is not None:
+            problem, best = on_edge
+            off_bound = None
     ll, u, H, dec, active, res, steps = best
     if not ll > -_PENALTY / 2:
         raise ConvergenceError(
             f"no admissible estimate of {spec.canonical} with {dist.name} shocks was found from the starting points tried"
         )
-    converged = bool(math.isfinite(dec) and dec < _DECREMENT_TOL)
+    converged = bool(math.isfinite(dec) and dec < _DECREMENT_TOL) and off_bound is None
     gradient_only = False
     kinks = None
-    if not converged:
+    if not converged and off_bound is None:
         kinks = _kink_maximum(problem, u, H, active)
         converged = kinks is not None
-    if not converged and not math.isfinite(dec):
+    if not converged and not math.isfinite(dec) and off_bound is None:
         # the Hessian is not negative definite (a flat or kinked likelihood): use the score
         # (LM) statistic g' (G'G)^-1 g with the outer product of the scores as the metric
         _, G = problem.scores_free(u)
@@ -967,10 +995,16 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None, starts=()) -
                    f"(a residual at zero; the slopes either side fall away from the estimate, and the other "
                    f"parameters' Newton decrement is below {_DECREMENT_TOL:g}) after {res.nit} iterations")
         held_names = [lik.names[problem.free[c]] for c in np.flatnonzero(active)]
+        held_names += [name if words is None else f"{name} (on the edge {words})" for name, _, _, words in problem.edges]
         if held_names:
             msg += "; at a bound: " + ", ".join(held_names)
         if problem.sum_to is not None and not spec.family.integrated:
-            msg += f"; persistence held at the stationarity bound {1 - _BOUND_GAP:.6f} (the data favour IGARCH)"
+            msg += (f"; persistence held at the stationarity bound 1: the data favour an integrated variance, so "
+                    f"this is the IGARCH-type fit ({lik.names[problem.implied]} implied by the other weights; "
+                    f"no unconditional variance or half-life)")
+    elif off_bound is not None:
+        msg = (f"NOT converged: the fit held at the stationarity bound ends with persistence {off_bound!s}, "
+               f"not 1; the estimates are not the maximum on the bound")
     else:
         msg = f"NOT converged: {res.message if isinstance(res.message, str) else res.message!s}; Newton decrement {dec:.2g} (tolerance {_DECREMENT_TOL:g})"
     se, cov = _std_errors(problem, u, H, active, options.se)
@@ -979,6 +1013,88 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None, starts=()) -
         status=tuple(status), loglik=ll, nobs=lik.nobs, n_free=int(n_free),
         converged=converged, message=msg, cov=cov,
     )
+
+
+def _edge_fit(problem: _Problem, best, r):
+    """(problem, best) of the fit held on the edges of the admissible region the estimate ``best``
+    presses against (:meth:`VarianceFamily.edges`), when that fit converges, scores at least as
+    much and gains nothing by stepping off each edge into the region; else None."""
+    lik, spec, options = problem.lik, problem.spec, problem.options
+    theta = problem.full(best[1])
+    rule_names = set()
+    if problem.implied is not None:
+        rule_names.add(lik.names[problem.implied])
+    usable, near, taken = [], [], set()
+    for edge in spec.family.edges():
+        name, weights, const, _ = edge
+        if problem.status[lik.idx[name]] != "free" or rule_names & set(weights):
+            continue
+        usable.append(edge)
+        vals = [w * theta[lik.idx[n]] for n, w in weights.items()]
+        if name not in taken and sum(vals) - const < 1e-3 * max(1.0, sum(abs(v) for v in vals)):
+            near.append(edge)
+            taken.add(name)
+    # box bounds the estimate presses against are edges too (p >= lo, -p >= -hi): a maximum with
+    # a weight at 0 where the others still move (GARCH(1,2)'s beta[2]) is the maximum there
+    scales, bounds = _scale_and_bounds(problem, r)
+    for col, i in enumerate(problem.free):
+        name, (lo, hi), sc = lik.names[i], bounds[col], scales[col]
+        if name in taken or lik.names[i] in rule_names:
+            continue
+        if lo is not None and theta[i] - lo < 1e-2 * sc:
+            near.append((name, {name: 1.0}, float(lo), None))
+            taken.add(name)
+        elif hi is not None and hi - theta[i] < 1e-2 * sc:
+            near.append((name, {name: -1.0}, -float(hi), None))
+            taken.add(name)
+    # the edges the estimate presses against together, then each of the family's edges alone (the
+    # optimiser may have stalled away from the edge the maximum lies on)
+    sets = ([near] if near else []) + [[e] for e in usable if [e] != near]
+    if not sets:
+        return None
+    eta = theta[lik.k - len(problem.dist.param_names):]
+    sums = [problem.sum_to]
+    if spec.family.holds_at_bound:  # on the stationarity bound and off it
+        pers = persistence_of(spec, problem.dist, theta)
+        sums = [None] + ([_HELD] if pers is not None and pers > 0.9 else [])
+    found = None
+    for edges in sets[:4]:
+        for total in sums:
+            try:
+                edged = _Problem(lik, options, sum_to=total, eta=eta, edges=edges)
+            except InputError:
+                continue
+            alt = _run(edged, r, [theta] + _start_candidates(edged, r)[:2])
+            if not (math.isfinite(alt[3]) and alt[3] < _DECREMENT_TOL and alt[0] >= best[0] - 1e-9):
+                continue
+            if total is not None and not spec.family.integrated:
+                pers = persistence_of(spec, problem.dist, edged.full(alt[1]))
+                if pers is None or not abs(pers - total) < _HELD_TOL:
+                    continue
+            if not _off_edge_gains(edged, alt[1]) and (found is None or alt[0] > found[1][0]):
+                found = (edged, alt)
+    return found
+
+
+def _off_edge_gains(edged: _Problem, u) -> bool:
+    """True if one step off an edge into the admissible region (the implied parameter moved, the
+    others kept) raises the log-likelihood: then the edge does not hold the maximum.  The
+    stationarity bound of a fit held there is such an edge (its implied weight lowered)."""
+    lik = edged.lik
+    t = edged.full(u)
+    f0 = lik.loglik(t)
+    eta = t[lik.k - len(edged.dist.param_names):]
+    held = edged.sum_to is not None
+    moves = [(lik.idx[name], weights[name], held) for name, weights, _, _ in edged.edges]
+    if held and not edged.family.integrated:
+        moves.append((edged.implied, -1.0, False))
+    for j, sign, on_bound in moves:
+        step = t.copy()
+        step[j] += math.copysign(1e-5 * max(abs(t[j]), 1e-2), sign)
+        if edged.family.admissible(step[lik._vs], eta, edged.dist, held=on_bound) \
+                and lik.loglik(step) > f0 + 1e-9:
+            return True
+    return False
 
 
 def _kink_maximum(problem: _Problem, u, H, active):
@@ -1026,6 +1142,63 @@ def _kink_maximum(problem: _Problem, u, H, active):
     return kinked
 
 
+def _across_kinks(problem: _Problem, u, H, active):
+    """The Hessian with the columns of mean parameters whose curvature is a kink's recomputed
+    across the kink.
+
+    A residual at (or next to) zero puts a kink, or a cusp, in the log-likelihood along the mean
+    parameters where it reads |z| (EGARCH's news, GED shocks of shape near 1): a difference of the
+    gradient over a step of 1e-5 then measures the jump of the slope over that step, not the
+    curvature that carries the sampling variation, and its standard error comes out many times
+    too small.  Such a column shows as a curvature that moves with the step (a smooth one agrees
+    to many digits at two steps ten times apart); it is replaced by central differences of the
+    gradient over one standard error (the outer product of the scores'), the scale on which the
+    estimate varies, so the kink is averaged over as the expected information averages over it.
+    """
+    if H is None or not np.all(np.isfinite(H)):
+        return H
+    lik = problem.lik
+    mean = set(lik.spec.mean_names)
+    cols = [c for c, i in enumerate(problem.free) if lik.names[i] in mean and not active[c]]
+    if not cols:
+        return H
+
+    def grad(v):
+        f, g = problem.fun_grad(v)
+        return None if f >= _PENALTY / 2 else -g
+
+    def curvature(j, h):
+        up, dn = u.copy(), u.copy()
+        up[j] += h
+        dn[j] -= h
+        gu, gd = grad(up), grad(dn)
+        return None if gu is None or gd is None else (gu - gd) / (2 * h)
+
+    kinked = []
+    for j in cols:
+        a, b = curvature(j, problem.steps[j]), curvature(j, 10 * problem.steps[j])
+        if a is not None and b is not None and abs(a[j] - b[j]) > 0.01 * max(abs(a[j]), abs(b[j])):
+            kinked.append(j)
+    if not kinked:
+        return H
+    _, G = problem.scores_free(u)
+    fr = np.flatnonzero(~active)
+    try:
+        opg = np.linalg.inv(G[:, fr].T @ G[:, fr])
+    except np.linalg.LinAlgError:
+        return H
+    H = H.copy()
+    for j in kinked:
+        k = int(np.flatnonzero(fr == j)[0])
+        h = math.sqrt(opg[k, k]) if opg[k, k] > 0 else 1e3 * problem.steps[j]
+        col = curvature(j, h)
+        if col is None:
+            continue
+        H[:, j] = col
+        H[j, :] = col
+    return H
+
+
 def _std_errors(problem: _Problem, u, H, active, kind: str):
     """Standard errors and covariance of the full vector at the estimate u: the inverse of the
     negative Hessian ('hessian'), of the outer product of the scores ('opg'), or the sandwich
@@ -1049,6 +1222,7 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
         _, G = problem.scores_free(u)
     if not np.all(np.isfinite(H)):
         return se, None
+    H = _across_kinks(problem, u, H, active)  # mean parameters on a kink: curvature over one SE
     G = G[:, fr]
     Hf = H[np.ix_(fr, fr)]
     try:
@@ -1067,7 +1241,7 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
     ok = d > 0
     se[ok] = np.sqrt(d[ok])
     for i, s in enumerate(problem.status):
-        if s in ("fixed", "target"):
+        if s in ("fixed", "target", "bound"):  # 'bound': held on an edge of the region
             se[i] = np.nan
     for col, i in enumerate(problem.free):
         if active[col]:
@@ -1105,16 +1279,16 @@ def free_scores(r, fit: FitResult):
     implies or variance targeting sets; a parameter whose ``fit.status`` is ``'bound'`` (held
     at a box bound) is left out too, and a fit held at the stationarity bound (a weight
     ``'implied'`` in a family that is not integrated, or parameters whose persistence is the
-    held value 1 - 1e-6, as a fit table shows them) keeps that weight implied.
+    held value 1, as a fit table shows them) keeps that weight implied.
     """
     r = np.asarray(r, dtype=float)
     lik = Likelihood(r, fit.spec, fit.dist, fit.options.presample)
     fam = fit.spec.family
     theta = np.array([fit.param_dict[n] for n in lik.names], dtype=float)
     held = not fam.integrated and ("implied" in fit.status or (
-        fam.holds_at_bound and abs((persistence_of(fit.spec, fit.dist, theta) or 0.0) - (1.0 - _BOUND_GAP)) < 1e-9))
+        fam.holds_at_bound and abs((persistence_of(fit.spec, fit.dist, theta) or 0.0) - _HELD) < _HELD_TOL))
     eta = theta[lik.k - len(fit.dist.param_names):]
-    problem = _Problem(lik, fit.options, sum_to=1.0 - _BOUND_GAP if held else None, eta=eta)
+    problem = _Problem(lik, fit.options, sum_to=_HELD if held else None, eta=eta)
     scales, _ = _scale_and_bounds(problem, r)
     problem.steps = 1e-5 * scales
     _, G = problem.scores_free(theta[problem.free])

@@ -32,7 +32,7 @@ import numpy as np
 from scipy.signal import lfilter
 
 from ..errors import InputError
-from .base import VarianceFamily
+from .base import UNIT_TOL, VarianceFamily
 
 try:  # SciPy's C filter without lfilter's argument checks: the recursions call it thousands of times
     from scipy.signal._sigtools import _linear_filter as _raw_filter
@@ -433,7 +433,7 @@ class LinearFamily(VarianceFamily):
 
     def _uncond_variance(self, vp, eta, dist):
         pers = self._persistence(vp, eta, dist)
-        if pers is None or pers >= 1.0:
+        if pers is None or pers >= 1.0 - UNIT_TOL:  # one, to the rounding of the weights' sum
             return None
         return float(self._coefficients(vp)[0] / (1.0 - pers))
 
@@ -639,9 +639,14 @@ class LinearFamily(VarianceFamily):
 
     # ------------------------------------------------------------------ news impact
     def _news_level(self, vp, eta, dist):
-        """The lagged variance the news-impact curve holds fixed: the unconditional one."""
+        """The lagged variance the news-impact curve holds fixed: the unconditional one; at
+        persistence one (a fit held on the stationarity bound) there is none, and the curve leaves
+        the lagged terms out, as IGARCH's does."""
         s2 = self._uncond_variance(vp, eta, dist)
         if s2 is None:
+            pers = self._persistence(vp, eta, dist)
+            if pers is not None and abs(pers - 1.0) < UNIT_TOL:
+                return 0.0
             raise InputError("the news-impact curve needs a stationary model (persistence below 1)")
         return s2
 

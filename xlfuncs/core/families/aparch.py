@@ -43,7 +43,7 @@ from scipy.signal import lfilter
 
 from ..errors import InputError
 from ._linear import linear_filter
-from .base import VarianceFamily
+from .base import UNIT_TOL, VarianceFamily
 
 __all__ = ["Aparch", "power_news_moment", "abs_power_moment"]
 
@@ -233,6 +233,8 @@ class Aparch(VarianceFamily):
         if not (omega > 0 and delta > 0) or np.any(alpha < 0) or np.any(beta < 0) or np.any(np.abs(gamma) >= 1.0):
             return False
         pers = self._persistence(vp, eta, dist)
+        if held:  # on the bound by construction (_hold), up to the rounding of the weights' sum
+            return pers is not None and pers < 1.0 + UNIT_TOL
         return pers is not None and pers < 1.0
 
     def _box(self, var):
@@ -416,7 +418,7 @@ class Aparch(VarianceFamily):
         """E[s^delta] = omega / (1 - persistence); None where the persistence is 1 or more."""
         vp = self._vp(vp)
         pers = self._persistence(vp, np.asarray(eta, dtype=float), dist)
-        if pers is None or not pers < 1.0:
+        if pers is None or not pers < 1.0 - UNIT_TOL:  # one, to the rounding of the weights' sum
             return None
         return float(vp[0] / (1.0 - pers))
 
@@ -581,7 +583,10 @@ class Aparch(VarianceFamily):
         omega, alpha, gamma, beta, delta = self._split(vp)
         level = self.power_mean(vp, eta, dist)
         if level is None:
-            raise InputError("the news-impact curve needs a stationary model (persistence below 1)")
+            pers = self._persistence(vp, eta, dist)
+            if pers is None or not abs(pers - 1.0) < UNIT_TOL:
+                raise InputError("the news-impact curve needs a stationary model (persistence below 1)")
+            level = 0.0  # persistence one (held on the bound): no long-run level; as IGARCH, lags left out
         kap = self._kappa(vp, eta, dist)
         rest = float(alpha[1:] @ kap[1:]) * level + float(beta.sum()) * level
         S = omega + alpha[0] * self._news_of(e, gamma[:1], delta)[0] + rest

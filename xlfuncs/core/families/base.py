@@ -25,7 +25,7 @@ the shocks' distribution read it, the others ignore it).
 | ``_sim_start``, ``_sim_continue``, ``_sim_variance``, ``_sim_push`` | one simulation step at a time |
 | ``_news_impact`` | next period's variance against this period's shock |
 | ``_long_run``, ``_long_run_forecast`` | the long-run component, in sample and ahead (component models only) |
-| ``_starts``, ``_target``, ``_sum_rule``, ``_hold`` | what the estimator needs: start values, variance targeting, the implied weight |
+| ``_starts``, ``_target``, ``_sum_rule``, ``_hold``, ``_edges`` | what the estimator needs: start values, variance targeting, the implied weight, the linear edges of the admissible region |
 | ``_filter_start`` (and optionally a faster ``_filter``) | the recursion one observation at a time, for a mean that reads sigma[t] (GARCH-in-mean) |
 | ``_bad_shift`` | where an intercept series (variance regressors) leaves the family's domain (``takes_shift`` families) |
 | ``_window_forecasts`` | the one-step variance after each of many windows of one residual series, without re-filtering each (``window_forecasts`` families) |
@@ -54,7 +54,12 @@ import numpy as np
 
 from ..errors import InputError, describe_value
 
-__all__ = ["VarianceFamily", "History", "stationary"]
+__all__ = ["VarianceFamily", "History", "stationary", "UNIT_TOL"]
+
+#: a persistence within this of one is one: a fit held on the stationarity bound sums its weights
+#: to one, and a floating-point sum may land an ulp below; such a model has no unconditional
+#: variance and no half-life
+UNIT_TOL = 1e-12
 
 
 def stationary(coefs) -> bool:
@@ -123,7 +128,7 @@ class VarianceFamily:
     has_second: bool = False
     #: the weights are held to sum to one, the last one implied (IGARCH)
     integrated: bool = False
-    #: a maximum on the stationarity bound is re-estimated there with the weights held just below one
+    #: a maximum on the stationarity bound is re-estimated there with the persistence held at one
     holds_at_bound: bool = False
     #: the parameter variance targeting implies (``target=yes``), or None where it does not apply
     targeted: str | None = None
@@ -445,7 +450,7 @@ class VarianceFamily:
 
     def _half_life(self, vp, eta, dist):
         pers = self._persistence(vp, eta, dist)
-        if pers is None or not (0.0 < pers < 1.0):
+        if pers is None or not (0.0 < pers < 1.0 - UNIT_TOL):
             return None
         return math.log(0.5) / math.log(pers)
 
@@ -591,6 +596,17 @@ class VarianceFamily:
 
     def _sum_rule(self, eta, dist):
         return None
+
+    def edges(self) -> list:
+        """The linear edges of the admissible region (besides the box bounds and the stationarity
+        bound) on which a maximum may lie: one (implied parameter, {parameter: weight}, constant,
+        words) per condition sum_i weight_i p_i >= constant.  On the edge the estimator holds the
+        equality, the implied parameter solved from the others; ``words`` state the condition for
+        the fit's message.  Default: none."""
+        return list(self._edges())
+
+    def _edges(self):
+        return []
 
     def hold(self, vp, total: float, eta=(), dist=None) -> np.ndarray:
         """For a sum rule given without weights: set the implied parameter in ``vp`` (in place) so

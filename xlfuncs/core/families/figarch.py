@@ -45,9 +45,11 @@ alpha = varphi - beta >= 0.  The conditions are sufficient, not necessary; the e
 typed fit table both keep to them; at d = 0 varphi (= alpha + beta there) must also stay below 1,
 GARCH(1,1)'s stationarity.  The variants (0,d,1), (1,d,0), (0,d,0) are the same
 conditions with the missing parameter at zero.  Being only sufficient, they can bind where
-positivity does not: on the DEM/GBP series with ``presample=drop`` the maximum lies on
-varphi = (2 - d)/3, and as the estimator holds box bounds only, that fit says NOT converged
-(Conrad & Haag 2006 give necessary and sufficient conditions -- from memory, not used here).
+positivity does not: on the DEM/GBP series with ``presample=drop`` the normal fit's maximum lies on
+varphi = (2 - d)/3.  The two linear conditions are the family's edges (:meth:`_edges`), so the
+estimator holds such a fit on the edge (varphi implied, shown `at bound`, named in the message)
+and reports the maximum there (Conrad & Haag 2006 give necessary and sufficient conditions --
+from memory, not used here).
 
 d = 0 is GARCH(1,1): lambda(L) = (varphi - beta) L / (1 - beta L), i.e. alpha[1] = varphi - beta,
 beta[1] = beta and the same omega (the recursion forms coincide).
@@ -338,7 +340,19 @@ class Figarch(VarianceFamily):
     def _admissible(self, vp, eta, dist, held):
         if not np.all(np.isfinite(vp)):
             return False
-        return self._violation(*self._split(vp)) is None
+        return self._violation(*self._split(vp), _TOL) is None  # an edge held by the estimator rounds
+
+    def _edges(self):
+        """The linear positivity conditions (module docstring): varphi <= (2 - d)/3 and
+        varphi - beta[1] + d >= 0, each holding varphi on its edge (FIGARCH(1,d,q) only)."""
+        if not self.p:
+            return []
+        out = [("varphi", {"varphi": -3.0, "d": -1.0}, -2.0, "varphi <= (2 - d)/3")]
+        if self.q:
+            out.append(("varphi", {"varphi": 1.0, "beta[1]": -1.0, "d": 1.0}, 0.0, "varphi - beta[1] + d >= 0"))
+        else:
+            out.append(("varphi", {"varphi": 1.0, "d": 1.0}, 0.0, "varphi + d >= 0"))
+        return out
 
     def _box(self, var):
         out = [(0.05 * var, (var * 1e-9, None)), (0.1, (0.0, 1.0))]
