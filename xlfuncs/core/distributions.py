@@ -491,8 +491,14 @@ class StudentT(Distribution):
         return _std_t_ppf(q, float(p[0]))
 
     def _partial_first_moment(self, q, p):
+        # the j = 1 term of _std_t_partials alone: -c (1 + q^2/(nu-2))^(-(nu+1)/2) (nu-2+q^2)/(nu-1), 0 at +-inf
         nu = float(p[0])
-        return _std_t_partials(q, nu, math.exp(_t_logc(nu)))[1]
+        q = np.asarray(q, dtype=float)
+        k = nu - 2.0
+        finite = np.isfinite(q)
+        qf = np.where(finite, q, 0.0)
+        f = math.exp(_t_logc(nu)) * np.exp(-0.5 * (nu + 1.0) * np.log1p(qf * qf / k))
+        return np.where(finite, -f * (k + qf * qf) / (nu - 1.0), 0.0)
 
     def _rvs(self, size, p, rng):
         nu = float(p[0])
