@@ -20,7 +20,7 @@ rounds, one BLAS thread.  Rows, and the benchmark scripts whose functions they r
 * VOLCOMPARE of the templates' candidates (EWMA, GARCH, GJR-GARCH, EGARCH x normal, t) on
   DEM/GBP: the share of its time that the two EGARCH fits take alone.
 
-    python benchmarks/issue12_table.py            # about 10 minutes here
+    python benchmarks/issue12_table.py            # about 18 minutes here (8 of them the 10^8-path references)
     python benchmarks/issue12_table.py --quick    # fewer rounds, a 1,000,000-path reference: ~3 minutes
 """
 
