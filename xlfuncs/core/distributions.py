@@ -331,6 +331,16 @@ class _ScoreMap:
 
     def __call__(self, x):
         x = np.asarray(x, dtype=float)
+        if x.ndim == 1 and len(x) >= 1024:
+            from .families._compiled import _load_numba, jit_enabled  # not at import: no cycle, no numba
+
+            if jit_enabled() and _load_numba():  # one compiled pass; plain Python would be slower than NumPy
+                out = np.empty(len(x))
+                _hermite_map(np.ascontiguousarray(x), self.g, self.d, self.HALF, self.STEP, out)
+                far = np.abs(x) > self.HALF
+                if np.any(far):
+                    out[far] = self._exact(x[far])
+                return out
         u = (x + self.HALF) / self.STEP
         i = np.clip(np.floor(u), 0, len(self.g) - 2).astype(np.intp)
         t = u - i
@@ -342,6 +352,34 @@ class _ScoreMap:
         if np.any(far):
             out[far] = self._exact(x[far])
         return out
+
+
+def _hermite_map_py(x, g, d, half, step, out):
+    """The cubic Hermite interpolant of _ScoreMap.__call__, one point at a time (a numba kernel)."""
+    last = g.shape[0] - 2
+    for j in range(x.shape[0]):
+        u = (x[j] + half) / step
+        if u < 0.0:
+            i = 0
+        elif u >= last:
+            i = last
+        else:
+            i = int(u)
+        t = u - i
+        t1 = 1.0 - t
+        out[j] = t1 * t1 * ((1.0 + 2.0 * t) * g[i] + t * d[i]) + t * t * ((3.0 - 2.0 * t) * g[i + 1] - t1 * d[i + 1])
+
+
+def _hermite_map(x, g, d, half, step, out):
+    global _hermite_jit
+    if _hermite_jit is None:
+        from .families._compiled import _compile
+
+        _hermite_jit = _compile(_hermite_map_py)
+    _hermite_jit(x, g, d, half, step, out)
+
+
+_hermite_jit = None
 
 
 # ---------------------------------------------------------------------------
@@ -491,8 +529,14 @@ class StudentT(Distribution):
         return _std_t_ppf(q, float(p[0]))
 
     def _partial_first_moment(self, q, p):
+        # the j = 1 term of _std_t_partials alone: -c (1 + q^2/(nu-2))^(-(nu+1)/2) (nu-2+q^2)/(nu-1), 0 at +-inf
         nu = float(p[0])
-        return _std_t_partials(q, nu, math.exp(_t_logc(nu)))[1]
+        q = np.asarray(q, dtype=float)
+        k = nu - 2.0
+        finite = np.isfinite(q)
+        qf = np.where(finite, q, 0.0)
+        f = math.exp(_t_logc(nu)) * np.exp(-0.5 * (nu + 1.0) * np.log1p(qf * qf / k))
+        return np.where(finite, -f * (k + qf * qf) / (nu - 1.0), 0.0)
 
     def _rvs(self, size, p, rng):
         nu = float(p[0])

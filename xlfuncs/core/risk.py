@@ -12,19 +12,22 @@ horizon        how
 1              exact: R = m + s z with the one-step mean forecast m, the one-step
                volatility forecast s and z from the fitted distribution, so
                VaR = -(m + s ppf(1 - level)) and ES = -m + s ES_z(level)
-2 and more     seeded simulation of ``paths`` future paths (default :data:`RISK_PATHS`)
-               that continue the fitted recursions from the end of the sample
-               (:func:`forward_steps`), with three variance reductions:
-               scrambled Sobol' points (randomised quasi-Monte Carlo) as the shocks'
-               normal scores, each shock the fitted law's quantile of its score's
-               normal probability (``Distribution.normal_scores``); importance
-               sampling (the scores of steps 1..h-1 widened and moved towards losses,
-               each path weighted by its likelihood ratio, :class:`_Scores`); and
-               conditional Monte Carlo for the last step (given the earlier steps,
-               R = a + s z with z independent, so the distribution function of R is
-               the weighted mean of F((x - a)/s) and VaR solves F_R(x) = 1 - level;
-               ES is the weighted mean of a F(k) + s M(k), M the partial first
-               moment of z, over the weighted mean of F(k), k = (x - a)/s)
+2 and more     seeded simulation of ``paths`` future paths (default
+               :func:`risk_paths`: 2^16, 2^15 beyond 300 periods) that continue the
+               fitted recursions from the end of the sample (:func:`forward_steps`),
+               with four variance reductions: scrambled Sobol' points (randomised
+               quasi-Monte Carlo) as the shocks' normal scores, each shock the fitted
+               law's quantile of its score's normal probability
+               (``Distribution.normal_scores``); the scores rotated so that the
+               Sobol' sequence's first coordinate drives their sum; importance
+               sampling (the scores of steps 1..h-1 moved towards losses along their
+               sum and widened across it, each path weighted by its likelihood ratio,
+               :class:`_Scores`); and conditional Monte Carlo for the last step
+               (given the earlier steps, R = a + s z with z independent, so the
+               distribution function of R is the weighted mean of F((x - a)/s) and
+               VaR solves F_R(x) = 1 - level; ES is the weighted mean of
+               a F(k) + s M(k), M the partial first moment of z, over the weighted
+               mean of F(k), k = (x - a)/s; :func:`_tail_solve`)
 =============  ====================================================================
 
 The ``mean`` and ``sd`` reported with them are those of R from the analytic forecast (the
@@ -74,15 +77,23 @@ from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
 from .spec import RETURN_DEFINITIONS
 
-__all__ = ["Risk", "risk", "DEFAULT_PATHS", "RISK_PATHS", "MIN_PATHS", "MAX_PATHS", "RETURN_DEFINITIONS"]
+__all__ = ["Risk", "risk", "risk_paths", "DEFAULT_PATHS", "RISK_PATHS", "RISK_LONG", "MIN_PATHS", "MAX_PATHS", "RETURN_DEFINITIONS"]
 
 #: the simulated paths behind the risk figures beyond one period when the fit's options do not
-#: say (a power of two: the balanced point sets of the Sobol' sequence; 2^15 paths keep 600
-#: periods within the worksheet's bound on draws, xlfuncs/sheet/bounds.py)
-RISK_PATHS = 2 ** 15
+#: say, up to RISK_LONG periods (a power of two: the balanced point sets of the Sobol' sequence)
+RISK_PATHS = 2 ** 16
+#: beyond this many periods the default paths are halved (2^15), so that the draws, paths x
+#: periods, stay at most 2^16 x 300 = 19.7 million up to 600 periods, within the worksheet's
+#: bound on draws (xlfuncs/sheet/bounds.py)
+RISK_LONG = 300
 MIN_PATHS = 1000
 MAX_PATHS = 1_000_000
 _MAX_SEED = 2**31 - 1
+
+
+def risk_paths(horizon: int) -> int:
+    """The default simulated paths of the risk figures over ``horizon`` periods (beyond one)."""
+    return RISK_PATHS if horizon <= RISK_LONG else RISK_PATHS // 2
 
 
 @dataclass
@@ -153,6 +164,14 @@ def _log_tail_value_loss(dist, eta, m: float, s: float, c: float, zq: float, a: 
 
 def _weighted_quantile(x, w, alpha: float) -> float:
     """The smallest x[i] at which the weighted distribution function sum(w 1(x <= x[i])) / n reaches alpha."""
+    n = len(x)
+    m = min(n, max(64, int(8 * alpha * n)))
+    if m < n and np.all(w >= 0):  # sort only the lowest m; enough when their weights pass alpha n
+        low = np.argpartition(x, m - 1)[:m]
+        order = low[np.argsort(x[low], kind="stable")]
+        cw = np.cumsum(w[order]) / n
+        if cw[-1] >= alpha:
+            return float(x[order[int(np.searchsorted(cw, alpha))]])
     order = np.argsort(x, kind="stable")
     cw = np.cumsum(w[order]) / len(x)
     i = min(int(np.searchsorted(cw, alpha)), len(x) - 1)
@@ -204,13 +223,58 @@ def _conditional_var(dist, eta, a, s, w, alpha: float, start: float):
     return -x
 
 
+def _tail_solve(dist, eta, a, s, w, alpha: float, start: float):
+    """(VaR, ES), as losses, of R = a + s z over weighted paths, in two passes over the paths; None to fall back.
+
+    The same estimators as :func:`_conditional_var` and :func:`_conditional_es` (the root of
+    G(x) = mean(w F((x - a) / s)) - alpha, and the conditional tail mean there), reached with
+    fewer evaluations of the distribution function: at ``start`` G, G' and G'' (from the density
+    and its slope) give a quadratic step to x1; at x1 F, f and the partial first moment give one
+    Newton step to x2 and, to first order, the tail mean at x2 (d/dx sum w E[R 1(R <= x)] =
+    x sum w f / s).  None if the paths left the finite numbers or the Newton step at x1 is not
+    below 1e-4 of the loss (the quadratic start was too far): the callers then iterate.
+    """
+    if not (np.all(np.isfinite(a)) and np.all(np.isfinite(s)) and np.all(s > 0) and np.all(np.isfinite(w))):
+        return None
+    n = len(a)
+    p = np.asarray(eta, dtype=float)
+    inv_s = 1.0 / s
+    k = (start - a) * inv_s
+    f = dist.pdf(k, eta)
+    g0 = float(w @ dist.cdf(k, eta)) / n - alpha
+    ws = w * inv_s
+    g1 = float(ws @ f) / n
+    g2 = float((ws * inv_s) @ (f * dist.dlogpdf_dz(k, eta))) / n
+    if not (g1 > 0 and math.isfinite(g1) and math.isfinite(g2)):
+        return None
+    disc = g1 * g1 - 2.0 * g0 * g2
+    step = -2.0 * g0 / (g1 + math.sqrt(disc)) if disc >= 0 else -g0 / g1
+    x1 = start + step
+    k = (x1 - a) * inv_s
+    F = dist.cdf(k, eta)
+    f = dist.pdf(k, eta)
+    wF = float(w @ F)
+    g1 = float(ws @ f) / n
+    if not (g1 > 0 and math.isfinite(g1)):
+        return None
+    d = -(wF / n - alpha) / g1
+    x2 = x1 + d
+    if not abs(d) <= 1e-4 * (1.0 + abs(x1)):  # x2 then within about 1e-8 of the root (quadratic convergence)
+        return None
+    num = float((w * F) @ a) + float(w @ (s * dist._partial_first_moment(k, p)))
+    num += x1 * n * g1 * d  # the tail sum moved from x1 to x2, first order
+    den = wF + n * g1 * d
+    return -x2, -num / den
+
+
 #: the share of the normal-theory shift of the sum's quantile that the normal scores of steps
-#: 1..h-1 are moved by, and the factor their spread is widened by at 22 periods (measured in
-#: benchmarks/risk_accuracy.py: the widening samples the heavy-tailed paths more often); the
-#: widening is 1 + (SCALE - 1) sqrt(21 / (h - 1)) beyond 22 periods, so that the spread of the
-#: paths' weights, which grows as (s^2 / sqrt(2 s^2 - 1))^(h-1), stays as at 22 periods
+#: 1..h-1 are moved by (along their sum), and the factor the scores' spread across the other
+#: directions is widened by at 22 periods (measured in benchmarks/risk_accuracy.py: the widening
+#: samples the heavy-tailed volatility paths more often); the widening is 1 + (SCALE - 1)
+#: sqrt(21 / (h - 1)) beyond 22 periods, so that the spread of the paths' weights, which grows as
+#: (s^2 / sqrt(2 s^2 - 1))^(h-2), stays near that at 22 periods
 TILT = 0.8
-SCALE = 1.15
+SCALE = 1.2
 #: the steps that take quasi-random scores; later steps of a long horizon take pseudo-random ones
 #: (padding, common practice), so the points held stay paths x QMC_STEPS
 QMC_STEPS = 64
@@ -221,11 +285,20 @@ class _Scores:
 
     Randomised quasi-Monte Carlo: the points of a Sobol' sequence in min(h, QMC_STEPS)
     dimensions, scrambled with the seed (the estimator stays unbiased), turned into standard-normal
-    scores; steps beyond take pseudo-random scores from the same seeded generator.  The scores y of
-    steps 1..h-1 are then widened and moved down, x = s y - theta (s from SCALE), theta = TILT times the shift
-    of the sum of h unit shocks to its alpha-quantile spread over the steps (common practice); the
-    last step's are left as fitted.  A path's log likelihood ratio, the standard normal density over
-    the proposal's N(-theta, s^2), is the sum over its moved scores of (y^2 - x^2) / 2 + ln s.
+    scores g; steps beyond take pseudo-random scores from the same seeded generator.
+
+    The d = min(h - 1, QMC_STEPS) quasi-random scores of steps 1..h-1 are rotated so that the
+    first coordinate, the best spread of a Sobol' sequence, drives their sum: y = H g with H the
+    Householder reflection that maps the first axis to (1, ..., 1) / sqrt(d), an orthogonal map,
+    so y are independent standard normal scores again (the sum-direction construction, as the
+    Brownian bridge for paths: Moskowitz and Caflisch 1996; Caflisch, Morokoff and Owen 1997).
+    Importance sampling acts on g before the rotation: g_1 moved down by theta sqrt(d), which moves
+    every step's score by theta (TILT times the shift of the sum of h unit shocks to its
+    alpha-quantile spread over the steps, common practice); the other coordinates widened by s
+    (SCALE).  A path's log likelihood ratio, the standard normal density over the proposal's, is
+    the sum over the moved coordinates of (g^2 - x^2) / 2 + ln s (ln s only for widened ones).
+    Pseudo-random steps beyond QMC_STEPS are moved and widened one by one, x = s y - theta.  The
+    last step's scores are left as fitted (they are integrated out exactly).
     """
 
     def __init__(self, horizon: int, paths: int, seed: int, alpha: float):
@@ -241,15 +314,32 @@ class _Scores:
         m = max(int(math.ceil(math.log2(paths))), 0)
         u = sob.random_base2(m)[:paths]  # the first points of 2^m (2^m = paths gives the balanced set)
         np.clip(u, 2.0 ** -1074, 1.0 - 2.0 ** -53, out=u)  # keep the scores finite
-        self.y = special.ndtri(u, out=u)
+        g = special.ndtri(u, out=u)
         self.theta = TILT * -float(special.ndtri(alpha)) / math.sqrt(horizon)
         self.scale = 1.0 + (SCALE - 1.0) * min(1.0, math.sqrt(21.0 / max(horizon - 1, 1)))
-        self.logw = np.zeros(paths)
+        d = min(horizon - 1, self.dims)
+        if d >= 1:
+            x = g[:, :d]  # a view: moved and rotated in place
+            before = np.einsum("ij,ij->i", x, x)
+            first = x[:, 0] - self.theta * math.sqrt(d)
+            x *= self.scale
+            x[:, 0] = first
+            self.logw = 0.5 * (before - np.einsum("ij,ij->i", x, x)) + (d - 1) * math.log(self.scale)
+            if d > 1:  # y = x - v (2 v.x / v.v) with v = e_1 - (1, ..., 1) / sqrt(d)
+                v = np.full(d, -1.0 / math.sqrt(d))
+                v[0] += 1.0
+                x -= np.outer(x @ (v * (2.0 / float(v @ v))), v)
+        else:
+            self.logw = np.zeros(paths)
+        self.d = d
+        self.y = np.ascontiguousarray(g.T)  # one row a step
 
     def step(self, h: int) -> np.ndarray:
-        y = self.y[:, h] if h < self.dims else self.rng.standard_normal(self.paths)
+        if h < self.d:
+            return self.y[h]
+        y = self.y[h] if h < self.dims else self.rng.standard_normal(self.paths)
         if h == self.horizon - 1:
-            return np.array(y)
+            return y
         x = self.scale * y - self.theta
         self.logw += 0.5 * (y * y - x * x) + math.log(self.scale)
         return x
@@ -274,7 +364,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     ``fit`` is a :class:`~xlfuncs.core.estimate.FitResult` and ``r`` the returns it describes
     (most recent last).  ``level`` is the confidence, 0.5 <= level < 1.  At horizon 1 the
     figures are exact under the fitted distribution; beyond, they come from ``paths``
-    simulated paths (default :data:`RISK_PATHS`) drawn with ``seed`` (default
+    simulated paths (default :func:`risk_paths`: :data:`RISK_PATHS`, half beyond :data:`RISK_LONG` periods) drawn with ``seed`` (default
     :data:`~xlfuncs.core.forecast.DEFAULT_SEED`), so the same inputs give the same numbers.
     ``mean`` and ``sd`` are always the analytic forecast's (exact for every family with a
     closed-form variance forecast, EGARCH's included).
@@ -290,7 +380,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     level = _check_level(level)
     horizon = _whole(horizon, "horizon", 1, MAX_HORIZON)
     fc_paths = None if paths is None else _whole(paths, "paths", MIN_PATHS, MAX_PATHS)
-    paths = RISK_PATHS if fc_paths is None else fc_paths
+    paths = risk_paths(horizon) if fc_paths is None else fc_paths
     seed = DEFAULT_SEED if seed is None else _whole(seed, "seed", 0, _MAX_SEED)
     if returns is None:
         returns = getattr(getattr(fit, "options", None), "returns", None)
@@ -352,11 +442,16 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
         w = np.exp(scores.logw)
         del scores
         cut = _weighted_quantile(cum, w, alpha)
-        var = _conditional_var(fit.dist, eta, a_last, s_last, w, alpha, cut)
-        es = None
-        if var is not None:  # else the paths left the finite numbers: the weighted empirical quantile
+        fast = _tail_solve(fit.dist, eta, a_last, s_last, w, alpha, cut)
+        if fast is not None:
+            var, es = fast
             cut = -var
-            es = _conditional_es(fit.dist, eta, a_last, s_last, w, cut)
+        else:
+            var = _conditional_var(fit.dist, eta, a_last, s_last, w, alpha, cut)
+            es = None
+            if var is not None:  # else the paths left the finite numbers: the weighted empirical quantile
+                cut = -var
+                es = _conditional_es(fit.dist, eta, a_last, s_last, w, cut)
         tail = cum <= cut
         es_paths = -_weighted_tail_mean(cum, w, tail)
         if es is None or not math.isfinite(es):
