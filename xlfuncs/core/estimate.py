@@ -247,6 +247,8 @@ class _Problem:
         self.n_calls = 0
         self.last_second = None  # (u, terms, scores, Hessian) of the last closed-form pass
         self.last_value = None  # (u, negll) of the last point scored
+        self._dist_bounds = tuple(self.dist.bounds())  # what admissible() checks at every trial point
+        self._arma = bool(spec.ar or spec.ma)
 
     def jacobian(self, theta):
         """d full / d u at ``theta``: the affine map A, and where the family holds a rule of its
@@ -281,12 +283,11 @@ class _Problem:
     # ----- admissible region (beyond box bounds) ---------------------------------------
     def admissible(self, theta) -> bool:
         lik = self.lik
-        mu, phi, tht, vp, eta = lik.split(theta)
-        lo_hi = self.dist.bounds()
-        for v, (lo, hi) in zip(eta, lo_hi):
+        vp, eta = theta[lik._vs], theta[lik.k - lik._nd:]
+        for v, (lo, hi) in zip(eta, self._dist_bounds):
             if not (lo < v < hi):
                 return False
-        if not lik.mean.admissible(theta[: lik.n_mean]):
+        if self._arma and not lik.mean.admissible(theta[: lik.n_mean]):
             return False
         if not self.family.admissible(vp, eta, self.dist, held=self.sum_to is not None):
             return False
@@ -622,7 +623,7 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     hi = np.array([np.inf if b[1] is None else b[1] for b in bounds])
 
     def inside(u):
-        return bool(np.all(u > lo) and np.all(u < hi)) and problem.admissible(problem.full(u))
+        return bool((u > lo).all() and (u < hi).all()) and problem.admissible(problem.full(u))
 
     def value_grad(u):  # log-likelihood and its gradient
         f, g = problem.fun_grad(u)
@@ -1222,7 +1223,10 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
         _, G = problem.scores_free(u)
     if not np.all(np.isfinite(H)):
         return se, None
-    H = _across_kinks(problem, u, H, active)  # mean parameters on a kink: curvature over one SE
+    if not (problem.family.smooth_in_residuals and problem.dist.smooth):
+        # mean parameters on a kink: curvature over one SE (a likelihood smooth in the
+        # residuals has no kink, and the check would cost four gradients)
+        H = _across_kinks(problem, u, H, active)
     G = G[:, fr]
     Hf = H[np.ix_(fr, fr)]
     try:

@@ -307,7 +307,7 @@ def _fast_numbers(flat, orientation) -> "Returns | None":
         return None
     arr = np.array(flat, dtype=float)  # None becomes nan
     good = ~np.isnan(arr)
-    if int(good.size - good.sum()) != flat.count(None):
+    if int(good.size - good.sum()) != (flat.count(None) if type(None) in kinds else 0):
         return None  # a nan that is not a blank cell
     idx = np.flatnonzero(good)
     if idx.size == 0:

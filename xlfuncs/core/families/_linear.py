@@ -85,6 +85,7 @@ class LinearFamily(VarianceFamily):
     has_adjoint = True
     takes_shift = True
     window_forecasts = True
+    smooth_in_residuals = True
     #: the recursion carries the GJR news term gamma_i 1(e<0) e^2
     asymmetric = False
 
@@ -451,9 +452,9 @@ class LinearFamily(VarianceFamily):
 
     def _admissible(self, vp, eta, dist, held):
         omega, alpha, gamma, beta = self._coefficients(vp)
-        if not omega > 0 or np.any(alpha < 0) or np.any(beta < 0):
+        if not omega > 0 or (alpha < 0).any() or (beta < 0).any():
             return False
-        if self.asymmetric and np.any(alpha + gamma < 0):
+        if self.asymmetric and (alpha + gamma < 0).any():
             return False
         if held:
             return True  # held on the bound by construction

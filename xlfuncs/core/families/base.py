@@ -142,6 +142,10 @@ class VarianceFamily:
     #: recursion run on each window alone gives one step after it, without re-filtering each
     #: window (a walk-forward evaluation asks; the others re-filter every window)
     window_forecasts: bool = False
+    #: the recursion reads the residuals only through their squares (the GJR term 1(e<0) e^2
+    #: included: its slope is continuous), so it puts no kink in the log-likelihood along the
+    #: mean parameters where a residual crosses zero (EGARCH's |z| and APARCH's |e|^delta do)
+    smooth_in_residuals: bool = False
 
     def __init__(self, p: int = 0, q: int = 0):
         self.p = int(p)
