@@ -305,8 +305,9 @@ class Likelihood:
         fzz_z = fz * z
         w = -0.5 * (fzz_z + 1.0) * isig2
         des = de[:, self.s0:]  # the residuals' derivatives (mean rows only)
-        S, ce = fam.second(state, D, de, w)
-        if nm and self.mean.ma is not None:
+        ma = nm and self.mean.ma is not None
+        S, ce = fam.second(state, D, de, w, residual_weights=bool(ma))
+        if ma:
             # the residuals' second derivatives (an MA part): sum_s c_s d2 e_s with c the
             # family's weights plus psi_z / sigma on the likelihood positions
             ce[self.s0:] += fz / sd

@@ -334,13 +334,17 @@ class VarianceFamily:
             kw["dshift"] = np.asarray(dshift, dtype=float)
         return self._second_pass(self._vp(vp), np.asarray(e, dtype=float), np.asarray(de, dtype=float), presample, **kw)
 
-    def second(self, state, D, de, w):
+    def second(self, state, D, de, w, residual_weights: bool = True):
         """sum_t w_t d2 sigma2_t / d(mean, variance, shift parameters)^2 for weights ``w`` on the
         state of :meth:`second_pass` (``D`` its forward derivatives, ``de`` the residuals'), as
         (S, ce): S with the residuals' second derivatives left out, and their weights ce (None
-        without mean parameters), the whole being S + sum_s ce_s d2 e_s / d(mean)^2."""
+        without mean parameters), the whole being S + sum_s ce_s d2 e_s / d(mean)^2.
+        ``residual_weights=False`` where the residuals are linear in the mean parameters (no
+        d2 e): ce is then not computed and comes back as None."""
         if not self.has_second:
             raise NotImplementedError(f"{self.canonical} has no analytic second derivatives")
+        if not residual_weights:
+            return self._second(state, D, de, np.asarray(w, dtype=float), residual_weights=False)
         return self._second(state, D, de, np.asarray(w, dtype=float))
 
     def bad_shift(self, vp, shift) -> np.ndarray:
