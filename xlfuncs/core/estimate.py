@@ -236,6 +236,9 @@ class _Problem:
             self.base[self.implied] = self.sum_to - sum(w * self.base[i] for i, w in weights.items())
             A[self.implied] = -sum(w * A[i] for i, w in weights.items())
         self.A = A
+        # every parameter free and nothing implied: the map is the identity, and the products
+        # with A that carry derivatives to the free parameters are skipped (they change nothing)
+        self.identity = bool(A.shape[0] == A.shape[1] and np.array_equal(A, np.eye(k)) and not self.base.any())
         self.analytic = lik.linear and not self.target
         # scoring iterations (BHHH): with analytic scores, or numerical ones for an in-mean model,
         # which starts next to its maximum (from the fit without the in-mean term)
@@ -268,7 +271,7 @@ class _Problem:
         return M
 
     def full(self, u):
-        theta = self.base + self.A @ u
+        theta = np.array(u, dtype=float) if self.identity else self.base + self.A @ u
         if self.held_by_family:
             _, _, _, vp, eta = self.lik.split(theta)
             self.family.hold(vp, self.sum_to, eta, self.dist)  # vp is a view: theta changes in place
@@ -312,7 +315,7 @@ class _Problem:
         theta = self.full(u)
         if self.analytic:
             l, G = self.lik.scores(theta)
-            return l, G @ self.jacobian(theta)
+            return l, (np.ascontiguousarray(G) if self.identity else G @ self.jacobian(theta))
         l = self.lik.terms(theta)
         G = np.empty((len(l), len(u)))
         for j in range(len(u)):
@@ -332,7 +335,7 @@ class _Problem:
             val, g = self.lik.gradient(theta)
             if not math.isfinite(val):
                 return _PENALTY, np.zeros(len(u))
-            return -val, -(g @ self.jacobian(theta))
+            return -val, -(g if self.identity else g @ self.jacobian(theta))
         val = self.lik.loglik(theta)
         if not math.isfinite(val):
             return _PENALTY, np.zeros(len(u))
@@ -357,6 +360,8 @@ class _Problem:
         l, G, H = self.lik.hessian(self.full(u))
         val = float(l.sum())
         self.last_value = (np.array(u, dtype=float), -val if math.isfinite(val) else _PENALTY)
+        if self.identity:  # the scores row-major, as the product gave them (sums in the same order)
+            return l, np.ascontiguousarray(G), H
         A = self.A
         return l, G @ A, A.T @ H @ A
 
@@ -643,8 +648,10 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
             return float(l.sum()), G.sum(axis=0), G.T @ G
         theta = problem.full(u)
         if fisher:
-            A = problem.jacobian(theta)
             val, g, info = problem.lik.scores(theta, fisher=True)
+            if problem.identity:
+                return val, g, info
+            A = problem.jacobian(theta)
             return val, g @ A, A.T @ info @ A
         l, G = problem.scores_free(u)
         return float(l.sum()), G.sum(axis=0), G.T @ G
