@@ -158,7 +158,7 @@ class Likelihood:
     def _terms(self, theta, es, sig2):
         eta = theta[self.k - len(self.dist.param_names):]
         with np.errstate(all="ignore"):
-            if np.any(~(sig2 > 0)):
+            if not sig2.min() > 0:  # a variance at or below zero, or nan
                 return np.full(self.nobs, np.nan)
             sd = np.sqrt(sig2)
             z = es / sd
@@ -182,7 +182,7 @@ class Likelihood:
         es = e[self.s0:]
         eta = theta[self.k - len(self.dist.param_names):]
         with np.errstate(all="ignore"):
-            if np.any(~(sig2 > 0)):
+            if not sig2.min() > 0:  # a variance at or below zero, or nan
                 if total:
                     return math.nan, np.full(self.k, np.nan)
                 return np.full(self.nobs, np.nan), np.full((self.nobs, self.k), np.nan)

@@ -53,6 +53,12 @@ def linear_filter(den, x, zi=None):
     return lfilter([1.0], den, x) if zi is None else lfilter([1.0], den, x, zi=zi)[0]
 
 
+def _mean(x):
+    """np.mean of a 1-D array (its sum over its length, as np.mean computes it) without np.mean's
+    Python-level dispatch, which costs as much as the sum on the recursions' short series."""
+    return x.sum() / len(x)
+
+
 def _window_means(x, starts, ends) -> np.ndarray:
     """The mean of x[starts[k]:ends[k]] for each k (one reduction when the windows are all as long)."""
     lengths = ends - starts
@@ -171,7 +177,7 @@ class LinearFamily(VarianceFamily):
 
     def _variance(self, vp, e, presample, eta, dist, shift=None):
         omega, alpha, gamma, beta = self._coefficients(vp)
-        _, sbar, _, P, N = self._inputs(e, presample, np.mean)
+        _, sbar, _, P, N = self._inputs(e, presample, _mean)
         return self._run(omega, alpha, gamma, beta, P, N, sbar, shift)[0]
 
     def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
@@ -186,7 +192,7 @@ class LinearFamily(VarianceFamily):
         omega, alpha, gamma, beta = self._coefficients(vp)
         p, q = self.p, self.q
         asym = self.asymmetric
-        e2, sbar, neg, P, N = self._inputs(e, presample, np.mean)
+        e2, sbar, neg, P, N = self._inputs(e, presample, _mean)
         sig2, den, tail, m = self._run(omega, alpha, gamma, beta, P, N, sbar, shift)
         st = _State()
         st.e, st.vp = e, vp
@@ -206,7 +212,7 @@ class LinearFamily(VarianceFamily):
         st.dE2 = st.dsbar = None
         if nm:
             dE2 = 2.0 * e * de  # (nm x n)
-            dsbar = dE2.mean(axis=1)
+            dsbar = dE2.sum(axis=1) / dE2.shape[1]  # the mean over the columns, as np.mean has it
             st.dE2, st.dsbar = dE2, dsbar  # the second derivatives read them again
             if asym:
                 dN2 = np.where(neg, dE2, 0.0)
