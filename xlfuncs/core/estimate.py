@@ -26,7 +26,7 @@ import warnings
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize, special
 
 from .distributions import Distribution, get_distribution
 from .errors import ConvergenceError, InputError, describe_value
@@ -91,7 +91,9 @@ class FitResult:
 
     @property
     def p_values(self) -> np.ndarray:
-        return 2.0 * stats.norm.sf(np.abs(self.t_stats))
+        # the normal's upper tail as stats.norm.sf computes it (ndtr(-x)), without the ~40 us of
+        # the distribution object's argument handling on every fit table
+        return 2.0 * special.ndtr(-np.abs(self.t_stats))
 
     @property
     def persistence(self) -> float | None:
