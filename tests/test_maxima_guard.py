@@ -335,3 +335,24 @@ def test_a_mean_parameter_on_a_kink_keeps_a_sound_standard_error():
           for kind in ("opg", "hessian", "robust")}
     for kind in ("hessian", "robust"):
         assert 1 / 1.5 < se[kind] / se["opg"] < 1.5, se
+
+
+@pytest.mark.parametrize("model,dist", [("GARCH(1,1)", "normal"), ("AR(1)-GJR(1,1)", "t")])
+def test_the_kink_check_is_skipped_only_where_it_finds_nothing(model, dist, monkeypatch):
+    """A likelihood smooth in the residuals (a recursion in squares, normal or t shocks) has no
+    kink along the mean parameters, so the estimator skips the kink check of the standard errors
+    there: forcing the check on must give the very same standard errors (a consistency check,
+    common practice).  The families and laws with |z| in them keep the check."""
+    from xlfuncs.core.distributions import get_distribution
+    from xlfuncs.core.families._linear import LinearFamily
+    from xlfuncs.core.spec import parse_model
+
+    r = series("dmbp")
+    skipped = fit(r, model, dist)
+    monkeypatch.setattr(LinearFamily, "smooth_in_residuals", False)
+    checked = fit(r, model, dist)
+    assert np.array_equal(skipped.params, checked.params)
+    np.testing.assert_allclose(skipped.std_errors, checked.std_errors, rtol=1e-12)
+    assert not parse_model("EGARCH(1,1)").family.smooth_in_residuals
+    assert not parse_model("APARCH(1,1)").family.smooth_in_residuals
+    assert not get_distribution("ged").smooth and not get_distribution("skewt").smooth

@@ -264,6 +264,9 @@ class Distribution:
 
     #: whether the law is symmetric about 0 (z and -z alike)
     symmetric = False
+    #: the log-density is smooth in z (twice continuously differentiable everywhere: no |z| in
+    #: it, as the GED's |z|^nu has, and no branch point, as the skewed t's has)
+    smooth = False
 
     def normal_scores(self, params):
         """The map G(x) = ppf(Phi(x)) that turns standard-normal scores x into draws of this law.
@@ -390,6 +393,7 @@ class Normal(Distribution):
     """Standard normal."""
 
     symmetric = True
+    smooth = True
 
     name = "normal"
     param_names = ()
@@ -481,6 +485,7 @@ class StudentT(Distribution):
     """Student t with ``nu`` degrees of freedom, rescaled to unit variance."""
 
     symmetric = True
+    smooth = True
 
     name = "t"
     param_names = ("nu",)

@@ -158,7 +158,7 @@ class Likelihood:
     def _terms(self, theta, es, sig2):
         eta = theta[self.k - len(self.dist.param_names):]
         with np.errstate(all="ignore"):
-            if np.any(~(sig2 > 0)):
+            if not sig2.min() > 0:  # a variance at or below zero, or nan
                 return np.full(self.nobs, np.nan)
             sd = np.sqrt(sig2)
             z = es / sd
@@ -182,7 +182,7 @@ class Likelihood:
         es = e[self.s0:]
         eta = theta[self.k - len(self.dist.param_names):]
         with np.errstate(all="ignore"):
-            if np.any(~(sig2 > 0)):
+            if not sig2.min() > 0:  # a variance at or below zero, or nan
                 if total:
                     return math.nan, np.full(self.k, np.nan)
                 return np.full(self.nobs, np.nan), np.full((self.nobs, self.k), np.nan)
@@ -305,8 +305,9 @@ class Likelihood:
         fzz_z = fz * z
         w = -0.5 * (fzz_z + 1.0) * isig2
         des = de[:, self.s0:]  # the residuals' derivatives (mean rows only)
-        S, ce = fam.second(state, D, de, w)
-        if nm and self.mean.ma is not None:
+        ma = nm and self.mean.ma is not None
+        S, ce = fam.second(state, D, de, w, residual_weights=bool(ma))
+        if ma:
             # the residuals' second derivatives (an MA part): sum_s c_s d2 e_s with c the
             # family's weights plus psi_z / sigma on the likelihood positions
             ce[self.s0:] += fz / sd

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import functools
 import math
+import operator
 import warnings
 from dataclasses import dataclass
 
@@ -167,6 +168,9 @@ def _chained(value) -> str:
     return excerpt(str(value).strip()[6:].strip(), CHAINED_ERROR_CHARS)
 
 
+_first = operator.itemgetter(0)
+
+
 def returns_column(value, arg: str = "returns", missing: str = "error") -> Returns:
     """Read a one-column or one-row range of numbers, most recent last.
 
@@ -184,7 +188,12 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
     if width > 1 and height > 1:
         raise SheetError(f"{arg} must be a single column or a single row, got {height} rows by {width} columns")
     orientation = "row" if height == 1 and width > 1 else "column"
-    flat = rows[0] if orientation == "row" else [r[0] if r else None for r in rows]
+    if orientation == "row":
+        flat = rows[0]
+    elif lengths == {1}:  # a plain column: every row one cell
+        flat = list(map(_first, rows))
+    else:
+        flat = [r[0] if r else None for r in rows]
     unit = "column" if orientation == "row" else "row"
     n = len(flat)
     fast = _fast_numbers(flat, orientation)
@@ -307,7 +316,7 @@ def _fast_numbers(flat, orientation) -> "Returns | None":
         return None
     arr = np.array(flat, dtype=float)  # None becomes nan
     good = ~np.isnan(arr)
-    if int(good.size - good.sum()) != flat.count(None):
+    if int(good.size - good.sum()) != (flat.count(None) if type(None) in kinds else 0):
         return None  # a nan that is not a blank cell
     idx = np.flatnonzero(good)
     if idx.size == 0:

@@ -53,6 +53,12 @@ def linear_filter(den, x, zi=None):
     return lfilter([1.0], den, x) if zi is None else lfilter([1.0], den, x, zi=zi)[0]
 
 
+def _mean(x):
+    """np.mean of a 1-D array (its sum over its length, as np.mean computes it) without np.mean's
+    Python-level dispatch, which costs as much as the sum on the recursions' short series."""
+    return x.sum() / len(x)
+
+
 def _window_means(x, starts, ends) -> np.ndarray:
     """The mean of x[starts[k]:ends[k]] for each k (one reduction when the windows are all as long)."""
     lengths = ends - starts
@@ -66,7 +72,7 @@ class _State:
     """What the forward recursion leaves for the adjoint."""
 
     __slots__ = ("e", "sig2", "P", "N", "neg", "sbar", "den", "tail", "omega", "alpha", "gamma", "beta", "mean_mode", "m",
-                 "lam", "vp")
+                 "lam", "vp", "dE2", "dsbar")
 
 
 class _SimState:
@@ -85,6 +91,7 @@ class LinearFamily(VarianceFamily):
     has_adjoint = True
     takes_shift = True
     window_forecasts = True
+    smooth_in_residuals = True
     #: the recursion carries the GJR news term gamma_i 1(e<0) e^2
     asymmetric = False
 
@@ -123,40 +130,54 @@ class LinearFamily(VarianceFamily):
     def _inputs(self, e, presample, mean_of):
         """Lagged squares P and negative-part squares N with their presample, and sbar."""
         p = self.p
-        e2 = e * e
+        mean_mode = presample == "mean"
+        if mean_mode:  # the squares written once, behind their presample (no concatenation)
+            P = np.empty(p + len(e))
+            e2 = np.multiply(e, e, out=P[p:])
+        else:
+            P = e2 = e * e
         sbar = mean_of(e2)
         neg = n2 = N = None
         if self.asymmetric:
             neg = e < 0
             n2 = np.where(neg, e2, 0.0)
             nbar = n2.mean()
-        if presample == "mean":
-            P = np.concatenate([np.full(p, sbar), e2])
+        if mean_mode:
+            P[:p] = sbar
             if self.asymmetric:
                 N = np.concatenate([np.full(p, nbar), n2])
-        else:
-            P = e2
-            if self.asymmetric:
-                N = n2
+        elif self.asymmetric:
+            N = n2
         return e2, sbar, neg, P, N
 
     def _run(self, omega, alpha, gamma, beta, P, N, sbar, shift=None):
         p, q = self.p, self.q
         m = len(P) - p
-        x = np.full(m, omega) if shift is None else omega + shift
-        for i in range(1, p + 1):
+        if shift is None and p:
+            # omega + alpha_1 P_{t-1} as alpha_1 P_{t-1} + omega (the same sum: addition commutes)
+            x = np.multiply(alpha[0], P[p - 1: p - 1 + m])
+            x += omega
+            first = 2
+            if self.asymmetric:
+                x += gamma[0] * N[p - 1: p - 1 + m]
+        else:
+            x = np.full(m, omega) if shift is None else omega + shift
+            first = 1
+        for i in range(first, p + 1):
             x += alpha[i - 1] * P[p - i: p - i + m]
             if self.asymmetric:
                 x += gamma[i - 1] * N[p - i: p - i + m]
         if q:
-            den = np.concatenate([[1.0], -beta])
-            tail = np.cumsum(beta[::-1])[::-1]
+            den = np.empty(q + 1)
+            den[0] = 1.0
+            np.negative(beta, out=den[1:])
+            tail = np.cumsum(beta[::-1])[::-1] if q > 1 else beta.copy()
             return linear_filter(den, x, sbar * tail), den, tail, m
         return x, None, None, m
 
     def _variance(self, vp, e, presample, eta, dist, shift=None):
         omega, alpha, gamma, beta = self._coefficients(vp)
-        _, sbar, _, P, N = self._inputs(e, presample, np.mean)
+        _, sbar, _, P, N = self._inputs(e, presample, _mean)
         return self._run(omega, alpha, gamma, beta, P, N, sbar, shift)[0]
 
     def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
@@ -171,7 +192,7 @@ class LinearFamily(VarianceFamily):
         omega, alpha, gamma, beta = self._coefficients(vp)
         p, q = self.p, self.q
         asym = self.asymmetric
-        e2, sbar, neg, P, N = self._inputs(e, presample, np.mean)
+        e2, sbar, neg, P, N = self._inputs(e, presample, _mean)
         sig2, den, tail, m = self._run(omega, alpha, gamma, beta, P, N, sbar, shift)
         st = _State()
         st.e, st.vp = e, vp
@@ -184,13 +205,15 @@ class LinearFamily(VarianceFamily):
         nm = de.shape[0]
         n_lin = 1 + p * (2 if asym else 1) + q
         ns = 0 if dshift is None else dshift.shape[0]
-        RHS = np.zeros((nm + n_lin + ns, m))
+        RHS = np.empty((nm + n_lin + ns, m))
         ZI = np.zeros((nm + n_lin + ns, q)) if q else None
         if ns:
             RHS[nm + n_lin:] = dshift
+        st.dE2 = st.dsbar = None
         if nm:
             dE2 = 2.0 * e * de  # (nm x n)
-            dsbar = dE2.mean(axis=1)
+            dsbar = dE2.sum(axis=1) / dE2.shape[1]  # the mean over the columns, as np.mean has it
+            st.dE2, st.dsbar = dE2, dsbar  # the second derivatives read them again
             if asym:
                 dN2 = np.where(neg, dE2, 0.0)
                 dnbar = dN2.mean(axis=1)
@@ -202,10 +225,12 @@ class LinearFamily(VarianceFamily):
                 dP = dE2
                 if asym:
                     dN = dN2
+            Rm = RHS[:nm]
+            Rm[:] = 0.0
             for i in range(1, p + 1):
-                RHS[:nm] += alpha[i - 1] * dP[:, p - i: p - i + m]
+                Rm += alpha[i - 1] * dP[:, p - i: p - i + m]
                 if asym:
-                    RHS[:nm] += gamma[i - 1] * dN[:, p - i: p - i + m]
+                    Rm += gamma[i - 1] * dN[:, p - i: p - i + m]
             if q:
                 ZI[:nm] = dsbar[:, None] * tail[None, :]
         base = nm
@@ -218,10 +243,9 @@ class LinearFamily(VarianceFamily):
                 RHS[base + p + i] = N[p - i: p - i + m]
             off += p
         for j in range(1, q + 1):
-            lag = np.empty(m)
+            lag = RHS[off + j - 1]  # the variances j steps back, the presample's before the start
             lag[:j] = sbar
             lag[j:] = sig2[:-j]
-            RHS[off + j - 1] = lag
         D = linear_filter(den, RHS, ZI) if q else RHS
         J = self._jacobian(vp)
         if J is not None:
@@ -291,7 +315,7 @@ class LinearFamily(VarianceFamily):
         coefficients themselves; a map with a Jacobian of its own goes by differences)."""
         return type(self)._jacobian is LinearFamily._jacobian
 
-    def _second(self, st, D, de, w):
+    def _second(self, st, D, de, w, residual_weights=True):
         """(S, ce): S = sum_t w_t d2 sigma2_t / d(mean, coefficients, shift)^2 for the weights w
         on the state of :meth:`_second_pass`, less the residuals' own second derivatives, which it
         gives as weights ce on the residuals: the whole is S + sum_s ce_s d2 e_s (the mean model
@@ -302,7 +326,8 @@ class LinearFamily(VarianceFamily):
         e_gamma_i dN_{t-i}') + sum_j sym(e_beta_j D_{t-j}'); so, as for the gradient, sum_t w_t
         d2 sigma2_t = sum_t lam_t RHS2_t plus the presample's share, lam the adjoint variables.
         d2 e2 = 2 de de' + 2 e d2e.  ``D``: the forward derivatives (rows: mean parameters,
-        coefficients, shift's parameters), ``de``: the residuals'."""
+        coefficients, shift's parameters), ``de``: the residuals'.  ``residual_weights=False``: ce is
+        not wanted (residuals linear in the mean parameters) and comes back as None."""
         p, q = self.p, self.q
         asym = self.asymmetric
         m = st.m
@@ -314,12 +339,13 @@ class LinearFamily(VarianceFamily):
         ce = None
         if nm:
             e = st.e
-            ce = np.zeros(len(e))
+            want = residual_weights
+            ce = np.zeros(len(e)) if want else None
             k_sbar = 0.0  # the weights of d2 sbar and d2 nbar (presample)
             k_nbar = 0.0
             mean_mode = st.mean_mode
             inv_n = 1.0 / len(e)
-            dE2 = 2.0 * e * de
+            dE2 = st.dE2 if getattr(st, "dE2", None) is not None else 2.0 * e * de  # the forward pass's
             dsbar = dE2.sum(axis=1) * inv_n
             d2sbar = 2.0 * (de @ de.T) * inv_n
             if asym:
@@ -342,7 +368,8 @@ class LinearFamily(VarianceFamily):
                 S[:nm, nm + i] += first
                 S[nm + i, :nm] += first
                 S[:nm, :nm] += st.alpha[i - 1] * (2.0 * (dew * lw) @ dew.T + d2sbar * lpre)
-                ce[x0:x1] += (2.0 * st.alpha[i - 1]) * e[x0:x1] * lw
+                if want:
+                    ce[x0:x1] += (2.0 * st.alpha[i - 1]) * e[x0:x1] * lw
                 k_sbar += st.alpha[i - 1] * lpre
                 if asym:
                     firstn = dN2[:, x0:x1] @ lw + dnbar * lpre
@@ -350,14 +377,16 @@ class LinearFamily(VarianceFamily):
                     S[nm + p + i, :nm] += firstn
                     lwn = np.where(neg[x0:x1], lw, 0.0)
                     S[:nm, :nm] += st.gamma[i - 1] * (2.0 * (dew * lwn) @ dew.T + d2nbar * lpre)
-                    ce[x0:x1] += (2.0 * st.gamma[i - 1]) * e[x0:x1] * lwn
+                    if want:
+                        ce[x0:x1] += (2.0 * st.gamma[i - 1]) * e[x0:x1] * lwn
                     k_nbar += st.gamma[i - 1] * lpre
             if q:
                 S[:nm, :nm] += d2sbar * (lam[:q] @ st.tail)
                 k_sbar += lam[:q] @ st.tail
-            ce += (2.0 * inv_n * k_sbar) * e
-            if asym and k_nbar:
-                ce += np.where(neg, (2.0 * inv_n * k_nbar) * e, 0.0)
+            if want:
+                ce += (2.0 * inv_n * k_sbar) * e
+                if asym and k_nbar:
+                    ce += np.where(neg, (2.0 * inv_n * k_nbar) * e, 0.0)
         off = nm + 1 + p * (2 if asym else 1)
         for j in range(1, q + 1):
             v = D[:, : m - j] @ lam[j:]
@@ -451,9 +480,9 @@ class LinearFamily(VarianceFamily):
 
     def _admissible(self, vp, eta, dist, held):
         omega, alpha, gamma, beta = self._coefficients(vp)
-        if not omega > 0 or np.any(alpha < 0) or np.any(beta < 0):
+        if not omega > 0 or (alpha < 0).any() or (beta < 0).any():
             return False
-        if self.asymmetric and np.any(alpha + gamma < 0):
+        if self.asymmetric and (alpha + gamma < 0).any():
             return False
         if held:
             return True  # held on the bound by construction

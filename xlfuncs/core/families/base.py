@@ -142,6 +142,10 @@ class VarianceFamily:
     #: recursion run on each window alone gives one step after it, without re-filtering each
     #: window (a walk-forward evaluation asks; the others re-filter every window)
     window_forecasts: bool = False
+    #: the recursion reads the residuals only through their squares (the GJR term 1(e<0) e^2
+    #: included: its slope is continuous), so it puts no kink in the log-likelihood along the
+    #: mean parameters where a residual crosses zero (EGARCH's |z| and APARCH's |e|^delta do)
+    smooth_in_residuals: bool = False
 
     def __init__(self, p: int = 0, q: int = 0):
         self.p = int(p)
@@ -330,13 +334,17 @@ class VarianceFamily:
             kw["dshift"] = np.asarray(dshift, dtype=float)
         return self._second_pass(self._vp(vp), np.asarray(e, dtype=float), np.asarray(de, dtype=float), presample, **kw)
 
-    def second(self, state, D, de, w):
+    def second(self, state, D, de, w, residual_weights: bool = True):
         """sum_t w_t d2 sigma2_t / d(mean, variance, shift parameters)^2 for weights ``w`` on the
         state of :meth:`second_pass` (``D`` its forward derivatives, ``de`` the residuals'), as
         (S, ce): S with the residuals' second derivatives left out, and their weights ce (None
-        without mean parameters), the whole being S + sum_s ce_s d2 e_s / d(mean)^2."""
+        without mean parameters), the whole being S + sum_s ce_s d2 e_s / d(mean)^2.
+        ``residual_weights=False`` where the residuals are linear in the mean parameters (no
+        d2 e): ce is then not computed and comes back as None."""
         if not self.has_second:
             raise NotImplementedError(f"{self.canonical} has no analytic second derivatives")
+        if not residual_weights:
+            return self._second(state, D, de, np.asarray(w, dtype=float), residual_weights=False)
         return self._second(state, D, de, np.asarray(w, dtype=float))
 
     def bad_shift(self, vp, shift) -> np.ndarray:

@@ -22,6 +22,7 @@ class Constant(VarianceFamily):
     analytic = True
     targeted = "omega"
     takes_shift = True
+    smooth_in_residuals = True  # no recursion at all
 
     def __init__(self, p: int = 0, q: int = 0):
         super().__init__(0, 0)
