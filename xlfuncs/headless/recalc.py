@@ -328,7 +328,7 @@ class Workbook:
             self.reads.append((self._reader, sheet, r1, c1, r2, c2))
         return [[self.value((sheet, r, c)) for c in range(c1, c2 + 1)] for r in range(r1, r2 + 1)]
 
-    def _batch_elementwise(self, min_size: int = 16):
+    def _batch_elementwise(self, min_size: int = 16, vector: bool = True):
         """Evaluate a column of same-shape element-wise formulas over constants in one call.
 
         =LN(A3/A2)*100 down 5,000 rows is one engine call on two columns rather than 5,000 calls.
@@ -337,6 +337,8 @@ class Workbook:
         """
         from .engine import function_names
 
+        if vector:
+            self._batch_vector(min_size)
         spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
         groups: dict = {}
         for key, text in self.formulas.items():
@@ -395,11 +397,126 @@ class Workbook:
                     break
             if not ok:
                 continue
+            # the rows the NumPy route answered are left out (each row's result is its own)
+            todo = [i for i, (key, _, _) in enumerate(members) if key not in self.values]
+            if not todo:
+                continue
+            if len(todo) < len(members):
+                members = [members[i] for i in todo]
+                columns = [[col[i] for i in todo] for col in columns]
             result = compiled(*columns)
             if not (isinstance(result, list) and len(result) == len(members)):
                 continue
             for (key, _, _), row in zip(members, result):
                 self.values[key] = _cell_value(row[0])
+
+    def _batch_vector(self, min_size: int = 16):
+        """Columns of one formula shape over floats, evaluated as NumPy arrays (``columns.py``).
+
+        Cells are grouped by their text with the digits masked (no parsing per cell); one member
+        is parsed, and each member's references are read from its own digit runs.  Rows that read
+        anything but a float constant (a blank, a text, a formula, a cell a spill may fill), and
+        rows whose evaluation meets an error, are left to the engine's batch and to the cell by
+        cell evaluation.  Before a column's results are kept, three of its rows are evaluated by
+        the engine too and must agree in type and value; otherwise the column is left whole.
+        """
+        from .columns import ColumnShape, Unsupported, shape_key
+
+        import numpy as np
+
+        spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
+        groups: dict = {}
+        done = self.values
+        for key, text in self.formulas.items():
+            if key not in done:
+                groups.setdefault((key[0], shape_key(text)), []).append(key)
+        digits = re.compile(r"\d+")
+        for (sheet, _), keys in groups.items():
+            if len(keys) < min_size:
+                continue
+            keys = [k for k in keys if k not in self.arrays and k not in self._anchors]
+            if len(keys) < min_size:
+                continue
+            text0 = self.formulas[keys[0]]
+            try:
+                shape = ColumnShape(text0)
+            except (Unsupported, RecursionError):
+                continue
+            if not shape.refs:
+                continue
+            targets = []
+            for ref_sheet, col, _ in shape.refs:
+                title = sheet if ref_sheet is None else self.sheets.get(ref_sheet.upper())
+                if title is None:
+                    break
+                targets.append((title, col))
+            else:
+                runs = np.array([[int(d) for d in digits.findall(self.formulas[k])] for k in keys], dtype=np.int64)
+                if runs.ndim != 2 or runs.shape[1] != shape.n_runs:
+                    continue
+                if shape.fixed and not (runs[:, shape.fixed] == runs[0, shape.fixed]).all():
+                    continue
+                self._vector_group(keys, shape, targets, runs, spilling)
+
+    def _vector_group(self, keys, shape, targets, runs, spilling):
+        import numpy as np
+
+        from .columns import Unsupported
+
+        inputs, formulas = self.inputs, self.formulas
+        n = len(keys)
+        ok = np.ones(n, dtype=bool)
+        columns, seen = [], {}
+        for (title, col), (_, _, run) in zip(targets, shape.refs):
+            if (title, col, run) in seen:  # the same cell read twice (=IF(A3="","",LN(A3/A2)))
+                columns.append(seen[(title, col, run)])
+                continue
+            rows = runs[:, run].tolist()
+            values = np.empty(n)
+            for i, r in enumerate(rows):
+                v = inputs.get((title, r, col))
+                if type(v) is float and (title, r, col) not in formulas:
+                    values[i] = v
+                else:  # a blank, a text, an int, a bool, an error, a formula: the engine's rules
+                    ok[i] = False
+                    values[i] = 1.0
+            columns.append(values)
+            seen[(title, col, run)] = values
+        if ok.sum() < 1:
+            return
+        try:
+            out, bad = shape.evaluate(columns)
+        except (Unsupported, RecursionError, ValueError, TypeError):
+            return
+        ok &= ~np.asarray(bad)
+        rows = np.flatnonzero(ok)
+        if not len(rows):
+            return
+        # three rows through the engine: the same type and value, or the column is left whole
+        try:
+            compiled = compile_formula(self.formulas[keys[0]])
+        except FormulaError:
+            return
+        first = list(dict.fromkeys(_engine_name(t) for _, _, t in _ref_tokens(self.formulas[keys[0]])))
+        if sorted(first) != sorted(compiled.inputs):
+            return
+        order = [first.index(name) for name in compiled.inputs]
+        for i in {int(rows[0]), int(rows[len(rows) // 2]), int(rows[-1])}:
+            key = keys[i]
+            mine = list(dict.fromkeys(t for _, _, t in _ref_tokens(self.formulas[key])))
+            if len(mine) != len(first):
+                return
+            try:
+                args = [self._read(key[0], mine[j], key[0]) for j in order]
+            except RecalcError:
+                return
+            mine = _cell_value(out[i])
+            theirs = _cell_value(_top_left(compiled(*args)))
+            if type(mine) is not type(theirs) or mine != theirs:
+                return
+        values = self.values
+        for i in rows.tolist():
+            values[keys[i]] = _cell_value(out[i])
 
     def _compiled_for(self, key, text):
         """Compile once per formula *shape*: a column of =LN(B3/B2)*100, =LN(B4/B3)*100, ...
