@@ -342,7 +342,7 @@ class Workbook:
         spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
         groups: dict = {}
         for key, text in self.formulas.items():
-            if key in self.arrays or key in self._anchors:
+            if key in self.arrays or key in self._anchors or key in self.values:
                 continue
             if not function_names(text) <= _ELEMENTWISE | _LOGICAL:
                 continue
@@ -397,13 +397,6 @@ class Workbook:
                     break
             if not ok:
                 continue
-            # the rows the NumPy route answered are left out (each row's result is its own)
-            todo = [i for i, (key, _, _) in enumerate(members) if key not in self.values]
-            if not todo:
-                continue
-            if len(todo) < len(members):
-                members = [members[i] for i in todo]
-                columns = [[col[i] for i in todo] for col in columns]
             result = compiled(*columns)
             if not (isinstance(result, list) and len(result) == len(members)):
                 continue
@@ -755,6 +748,8 @@ def _template(text, tokens, row, col) -> str:
 
 def file_formula(text: str) -> str:
     """A formula as Excel stores it in a file: the spill reference E2# as _xlfn.ANCHORARRAY(E2)."""
+    if "#" not in text:
+        return text
     masked = _STRING_RE.sub(lambda m: " " * len(m.group(0)), text)
     out, pos = [], 0
     for m in re.finditer(r"((?:'(?:[^']|'')+'!|[A-Za-z0-9_.]+!)?\$?[A-Za-z]{1,3}\$?\d+)#", masked):
@@ -897,7 +892,9 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
         ws = book[sheet]
         text = file_formula(text)
         if not values_only and (sheet, row, col) not in wb.spills and (sheet, row, col) not in wb.arrays:
-            ws.cell(row=row, column=col).value = text
+            cell = ws.cell(row=row, column=col)
+            if cell.data_type != "f" or cell.value != text:  # most formulas are written back as read
+                cell.value = text
         raw = wb.values.get((sheet, row, col))
         v = raw if isinstance(raw, ExcelError) else plain(raw, f"{sheet}!{cell_name(row, col)}")
         if values_only:
