@@ -84,28 +84,39 @@ class RecalcReport:
 class Workbook:
     """The cells of a workbook, evaluated on demand."""
 
-    def __init__(self, path, dynamic_hint=()):
-        import openpyxl
-        from openpyxl.worksheet.formula import ArrayFormula
-
-        from .xlsxpost import check_package
+    def __init__(self, path, dynamic_hint=(), fast: bool = True):
+        from .xlsxpost import check_package, dynamic_anchors
 
         self.path = Path(path)
         try:  # refused from the zip directory, before openpyxl unpacks a package too large for memory
             check_package(self.path)
         except ValueError as exc:
             raise RecalcError(str(exc)) from None
-        try:
-            self.book = openpyxl.load_workbook(self.path, data_only=False)
-        except Exception as exc:  # noqa: BLE001 - any unreadable file is one line of bad input
-            raise RecalcError(f"{self.path.name} is not a readable .xlsx workbook ({type(exc).__name__}: {exc})") from None
-        self.sheets = {ws.title.upper(): ws.title for ws in self.book.worksheets}
-        from .xlsxpost import dynamic_anchors
+        self._book = None
+        data = None
+        if fast and not os.environ.get("VOLCAST_OPENPYXL_READ"):
+            from .fastread import NotPlain, read_cells
 
+            try:  # the cells read straight from the package's XML; openpyxl where that reader declines
+                data = read_cells(self.path)
+            except (NotPlain, ValueError, KeyError, IndexError, UnicodeDecodeError, OSError):
+                data = None
+        self.fast_read = data is not None
+        if data is None:
+            book = self.book
+            titles = [ws.title for ws in book.worksheets]
+            names = _defined_names(book)
+            sheets = {ws.title: (ws.max_row, ws.max_column, _openpyxl_cells(ws)) for ws in book.worksheets}
+            self.marked = None
+        else:
+            titles, names = data["titles"], data["names"]
+            sheets = {t: (mr, mc, _fast_cells(cells, arrays)) for t, (cells, arrays, mr, mc, _) in data["sheets"].items()}
+            self.marked = {t: set(v[4]) for t, v in data["sheets"].items()}
+        self.sheets = {t.upper(): t for t in titles}
         # spills stored by Excel 365 (or by us); a caller that re-saved the file through openpyxl,
         # which drops the cell metadata, passes the anchors it read before
         dynamic = dynamic_anchors(self.path) | set(dynamic_hint)
-        self.names = _defined_names(self.book)
+        self.names = names
         # LibreOffice and openpyxl drop the dynamic-array marking and keep each spill as a plain
         # array formula over its last size.  In a file saved by LibreOffice, or in a workbook of
         # our templates (built for Excel 365 spills), an unmarked array formula whose top-level
@@ -115,29 +126,26 @@ class Workbook:
         self.inputs: dict = {}  # (sheet, row, col) -> constant value
         self.formulas: dict = {}  # (sheet, row, col) -> formula text
         self.arrays: dict = {}  # anchor -> (r1, c1, r2, c2) of a legacy array formula
+        self.array_cells: set = set()  # cells read with an array formula
         self.max_row: dict = {}
         self.max_col: dict = {}
         residue = []
-        for ws in self.book.worksheets:
-            t = ws.title
-            self.max_row[t] = ws.max_row
-            self.max_col[t] = ws.max_column
-            for row in ws.iter_rows():
-                for c in row:
-                    v = c.value
-                    if v is None:
-                        continue
-                    key = (t, c.row, c.column)
-                    if isinstance(v, ArrayFormula):
-                        self.formulas[key] = v.text if v.text.startswith("=") else "=" + v.text
-                        if (t, c.coordinate) in dynamic or (unmarked and top_level_call(self.formulas[key])):
-                            residue.append((t, _parse_range(v.ref), key))
-                        else:
-                            self.arrays[key] = _parse_range(v.ref)
-                    elif isinstance(v, str) and v.startswith("=") and len(v) > 1:
-                        self.formulas[key] = v
+        for t, (max_row, max_col, cells) in sheets.items():
+            self.max_row[t] = max_row
+            self.max_col[t] = max_col
+            for row, column, v, array_ref in cells:
+                key = (t, row, column)
+                if array_ref is not None:
+                    self.array_cells.add(key)
+                    self.formulas[key] = v if v.startswith("=") else "=" + v
+                    if (t, cell_name(row, column)) in dynamic or (unmarked and top_level_call(self.formulas[key])):
+                        residue.append((t, _parse_range(array_ref), key))
                     else:
-                        self.inputs[key] = _constant(v)
+                        self.arrays[key] = _parse_range(array_ref)
+                elif isinstance(v, str) and v.startswith("=") and len(v) > 1:
+                    self.formulas[key] = v
+                else:
+                    self.inputs[key] = _constant(v)
         # the values a stored spill left in its range are results, not inputs: recomputed here
         for t, (r1, c1, r2, c2), anchor in residue:
             for r in range(r1, r2 + 1):
@@ -158,6 +166,19 @@ class Workbook:
         self._open_reads: dict = {}  # anchor -> empty cells read while it was being computed
         self._reported: set = set()  # addresses already in report.error_cells
         self.reads: list = []  # (formula key, sheet, r1, c1, r2, c2) read by formulas of ours
+
+    @property
+    def book(self):
+        """The workbook loaded by openpyxl, on first use (writing through openpyxl, the estimate
+        history); the recalculation itself reads the cells read at construction."""
+        if self._book is None:
+            import openpyxl
+
+            try:
+                self._book = openpyxl.load_workbook(self.path, data_only=False)
+            except Exception as exc:  # noqa: BLE001 - any unreadable file is one line of bad input
+                raise RecalcError(f"{self.path.name} is not a readable .xlsx workbook ({type(exc).__name__}: {exc})") from None
+        return self._book
 
     # ------------------------------------------------------------------ evaluation
     def evaluate_all(self):
@@ -760,6 +781,26 @@ def file_formula(text: str) -> str:
     return "".join(out)
 
 
+def _openpyxl_cells(ws):
+    """(row, column, value, array ref or None) of each cell openpyxl holds a value for."""
+    from openpyxl.worksheet.formula import ArrayFormula
+
+    for row in ws.iter_rows():
+        for c in row:
+            v = c.value
+            if v is None:
+                continue
+            if isinstance(v, ArrayFormula):
+                yield c.row, c.column, v.text, v.ref
+            else:
+                yield c.row, c.column, v, None
+
+
+def _fast_cells(cells, arrays):
+    for (row, column), v in sorted(cells.items()):
+        yield row, column, v, arrays.get((row, column))
+
+
 def _constant(v):
     if isinstance(v, _dt.datetime) or isinstance(v, _dt.date) or isinstance(v, _dt.time):
         from openpyxl.utils.datetime import to_excel
@@ -872,6 +913,9 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
     wb.check_unread()
     if before_write is not None:
         before_write(wb)
+    elif not values_only and wb.fast_read and not os.environ.get("VOLCAST_OPENPYXL_WRITE"):
+        if _write_patched(wb, src, dst, report):
+            return dst, report
     book = wb.book
     book.calculation.fullCalcOnLoad = False
     # Excel recalculates a whole file on load when its calcId is older than Excel's own (from
@@ -935,3 +979,76 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
             if os.path.exists(t):
                 os.remove(t)
     return dst, report
+
+
+_OPENPYXL_ERRORS = ("#NULL!", "#DIV/0!", "#VALUE!", "#REF!", "#NAME?", "#NUM!", "#N/A")
+_CALC_ID = 191029  # see recalc(): Excel 2019 and 365's engine, so that Excel keeps the stored values
+
+
+def _write_patched(wb, src: Path, dst: Path, report) -> bool:
+    """Write ``dst`` by editing the input package (formula values, spills, spilled values, calcId)
+    rather than saving it through openpyxl: every part and cell not computed is copied as it was.
+
+    Gives the cells the values the openpyxl route writes.  Returns False, having written nothing,
+    where that route must write: a cell the input holds as an array formula or with cell metadata
+    that is no longer a spill or a legacy array (its formula changes form), a formula whose text
+    changes when written (a spill reference), a spilled text that starts with "=" (openpyxl
+    would write it as a formula), or a package the editors refuse.
+    """
+    from .xlsxpost import place_values, store_values
+
+    altered = RecalcReport()
+
+    def plain(v, where=None):
+        if isinstance(v, ExcelError):
+            return v
+        if isinstance(v, str):
+            return _cell_text(v, where, altered)
+        return v
+
+    keep_form = set(wb.spills) | set(wb.arrays)
+    if any(cell not in keep_form for cell in wb.array_cells):
+        return False
+    for sheet, marked in (wb.marked or {}).items():
+        if any((sheet, r, c) not in wb.spills for r, c in marked):
+            return False
+    formula_values, dynamic, constants = {}, {}, {}
+    for key, text in wb.formulas.items():
+        if "#" in text and file_formula(text) != text:
+            return False
+        sheet, row, col = key
+        raw = wb.values.get(key)
+        formula_values[(sheet, cell_name(row, col))] = raw if isinstance(raw, ExcelError) else plain(
+            raw, f"{sheet}!{cell_name(row, col)}")
+        if key in wb.spills:
+            r1, c1, r2, c2 = wb.spills[key]
+            dynamic[(sheet, cell_name(row, col))] = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
+    for cell, anchor in wb.owner.items():
+        if anchor in wb.arrays and cell in wb.formulas:
+            continue
+        sheet, row, col = cell
+        v = plain(wb.values.get(cell), f"{sheet}!{cell_name(row, col)}")
+        if isinstance(v, str) and v.startswith("=") and len(v) > 1:
+            return False
+        if isinstance(v, str) and v in _OPENPYXL_ERRORS:  # openpyxl stores such a text as an error
+            v = ExcelError(v)
+        constants[(sheet, cell_name(row, col))] = v
+    try:
+        dst.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp1 = tempfile.mkstemp(suffix=".xlsx", dir=dst.parent, prefix=".volcast-")
+    except OSError as exc:
+        raise RecalcError(f"{dst}: cannot write there ({exc.strerror or type(exc).__name__})") from None
+    os.close(fd)
+    tmp2 = tmp1 + ".post.xlsx"
+    try:
+        store_values(src, tmp1, formula_values, dynamic)
+        place_values(tmp1, tmp2, constants, calc_id=_CALC_ID)
+        os.replace(tmp2, dst)
+    except ValueError:
+        return False
+    finally:
+        for t in (tmp1, tmp2):
+            if os.path.exists(t):
+                os.remove(t)
+    report.altered.extend(altered.altered)
+    return True
