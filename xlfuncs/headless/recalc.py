@@ -142,6 +142,8 @@ class Workbook:
                         residue.append((t, _parse_range(array_ref), key))
                     else:
                         self.arrays[key] = _parse_range(array_ref)
+                elif type(v) is float:
+                    self.inputs[key] = v
                 elif isinstance(v, str) and v.startswith("=") and len(v) > 1:
                     self.formulas[key] = v
                 else:
@@ -908,7 +910,8 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
     if dst.resolve() == src.resolve():
         raise RecalcError(f"{dst}: refusing to write over the input; choose another output with -o")
 
-    wb = Workbook(src, dynamic_hint).evaluate_all()
+    # the openpyxl route writes through the book openpyxl loads: read with it then
+    wb = Workbook(src, dynamic_hint, fast=before_write is None and not values_only).evaluate_all()
     report = wb.collect_errors()
     wb.check_unread()
     if before_write is not None:
@@ -995,7 +998,7 @@ def _write_patched(wb, src: Path, dst: Path, report) -> bool:
     changes when written (a spill reference), a spilled text that starts with "=" (openpyxl
     would write it as a formula), or a package the editors refuse.
     """
-    from .xlsxpost import place_values, store_values
+    from .xlsxpost import store_values
 
     altered = RecalcReport()
 
@@ -1017,12 +1020,13 @@ def _write_patched(wb, src: Path, dst: Path, report) -> bool:
         if "#" in text and file_formula(text) != text:
             return False
         sheet, row, col = key
+        name = cell_name(row, col)
         raw = wb.values.get(key)
-        formula_values[(sheet, cell_name(row, col))] = raw if isinstance(raw, ExcelError) else plain(
-            raw, f"{sheet}!{cell_name(row, col)}")
+        formula_values[(sheet, name)] = raw if isinstance(raw, ExcelError) or not isinstance(raw, str) else plain(
+            raw, f"{sheet}!{name}")
         if key in wb.spills:
             r1, c1, r2, c2 = wb.spills[key]
-            dynamic[(sheet, cell_name(row, col))] = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
+            dynamic[(sheet, name)] = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
     for cell, anchor in wb.owner.items():
         if anchor in wb.arrays and cell in wb.formulas:
             continue
@@ -1041,9 +1045,8 @@ def _write_patched(wb, src: Path, dst: Path, report) -> bool:
     os.close(fd)
     tmp2 = tmp1 + ".post.xlsx"
     try:
-        store_values(src, tmp1, formula_values, dynamic)
-        place_values(tmp1, tmp2, constants, calc_id=_CALC_ID)
-        os.replace(tmp2, dst)
+        store_values(src, tmp1, formula_values, dynamic, constants=constants, calc_id=_CALC_ID)
+        os.replace(tmp1, dst)
     except ValueError:
         return False
     finally:

@@ -753,7 +753,8 @@ def _write_zip(pkg: _Package, dst: Path, changed: dict, edited: dict, finish) ->
 
 
 # ----------------------------------------------------------------------------- public functions
-def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict | None = None) -> None:
+def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict | None = None, *,
+                 constants: dict | None = None, calc_id: int | None = None) -> None:
     """Copy the package ``src`` to ``dst`` with each formula's value stored beside it.
 
     ``values`` maps (sheet title, "B3") of a formula cell to its value: a float or int, a str, a
@@ -769,6 +770,9 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
     another type (a list, a date).  Raises it too for a package :func:`check_package` refuses for
     its packing (the total unpacked size is not limited here) and for a part that does not unpack
     to the size its zip directory declares.  Nothing is written when it raises.
+
+    ``constants`` (as :func:`place_values` takes them) and ``calc_id`` are applied in the same
+    pass, so the package is copied once.
 
     Parts are streamed: memory stays at a few MiB whatever the size of the sheets.
     """
@@ -792,13 +796,19 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
         by_sheet = _check_keys(encoded, "values", parts)
         spills = {sheet: {anchor: _parse_range(anchor, ref) for anchor, ref in cells.items()}
                   for sheet, cells in _check_keys(dynamic, "dynamic", parts).items()}
-        titles = sorted(set(by_sheet) | set(spills), key=list(parts).index)
+        encoded_constants = {key: _encode_value(f"value for {key[0]}!{key[1]}", v)
+                             for key, v in (constants or {}).items()}
+        by_const = {title: {_parse_ref(ref): enc for ref, enc in refs.items()}
+                    for title, refs in _check_keys(encoded_constants, "constants", parts).items()}
+        titles = sorted(set(by_sheet) | set(spills) | set(by_const), key=list(parts).index)
         for title in titles:
             if parts[title] not in pkg:
                 raise ValueError(f"sheet {title!r} names the part {parts[title]}, which the package lacks")
         changed: dict = {}
         wb_xml = pkg[wb_part].decode("utf-8")
         calc = _drop_full_calc(wb_xml)
+        if calc_id is not None:
+            calc = _with_calc_id(calc, calc_id)
         if calc != wb_xml:
             changed[wb_part] = calc.encode("utf-8")
         if spills:
@@ -809,8 +819,13 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
         def editor(title):
             def edit(blocks):
                 part = parts[title]
-                for text in _edit_sheet(title, part, _texts(blocks), by_sheet.get(title, {}),
-                                        spills.get(title, {}), absent[title]):
+                texts = _texts(blocks)
+                if title in by_sheet or title in spills:
+                    texts = _edit_sheet(title, part, texts, by_sheet.get(title, {}), spills.get(title, {}),
+                                        absent[title])
+                if title in by_const:
+                    texts = _place_sheet(title, part, texts, by_const[title])
+                for text in texts:
                     yield text.encode("utf-8")
             return edit
 
@@ -1043,32 +1058,4 @@ def place_values(src: str | Path, dst: str | Path, cells: dict, calc_id: int | N
     workbook's ``calcId`` raised to ``calc_id``.  Values are stored as :func:`store_values` stores
     them, text as an inline string.  Every other part is copied unchanged.  Raises ValueError for
     a value that cannot be stored or a part that cannot be edited; nothing is written then."""
-    src, dst = Path(src), Path(dst)
-    if dst.resolve() == src.resolve():
-        raise ValueError(f"{dst}: refusing to write over the input; choose another output path")
-    encoded = {key: _encode_value(f"value for {key[0]}!{key[1]}", v) for key, v in cells.items()}
-    try:
-        z = zipfile.ZipFile(src)
-    except zipfile.BadZipFile:
-        raise ValueError(f"{src.name} is not an .xlsx package (not a zip archive)") from None
-    with z:
-        _check_infos(src.name, z.infolist(), None)
-        pkg = _Package(z, src.name)
-        wb_part = _workbook_part(pkg)
-        parts = _sheet_parts(pkg, wb_part)
-        by_sheet = {title: {_parse_ref(ref): enc for ref, enc in refs.items()}
-                    for title, refs in _check_keys(encoded, "cells", parts).items()}
-        changed: dict = {}
-        if calc_id is not None:
-            xml = pkg[wb_part].decode("utf-8")
-            new = _with_calc_id(xml, calc_id)
-            if new != xml:
-                changed[wb_part] = new.encode("utf-8")
-
-        def editor(title):
-            def edit(blocks):
-                for text in _place_sheet(title, parts[title], _texts(blocks), by_sheet[title]):
-                    yield text.encode("utf-8")
-            return edit
-
-        _write_zip(pkg, dst, changed, {parts[t]: editor(t) for t in by_sheet}, lambda: None)
+    store_values(src, dst, {}, constants=cells, calc_id=calc_id)
