@@ -103,9 +103,14 @@ print(time.process_time() - t1)
 """
 
 
-def _child_cpu(cmd) -> tuple:
+def _child_cpu(cmd, tree=None) -> tuple:
+    env = None
+    if tree is not None:  # another source tree (the baseline) first on the path
+        env = dict(os.environ, PYTHONPATH=str(tree))
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
-    out = subprocess.run(cmd, check=True, capture_output=True, text=True, timeout=1200)
+    # run outside any source tree, so that the path (not the working directory) says which code runs
+    out = subprocess.run(cmd, check=True, capture_output=True, text=True, timeout=1200, env=env,
+                         cwd=tempfile.gettempdir())
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
     return (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime), out.stdout
 
@@ -114,30 +119,47 @@ def _volcast():
     return [sys.executable, "-m", "xlfuncs.cli"]
 
 
-def measure(returns: str = "formulas", repeat: int = 3, k: int = K, n: int = N) -> dict:
-    """Median CPU seconds of recalc, start-up and the fits' own time, interleaved; and the ratio."""
+def measure(returns: str = "formulas", repeat: int = 3, k: int = K, n: int = N, baseline=None) -> dict:
+    """Median CPU seconds of recalc, start-up and the fits' own time, interleaved; and the ratio.
+
+    With ``baseline`` (a source tree, such as the main checkout), its ``volcast recalc`` of the same
+    workbook is measured interleaved too (``before``), and so is the import of the worksheet
+    functions (``core_import``: NumPy, SciPy and the estimation core, which a recalculation of
+    fits cannot avoid and neither start-up nor the fits' own time include)."""
     env_py = sys.executable
     with tempfile.TemporaryDirectory() as d:
         src = Path(d) / f"fits_{returns}.xlsx"
         build(src, returns, k, n)
-        rec, start, fits = [], [], []
+        rec, start, fits, before, core = [], [], [], [], []
         for i in range(repeat):
             rec.append(_child_cpu(_volcast() + ["recalc", str(src), "-o", str(Path(d) / f"out{i}.xlsx")])[0])
+            if baseline is not None:
+                before.append(_child_cpu(_volcast() + ["recalc", str(src), "-o", str(Path(d) / f"base{i}.xlsx")],
+                                         tree=baseline)[0])
             start.append(_child_cpu(_volcast() + ["--help"])[0])
             fits.append(float(_child_cpu([env_py, "-c", _FITS.format(k=k), str(src)])[1].strip()))
+            core.append(_child_cpu([env_py, "-c", "import xlfuncs.sheet"])[0] - _child_cpu([env_py, "-c", "pass"])[0])
     a, s, f = statistics.median(rec), statistics.median(start), statistics.median(fits)
-    return {"recalc": a, "startup": s, "fits": f, "ratio": a / (s + f)}
+    out = {"recalc": a, "startup": s, "fits": f, "ratio": a / (s + f), "core_import": statistics.median(core)}
+    if before:
+        out["before"] = statistics.median(before)
+        out["ratio_before"] = out["before"] / (s + f)
+    return out
 
 
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--returns", choices=("formulas", "values", "both"), default="both")
+    ap.add_argument("--baseline", help="a source tree (e.g. the main checkout) whose recalc is measured beside")
     args = ap.parse_args(argv)
     for how in (("formulas", "values") if args.returns == "both" else (args.returns,)):
-        m = measure(how, args.repeat)
+        m = measure(how, args.repeat, baseline=args.baseline)
         print(f"recalc, {K} fits over {K} x {N:,} returns ({how}): {m['recalc']:.2f} s CPU; start-up "
-              f"{m['startup']:.2f} s + fits {m['fits']:.2f} s; ratio {m['ratio']:.2f} (target <= 1.5)")
+              f"{m['startup']:.2f} s + fits {m['fits']:.2f} s; ratio {m['ratio']:.2f} (target <= 1.5); "
+              f"of the recalc, importing the worksheet functions (NumPy, SciPy, the core) {m['core_import']:.2f} s")
+        if "before" in m:
+            print(f"    baseline {args.baseline}: {m['before']:.2f} s CPU, ratio {m['ratio_before']:.2f}")
 
 
 if __name__ == "__main__":

@@ -417,7 +417,7 @@ def test_error_literals():
 
 def test_module_exports():
     assert set(xlsxpost.__all__) == {"ERROR_LITERALS", "ExcelError", "check_package", "dynamic_anchors",
-                                     "store_values"}
+                                     "place_values", "store_values"}
 
 
 # ----------------------------------------------------------------------------- package size and honesty

@@ -84,28 +84,39 @@ class RecalcReport:
 class Workbook:
     """The cells of a workbook, evaluated on demand."""
 
-    def __init__(self, path, dynamic_hint=()):
-        import openpyxl
-        from openpyxl.worksheet.formula import ArrayFormula
-
-        from .xlsxpost import check_package
+    def __init__(self, path, dynamic_hint=(), fast: bool = True):
+        from .xlsxpost import check_package, dynamic_anchors
 
         self.path = Path(path)
         try:  # refused from the zip directory, before openpyxl unpacks a package too large for memory
             check_package(self.path)
         except ValueError as exc:
             raise RecalcError(str(exc)) from None
-        try:
-            self.book = openpyxl.load_workbook(self.path, data_only=False)
-        except Exception as exc:  # noqa: BLE001 - any unreadable file is one line of bad input
-            raise RecalcError(f"{self.path.name} is not a readable .xlsx workbook ({type(exc).__name__}: {exc})") from None
-        self.sheets = {ws.title.upper(): ws.title for ws in self.book.worksheets}
-        from .xlsxpost import dynamic_anchors
+        self._book = None
+        data = None
+        if fast and not os.environ.get("VOLCAST_OPENPYXL_READ"):
+            from .fastread import NotPlain, read_cells
 
+            try:  # the cells read straight from the package's XML; openpyxl where that reader declines
+                data = read_cells(self.path)
+            except (NotPlain, ValueError, KeyError, IndexError, UnicodeDecodeError, OSError):
+                data = None
+        self.fast_read = data is not None
+        if data is None:
+            book = self.book
+            titles = [ws.title for ws in book.worksheets]
+            names = _defined_names(book)
+            sheets = {ws.title: (ws.max_row, ws.max_column, _openpyxl_cells(ws)) for ws in book.worksheets}
+            self.marked = None
+        else:
+            titles, names = data["titles"], data["names"]
+            sheets = {t: (mr, mc, _fast_cells(cells, arrays)) for t, (cells, arrays, mr, mc, _) in data["sheets"].items()}
+            self.marked = {t: set(v[4]) for t, v in data["sheets"].items()}
+        self.sheets = {t.upper(): t for t in titles}
         # spills stored by Excel 365 (or by us); a caller that re-saved the file through openpyxl,
         # which drops the cell metadata, passes the anchors it read before
         dynamic = dynamic_anchors(self.path) | set(dynamic_hint)
-        self.names = _defined_names(self.book)
+        self.names = names
         # LibreOffice and openpyxl drop the dynamic-array marking and keep each spill as a plain
         # array formula over its last size.  In a file saved by LibreOffice, or in a workbook of
         # our templates (built for Excel 365 spills), an unmarked array formula whose top-level
@@ -115,29 +126,28 @@ class Workbook:
         self.inputs: dict = {}  # (sheet, row, col) -> constant value
         self.formulas: dict = {}  # (sheet, row, col) -> formula text
         self.arrays: dict = {}  # anchor -> (r1, c1, r2, c2) of a legacy array formula
+        self.array_cells: set = set()  # cells read with an array formula
         self.max_row: dict = {}
         self.max_col: dict = {}
         residue = []
-        for ws in self.book.worksheets:
-            t = ws.title
-            self.max_row[t] = ws.max_row
-            self.max_col[t] = ws.max_column
-            for row in ws.iter_rows():
-                for c in row:
-                    v = c.value
-                    if v is None:
-                        continue
-                    key = (t, c.row, c.column)
-                    if isinstance(v, ArrayFormula):
-                        self.formulas[key] = v.text if v.text.startswith("=") else "=" + v.text
-                        if (t, c.coordinate) in dynamic or (unmarked and top_level_call(self.formulas[key])):
-                            residue.append((t, _parse_range(v.ref), key))
-                        else:
-                            self.arrays[key] = _parse_range(v.ref)
-                    elif isinstance(v, str) and v.startswith("=") and len(v) > 1:
-                        self.formulas[key] = v
+        for t, (max_row, max_col, cells) in sheets.items():
+            self.max_row[t] = max_row
+            self.max_col[t] = max_col
+            for row, column, v, array_ref in cells:
+                key = (t, row, column)
+                if array_ref is not None:
+                    self.array_cells.add(key)
+                    self.formulas[key] = v if v.startswith("=") else "=" + v
+                    if (t, cell_name(row, column)) in dynamic or (unmarked and top_level_call(self.formulas[key])):
+                        residue.append((t, _parse_range(array_ref), key))
                     else:
-                        self.inputs[key] = _constant(v)
+                        self.arrays[key] = _parse_range(array_ref)
+                elif type(v) is float:
+                    self.inputs[key] = v
+                elif isinstance(v, str) and v.startswith("=") and len(v) > 1:
+                    self.formulas[key] = v
+                else:
+                    self.inputs[key] = _constant(v)
         # the values a stored spill left in its range are results, not inputs: recomputed here
         for t, (r1, c1, r2, c2), anchor in residue:
             for r in range(r1, r2 + 1):
@@ -158,6 +168,19 @@ class Workbook:
         self._open_reads: dict = {}  # anchor -> empty cells read while it was being computed
         self._reported: set = set()  # addresses already in report.error_cells
         self.reads: list = []  # (formula key, sheet, r1, c1, r2, c2) read by formulas of ours
+
+    @property
+    def book(self):
+        """The workbook loaded by openpyxl, on first use (writing through openpyxl, the estimate
+        history); the recalculation itself reads the cells read at construction."""
+        if self._book is None:
+            import openpyxl
+
+            try:
+                self._book = openpyxl.load_workbook(self.path, data_only=False)
+            except Exception as exc:  # noqa: BLE001 - any unreadable file is one line of bad input
+                raise RecalcError(f"{self.path.name} is not a readable .xlsx workbook ({type(exc).__name__}: {exc})") from None
+        return self._book
 
     # ------------------------------------------------------------------ evaluation
     def evaluate_all(self):
@@ -328,7 +351,7 @@ class Workbook:
             self.reads.append((self._reader, sheet, r1, c1, r2, c2))
         return [[self.value((sheet, r, c)) for c in range(c1, c2 + 1)] for r in range(r1, r2 + 1)]
 
-    def _batch_elementwise(self, min_size: int = 16):
+    def _batch_elementwise(self, min_size: int = 16, vector: bool = True):
         """Evaluate a column of same-shape element-wise formulas over constants in one call.
 
         =LN(A3/A2)*100 down 5,000 rows is one engine call on two columns rather than 5,000 calls.
@@ -337,10 +360,12 @@ class Workbook:
         """
         from .engine import function_names
 
+        if vector:
+            self._batch_vector(min_size)
         spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
         groups: dict = {}
         for key, text in self.formulas.items():
-            if key in self.arrays or key in self._anchors:
+            if key in self.arrays or key in self._anchors or key in self.values:
                 continue
             if not function_names(text) <= _ELEMENTWISE | _LOGICAL:
                 continue
@@ -400,6 +425,114 @@ class Workbook:
                 continue
             for (key, _, _), row in zip(members, result):
                 self.values[key] = _cell_value(row[0])
+
+    def _batch_vector(self, min_size: int = 16):
+        """Columns of one formula shape over floats, evaluated as NumPy arrays (``columns.py``).
+
+        Cells are grouped by their text with the digits masked (no parsing per cell); one member
+        is parsed, and each member's references are read from its own digit runs.  Rows that read
+        anything but a float constant (a blank, a text, a formula, a cell a spill may fill), and
+        rows whose evaluation meets an error, are left to the engine's batch and to the cell by
+        cell evaluation.  Before a column's results are kept, three of its rows are evaluated by
+        the engine too and must agree in type and value; otherwise the column is left whole.
+        """
+        from .columns import ColumnShape, Unsupported, shape_key
+
+        import numpy as np
+
+        spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
+        groups: dict = {}
+        done = self.values
+        for key, text in self.formulas.items():
+            if key not in done:
+                groups.setdefault((key[0], shape_key(text)), []).append(key)
+        digits = re.compile(r"\d+")
+        for (sheet, _), keys in groups.items():
+            if len(keys) < min_size:
+                continue
+            keys = [k for k in keys if k not in self.arrays and k not in self._anchors]
+            if len(keys) < min_size:
+                continue
+            text0 = self.formulas[keys[0]]
+            try:
+                shape = ColumnShape(text0)
+            except (Unsupported, RecursionError):
+                continue
+            if not shape.refs:
+                continue
+            targets = []
+            for ref_sheet, col, _ in shape.refs:
+                title = sheet if ref_sheet is None else self.sheets.get(ref_sheet.upper())
+                if title is None:
+                    break
+                targets.append((title, col))
+            else:
+                runs = np.array([[int(d) for d in digits.findall(self.formulas[k])] for k in keys], dtype=np.int64)
+                if runs.ndim != 2 or runs.shape[1] != shape.n_runs:
+                    continue
+                if shape.fixed and not (runs[:, shape.fixed] == runs[0, shape.fixed]).all():
+                    continue
+                self._vector_group(keys, shape, targets, runs, spilling)
+
+    def _vector_group(self, keys, shape, targets, runs, spilling):
+        import numpy as np
+
+        from .columns import Unsupported
+
+        inputs, formulas = self.inputs, self.formulas
+        n = len(keys)
+        ok = np.ones(n, dtype=bool)
+        columns, seen = [], {}
+        for (title, col), (_, _, run) in zip(targets, shape.refs):
+            if (title, col, run) in seen:  # the same cell read twice (=IF(A3="","",LN(A3/A2)))
+                columns.append(seen[(title, col, run)])
+                continue
+            rows = runs[:, run].tolist()
+            values = np.empty(n)
+            for i, r in enumerate(rows):
+                v = inputs.get((title, r, col))
+                if type(v) is float and (title, r, col) not in formulas:
+                    values[i] = v
+                else:  # a blank, a text, an int, a bool, an error, a formula: the engine's rules
+                    ok[i] = False
+                    values[i] = 1.0
+            columns.append(values)
+            seen[(title, col, run)] = values
+        if ok.sum() < 1:
+            return
+        try:
+            out, bad = shape.evaluate(columns)
+        except (Unsupported, RecursionError, ValueError, TypeError):
+            return
+        ok &= ~np.asarray(bad)
+        rows = np.flatnonzero(ok)
+        if not len(rows):
+            return
+        # three rows through the engine: the same type and value, or the column is left whole
+        try:
+            compiled = compile_formula(self.formulas[keys[0]])
+        except FormulaError:
+            return
+        first = list(dict.fromkeys(_engine_name(t) for _, _, t in _ref_tokens(self.formulas[keys[0]])))
+        if sorted(first) != sorted(compiled.inputs):
+            return
+        order = [first.index(name) for name in compiled.inputs]
+        for i in {int(rows[0]), int(rows[len(rows) // 2]), int(rows[-1])}:
+            key = keys[i]
+            mine = list(dict.fromkeys(t for _, _, t in _ref_tokens(self.formulas[key])))
+            if len(mine) != len(first):
+                return
+            try:
+                args = [self._read(key[0], mine[j], key[0]) for j in order]
+            except RecalcError:
+                return
+            mine = _cell_value(out[i])
+            theirs = _cell_value(_top_left(compiled(*args)))
+            if type(mine) is not type(theirs) or mine != theirs:
+                return
+        values = self.values
+        for i in rows.tolist():
+            values[keys[i]] = _cell_value(out[i])
 
     def _compiled_for(self, key, text):
         """Compile once per formula *shape*: a column of =LN(B3/B2)*100, =LN(B4/B3)*100, ...
@@ -638,6 +771,8 @@ def _template(text, tokens, row, col) -> str:
 
 def file_formula(text: str) -> str:
     """A formula as Excel stores it in a file: the spill reference E2# as _xlfn.ANCHORARRAY(E2)."""
+    if "#" not in text:
+        return text
     masked = _STRING_RE.sub(lambda m: " " * len(m.group(0)), text)
     out, pos = [], 0
     for m in re.finditer(r"((?:'(?:[^']|'')+'!|[A-Za-z0-9_.]+!)?\$?[A-Za-z]{1,3}\$?\d+)#", masked):
@@ -646,6 +781,26 @@ def file_formula(text: str) -> str:
         pos = m.end()
     out.append(text[pos:])
     return "".join(out)
+
+
+def _openpyxl_cells(ws):
+    """(row, column, value, array ref or None) of each cell openpyxl holds a value for."""
+    from openpyxl.worksheet.formula import ArrayFormula
+
+    for row in ws.iter_rows():
+        for c in row:
+            v = c.value
+            if v is None:
+                continue
+            if isinstance(v, ArrayFormula):
+                yield c.row, c.column, v.text, v.ref
+            else:
+                yield c.row, c.column, v, None
+
+
+def _fast_cells(cells, arrays):
+    for (row, column), v in sorted(cells.items()):
+        yield row, column, v, arrays.get((row, column))
 
 
 def _constant(v):
@@ -755,11 +910,15 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
     if dst.resolve() == src.resolve():
         raise RecalcError(f"{dst}: refusing to write over the input; choose another output with -o")
 
-    wb = Workbook(src, dynamic_hint).evaluate_all()
+    # the openpyxl route writes through the book openpyxl loads: read with it then
+    wb = Workbook(src, dynamic_hint, fast=before_write is None and not values_only).evaluate_all()
     report = wb.collect_errors()
     wb.check_unread()
     if before_write is not None:
         before_write(wb)
+    elif not values_only and wb.fast_read and not os.environ.get("VOLCAST_OPENPYXL_WRITE"):
+        if _write_patched(wb, src, dst, report):
+            return dst, report
     book = wb.book
     book.calculation.fullCalcOnLoad = False
     # Excel recalculates a whole file on load when its calcId is older than Excel's own (from
@@ -780,7 +939,9 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
         ws = book[sheet]
         text = file_formula(text)
         if not values_only and (sheet, row, col) not in wb.spills and (sheet, row, col) not in wb.arrays:
-            ws.cell(row=row, column=col).value = text
+            cell = ws.cell(row=row, column=col)
+            if cell.data_type != "f" or cell.value != text:  # most formulas are written back as read
+                cell.value = text
         raw = wb.values.get((sheet, row, col))
         v = raw if isinstance(raw, ExcelError) else plain(raw, f"{sheet}!{cell_name(row, col)}")
         if values_only:
@@ -821,3 +982,76 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
             if os.path.exists(t):
                 os.remove(t)
     return dst, report
+
+
+_OPENPYXL_ERRORS = ("#NULL!", "#DIV/0!", "#VALUE!", "#REF!", "#NAME?", "#NUM!", "#N/A")
+_CALC_ID = 191029  # see recalc(): Excel 2019 and 365's engine, so that Excel keeps the stored values
+
+
+def _write_patched(wb, src: Path, dst: Path, report) -> bool:
+    """Write ``dst`` by editing the input package (formula values, spills, spilled values, calcId)
+    rather than saving it through openpyxl: every part and cell not computed is copied as it was.
+
+    Gives the cells the values the openpyxl route writes.  Returns False, having written nothing,
+    where that route must write: a cell the input holds as an array formula or with cell metadata
+    that is no longer a spill or a legacy array (its formula changes form), a formula whose text
+    changes when written (a spill reference), a spilled text that starts with "=" (openpyxl
+    would write it as a formula), or a package the editors refuse.
+    """
+    from .xlsxpost import store_values
+
+    altered = RecalcReport()
+
+    def plain(v, where=None):
+        if isinstance(v, ExcelError):
+            return v
+        if isinstance(v, str):
+            return _cell_text(v, where, altered)
+        return v
+
+    keep_form = set(wb.spills) | set(wb.arrays)
+    if any(cell not in keep_form for cell in wb.array_cells):
+        return False
+    for sheet, marked in (wb.marked or {}).items():
+        if any((sheet, r, c) not in wb.spills for r, c in marked):
+            return False
+    formula_values, dynamic, constants = {}, {}, {}
+    for key, text in wb.formulas.items():
+        if "#" in text and file_formula(text) != text:
+            return False
+        sheet, row, col = key
+        name = cell_name(row, col)
+        raw = wb.values.get(key)
+        formula_values[(sheet, name)] = raw if isinstance(raw, ExcelError) or not isinstance(raw, str) else plain(
+            raw, f"{sheet}!{name}")
+        if key in wb.spills:
+            r1, c1, r2, c2 = wb.spills[key]
+            dynamic[(sheet, name)] = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
+    for cell, anchor in wb.owner.items():
+        if anchor in wb.arrays and cell in wb.formulas:
+            continue
+        sheet, row, col = cell
+        v = plain(wb.values.get(cell), f"{sheet}!{cell_name(row, col)}")
+        if isinstance(v, str) and v.startswith("=") and len(v) > 1:
+            return False
+        if isinstance(v, str) and v in _OPENPYXL_ERRORS:  # openpyxl stores such a text as an error
+            v = ExcelError(v)
+        constants[(sheet, cell_name(row, col))] = v
+    try:
+        dst.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp1 = tempfile.mkstemp(suffix=".xlsx", dir=dst.parent, prefix=".volcast-")
+    except OSError as exc:
+        raise RecalcError(f"{dst}: cannot write there ({exc.strerror or type(exc).__name__})") from None
+    os.close(fd)
+    tmp2 = tmp1 + ".post.xlsx"
+    try:
+        store_values(src, tmp1, formula_values, dynamic, constants=constants, calc_id=_CALC_ID)
+        os.replace(tmp1, dst)
+    except ValueError:
+        return False
+    finally:
+        for t in (tmp1, tmp2):
+            if os.path.exists(t):
+                os.remove(t)
+    report.altered.extend(altered.altered)
+    return True

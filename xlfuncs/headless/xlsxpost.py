@@ -70,7 +70,7 @@ import zlib
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
-__all__ = ["ERROR_LITERALS", "ExcelError", "check_package", "dynamic_anchors", "store_values"]
+__all__ = ["ERROR_LITERALS", "ExcelError", "check_package", "dynamic_anchors", "place_values", "store_values"]
 
 #: The error values a cell can hold (ECMA-376 Part 1, 18.18.11 ``e``; #SPILL! and #CALC! are the
 #: dynamic-array additions).
@@ -753,7 +753,8 @@ def _write_zip(pkg: _Package, dst: Path, changed: dict, edited: dict, finish) ->
 
 
 # ----------------------------------------------------------------------------- public functions
-def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict | None = None) -> None:
+def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict | None = None, *,
+                 constants: dict | None = None, calc_id: int | None = None) -> None:
     """Copy the package ``src`` to ``dst`` with each formula's value stored beside it.
 
     ``values`` maps (sheet title, "B3") of a formula cell to its value: a float or int, a str, a
@@ -769,6 +770,9 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
     another type (a list, a date).  Raises it too for a package :func:`check_package` refuses for
     its packing (the total unpacked size is not limited here) and for a part that does not unpack
     to the size its zip directory declares.  Nothing is written when it raises.
+
+    ``constants`` (as :func:`place_values` takes them) and ``calc_id`` are applied in the same
+    pass, so the package is copied once.
 
     Parts are streamed: memory stays at a few MiB whatever the size of the sheets.
     """
@@ -792,13 +796,19 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
         by_sheet = _check_keys(encoded, "values", parts)
         spills = {sheet: {anchor: _parse_range(anchor, ref) for anchor, ref in cells.items()}
                   for sheet, cells in _check_keys(dynamic, "dynamic", parts).items()}
-        titles = sorted(set(by_sheet) | set(spills), key=list(parts).index)
+        encoded_constants = {key: _encode_value(f"value for {key[0]}!{key[1]}", v)
+                             for key, v in (constants or {}).items()}
+        by_const = {title: {_parse_ref(ref): enc for ref, enc in refs.items()}
+                    for title, refs in _check_keys(encoded_constants, "constants", parts).items()}
+        titles = sorted(set(by_sheet) | set(spills) | set(by_const), key=list(parts).index)
         for title in titles:
             if parts[title] not in pkg:
                 raise ValueError(f"sheet {title!r} names the part {parts[title]}, which the package lacks")
         changed: dict = {}
         wb_xml = pkg[wb_part].decode("utf-8")
         calc = _drop_full_calc(wb_xml)
+        if calc_id is not None:
+            calc = _with_calc_id(calc, calc_id)
         if calc != wb_xml:
             changed[wb_part] = calc.encode("utf-8")
         if spills:
@@ -809,8 +819,13 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
         def editor(title):
             def edit(blocks):
                 part = parts[title]
-                for text in _edit_sheet(title, part, _texts(blocks), by_sheet.get(title, {}),
-                                        spills.get(title, {}), absent[title]):
+                texts = _texts(blocks)
+                if title in by_sheet or title in spills:
+                    texts = _edit_sheet(title, part, texts, by_sheet.get(title, {}), spills.get(title, {}),
+                                        absent[title])
+                if title in by_const:
+                    texts = _place_sheet(title, part, texts, by_const[title])
+                for text in texts:
                     yield text.encode("utf-8")
             return edit
 
@@ -874,3 +889,173 @@ def dynamic_anchors(path: str | Path) -> set[tuple[str, str]]:
     except (zipfile.BadZipFile, OSError, ValueError, UnicodeDecodeError):
         return set()
     return found
+
+
+# ----------------------------------------------------------------------------- constant cells
+_ROW_ELEM_RE = re.compile(r"<row(?=[\s/>])([^>]*?)(?:/>|>(.*?)</row>)", re.S)
+_SPANS_RE = re.compile(r"""\s+spans\s*=\s*(["'])[^"']*\1""")
+_FULLCALC_ANY_RE = re.compile(r"""\s+fullCalcOnLoad\s*=\s*(["'])[^"']*\1""")
+_CALCID_RE = re.compile(r"""(\scalcId\s*=\s*)(["'])(\d*)\2""")
+_DIMENSION_RE = re.compile(r"""(<dimension\b[^>]*?\bref\s*=\s*)(["'])([^"']*)\2""")
+
+
+def _cell_xml(ref: str, style: str | None, encoded) -> str:
+    s = f' s="{style}"' if style is not None else ""
+    if encoded is None or encoded[1] is None:
+        return f'<c r="{ref}"{s}/>' if s else ""
+    kind, text = encoded
+    if kind is None:
+        return f'<c r="{ref}"{s}><v>{text}</v></c>'
+    if kind == "str":
+        return f'<c r="{ref}"{s} t="inlineStr"><is><t xml:space="preserve">{text}</t></is></c>'
+    return f'<c r="{ref}"{s} t="{kind}"><v>{text}</v></c>'
+
+
+def _merge_row(title: str, row: int, attrs: str, inner: str | None, cells: dict) -> str:
+    """A row element with ``cells`` ({col: encoded}) set: an existing cell keeps its style."""
+    parts = []
+    pos = 0
+    inner = inner or ""
+    for m in _CELL_RE.finditer(inner):
+        if inner[pos:m.start()].strip():
+            raise ValueError(f"sheet {title!r}: row {row} holds more than cells")
+        a = _attrs(m.group(1))
+        ref = a.get("r")
+        if not ref:
+            raise ValueError(f"sheet {title!r}: a cell of row {row} has no reference")
+        col = _parse_ref(ref)[1]
+        if col in cells:
+            parts.append((col, _cell_xml(_ref_name(row, col), a.get("s"), cells[col])))
+        else:
+            parts.append((col, m.group(0)))
+        pos = m.end()
+    if inner[pos:].strip():
+        raise ValueError(f"sheet {title!r}: row {row} holds more than cells")
+    have = {c for c, _ in parts}
+    parts += [(c, _cell_xml(_ref_name(row, c), None, e)) for c, e in cells.items() if c not in have]
+    parts.sort(key=lambda p: p[0])
+    return f"<row{_SPANS_RE.sub('', attrs)}>{''.join(x for _, x in parts)}</row>"
+
+
+def _place_sheet(title: str, part: str, texts, cells: dict):
+    """The sheet XML, in pieces, with the constant ``cells`` ({(row, col): encoded}) set or added."""
+    texts = iter(texts)
+    head, m = "", None
+    for text in texts:
+        start = max(0, head.rfind("<"))
+        head += text
+        m = _SHEET_DATA_OPEN_RE.search(head, start)
+        if m or len(head) > _MAX_WHOLE:
+            break
+    if m is None or not _ROOT_RE.search(head[:m.start()]):
+        raise ValueError(f"sheet {title!r} ({part}) is not SpreadsheetML in the unprefixed form")
+    by_row: dict = {}
+    for (r, c), enc in cells.items():
+        by_row.setdefault(r, {})[c] = enc
+    pending = sorted(by_row)
+    if cells:
+        r1, c1 = min(r for r, _ in cells), min(c for _, c in cells)
+        r2, c2 = max(r for r, _ in cells), max(c for _, c in cells)
+        pre = head[:m.start()]
+        dm = _DIMENSION_RE.search(pre)
+        if dm:
+            try:
+                old = dm.group(3).split(":")
+                a, b = _parse_ref(old[0]), _parse_ref(old[-1])
+                r1, c1, r2, c2 = min(r1, a[0]), min(c1, a[1]), max(r2, b[0]), max(c2, b[1])
+            except ValueError:
+                pass
+            ref = f"{_ref_name(r1, c1)}:{_ref_name(r2, c2)}"
+            pre = pre[:dm.start()] + f"{dm.group(1)}{dm.group(2)}{ref}{dm.group(2)}" + pre[dm.end():]
+            head = pre + head[m.start():]
+            m = _SHEET_DATA_OPEN_RE.search(head, len(pre))
+
+    def new_rows(upto):
+        out = []
+        while pending and (upto is None or pending[0] < upto):
+            r = pending.pop(0)
+            out.append(_merge_row(title, r, f' r="{r}"', "", by_row[r]))
+        return "".join(out)
+
+    def edit_rows(block: str) -> str:
+        if not pending:
+            return block
+        out, pos = [], 0
+        for rm in _ROW_ELEM_RE.finditer(block):
+            out.append(block[pos:rm.start()])
+            a = _attrs(rm.group(1))
+            try:
+                r = int(a.get("r", ""))
+            except ValueError:
+                raise ValueError(f"sheet {title!r}: a row without its number") from None
+            out.append(new_rows(r))
+            if pending and pending[0] == r:
+                pending.pop(0)
+                out.append(_merge_row(title, r, rm.group(1), rm.group(2), by_row[r]))
+            else:
+                out.append(rm.group(0))
+            pos = rm.end()
+        out.append(block[pos:])
+        return "".join(out)
+
+    if m.group(1):  # <sheetData/>
+        yield head[:m.start()] + "<sheetData>" + new_rows(None) + "</sheetData>" + head[m.end():]
+        yield from texts
+        return
+    yield head[:m.end()]
+    buf = head[m.end():]
+    del head
+    scanned = 0
+    while True:
+        end = buf.find(_SHEET_DATA_CLOSE, scanned)
+        if end >= 0:
+            yield edit_rows(buf[:end])
+            break
+        cut = buf.rfind(_ROW_OPEN, scanned)
+        if cut > 0:
+            yield edit_rows(buf[:cut])
+            buf = buf[cut:]
+        if len(buf) > _MAX_WHOLE:
+            raise ValueError(f"sheet {title!r} ({part}) holds a row of more than {_size(_MAX_WHOLE)}")
+        scanned = max(0, len(buf) - len(_SHEET_DATA_CLOSE) + 1)
+        text = next(texts, None)
+        if text is None:
+            raise ValueError(f"sheet {title!r} ({part}) ends inside its cell table (no </sheetData>)")
+        buf += text
+    yield new_rows(None)
+    yield buf[end:]
+    yield from texts
+
+
+def _with_calc_id(xml: str, at_least: int) -> str:
+    """The workbook part with ``<calcPr calcId>`` at least ``at_least`` (added where missing) and
+    ``fullCalcOnLoad="0"`` said outright, as openpyxl writes it (a reader such as openpyxl takes
+    an absent attribute as true, the file format as false)."""
+    m = _CALCPR_RE.search(xml)
+    if m:
+        tag = _FULLCALC_ANY_RE.sub("", m.group(0))
+        tag = re.sub(r"\s*/?>$", lambda e: ' fullCalcOnLoad="0"' + e.group(0).strip().rjust(len(e.group(0).strip())), tag)
+        cm = _CALCID_RE.search(tag)
+        if cm:
+            value = max(int(cm.group(3) or 0), at_least)
+            tag = tag[:cm.start()] + f'{cm.group(1)}{cm.group(2)}{value}{cm.group(2)}' + tag[cm.end():]
+        else:
+            tag = tag.replace("<calcPr", f'<calcPr calcId="{at_least}"', 1)
+        return xml[:m.start()] + tag + xml[m.end():]
+    for after in ("</definedNames>", "</sheets>"):
+        at = xml.find(after)
+        if at >= 0:
+            if after == "</sheets>" and ("<externalReferences" in xml or "<functionGroups" in xml):
+                break
+            at += len(after)
+            return xml[:at] + f'<calcPr calcId="{at_least}" fullCalcOnLoad="0"/>' + xml[at:]
+    raise ValueError("the workbook part has no place for its calculation properties")
+
+
+def place_values(src: str | Path, dst: str | Path, cells: dict, calc_id: int | None = None) -> None:
+    """Copy the package ``src`` to ``dst`` with the constant ``cells`` ({(sheet title, "B3"):
+    value}) set, added where the sheet lacks them (an existing cell keeps its style), and the
+    workbook's ``calcId`` raised to ``calc_id``.  Values are stored as :func:`store_values` stores
+    them, text as an inline string.  Every other part is copied unchanged.  Raises ValueError for
+    a value that cannot be stored or a part that cannot be edited; nothing is written then."""
+    store_values(src, dst, {}, constants=cells, calc_id=calc_id)
