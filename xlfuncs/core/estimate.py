@@ -773,6 +773,8 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
                         else:
                             problem.last_second = None
             break
+        if not exact and plain is not None and dec > 0.5 * prev and refreshes and dec < _DECREMENT_TOL:
+            break  # a second stall within the tolerance: a kink (EGARCH's |z| in the mean parameters)
         if not exact and plain is not None and dec > 0.5 * prev and refreshes < 4:
             # the secant updates stopped helping: a fresh Hessian
             refreshes += 1
