@@ -963,13 +963,7 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
             continue
         book[sheet].cell(row=row, column=col).value = plain(wb.values.get(cell), f"{sheet}!{cell_name(row, col)}")
 
-    try:
-        dst.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp1 = tempfile.mkstemp(suffix=".xlsx", dir=dst.parent, prefix=".volcast-")
-    except OSError as exc:
-        raise RecalcError(f"{dst}: cannot write there ({exc.strerror or type(exc).__name__})") from None
-    os.close(fd)
-    tmp2 = tmp1 + ".post.xlsx"
+    tmp1, tmp2 = _temp_pair(dst)
     try:
         book.save(tmp1)
         if values_only:
@@ -983,6 +977,18 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
                 os.remove(t)
     return dst, report
 
+
+
+def _temp_pair(dst: Path) -> tuple:
+    """Two temporary paths beside ``dst`` (the first made, empty), so that the output is written
+    whole and moved into place; a folder that cannot be written to is refused in one line."""
+    try:
+        dst.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp1 = tempfile.mkstemp(suffix=".xlsx", dir=dst.parent, prefix=".volcast-")
+    except OSError as exc:
+        raise RecalcError(f"{dst}: cannot write there ({exc.strerror or type(exc).__name__})") from None
+    os.close(fd)
+    return tmp1, tmp1 + ".post.xlsx"
 
 _OPENPYXL_ERRORS = ("#NULL!", "#DIV/0!", "#VALUE!", "#REF!", "#NAME?", "#NUM!", "#N/A")
 _CALC_ID = 191029  # see recalc(): Excel 2019 and 365's engine, so that Excel keeps the stored values
@@ -1037,13 +1043,7 @@ def _write_patched(wb, src: Path, dst: Path, report) -> bool:
         if isinstance(v, str) and v in _OPENPYXL_ERRORS:  # openpyxl stores such a text as an error
             v = ExcelError(v)
         constants[(sheet, cell_name(row, col))] = v
-    try:
-        dst.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp1 = tempfile.mkstemp(suffix=".xlsx", dir=dst.parent, prefix=".volcast-")
-    except OSError as exc:
-        raise RecalcError(f"{dst}: cannot write there ({exc.strerror or type(exc).__name__})") from None
-    os.close(fd)
-    tmp2 = tmp1 + ".post.xlsx"
+    tmp1, tmp2 = _temp_pair(dst)
     try:
         store_values(src, tmp1, formula_values, dynamic, constants=constants, calc_id=_CALC_ID)
         os.replace(tmp1, dst)
