@@ -572,17 +572,35 @@ def _edit_sheet(title: str, part: str, texts, values: dict, dynamic: dict, absen
         return _CELL_RE.sub(edit, block) if "<f" in block else block  # only formula cells change
 
     yield head[:m.end()]
-    buf = head[m.end():]
-    del head
+    tail = ""
+    for block, last in _row_blocks(head[m.end():], texts, title, part):
+        if last:
+            tail = block
+        else:
+            yield edit_rows(block)
+    for anchor, (spill, _) in dynamic.items():
+        if anchor in inside:
+            raise ValueError(f"{title}!{inside[anchor][1]} holds a formula inside the spill range {spill} of "
+                             f"{title}!{anchor}; the spilled cells must hold plain values")
+    absent |= (set(values) | set(dynamic)) - done
+    yield tail
+    yield from texts
+
+
+def _row_blocks(buf: str, texts, title: str, part: str):
+    """(text, last) pairs of a cell table read on from ``buf`` and the pieces ``texts``: blocks of
+    whole rows (cut where a row starts, so no cell spans two blocks), then, last, the text from
+    </sheetData> on; a few rows are held at once, however large the sheet."""
     scanned = 0  # where </sheetData> and a row start not yet cut at may begin
     while True:
         end = buf.find(_SHEET_DATA_CLOSE, scanned)
         if end >= 0:
-            yield edit_rows(buf[:end])
-            break
+            yield buf[:end], False
+            yield buf[end:], True
+            return
         cut = buf.rfind(_ROW_OPEN, scanned)
         if cut > 0:
-            yield edit_rows(buf[:cut])
+            yield buf[:cut], False
             buf = buf[cut:]
         if len(buf) > _MAX_WHOLE:
             raise ValueError(f"sheet {title!r} ({part}) holds a row of more than {_size(_MAX_WHOLE)}, which "
@@ -593,13 +611,6 @@ def _edit_sheet(title: str, part: str, texts, values: dict, dynamic: dict, absen
             raise ValueError(f"sheet {title!r} ({part}) ends inside its cell table (no </sheetData>); the part "
                              "is damaged")
         buf += text
-    for anchor, (spill, _) in dynamic.items():
-        if anchor in inside:
-            raise ValueError(f"{title}!{inside[anchor][1]} holds a formula inside the spill range {spill} of "
-                             f"{title}!{anchor}; the spilled cells must hold plain values")
-    absent |= (set(values) | set(dynamic)) - done
-    yield buf[end:]
-    yield from texts
 
 
 def _with_type(attrs: dict, kind: str) -> dict:
@@ -1003,27 +1014,14 @@ def _place_sheet(title: str, part: str, texts, cells: dict):
         yield from texts
         return
     yield head[:m.end()]
-    buf = head[m.end():]
-    del head
-    scanned = 0
-    while True:
-        end = buf.find(_SHEET_DATA_CLOSE, scanned)
-        if end >= 0:
-            yield edit_rows(buf[:end])
-            break
-        cut = buf.rfind(_ROW_OPEN, scanned)
-        if cut > 0:
-            yield edit_rows(buf[:cut])
-            buf = buf[cut:]
-        if len(buf) > _MAX_WHOLE:
-            raise ValueError(f"sheet {title!r} ({part}) holds a row of more than {_size(_MAX_WHOLE)}")
-        scanned = max(0, len(buf) - len(_SHEET_DATA_CLOSE) + 1)
-        text = next(texts, None)
-        if text is None:
-            raise ValueError(f"sheet {title!r} ({part}) ends inside its cell table (no </sheetData>)")
-        buf += text
+    tail = ""
+    for block, last in _row_blocks(head[m.end():], texts, title, part):
+        if last:
+            tail = block
+        else:
+            yield edit_rows(block)
     yield new_rows(None)
-    yield buf[end:]
+    yield tail
     yield from texts
 
 
