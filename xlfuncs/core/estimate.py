@@ -709,7 +709,8 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
     The Hessian is the closed form at every step where the likelihood has it (:attr:`_Problem.
     exact_hessian`: one pass gives value, scores and Hessian, and the last one serves the
     standard errors); else a forward-difference Hessian of the analytic gradient updated by BFGS
-    secants and refreshed when the decrement stops halving.  Step control (Levenberg-Marquardt
+    secants and refreshed when the decrement stops halving (a second stall within the tolerance is a
+    kink, EGARCH's |z| in the mean parameters, and ends the steps).  Step control (Levenberg-Marquardt
     damping with a backtracking line search): where -H is not positive definite (a ridge or a
     saddle, e.g. near-cancelling AR and MA roots) or a step fails to raise the likelihood even
     when halved, the step solves (-H + mu diag|H|) s = g with mu raised tenfold until it is
