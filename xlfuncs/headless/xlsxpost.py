@@ -484,6 +484,20 @@ def _attrs_text(attrs: dict[str, str]) -> str:
     return "".join(f' {k}="{v}"' for k, v in attrs.items())
 
 
+def _sheet_head(texts):
+    """(head, match): the sheet's text read from the iterator ``texts`` up to and including the
+    opening of its cell table (``match``, of _SHEET_DATA_OPEN_RE), or None with the text read
+    when there is none within _MAX_WHOLE characters; the rest stays in ``texts``."""
+    head, m = "", None
+    for text in texts:
+        start = max(0, head.rfind("<"))
+        head += text
+        m = _SHEET_DATA_OPEN_RE.search(head, start)
+        if m or len(head) > _MAX_WHOLE:
+            break
+    return head, m
+
+
 def _edit_sheet(title: str, part: str, texts, values: dict, dynamic: dict, absent: set):
     """The sheet XML, in pieces, with ``values`` stored and ``dynamic`` anchors marked.
 
@@ -494,13 +508,7 @@ def _edit_sheet(title: str, part: str, texts, values: dict, dynamic: dict, absen
     rows): a few rows are held at once, however large the sheet.
     """
     texts = iter(texts)
-    head, m = "", None
-    for text in texts:
-        start = max(0, head.rfind("<"))
-        head += text
-        m = _SHEET_DATA_OPEN_RE.search(head, start)
-        if m or len(head) > _MAX_WHOLE:
-            break
+    head, m = _sheet_head(texts)
     if not _ROOT_RE.search(head if m is None else head[:m.start()]):
         raise ValueError(f"sheet {title!r} ({part}) is not SpreadsheetML in the unprefixed form openpyxl "
                          "writes; save the workbook with openpyxl first")
@@ -951,13 +959,7 @@ def _merge_row(title: str, row: int, attrs: str, inner: str | None, cells: dict)
 def _place_sheet(title: str, part: str, texts, cells: dict):
     """The sheet XML, in pieces, with the constant ``cells`` ({(row, col): encoded}) set or added."""
     texts = iter(texts)
-    head, m = "", None
-    for text in texts:
-        start = max(0, head.rfind("<"))
-        head += text
-        m = _SHEET_DATA_OPEN_RE.search(head, start)
-        if m or len(head) > _MAX_WHOLE:
-            break
+    head, m = _sheet_head(texts)
     if m is None or not _ROOT_RE.search(head[:m.start()]):
         raise ValueError(f"sheet {title!r} ({part}) is not SpreadsheetML in the unprefixed form")
     by_row: dict = {}
