@@ -140,8 +140,6 @@ def risk_rows(ref_paths, seeds):
 
 
 def lre_rows():
-    from scipy import integrate, special, stats
-
     from fit_speed import load
     from xlfuncs.core import get_distribution, parse_model
     from xlfuncs.core.estimate import evaluate
@@ -151,10 +149,8 @@ def lre_rows():
     r = load()
     E11 = {"mu": 0.01, "omega": -0.02, "alpha[1]": 0.2, "gamma[1]": -0.08, "beta[1]": 0.95}
 
-    def mgf(a, c, logpdf):
-        f = lambda z: math.exp(a * abs(z) + c * z + logpdf(z))  # noqa: E731
-        return (integrate.quad(f, -np.inf, 0, epsabs=0, epsrel=2e-14, limit=500)[0]
-                + integrate.quad(f, 0, np.inf, epsabs=0, epsrel=2e-14, limit=500)[0])
+    sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
+    from helpers import egarch11_product_forecast  # the test suite's reference (Nelson 1991)
 
     worst = {}
     for dist, eta in (("normal", {}), ("ged", {"nu": 1.5}), ("ged", {"nu": 1.0}), ("ged", {"nu": 2.5})):
@@ -164,23 +160,8 @@ def lre_rows():
         f = evaluate(r, spec, d, names, [p[n] for n in names], None)
         fc = forecast(f, r, 40)
         e, s2, _ = in_sample(f, r)
-        kappa = d.abs_moment(list(eta.values()))
-        om, a, g, b = E11["omega"], E11["alpha[1]"], E11["gamma[1]"], E11["beta[1]"]
-        z = e[-1] / math.sqrt(s2[-1])
-        lv1 = om + a * (abs(z) - kappa) + g * z + b * math.log(s2[-1])
-        if dist == "normal":
-            logpdf = stats.norm.logpdf
-        else:
-            nu = eta["nu"]
-            sc = math.sqrt(special.gamma(1 / nu) / special.gamma(3 / nu))
-            logpdf = lambda x, nu=nu, sc=sc: stats.gennorm.logpdf(x, nu, scale=sc)  # noqa: E731
-        logprod, lres = 0.0, []
-        for h in range(1, 41):
-            want = math.exp(b ** (h - 1) * lv1 + om * sum(b ** i for i in range(h - 1)) + logprod)
-            got = fc.variance[h - 1]
-            lres.append(16.0 if got == want else -math.log10(abs(got - want) / abs(want)))
-            cc = b ** (h - 1)
-            logprod += math.log(mgf(cc * a, cc * g, logpdf)) - cc * a * kappa
+        want = egarch11_product_forecast(E11, eta, e[-1], s2[-1], d.abs_moment(list(eta.values())), 40)
+        lres = [16.0 if got == w else -math.log10(abs(got - w) / abs(w)) for got, w in zip(fc.variance, want)]
         worst[f"{dist}{'' if not eta else ' ' + str(eta['nu'])}"] = min(lres)
     m = min(worst.values())
     add("EGARCH variance forecast, h = 1..40", "smallest LRE " + ", ".join(f"{k} {v:.1f}" for k, v in worst.items()),

@@ -19,6 +19,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy import integrate, optimize, special, stats
 
+from helpers import egarch11_product_forecast
 from xlfuncs import VOLFORECAST, VOLRISK
 from xlfuncs.core import get_distribution, parse_model
 from xlfuncs.core.estimate import evaluate, fit
@@ -253,23 +254,9 @@ def test_egarch11_forecast_is_nelsons_product(dmbp, dist, eta):
     fc = forecast(f, dmbp, 40)
     assert fc.method == "analytic" and fc.finite_steps is None
     e, s2, _ = in_sample(f, dmbp)
-    d = f.dist
-    kappa = d.abs_moment(list(eta.values()))
-    om, a, g, b = E11["omega"], E11["alpha[1]"], E11["gamma[1]"], E11["beta[1]"]
-    z = e[-1] / math.sqrt(s2[-1])
-    lv1 = om + a * (abs(z) - kappa) + g * z + b * math.log(s2[-1])
-    if dist == "normal":
-        logpdf = stats.norm.logpdf
-    else:
-        nu = eta["nu"]
-        s = math.sqrt(special.gamma(1 / nu) / special.gamma(3 / nu))
-        logpdf = lambda x: stats.gennorm.logpdf(x, nu, scale=s)  # noqa: E731
-    logprod = 0.0
+    want = egarch11_product_forecast(E11, eta, e[-1], s2[-1], f.dist.abs_moment(list(eta.values())), 40)
     for h in range(1, 41):
-        want = math.exp(b ** (h - 1) * lv1 + om * sum(b ** i for i in range(h - 1)) + logprod)
-        assert _lre(fc.variance[h - 1], want) >= 8, h
-        c = b ** (h - 1)
-        logprod += math.log(_quad_mgf(c * a, c * g, logpdf)) - c * a * kappa
+        assert _lre(fc.variance[h - 1], want[h - 1]) >= 8, h
 
 
 @pytest.mark.parametrize("model,dist,params", [
