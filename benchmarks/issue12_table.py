@@ -255,7 +255,7 @@ def main(argv=None):
         "lre": lre_rows,
         "recalc": lambda: recalc_rows(1 if q else 3),
         "startup": lambda: startup_row(3 if q else 7),
-        "backtest": lambda: backtest_row(1 if q else 3),
+        "backtest": lambda: backtest_row(3 if q else 5),
         "compare": lambda: compare_row(3 if q else 7),
     }
     chosen = [s.strip() for s in args.only.split(",") if s.strip()] or list(sections)

@@ -176,8 +176,14 @@ def _one_filter(lik, spec, options, theta, window, scheme, i0, i1, mean, varianc
                              f"above zero at returns row {row}; the variance would not stay positive. Keep "
                              "omega + sum v[k] Z[t,k] above zero at every row (e.g. regressors of one sign with "
                              "v[k] >= 0)")
-    # residual index k is return k + a: a window of returns [start, t) has residuals [start, t - a)
-    variance[i0:i1] = spec.family.window_forecast(vp, e, starts, ts - a, options.presample, shift=shift)
+    # residual index k is return k + a: a window of returns [start, t) has residuals [start, t - a).
+    # Only the residuals from the first window's start to the last forecast are read: the family
+    # filters that stretch alone (each window's forecast depends on its own residuals only)
+    ends = ts - a
+    lo, hi = int(starts[0]), int(ends[-1]) + 1
+    part = None if shift is None else shift[lo:hi]
+    variance[i0:i1] = spec.family.window_forecast(vp, e[lo:hi], starts - lo, ends - lo, options.presample,
+                                                  shift=part)
     mean[i0:i1] = lik.mean.fitted(theta[:lik.n_mean], ts - a)
 
 
