@@ -287,10 +287,33 @@ def test_suspicious_or_bad_rows_stop_the_run(small, tmp_path, capsys, rows, patt
 def test_a_decimal_comma_gets_a_hint(small, tmp_path, capsys):
     book, _, _ = small
     path = tmp_path / "semi.csv"
-    path.write_text("date;level\n2010-01-31;12,5\n")  # a semicolon file from a decimal-comma locale
+    # a semicolon file that mixes a decimal comma with a decimal point: which is meant cannot be told
+    path.write_text("date;level\n2010-01-31;12,5\n2010-02-28;12.75\n")
     assert main(["refresh", str(book), "--data", str(path), "-o", str(tmp_path / "x.xlsx")]) == 2
     err = capsys.readouterr().err
-    assert "line 2" in err and "decimal comma" in err and "Traceback" not in err
+    assert "line 2" in err and "decimal comma" in err and "line 3" in err and "Traceback" not in err
+
+
+def test_a_decimal_comma_file_refreshes_as_its_point_twin(small, tmp_path):
+    """A semicolon file with decimal commas (the usual export where the comma is the decimal mark)
+    gives the same workbook as the comma file with decimal points (common practice)."""
+    book, dates, levels = small
+    nxt = [(dates[-1] + dt.timedelta(days=31), levels[-1] * 1.01)]
+    point, comma = tmp_path / "point.csv", tmp_path / "comma.csv"
+    point.write_text("date,level\n" + "".join(f"{d},{v:.4f}\n" for d, v in nxt))
+    comma.write_text("date;level\n" + "".join(f"{d};{v:.4f}\n".replace(".", ",") for d, v in nxt))
+    outs = []
+    now = dt.datetime.now()
+
+    def kept(v):  # the run's own time stamp differs between the two runs
+        return None if isinstance(v, dt.datetime) and abs((now - v).total_seconds()) < 3600 else v
+
+    for src in (point, comma):
+        out = tmp_path / f"{src.stem}.xlsx"
+        assert main(["refresh", str(book), "--data", str(src), "-o", str(out)]) == 0
+        wb = openpyxl.load_workbook(out.with_name(f"{out.stem}-values.xlsx"))  # the values copy: numbers
+        outs.append([[kept(c.value) for c in row] for ws in wb for row in ws.iter_rows()])
+    assert outs[0] == outs[1]
 
 
 def test_accept_flags_take_what_was_checked(small, tmp_path, capsys):

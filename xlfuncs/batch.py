@@ -99,8 +99,9 @@ class Panel(dict):
     first cell that is neither a number nor blank (its value is NaN).
     """
 
-    def __init__(self, series=(), rows=None, lines=None, bad=None, name="the panel"):
+    def __init__(self, series=(), rows=None, lines=None, bad=None, name="the panel", note=""):
         super().__init__(series)
+        self.note = note  # how the file's numbers were read, when worth saying (csvtext.Records.note)
         self.rows = rows if rows is not None else {sid: np.arange(1, len(v) + 1) for sid, v in self.items()}
         self.lines = lines or {}
         self.bad = bad or {}
@@ -142,20 +143,24 @@ def load_panel(path, id_col=None, value_col=None, date_col="date") -> Panel:
                          "a wide panel needs neither")
     if id_col is not None and id_col.strip() == value_col.strip():
         raise PanelError(f'--id and --value name the same column "{excerpt(id_col)}"')
+    note = ""
     if path.suffix.lower() in (".parquet", ".pq"):
         header, columns, lines = _parquet_columns(path)
     else:
-        header, columns, lines = _csv_columns(path)
+        header, columns, lines, note = _csv_columns(path)
     if not columns or not len(columns[0]):
         raise PanelError(f"{path}: has a header but no data rows")
     _check_header(path, header, columns)
     if id_col is not None:
-        return _long_panel(path, header, columns, lines, id_col.strip(), value_col.strip(), date_col)
-    return _wide_panel(path, header, columns, lines, date_col)
+        panel = _long_panel(path, header, columns, lines, id_col.strip(), value_col.strip(), date_col)
+    else:
+        panel = _wide_panel(path, header, columns, lines, date_col)
+    panel.note = note
+    return panel
 
 
 def _csv_columns(path: Path) -> tuple:
-    """(header, columns of raw cells, line numbers of the data rows) of a CSV panel."""
+    """(header, columns of raw cells, line numbers of the data rows, the reader's note) of a CSV panel."""
     records = read_csv_records(path)
     if not records:
         raise PanelError(f"{path}: is empty; a panel needs a header row and rows of data")
@@ -163,7 +168,7 @@ def _csv_columns(path: Path) -> tuple:
     width = len(header)
     check_row_widths(path, records)
     columns = [[row[j] if j < len(row) else "" for _, row in data] for j in range(width)]
-    return header, columns, np.array([lineno for lineno, _ in data], dtype=int)
+    return header, columns, np.array([lineno for lineno, _ in data], dtype=int), records.note
 
 
 def _parquet_columns(path: Path) -> tuple:

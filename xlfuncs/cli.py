@@ -107,6 +107,8 @@ def load_returns_csv(path: str, column: str | None = None, skip_blanks: bool = F
             note += " (taken as returns as named, though they look like price levels; --levels converts them)"
     if skipped:
         note += f"; {skipped} blank cell{'s' if skipped > 1 else ''} skipped"
+    if records.note:
+        note += f"; {records.note}"
     return CsvReturns(returns, name, note)
 
 
@@ -115,6 +117,7 @@ def _csv_rows(path: str) -> tuple:
     row of data.  Rows with more filled fields than the header are refused (a decimal comma in a
     comma-separated file would shift the columns)."""
     from .batch import PanelError, check_row_widths, read_csv_records
+    from .csvtext import Records
 
     if str(path).lower().endswith((".parquet", ".pq")):
         raise CliError(f"{path}: fit and backtest read a CSV file; save the column as CSV (volcast batch reads Parquet)")
@@ -125,7 +128,9 @@ def _csv_rows(path: str) -> tuple:
         raise CliError(str(exc)) from None
     if len(records) < 2:
         raise CliError(f"{path}: needs a header row and at least one row of data")
-    return records[0][1], records[1:]
+    rows = Records(records[1:])
+    rows.note = records.note
+    return records[0][1], rows
 
 
 def _choose_column(path: str, header: list, records: list, column: str | None, levels: bool) -> int:
@@ -500,6 +505,7 @@ def _cmd_batch(args) -> int:
         with _quiet():
             check_arguments(args.model, args.dist, args.options, args.horizon, args.level)
         panel = load_panel(args.panel, args.id, args.value)
+        read_note = getattr(panel, "note", "")  # e.g. decimal commas read as points
         name = Path(args.panel).name
         where = (f'long panel {name} (ids "{excerpt(args.id)}", values "{excerpt(args.value)}")' if args.id
                  else f"wide panel {name}")
@@ -516,6 +522,8 @@ def _cmd_batch(args) -> int:
                                  f"{LEVELS_AUTOCORRELATION:g}); pass --levels to fit their log returns in percent, "
                                  "or --as-returns to take them as they are")
             how = "taken as returns"
+        if read_note:
+            how += f"; {read_note}"
         if args.skip_bad:
             how += "; cells that are not numbers left out"
         print(f"{where}: {len(panel)} series, {how}", flush=True)

@@ -2,7 +2,10 @@
 
 ``read_csv_records`` reads UTF-8 (with or without BOM), UTF-16 with a BOM or Windows-1252, with
 the separator (comma, semicolon or tab) taken from the header line; what it cannot read so is a
-:class:`PanelError` whose message is one line for the terminal.
+:class:`PanelError` whose message is one line for the terminal.  A semicolon- or tab-separated file
+whose numbers are written with decimal commas (12,5 or 1.234,5: the usual export where the comma is
+the decimal mark) is read with those numbers as decimal points, and the records say so
+(:attr:`Records.note`); a file that mixes decimal commas and decimal points is refused.
 """
 
 from __future__ import annotations
@@ -14,7 +17,7 @@ from pathlib import Path
 
 from .core.errors import excerpt
 
-__all__ = ["PanelError", "read_csv_records", "check_row_widths", "decimal_comma_hint", "MAX_FIELD_CHARS"]
+__all__ = ["PanelError", "Records", "read_csv_records", "check_row_widths", "decimal_comma_hint", "MAX_FIELD_CHARS"]
 
 #: the longest CSV field read (Python's csv module stops at 128 KiB unless told otherwise); a longer
 #: field is refused: no number or name is that long, so the file is not a CSV of returns
@@ -22,6 +25,13 @@ MAX_FIELD_CHARS = 1 << 20
 
 class PanelError(ValueError):
     """A file or argument the run cannot use at all; the message is one line for the terminal."""
+
+
+class Records(list):
+    """[(line number, [cells])] of a CSV file, with ``note``: how its numbers were read when that
+    is worth saying (decimal commas read as points), else empty."""
+
+    note = ""
 
 
 # ---------------------------------------------------------------------------------------------
@@ -85,7 +95,42 @@ def read_csv_records(path) -> list:
                              "cannot be read as a CSV of numbers") from None
         raise PanelError(f"{path} line {line}: cannot be read as CSV ({excerpt(exc, 80)})") from None
     _check_separators(path, out, delim)
-    return out
+    records = Records(out)
+    if delim != "," and _decimal_commas(path, records):
+        records.note = "numbers written with decimal commas read as decimal points"
+    return records
+
+
+_COMMA_NUMBER = re.compile(r"[-+]?(?:\d{1,3}(?:\.\d{3})+|\d+),\d+(?:[eE][-+]?\d+)?")
+_POINT_NUMBER = re.compile(r"[-+]?(?:\d+\.\d*|\.\d+)(?:[eE][-+]?\d+)?")
+
+
+def _decimal_commas(path, records) -> bool:
+    """Rewrite the data cells of a semicolon- or tab-separated file that are numbers written with
+    a decimal comma (12,5; 1.234,5 with points grouping thousands) as decimal-point numbers, in
+    place; True when there were any.  A file that also writes a number with a decimal point alone
+    (0.5, or 1.234, which could be either) is refused: which mark is meant cannot be told."""
+    first = None
+    for lineno, row in records[1:]:
+        for cell in row:
+            if _COMMA_NUMBER.fullmatch(cell):
+                first = (lineno, cell)
+                break
+        if first:
+            break
+    if first is None:
+        return False
+    for lineno, row in records[1:]:
+        for cell in row:
+            if _POINT_NUMBER.fullmatch(cell):
+                raise PanelError(f'{path} line {first[0]}: "{excerpt(first[1])}" is written with a decimal comma but line '
+                                 f'{lineno} writes "{excerpt(cell)}" with a decimal point; use one decimal mark '
+                                 f"throughout{decimal_comma_hint(first[1])}")
+    for _, row in records[1:]:
+        for j, cell in enumerate(row):
+            if _COMMA_NUMBER.fullmatch(cell):
+                row[j] = cell.replace(".", "").replace(",", ".")
+    return True
 
 
 _SEPARATOR_NAMES = {",": "commas", ";": "semicolons", "\t": "tabs"}
