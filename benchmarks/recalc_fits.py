@@ -12,7 +12,11 @@ time of a child process (one BLAS thread):
 * fits: the same 20 VOLFIT calls on the same returns, in a fresh process, minus that process's
   start-up (the fits' own time).
 
-Target (issue 12): recalc <= 1.5 x (start-up + the fits' own time).
+Target (issue 12): recalc <= 1.5 x (start-up + the fits' own time).  Also printed: the ratio to
+(core_import + the fits' own time), where core_import is the import of the worksheet functions
+(NumPy, SciPy and the estimation core) in a fresh process beyond Python's own start: a
+recalculation of fits cannot avoid it, and ``volcast --help`` does not pay it, so this second
+ratio says how far the recalculation is from its floor (importing, then fitting).
 
     python benchmarks/recalc_fits.py [--repeat 3] [--returns formulas|values|both]
 """
@@ -140,10 +144,12 @@ def measure(returns: str = "formulas", repeat: int = 3, k: int = K, n: int = N, 
             fits.append(float(_child_cpu([env_py, "-c", _FITS.format(k=k), str(src)])[1].strip()))
             core.append(_child_cpu([env_py, "-c", "import xlfuncs.sheet"])[0] - _child_cpu([env_py, "-c", "pass"])[0])
     a, s, f = statistics.median(rec), statistics.median(start), statistics.median(fits)
-    out = {"recalc": a, "startup": s, "fits": f, "ratio": a / (s + f), "core_import": statistics.median(core)}
+    c = statistics.median(core)
+    out = {"recalc": a, "startup": s, "fits": f, "ratio": a / (s + f), "core_import": c, "ratio_core": a / (c + f)}
     if before:
         out["before"] = statistics.median(before)
         out["ratio_before"] = out["before"] / (s + f)
+        out["ratio_core_before"] = out["before"] / (c + f)
     return out
 
 
@@ -157,9 +163,11 @@ def main(argv=None):
         m = measure(how, args.repeat, baseline=args.baseline)
         print(f"recalc, {K} fits over {K} x {N:,} returns ({how}): {m['recalc']:.2f} s CPU; start-up "
               f"{m['startup']:.2f} s + fits {m['fits']:.2f} s; ratio {m['ratio']:.2f} (target <= 1.5); "
-              f"of the recalc, importing the worksheet functions (NumPy, SciPy, the core) {m['core_import']:.2f} s")
+              f"of the recalc, importing the worksheet functions (NumPy, SciPy, the core) {m['core_import']:.2f} s; "
+              f"ratio to (core_import + fits) {m['ratio_core']:.2f}")
         if "before" in m:
-            print(f"    baseline {args.baseline}: {m['before']:.2f} s CPU, ratio {m['ratio_before']:.2f}")
+            print(f"    baseline {args.baseline}: {m['before']:.2f} s CPU, ratio {m['ratio_before']:.2f}, "
+                  f"ratio to (core_import + fits) {m['ratio_core_before']:.2f}")
 
 
 if __name__ == "__main__":

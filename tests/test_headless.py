@@ -413,3 +413,62 @@ def test_output_where_it_cannot_be_written_is_one_line(tmp_path, capsys, done):
     assert main(["recalc", str(src), "-o", str(tmp_path / "a_file" / "o.xlsx")]) == 2
     err = capsys.readouterr().err
     assert err.startswith("volcast: ") and err.count("\n") == 1 and "cannot write there" in err
+
+
+def test_direct_calls_of_ours_equal_the_engine_route(tmp_path, monkeypatch):
+    """A formula that is one call of ours with plain arguments is evaluated without the formula
+    engine (recalc.Workbook._direct_call); every value, spill and reported error equals the route
+    through the engine (VOLCAST_ENGINE_CALLS=1), the reference being the engine's own argument
+    passing (engine._wrap_ours).  Arguments: ranges, a single cell, a defined name, another
+    sheet, string literals, whole and decimal numbers, TRUE, an error cell (=1/0) as an argument,
+    a text among the returns, spill references, the _xludf. prefix; a nested call goes through
+    the engine."""
+    from openpyxl.workbook.defined_name import DefinedName
+
+    from xlfuncs.headless.recalc import Workbook
+
+    rng = np.random.default_rng(5)
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Data"
+    for i in range(300):
+        ws.cell(i + 2, 1, float(rng.standard_normal()))
+        ws.cell(i + 2, 2, float(rng.standard_normal()) if i != 150 else "n/a")
+    ws.cell(1, 4, "GARCH(1,1)")
+    ws.cell(1, 5, "=1/0")
+    ws.cell(1, 6, 0.975)
+    wb.defined_names["rets"] = DefinedName("rets", attr_text="Data!$A$2:$A$301")
+    m = wb.create_sheet("Model Sheet")
+    m["A1"] = '=VOLFIT(Data!A2:A301, "GARCH(1,1)", "t")'
+    m["H1"] = "=VOLFIT(rets, Data!D1)"
+    m["O1"] = "=VOLFIT(Data!B2:B301)"
+    m["V1"] = '=VOLFORECAST(Data!$A$2:$A$301, A1#, 3)'
+    m["AC1"] = "=VOLRISK(rets, A1#, 0.99, 2)"
+    m["AJ1"] = "=VOLRISK(rets, A1#, Data!F1)"
+    m["AQ1"] = '=VOLFIT(Data!A2:A301, Data!E1)'
+    m["AX1"] = '=VOLFIT(Data!A2:A301, "GARCH(1,1)", "normal", TRUE)'
+    m["BE1"] = '=VOLFORECAST(Data!A2:A301, VOLFIT(Data!A2:A301), 2)'
+    m["BL1"] = '=_xludf.VOLFORECAST(rets, A1#, 1.5)'
+    path = tmp_path / "calls.xlsx"
+    wb.save(path)
+
+    direct = Workbook(path)
+    assert direct._direct_call("Model Sheet", m["A1"].value) is not None
+    assert direct._direct_call("Model Sheet", m["BE1"].value) is None  # nested: the engine's
+    direct.evaluate_all()
+    monkeypatch.setenv("VOLCAST_ENGINE_CALLS", "1")
+    engine = Workbook(path).evaluate_all()
+
+    def same(a, b):
+        if type(a) is not type(b):
+            return False
+        if isinstance(a, float) and math.isnan(a):
+            return math.isnan(b)
+        return a == b
+
+    assert direct.values.keys() == engine.values.keys()
+    for k, v in engine.values.items():
+        assert same(direct.values[k], v), (k, direct.values[k], v)
+    assert direct.spills == engine.spills
+    assert direct.collect_errors().error_cells == engine.collect_errors().error_cells
+    assert direct.reads == engine.reads

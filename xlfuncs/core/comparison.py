@@ -28,7 +28,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
+from ._lazy import lazy_module
+
+stats = lazy_module("scipy.stats")
 
 from .errors import InputError, value_words
 

@@ -33,7 +33,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
+from ._lazy import lazy_module
+
+stats = lazy_module("scipy.stats")
 
 from .errors import InputError, describe_value, value_words
 

@@ -26,14 +26,17 @@ import warnings
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
 
+from ._lazy import lazy_module
 from .distributions import Distribution, get_distribution
 from .errors import ConvergenceError, InputError, describe_value
 from .families import FAMILIES, stationary
 from .likelihood import Likelihood
 from .mean import layout
 from .spec import MAX_ORDER, ModelSpec, Options, parse_model, parse_options
+
+optimize = lazy_module("scipy.optimize")  # only for the L-BFGS-B fallback
 
 __all__ = ["FitResult", "fit", "evaluate", "persistence_of", "check_params", "check_intercept", "free_scores"]
 

@@ -33,7 +33,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.signal import lfilter
+from ._lazy import lfilter
 
 from .errors import InputError
 

@@ -9,8 +9,11 @@ NumPy arrays.
 This is a fast path, not a second engine.  It takes only what it can compute exactly as the
 formula engine (:mod:`xlfuncs.headless.engine`) would:
 
-* inputs that are floats (rows with a blank, a text, a boolean, an integer or an error in any
-  input are left to the engine, which knows Excel's rules for them);
+* inputs that are floats (rows with a blank, a text, a boolean or an error in any input are left
+  to the engine, which knows Excel's rules for them); a whole number (a workbook gives one back
+  as an int) is taken as its float where the formula only computes with it (arithmetic, the
+  functions, comparisons: the engine turns it into a float there too) and left to the engine
+  where the formula may show it as it is (=A3, =+A3, a branch of IF or IFERROR: ``raw``);
 * the operators ``+ - * / ^ %``, unary minus and plus, the comparisons between numbers (and
   ``=``/``<>`` of a number with a text literal, FALSE/TRUE whatever the text), and the functions
   IF, IFERROR, OR, AND, ISNUMBER, ISBLANK, LN, LOG10, EXP, SQRT, ABS, SIGN, POWER;
@@ -204,6 +207,22 @@ class _Parser:
         raise Unsupported("unexpected token")
 
 
+def _raw_refs(node) -> set:
+    """Indices of the references whose value may be the formula's result as read: the reference
+    itself, under a unary plus, or a branch of IF or IFERROR.  Every other node computes a number
+    or a truth value from its operands."""
+    tag = node[0]
+    if tag == "ref":
+        return {node[1]}
+    if tag == "pos":
+        return _raw_refs(node[1])
+    if tag == "call" and node[1] == "IF":
+        return set().union(*(_raw_refs(a) for a in node[2][1:]))
+    if tag == "call" and node[1] == "IFERROR":
+        return set().union(*(_raw_refs(a) for a in node[2]))
+    return set()
+
+
 class ColumnShape:
     """One formula shape parsed once: its references and the digit runs that are their rows.
 
@@ -226,6 +245,8 @@ class ColumnShape:
         used = {r[2] for r in self.refs}
         self.fixed = [i for i in range(len(runs)) if i not in used]
         self.n_runs = len(runs)
+        # the references whose value the formula may give as it is (not computed with)
+        self.raw = _raw_refs(self.tree)
 
     # ------------------------------------------------------------------ evaluation
     def evaluate(self, columns: list) -> tuple:

@@ -86,8 +86,6 @@ def read_cells(path) -> dict:
     formula as its text "=...", numbers, strings, booleans, dates), ``arrays`` maps (row, col) to
     the ref of an array formula, and ``marked`` lists the cells that carry cell metadata
     (``cm``).  Raises :class:`NotPlain` where openpyxl must read the package."""
-    from openpyxl.reader.strings import read_string_table
-
     label = Path(path).name
     try:
         z = zipfile.ZipFile(path)
@@ -133,17 +131,70 @@ def read_cells(path) -> dict:
         for r in rels:
             part = _resolve(wb_part, r.get("Target", ""))
             if r.get("Type") == _STRINGS_REL and part in pkg:
-                with z.open(pkg.infos[part]) as fh:
-                    strings = read_string_table(fh)
+                strings = _plain_strings(pkg[part])
+                if strings is None:
+                    from openpyxl.reader.strings import read_string_table
+
+                    with z.open(pkg.infos[part]) as fh:
+                        strings = read_string_table(fh)
             elif r.get("Type") == _STYLES_REL and part in pkg:
+                data = pkg[part]
+                if _general_styles_only(data):
+                    continue  # no style shows a date or a time
                 from openpyxl.styles.stylesheet import Stylesheet
 
-                sheet_styles = Stylesheet.from_tree(ET.fromstring(pkg[part]))
+                sheet_styles = Stylesheet.from_tree(ET.fromstring(data))
                 dates, deltas = set(sheet_styles.date_formats), set(sheet_styles.timedelta_formats)
         out = {}
         for title, part in sheets:
             out[title] = _read_sheet(title, _text(pkg, part), strings, dates, deltas)
         return {"titles": titles, "names": names, "sheets": out}
+
+
+_SST_ROOT_RE = re.compile(r"<sst\b[^>]*\sxmlns\s*=\s*[\"']" + re.escape(_MAIN) + "[\"']")
+_SI_RE = re.compile(r'<si><t(?: xml:space="preserve")?>([^<]*)</t></si>')
+_STYLES_ROOT_RE = re.compile(r"<styleSheet\b[^>]*\sxmlns\s*=\s*[\"']" + re.escape(_MAIN) + "[\"']")
+_CELLXFS_RE = re.compile(r"<cellXfs\b[^>]*?(?:/>|>(.*?)</cellXfs>)", re.S)
+_XF_RE = re.compile(r"<xf\b([^>]*)>")
+_NUMFMT_ID_RE = re.compile(r"""\bnumFmtId\s*=\s*["'](\d+)["']""")
+_CUSTOM_ZERO_RE = re.compile(r"""<numFmt\b[^>]*\bnumFmtId\s*=\s*["']0+["']""")
+
+
+def _plain_strings(data: bytes):
+    """The shared strings as openpyxl reads them, where each is one plain run (``<si><t>``
+    text ``</t></si>``, the form openpyxl and Excel write for unformatted text); None for any
+    other table (rich text, phonetic runs, another namespace form, carriage returns, which XML
+    reading turns into line feeds), which openpyxl's reader then reads."""
+    try:
+        xml = data.decode("utf-8")
+    except UnicodeDecodeError:
+        return None
+    if not _SST_ROOT_RE.search(xml[:1000]) or "\r" in xml or "<!--" in xml or "<![CDATA[" in xml:
+        return None
+    found = _SI_RE.findall(xml)
+    if len(found) != xml.count("<si"):
+        return None
+    # as openpyxl's read_string_table: the text, then "x005F_" removed
+    return [_unescape(t).replace("x005F_", "") for t in found]
+
+
+def _general_styles_only(data: bytes) -> bool:
+    """Whether every cell style of the styles part has the General number format (id 0, not
+    redefined), so that no number reads as a date or a time; False where that is not certain."""
+    try:
+        xml = data.decode("utf-8")
+    except UnicodeDecodeError:
+        return False
+    if not _STYLES_ROOT_RE.search(xml[:1000]) or "<!--" in xml or "<![CDATA[" in xml or _CUSTOM_ZERO_RE.search(xml):
+        return False
+    m = _CELLXFS_RE.search(xml)
+    if m is None:
+        return False
+    for xf in _XF_RE.finditer(m.group(1) or ""):
+        n = _NUMFMT_ID_RE.search(xf.group(1))
+        if n is not None and int(n.group(1)) != 0:
+            return False
+    return True
 
 
 def _read_sheet(title, xml: str, strings, dates, deltas):
@@ -283,7 +334,7 @@ def _quick_cells(body: str, strings, dates, deltas):
         if col > max_col:
             max_col = col
         if has_f:
-            text = "=" + _unescape(ftext)
+            text = "=" + (_unescape(ftext) if "&" in ftext else ftext)
             if text == "=":
                 return None
             cells[(row, col)] = text

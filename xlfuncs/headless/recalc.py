@@ -21,7 +21,7 @@ import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .engine import ExcelError, FormulaError, calls_ours, compile_formula, top_level_call
+from .engine import _OURS_RE, ExcelError, FormulaError, calls_ours, compile_formula, top_level_call
 
 __all__ = ["RecalcError", "Workbook", "recalc", "RecalcReport"]
 
@@ -54,8 +54,14 @@ def _col_letters(n: int) -> str:
     return out
 
 
+_LETTERS: dict = {}
+
+
 def cell_name(row: int, col: int) -> str:
-    return f"{_col_letters(col)}{row}"
+    letters = _LETTERS.get(col)
+    if letters is None:
+        letters = _LETTERS[col] = _col_letters(col)
+    return f"{letters}{row}"
 
 
 def _parse_cell(ref: str):
@@ -130,9 +136,19 @@ class Workbook:
         self.max_row: dict = {}
         self.max_col: dict = {}
         residue = []
+        inputs, formulas = self.inputs, self.formulas
         for t, (max_row, max_col, cells) in sheets.items():
             self.max_row[t] = max_row
             self.max_col[t] = max_col
+            if type(cells) is dict:  # the fast reader's cells, none an array formula: (row, col) -> value
+                for (row, column), v in cells.items():
+                    if type(v) is float:
+                        inputs[(t, row, column)] = v
+                    elif isinstance(v, str) and v.startswith("=") and len(v) > 1:
+                        formulas[(t, row, column)] = v
+                    else:
+                        inputs[(t, row, column)] = _constant(v)
+                continue
             for row, column, v, array_ref in cells:
                 key = (t, row, column)
                 if array_ref is not None:
@@ -168,6 +184,7 @@ class Workbook:
         self._open_reads: dict = {}  # anchor -> empty cells read while it was being computed
         self._reported: set = set()  # addresses already in report.error_cells
         self.reads: list = []  # (formula key, sheet, r1, c1, r2, c2) read by formulas of ours
+        self._column_rest: set = set()  # cells of a NumPy column left to the engine (blanks, texts, errors)
 
     @property
     def book(self):
@@ -245,17 +262,21 @@ class Workbook:
         self._stack.add(key)
         try:
             text = self.formulas[key]
-            try:
-                compiled, names = self._compiled_for(key, text)
-            except FormulaError as exc:
-                raise RecalcError(f"{where}: {exc}") from None
-            self._text = text
-            outer, self._reader = self._reader, (key if calls_ours(text) else None)
-            try:
-                args = [self._read(sheet, name, where) for name in names]
-            finally:
-                self._reader = outer
-            result = compiled(*args)
+            direct = self._direct_call(sheet, text) if key in self._anchors or key in self.arrays else None
+            if direct is not None:
+                result = self._call_direct(key, text, where, *direct)
+            else:
+                try:
+                    compiled, names = self._compiled_for(key, text)
+                except FormulaError as exc:
+                    raise RecalcError(f"{where}: {exc}") from None
+                self._text = text
+                outer, self._reader = self._reader, (key if calls_ours(text) else None)
+                try:
+                    args = [self._read(sheet, name, where) for name in names]
+                finally:
+                    self._reader = outer
+                result = compiled(*args)
         finally:
             self._stack.discard(key)
         if key in self.arrays:
@@ -265,6 +286,87 @@ class Workbook:
         else:
             self.values[key] = _top_left(result)
         return self.values[key]
+
+    def _direct_call(self, sheet, text: str):
+        """(function name, arguments) of a formula that is one call of ours whose arguments are
+        all references, defined names, string literals, TRUE/FALSE or unsigned numbers, such as
+        =VOLFIT(Data!C3:C2502, "GARCH(1,1)", "t"); None for any other formula (the engine's).
+
+        Each argument is ("ref", engine name) or ("value", value): the values the engine would
+        pass (a whole number as an int, a decimal as a float, as its parser gives them)."""
+        if os.environ.get("VOLCAST_ENGINE_CALLS"):
+            return None
+        name = top_level_call(text)
+        if name is None:
+            return None
+        m = _OURS_RE.match(text)
+        if m is None:
+            return None
+        body = text[m.end():].rstrip()
+        if not body.endswith(")"):
+            return None
+        body = body[:-1]
+        masked = _STRING_RE.sub(lambda s: "_" * len(s.group(0)), body)
+        if "(" in masked or ")" in masked or "{" in masked:
+            return None
+        args, start = [], 0
+        for i, ch in enumerate(masked + ","):
+            if ch != ",":
+                continue
+            piece = body[start:i].strip()
+            start = i + 1
+            if not piece:
+                return None  # a missing argument: the engine's rules
+            if piece.startswith('"'):
+                if not _STRING_RE.fullmatch(piece):
+                    return None
+                args.append(("value", piece[1:-1].replace('""', '"')))
+            elif piece.upper() in ("TRUE", "FALSE"):
+                args.append(("value", piece.upper() == "TRUE"))
+            elif _INT_RE.fullmatch(piece):
+                args.append(("value", int(piece)))
+            elif _DECIMAL_RE.fullmatch(piece):
+                args.append(("value", float(piece)))
+            elif _REF_ARG_RE.fullmatch(piece):
+                args.append(("ref", _engine_name(piece)))
+            elif _NAME_ARG_RE.fullmatch(piece) and self._name_target(sheet, piece) is not None:
+                args.append(("ref", piece.upper()))
+            else:
+                return None
+        return name, args
+
+    def _call_direct(self, key, text, where, name, args):
+        """A call of ours evaluated as the engine evaluates it, without the engine: each
+        reference read (once, in the engine's order: sorted by name), passed as rows of plain values
+        (a single cell as [[v]], an error as its literal), the result read back as the engine's."""
+        from .. import sheet as functions
+        from .engine import _as_array, _scalar_cell, from_engine
+
+        sheet = key[0]
+        self._text = text
+        outer, self._reader = self._reader, key
+        try:
+            read = {}
+            for v in sorted({v for kind, v in args if kind == "ref"}):  # in the engine's order of its inputs
+                read[v] = self._read(sheet, v, where)
+        finally:
+            self._reader = outer
+        values = []
+        for kind, v in args:
+            if kind == "value":
+                values.append(v)
+                continue
+            got = read[v]
+            rows = got if isinstance(got, list) else [[got]]
+            if {type(c) for row in rows for c in row} <= _PLAIN:
+                values.append([list(row) for row in rows] if isinstance(got, list) and values and any(
+                    x is got for x in values) else rows)
+            else:
+                values.append([[c if type(c) in _PLAIN else _scalar_cell(c) for c in row] for row in rows])
+        try:
+            return from_engine(_as_array(getattr(functions, name)(*values)))
+        except Exception:  # noqa: BLE001 - as the engine: a failure is #VALUE!
+            return ExcelError("#VALUE!")
 
     def _read(self, sheet, name: str, where: str):
         target_name = self._name_target(sheet, name)
@@ -349,7 +451,29 @@ class Workbook:
     def _block(self, sheet, r1, c1, r2, c2):
         if self._reader is not None and (r2 > r1 or c2 > c1):
             self.reads.append((self._reader, sheet, r1, c1, r2, c2))
-        return [[self.value((sheet, r, c)) for c in range(c1, c2 + 1)] for r in range(r1, r2 + 1)]
+        # self.value of each cell, with the common cases (a value computed, a constant) inline
+        values, inputs, formulas, value = self.values, self.inputs, self.formulas, self.value
+        if c1 == c2:  # one column (the common case): the values computed read at once
+            column = [values.get((sheet, r, c1), _MISSING) for r in range(r1, r2 + 1)]
+            for i, v in enumerate(column):
+                if v is _MISSING:
+                    k = (sheet, r1 + i, c1)
+                    v = value(k) if k in formulas else inputs.get(k, _MISSING)
+                    column[i] = value(k) if v is _MISSING else v
+            return [[v] for v in column]
+        out = []
+        for r in range(r1, r2 + 1):  # row by row, as Excel reads a range
+            row = []
+            for c in range(c1, c2 + 1):
+                k = (sheet, r, c)
+                v = values.get(k, _MISSING)
+                if v is _MISSING:
+                    v = value(k) if k in formulas else inputs.get(k, _MISSING)
+                    if v is _MISSING:
+                        v = value(k)
+                row.append(v)
+            out.append(row)
+        return out
 
     def _batch_elementwise(self, min_size: int = 16, vector: bool = True):
         """Evaluate a column of same-shape element-wise formulas over constants in one call.
@@ -373,8 +497,10 @@ class Workbook:
             if not tokens or any(":" in t or t.endswith("#") for _, _, t in tokens):
                 continue
             groups.setdefault(_template(text, tokens, key[1], key[2]), []).append((key, text, tokens))
+        rest = self._column_rest
         for members in groups.values():
-            if len(members) < min_size:
+            # a group this small is batched only as what the NumPy columns left of a larger one
+            if len(members) < min_size and not all(m[0] in rest for m in members):
                 continue
             key0, text0, tokens0 = members[0]
             if function_names(text0) & _LOGICAL:
@@ -431,10 +557,13 @@ class Workbook:
 
         Cells are grouped by their text with the digits masked (no parsing per cell); one member
         is parsed, and each member's references are read from its own digit runs.  Rows that read
-        anything but a float constant (a blank, a text, a formula, a cell a spill may fill), and
-        rows whose evaluation meets an error, are left to the engine's batch and to the cell by
-        cell evaluation.  Before a column's results are kept, three of its rows are evaluated by
-        the engine too and must agree in type and value; otherwise the column is left whole.
+        anything but a number constant (a blank, a text, a formula, a cell a spill may fill; a
+        whole number where the formula may show it as it is, ``ColumnShape.raw``), and rows whose
+        evaluation meets an error, are left to the engine's batch (which takes them whatever
+        their number) and to the cell by cell evaluation.  The formula engine is not loaded for
+        the columns this route answers whole; with ``VOLCAST_CHECK_COLUMNS=1`` three rows of each
+        column are evaluated by the engine too and must agree in type and value, or the column
+        is left whole (``tests/test_columns.py`` compares the two routes cell by cell).
         """
         from .columns import ColumnShape, Unsupported, shape_key
 
@@ -467,9 +596,12 @@ class Workbook:
                     break
                 targets.append((title, col))
             else:
-                runs = np.array([[int(d) for d in digits.findall(self.formulas[k])] for k in keys], dtype=np.int64)
-                if runs.ndim != 2 or runs.shape[1] != shape.n_runs:
+                # the members share their text but for the digit runs (shape_key), so they hold as
+                # many runs each: read all at once, one row of runs per member
+                flat = digits.findall("\x00".join([self.formulas[k] for k in keys]))
+                if len(flat) != len(keys) * shape.n_runs:
                     continue
+                runs = np.fromiter(map(int, flat), dtype=np.int64, count=len(flat)).reshape(len(keys), shape.n_runs)
                 if shape.fixed and not (runs[:, shape.fixed] == runs[0, shape.fixed]).all():
                     continue
                 self._vector_group(keys, shape, targets, runs, spilling)
@@ -479,25 +611,29 @@ class Workbook:
 
         from .columns import Unsupported
 
-        inputs, formulas = self.inputs, self.formulas
+        inputs = self.inputs  # constants only: a formula cell is never among them
         n = len(keys)
         ok = np.ones(n, dtype=bool)
         columns, seen = [], {}
-        for (title, col), (_, _, run) in zip(targets, shape.refs):
-            if (title, col, run) in seen:  # the same cell read twice (=IF(A3="","",LN(A3/A2)))
-                columns.append(seen[(title, col, run)])
-                continue
-            rows = runs[:, run].tolist()
-            values = np.empty(n)
-            for i, r in enumerate(rows):
-                v = inputs.get((title, r, col))
-                if type(v) is float and (title, r, col) not in formulas:
-                    values[i] = v
-                else:  # a blank, a text, an int, a bool, an error, a formula: the engine's rules
-                    ok[i] = False
-                    values[i] = 1.0
+        for idx, ((title, col), (_, _, run)) in enumerate(zip(targets, shape.refs)):
+            hit = seen.get((title, col, run))  # the same cell read twice (=IF(A3="","",LN(A3/A2)))
+            if hit is None:
+                got = list(map(inputs.get, [(title, r, col) for r in runs[:, run].tolist()]))  # a formula is no input
+                if set(map(type, got)) == {float}:
+                    floats = np.ones(n, dtype=bool)
+                    hit = np.array(got, dtype=float), floats, floats
+                else:
+                    floats = np.fromiter((type(v) is float for v in got), dtype=bool, count=n)  # a blank, a text, a bool, an error, a formula: the engine's rules
+                    # a whole number within the doubles' exact range counts as its float where it
+                    # is only computed with (ColumnShape.raw)
+                    whole = np.fromiter((type(v) is int and -_EXACT < v < _EXACT for v in got), dtype=bool, count=n)
+                    values = np.array([v if type(v) is float else float(v) if w else 1.0 for v, w in zip(got, whole)],
+                                      dtype=float)
+                    hit = values, floats, floats | whole
+                seen[(title, col, run)] = hit
+            values, floats, numbers = hit
+            ok &= floats if idx in shape.raw else numbers
             columns.append(values)
-            seen[(title, col, run)] = values
         if ok.sum() < 1:
             return
         try:
@@ -508,31 +644,44 @@ class Workbook:
         rows = np.flatnonzero(ok)
         if not len(rows):
             return
-        # three rows through the engine: the same type and value, or the column is left whole
+        if os.environ.get("VOLCAST_CHECK_COLUMNS"):
+            # three rows through the engine too, which must agree in type and value, or the column
+            # is left whole: a check of this route against the engine while developing it (the
+            # tests compare the two cell by cell); off by default, as it loads the engine
+            if not self._engine_agrees(keys, out, rows):
+                return
+        values = self.values
+        if len(rows) == n and not any(v != v for v in out):  # every row, no NaN for _cell_value to turn
+            values.update(zip(keys, out))
+        else:
+            for i in rows.tolist():
+                values[keys[i]] = _cell_value(out[i])
+        if len(rows) < n:
+            self._column_rest.update(keys[i] for i in np.flatnonzero(~ok).tolist())
+
+    def _engine_agrees(self, keys, out, rows) -> bool:
         try:
             compiled = compile_formula(self.formulas[keys[0]])
         except FormulaError:
-            return
+            return False
         first = list(dict.fromkeys(_engine_name(t) for _, _, t in _ref_tokens(self.formulas[keys[0]])))
         if sorted(first) != sorted(compiled.inputs):
-            return
+            return False
         order = [first.index(name) for name in compiled.inputs]
         for i in {int(rows[0]), int(rows[len(rows) // 2]), int(rows[-1])}:
             key = keys[i]
             mine = list(dict.fromkeys(t for _, _, t in _ref_tokens(self.formulas[key])))
             if len(mine) != len(first):
-                return
+                return False
             try:
                 args = [self._read(key[0], mine[j], key[0]) for j in order]
             except RecalcError:
-                return
+                return False
             mine = _cell_value(out[i])
             theirs = _cell_value(_top_left(compiled(*args)))
             if type(mine) is not type(theirs) or mine != theirs:
-                return
-        values = self.values
-        for i in rows.tolist():
-            values[keys[i]] = _cell_value(out[i])
+                return False
+        return True
 
     def _compiled_for(self, key, text):
         """Compile once per formula *shape*: a column of =LN(B3/B2)*100, =LN(B4/B3)*100, ...
@@ -658,6 +807,17 @@ class Workbook:
                 self._error(f"{key[0]}!{cell_name(key[1], key[2])}", shown)
         return self.report
 
+
+# the arguments a call of ours is evaluated with directly (Workbook._direct_call): a cell or
+# range reference (a sheet before it, a spill after it), a defined name, whole and decimal numbers
+_REF_ARG_RE = re.compile(r"(?:(?:'(?:[^']|'')+'|[A-Za-z0-9_.]+)!)?\$?[A-Za-z]{1,3}\$?\d+(?::\$?[A-Za-z]{1,3}\$?\d+)?#?")
+_NAME_ARG_RE = re.compile(r"[A-Za-z_\\][A-Za-z0-9_.]*")
+_INT_RE = re.compile(r"\d+")
+_DECIMAL_RE = re.compile(r"\d+\.\d+")
+
+_MISSING = object()
+_EXACT = 2**53  # whole numbers below this in size are exactly doubles
+_PLAIN = frozenset((float, int, str, bool, type(None)))  # cell values passed to our functions as they are
 
 _ELEMENTWISE = {"LN", "LOG", "LOG10", "EXP", "SQRT", "ABS", "IF", "IFERROR", "ROUND", "ISNUMBER", "ISBLANK", "SIGN", "POWER"}
 _LOGICAL = {"OR", "AND"}
@@ -799,8 +959,14 @@ def _openpyxl_cells(ws):
 
 
 def _fast_cells(cells, arrays):
-    for (row, column), v in sorted(cells.items()):
-        yield row, column, v, arrays.get((row, column))
+    """The fast reader's cells in row-major order: as a dict where no array formula is among
+    them (read as they are by Workbook), else as (row, column, value, array ref or None)."""
+    keys = list(cells)
+    if any(a > b for a, b in zip(keys, keys[1:])):  # a package not written in row order
+        cells = dict(sorted(cells.items()))
+    if not arrays:
+        return cells
+    return ((row, column, v, arrays.get((row, column))) for (row, column), v in cells.items())
 
 
 def _constant(v):
@@ -895,10 +1061,6 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
     ``before_write(workbook)``, if given, runs once every value is computed and may set constant
     cells of ``workbook.book`` (the estimate history does).
     """
-    from openpyxl.worksheet.formula import ArrayFormula
-
-    from .xlsxpost import store_values
-
     src = Path(src)
     if not src.exists():
         raise RecalcError(f"{src}: no such file")
@@ -919,6 +1081,10 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
     elif not values_only and wb.fast_read and not os.environ.get("VOLCAST_OPENPYXL_WRITE"):
         if _write_patched(wb, src, dst, report):
             return dst, report
+    from openpyxl.worksheet.formula import ArrayFormula
+
+    from .xlsxpost import store_values
+
     book = wb.book
     book.calculation.fullCalcOnLoad = False
     # Excel recalculates a whole file on load when its calcId is older than Excel's own (from

@@ -186,7 +186,13 @@ def _ref_name(row: int, col: int) -> str:
     return f"{letters}{row}"
 
 
+_CANON_REF_RE = re.compile(r"([A-Z]{1,3})([1-9][0-9]{0,6})")
+
+
 def _norm_ref(text) -> str:
+    m = _CANON_REF_RE.fullmatch(text) if type(text) is str else None
+    if m is not None and int(m.group(2)) <= _MAX_ROW and (len(m.group(1)) < 3 or m.group(1) <= "XFD"):
+        return text  # already canonical: upper case, no $, no leading zero, inside the sheet
     return _ref_name(*_parse_ref(text))
 
 
@@ -219,6 +225,11 @@ def _encode_value(where: str, value) -> tuple[str | None, str | None]:
     """(type attribute or None, ``<v>`` text or None) for one value; ValueError if it cannot be stored."""
     if value is None:
         return None, None
+    if type(value) is float:  # the common case, as numbers.Real below
+        if not math.isfinite(value):
+            raise ValueError(f"{where}: {value!r} cannot be stored in a cell; "
+                             "store an error such as ExcelError('#NUM!') instead")
+        return None, float.__repr__(value)
     if isinstance(value, ExcelError):
         return "e", value.code
     if isinstance(value, bool) or getattr(getattr(value, "dtype", None), "kind", None) == "b":
@@ -471,6 +482,10 @@ _IS_RE = re.compile(r"<is(?=[\s/>])[^>]*?(?:/>|>.*?</is>)", re.S)
 _ROOT_RE = re.compile(r"<worksheet\b[^>]*\sxmlns\s*=\s*[\"']" + re.escape(_MAIN) + "[\"']")
 
 
+_PLAIN_F_CELL_RE = re.compile(r'<c r="([A-Z]{1,3}[0-9]{1,7})"(?: s="([0-9]+)")?(?: t="([a-z]+)")?>'
+                              r'(<f>[^<]*</f>)(?:<v>[^<]*</v>|<v\s*/>)?</c>')
+
+
 def _attrs(text: str) -> dict[str, str]:
     """Attributes in document order, values as written (still escaped)."""
     out = {}
@@ -576,8 +591,33 @@ def _edit_sheet(title: str, part: str, texts, values: dict, dynamic: dict, absen
                 v_xml = existing.group(0)
         return f"<c{_attrs_text(attrs)}>{f_xml}{v_xml}{rest}</c>"
 
+    plain = [0]
+
+    def edit_plain(m: re.Match) -> str:
+        # a formula cell as openpyxl writes it (r, s, t, an ordinary formula, a value), edited
+        # as edit() edits it, its attributes read without the general parser
+        plain[0] += 1
+        ref = m.group(1)
+        if ref not in values:
+            return m.group(0)
+        done.add(ref)
+        kind, text = values[ref]
+        style = "" if m.group(2) is None else f' s="{m.group(2)}"'
+        kind = "" if kind is None else f' t="{kind}"'
+        v_xml = "" if text is None else f"<v>{text}</v>"
+        return f'<c r="{ref}"{style}{kind}>{m.group(4)}{v_xml}</c>'
+
     def edit_rows(block: str) -> str:
-        return _CELL_RE.sub(edit, block) if "<f" in block else block  # only formula cells change
+        if "<f" not in block:  # only formula cells change
+            return block
+        if not dynamic:
+            # every formula cell of the block in openpyxl's form (as many as "<f" is found; a
+            # "<c r=" is always a cell's start, text holding no "<"): edited in one pass
+            plain[0] = 0
+            out = _PLAIN_F_CELL_RE.sub(edit_plain, block)
+            if plain[0] == block.count("<f"):
+                return out
+        return _CELL_RE.sub(edit, block)
 
     yield head[:m.end()]
     tail = ""
@@ -720,6 +760,17 @@ def _umask() -> int:
     return mask
 
 
+def _fast_deflate(entry) -> None:
+    """Deflate ``entry`` at level 1 (zipfile's own attribute for it: ``compress_level`` from
+    Python 3.13, ``_compresslevel`` before)."""
+    for attr in ("compress_level", "_compresslevel"):
+        try:
+            setattr(entry, attr, 1)
+            return
+        except AttributeError:
+            continue
+
+
 def _write_zip(pkg: _Package, dst: Path, changed: dict, edited: dict, finish) -> None:
     """Copy every member in order with its compression, replacing changed ones; new ones at the end.
 
@@ -735,13 +786,16 @@ def _write_zip(pkg: _Package, dst: Path, changed: dict, edited: dict, finish) ->
     fd, tmp = tempfile.mkstemp(suffix=".xlsx", prefix=".xlsxpost-", dir=dst.parent)
     os.close(fd)
     try:
-        with zipfile.ZipFile(tmp, "w") as out:
+        # deflate at level 1 (_fast_deflate): several times faster than the default level on a
+        # large sheet, for a slightly larger file (the parts are re-compressed as they are copied)
+        with zipfile.ZipFile(tmp, "w", compresslevel=1) as out:
             for info in infos:
                 entry = zipfile.ZipInfo(info.filename, info.date_time)
                 entry.compress_type = info.compress_type
                 entry.external_attr = info.external_attr
                 entry.create_system = info.create_system
                 entry.comment = info.comment
+                _fast_deflate(entry)
                 data = changed.get(info.filename)
                 edit = edited.get(info.filename)
                 if data is None and edit is None and info.file_size == 0:  # empty parts, folders
@@ -799,8 +853,9 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
     if dst.resolve() == src.resolve() or (dst.exists() and os.path.samefile(src, dst)):
         raise ValueError(f"{dst}: refusing to write over the input; choose another output path")
     dynamic = dynamic or {}
-    encoded = {key: _encode_value(f"value for {key[0]}!{key[1]}" if isinstance(key, tuple) and len(key) == 2
-                                  else f"value for {key!r}", v)
+    encoded = {key: (None, float.__repr__(v)) if type(v) is float and math.isfinite(v) else  # the common case
+               _encode_value(f"value for {key[0]}!{key[1]}" if isinstance(key, tuple) and len(key) == 2
+                             else f"value for {key!r}", v)
                for key, v in values.items()}
     try:
         z = zipfile.ZipFile(src)

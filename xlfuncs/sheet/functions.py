@@ -44,7 +44,6 @@ from ..core.stability import stability as core_stability
 from ..core.errors import VolcastError
 from ..core.forecast import DEFAULT_PATHS, DEFAULT_SEED
 from ..core.simulate import simulate
-from ..core.risk import risk as core_risk, risk_paths
 from ..core.mean import layout, regressor_list
 from .cells import (SheetError, as_rows, describe, excerpt, float_arg, future_block, int_arg, is_blank, is_error_text,
                     regressors_block, returns_column, sheet_function, shown, text_arg)
@@ -402,7 +401,11 @@ def VOLRISK(returns, fit, level=None, horizon=None, regressors=None, future=None
     table, data, result, X = _table_and_returns(returns, fit, regressors, "as the fifth argument, regressors")
     Xf = _future(future, table.spec, h, True, "VOLRISK")
     if h > 1 or table.spec.family.simulated_forecast:
+        from ..core.risk import risk_paths  # here: its module imports scipy.integrate (and scipy.optimize)
+
         check_draws(table.options.paths or (risk_paths(h) if h > 1 else DEFAULT_PATHS), h, "VOLRISK")
+    from ..core.risk import risk as core_risk
+
     rk = core_risk(result, data.values, lv, h, paths=table.options.paths, seed=table.options.seed, X=X, Xf=Xf)
     # a figure whose expectation does not exist (EGARCH with t shocks beyond one period) says so
     es = f"infinite: ES needs E[sigma], and {rk.es_note}" if rk.es_note else float(rk.es)

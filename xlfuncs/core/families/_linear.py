@@ -29,15 +29,14 @@ import math
 import operator
 
 import numpy as np
-from scipy.signal import lfilter
 
+from .._lazy import lfilter
+# SciPy's C filter without lfilter's argument checks (the recursions call it thousands of times),
+# loaded without importing scipy.signal; None in a SciPy without it
+from .._lazy import raw_linear_filter as _raw_filter
 from ..errors import InputError
 from .base import UNIT_TOL, VarianceFamily
 
-try:  # SciPy's C filter without lfilter's argument checks: the recursions call it thousands of times
-    from scipy.signal._sigtools import _linear_filter as _raw_filter
-except ImportError:  # pragma: no cover - a SciPy without it
-    _raw_filter = None
 _ONE = np.array([1.0])
 
 

@@ -38,12 +38,14 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import integrate, special
-from scipy.signal import lfilter
+from scipy import special
 
+from .._lazy import lazy_module, lfilter
 from ..errors import InputError
 from ._linear import linear_filter
 from .base import UNIT_TOL, VarianceFamily
+
+integrate = lazy_module("scipy.integrate")
 
 __all__ = ["Aparch", "power_news_moment", "abs_power_moment"]
 

@@ -97,7 +97,7 @@ from functools import lru_cache
 
 import numpy as np
 from scipy import fft as sfft
-from scipy.signal import lfilter
+from .._lazy import lfilter
 
 from ..errors import InputError
 from .base import VarianceFamily
