@@ -81,7 +81,8 @@ def test_generated_layouts_equal_cell_by_cell_evaluation(tmp_path, shape, rows, 
     values = data.draw(st.lists(_VALUES, min_size=rows + 3, max_size=rows + 3))
     mostly_floats = data.draw(st.booleans())
     if mostly_floats:  # most real columns are numbers: a few odd cells among floats (not whole
-        # numbers, which a workbook gives back as ints and the fast route leaves to the engine)
+        # numbers: a workbook gives those back as ints, which the fast route takes only where the
+        # formula computes with them, and leaves to the engine where a formula shows them as they are)
         values = [v if i % 7 == 3 else 50.1 + (i * 37 % 11) * 1.25 for i, v in enumerate(values)]
     wb = openpyxl.Workbook()
     ws = wb.active
