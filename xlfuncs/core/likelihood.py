@@ -183,6 +183,8 @@ class Likelihood:
         eta = theta[self.k - len(self.dist.param_names):]
         with np.errstate(all="ignore"):
             if not sig2.min() > 0:  # a variance at or below zero, or nan
+                if fisher:
+                    return math.nan, np.full(self.k, np.nan), np.full((self.k, self.k), np.nan)
                 if total:
                     return math.nan, np.full(self.k, np.nan)
                 return np.full(self.nobs, np.nan), np.full((self.nobs, self.k), np.nan)

@@ -115,8 +115,14 @@ class VarianceFamily:
     #: how much harder one estimation is than a linear family's with as many parameters (the
     #: worksheet bounds weigh candidates by it; measured by benchmarks/bounds_timing.py)
     cost_weight: int = 1
+    #: the same for its in-mean (-M) models (None: ``cost_weight``), which run the recursion one
+    #: observation at a time with numerical derivatives whatever the family's own derivatives
+    in_mean_cost_weight: int | None = None
     #: the most parameters a worksheet call estimates for this family (None: the general bound)
     max_fit_params: int | None = None
+    #: ... and for its in-mean (-M) models, whose recursion runs one observation at a time with
+    #: numerical derivatives (None: the in-mean bound)
+    max_in_mean_fit_params: int | None = None
     #: multi-step variance forecasts by seeded simulation (no closed form)
     simulated_forecast: bool = False
     #: the recursion is in the log of the variance, so omega may take any sign

@@ -680,16 +680,17 @@ class _SecondState:
 
 class Egarch(VarianceFamily):
     key = "egarch"
-    # the worksheet bounds (sheet/bounds.py) still weigh EGARCH as the numerically differentiated,
-    # simulated-forecast family it was (cost 25, forecasts as simulations): conservative now that
-    # fits cost about what a GARCH's does and forecasts are exact; re-measure there before lowering
-    cost_weight = 25
+    # the worksheet bounds (sheet/bounds.py; measured by benchmarks/bounds_timing.py): with the
+    # compiled gradient and Hessian a fit costs 1-3 times a GARCH fit with as many parameters
+    cost_weight = 3
+    in_mean_cost_weight = 25  # an in-mean EGARCH: one observation at a time, by differences (as before)
     analytic = True  # scores from the compiled forward pass (_derivatives)
     has_second = True  # the Hessian from a compiled second-order forward pass (_second)
     has_adjoint = True  # the gradient by a compiled backward pass (_adjoint)
     second_between_kinks = True  # |z| kinks the likelihood along the mean parameters
     second_reads_shape = True  # E|z| moves with the shape parameters: _second_pass reads them
-    max_fit_params = 6
+    max_fit_params = 10
+    max_in_mean_fit_params = 6  # an in-mean EGARCH still goes one observation at a time, by differences
     simulated_forecast = True
     log_variance = True
     takes_shift = True
