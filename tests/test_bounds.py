@@ -58,9 +58,9 @@ def _spec(model, dist="normal"):
 @pytest.mark.parametrize("model, dist, k, limit", [
     ("AR(12)-ARCH(4)", "normal", 18, bounds.FIT_PARAMS),  # 1 + 12 + 1 + 4
     ("ARMA(6,6)-GARCH(1,1)", "t", 17, bounds.FIT_PARAMS),  # 1 + 12 + 3 + nu
-    ("EGARCH(2,2)", "normal", 8, bounds.EGARCH_FIT_PARAMS),  # mu, omega, 2 alpha, 2 gamma, 2 beta
-    ("EGARCH(1,1)", "skewt", 7, bounds.EGARCH_FIT_PARAMS),
-    ("MA(1)-EGARCH(1,1)", "t", 7, bounds.EGARCH_FIT_PARAMS),
+    ("EGARCH(3,3)", "normal", 11, bounds.EGARCH_FIT_PARAMS),  # mu, omega, 3 alpha, 3 gamma, 3 beta
+    ("MA(2)-EGARCH(2,2)", "ged", 11, bounds.EGARCH_FIT_PARAMS),
+    ("ARMA(1,1)-EGARCH(2,2)", "skewt", 12, bounds.EGARCH_FIT_PARAMS),
 ])
 def test_a_model_past_the_size_bound_is_refused_before_fitting(model, dist, k, limit):
     text = _error(VOLFIT(R, model, dist))
@@ -71,7 +71,8 @@ def test_a_model_past_the_size_bound_is_refused_before_fitting(model, dist, k, l
 @pytest.mark.parametrize("model, dist", [("ARMA(6,6)-GARCH(1,1)", "normal"), ("ARMA(5,5)-GARCH(1,1)", "skewt"),
                                          ("GJR-GARCH(3,3)", "skewt"),
                                          ("EGARCH(1,2)", "normal"), ("EGARCH(1,1)", "t"),
-                                         ("AR(1)-EGARCH(1,1)", "normal"), ("ZERO-EGARCH(1,2)", "t")])
+                                         ("AR(2)-EGARCH(2,1)", "t"), ("EGARCH(2,2)", "skewt"),
+                                         ("ARMA(1,1)-EGARCH(1,2)", "skewt")])
 def test_a_model_at_the_size_bound_passes(model, dist):
     spec, d = _spec(model, dist)
     k = len(spec.param_names) + len(d.param_names)
@@ -98,27 +99,42 @@ def test_compare_candidates_bound():
 
 
 def test_compare_work_bound():
-    # 3 EGARCH(1,1) (k = 5, 6, 6) and GARCH(1,1) (k = 4, 5, 5): 25 x (25 + 36 + 36) + 16 + 25 + 25
-    text = _error(VOLCOMPARE(R, "GARCH(1,1), EGARCH(1,1)", "normal, t, ged"))
-    assert f"weigh 2,491 units of work (3 EGARCH among them); at most {bounds.COMPARE_WORK:,}" in text
+    # EGARCH(2,2) (k = 8, 9, 9), AR(2)-EGARCH(2,1) (9, 10, 10) and ARMA(1,1)-EGARCH(1,2) (8, 9, 9):
+    # 3 x (64 + 81 + 81 + 81 + 100 + 100 + 64 + 81 + 81)
+    text = _error(VOLCOMPARE(R, "EGARCH(2,2), AR(2)-EGARCH(2,1), ARMA(1,1)-EGARCH(1,2)", "normal, t, ged"))
+    assert f"weigh 2,199 units of work (9 EGARCH among them); at most {bounds.COMPARE_WORK:,}" in text
     text = _error(VOLCOMPARE(R, [["ARMA(6,6)-GARCH(1,1)"]] * 7))  # 7 x 16 x 16
     assert "weigh 1,792 units" in text
     bounds.check_compare(6, [_spec("ARMA(6,6)-GARCH(1,1)")] * 6)  # 1,536: passes
-    with pytest.raises(BoundError, match="1,800 units"):  # two EGARCH models of 6 parameters: 25 x (36 + 36)
-        bounds.check_compare(2, [_spec("ZERO-EGARCH(1,2)", "t"), _spec("EGARCH(1,1)", "t")])
+    # 3 EGARCH(1,1) (k = 5, 6, 6) and GARCH(1,1) (k = 4, 5, 5): 3 x (25 + 36 + 36) + 16 + 25 + 25 = 357: passes
+    bounds.check_compare(6, [_spec(m, d) for m in ("GARCH(1,1)", "EGARCH(1,1)") for d in ("normal", "t", "ged")])
+    bounds.check_compare(5, [_spec("AR(2)-EGARCH(2,1)", "t")] * 5)  # 5 x 3 x 100 = 1,500: passes
+    with pytest.raises(BoundError, match="1,800 units"):  # six EGARCH models of 10 parameters: 6 x 3 x 100
+        bounds.check_compare(6, [_spec("AR(2)-EGARCH(2,1)", "t")] * 6)
 
 
 def test_the_templates_comparison_passes():
     # workbook_templates/build_templates.py compares GARCH(1,1), GJR-GARCH(1,1) and EGARCH(1,1) with normal and t
     pairs = [_spec(m, d) for m in ("GARCH(1,1)", "GJR-GARCH(1,1)", "EGARCH(1,1)") for d in ("normal", "t")]
-    assert sum(bounds.weight(s, d) for s, d in pairs) == 1627 <= bounds.COMPARE_WORK
+    # 16 + 25 (GARCH), 25 + 36 (GJR), 3 x (25 + 36) (EGARCH)
+    assert sum(bounds.weight(s, d) for s, d in pairs) == 285 <= bounds.COMPARE_WORK
     bounds.check_compare(6, pairs)
 
 
+def test_an_in_mean_egarch_keeps_its_differenced_weight():
+    # an in-mean EGARCH runs one observation at a time with numerical derivatives, as every EGARCH
+    # did before its compiled derivatives: k x k x (25 + IN_MEAN_WEIGHT), and at most 6 parameters
+    spec, d = _spec("EGARCH(1,1)-M")  # mu, lambda_m, omega, alpha, gamma, beta
+    assert bounds.weight(spec, d) == 36 * (25 + bounds.IN_MEAN_WEIGHT) == 1260
+    assert bounds.weight(*_spec("EGARCH(1,1)")) == 25 * 3
+    with pytest.raises(BoundError, match="EGARCH models of at most 6"):
+        bounds.check_fit(*_spec("EGARCH(1,1)-M", "t"))
+
+
 def test_a_candidate_past_the_size_bound_gets_its_own_error_row():
-    rows = VOLCOMPARE(R, "GARCH(1,1), EGARCH(2,2)")
+    rows = VOLCOMPARE(R, "GARCH(1,1), EGARCH(3,3)")
     assert rows[1][0] == "GARCH(1,1)" and isinstance(rows[1][2], float)
-    assert rows[2][0] == "EGARCH(2,2)" and rows[2][2].startswith("ERROR: EGARCH(2,2) with normal shocks has 8")
+    assert rows[2][0] == "EGARCH(3,3)" and rows[2][2].startswith("ERROR: EGARCH(3,3) with normal shocks has 11")
 
 
 def test_candidates_that_do_not_parse_count_but_do_not_stop_the_others():
@@ -146,12 +162,13 @@ def test_backtest_estimation_bound():
 
 
 def test_backtest_egarch_bound():
-    # 50 estimations x 500 returns x 625, 500 evaluations x 500 x (2 + 2) / 2, 500 x 20,000 draws x 5 / 100
-    text = _error(VOLBACKTEST(_returns(1000), "EGARCH(1,1)", 500, 0.99, "refit=10"))
-    assert "weighs 16,625,000 units of work (estimations 15,625,000, EGARCH evaluations 500,000, simulated " \
+    # 250 estimations x 500 returns x 75 (3 x 5 x 5), 500 evaluations x 500 x (2 + 2) / 2, 500 x 20,000
+    # draws x 5 / 100
+    text = _error(VOLBACKTEST(_returns(1000), "EGARCH(1,1)", 500, 0.99, "refit=2"))
+    assert "weighs 10,375,000 units of work (estimations 9,375,000, EGARCH evaluations 500,000, simulated " \
            "draws 500,000)" in text
     spec, d = _spec("EGARCH(1,1)")
-    bounds.check_backtest(spec, d, 1000, 500, "rolling", 42, True, 20000)  # 12 estimations: 3,750,000 + 1,000,000
+    bounds.check_backtest(spec, d, 1000, 500, "rolling", 5, True, 20000)  # 100 estimations: 3,750,000 + 1,000,000
 
 
 def test_backtest_from_an_egarch_table_is_bounded_too():

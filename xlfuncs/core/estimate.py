@@ -357,7 +357,7 @@ class _Problem:
     def exact_hessian(self) -> bool:
         """The Hessian comes in closed form (:meth:`Likelihood.hessian`): the likelihood has it
         and the free parameters map to the full vector affinely."""
-        return self.analytic and not self.held_by_family and self.lik.has_hessian
+        return self.analytic and not self.held_by_family and self.lik.has_hessian and not self.kinked_columns
 
     def second(self, u):
         """(terms, scores nobs x n_free, Hessian n_free x n_free) at u in closed form; the map
@@ -369,6 +369,23 @@ class _Problem:
             return l, np.ascontiguousarray(G), H
         A = self.A
         return l, G @ A, A.T @ H @ A
+
+    @property
+    def kinked_columns(self) -> list:
+        """Free columns of mean parameters along which the log-likelihood kinks, where the
+        likelihood has a closed-form Hessian and its variance recursion reads |e| (EGARCH's news
+        |z|): a residual crossing zero jumps the slope, and over many residuals those jumps add a
+        curvature that the closed form, which holds between the kinks, leaves out.  These columns
+        are differenced (:meth:`hessian`), and the Newton steps keep the differenced route's
+        bookkeeping for kinks (:func:`_newton`)."""
+        cols = getattr(self, "_kinked", None)
+        if cols is None:
+            cols = []
+            if self.analytic and not self.held_by_family and self.lik.has_hessian and self.family.second_between_kinks:
+                mean = set(self.spec.mean_names)
+                cols = [c for c, i in enumerate(self.free) if self.lik.names[i] in mean]
+            self._kinked = cols
+        return cols
 
     def hessian(self, u, forward=False, g0=None, shrink=1.0, accurate=False):
         """Hessian of the log-likelihood in the free parameters: in closed form where the
@@ -382,7 +399,26 @@ class _Problem:
         H = np.zeros((m, m))
         if self.exact_hessian:
             return self.second(u)[2]
-        if self.analytic and forward:
+        if self.kinked_columns:
+            # closed form but for the kinked columns, which are differenced as below
+            H = self.second(u)[2]
+            for j in self.kinked_columns:
+                if forward:
+                    if g0 is None:
+                        g0 = -self.fun_grad(u)[1]
+                    h = self.steps[j] * shrink
+                    up = u.copy()
+                    up[j] += h
+                    H[:, j] = (-self.fun_grad(up)[1] - g0) / h
+                elif accurate:
+                    H[:, j] = self._richardson_column(u, j)
+                else:
+                    h = self.steps[j]
+                    up, dn = u.copy(), u.copy()
+                    up[j] += h
+                    dn[j] -= h
+                    H[:, j] = (-self.fun_grad(up)[1] + self.fun_grad(dn)[1]) / (2 * h)
+        elif self.analytic and forward:
             if g0 is None:
                 g0 = -self.fun_grad(u)[1]
             for j in range(m):

@@ -183,6 +183,8 @@ class Likelihood:
         eta = theta[self.k - len(self.dist.param_names):]
         with np.errstate(all="ignore"):
             if not sig2.min() > 0:  # a variance at or below zero, or nan
+                if fisher:
+                    return math.nan, np.full(self.k, np.nan), np.full((self.k, self.k), np.nan)
                 if total:
                     return math.nan, np.full(self.k, np.nan)
                 return np.full(self.nobs, np.nan), np.full((self.nobs, self.k), np.nan)
@@ -231,7 +233,7 @@ class Likelihood:
         eta = theta[k - self._nd:]
         e, de = self.residuals(theta, derivs=True)
         shift = self.shift(theta)
-        state = fam.forward(theta[self._vs], e, self.presample, shift=shift)
+        state = fam.forward(theta[self._vs], e, self.presample, shift=shift, eta=eta, dist=self.dist)
         sig2 = state.sig2
         if not sig2.min() > 0 or not self.intercept_ok(theta):
             return math.nan, np.full(k, np.nan)
@@ -246,14 +248,19 @@ class Likelihood:
         nm = self.n_mean
         gm = de[:, self.s0:] @ (fz / sd) if nm else None
         if shift is None:
-            g[self._vs] = fam.adjoint(state, w, de, gm)
+            gf = fam.adjoint(state, w, de, gm)
+            stop = self._vs.stop
         else:
-            g[self._vs.start: self._ss.stop] = fam.adjoint(state, w, de, gm, dshift=self.Z)
+            gf = fam.adjoint(state, w, de, gm, dshift=self.Z)
+            stop = self._ss.stop
+        g[self._vs.start: stop] = gf[: stop - self._vs.start]
         if nm:
             g[:nm] = gm
         nd = self._nd
         if nd:
             g[k - nd:] = self.dist.dlogpdf_dparams(z, eta).sum(axis=1)
+            if len(gf) > stop - self._vs.start:  # the recursion reads the shape (EGARCH's E|z|)
+                g[k - nd:] += gf[stop - self._vs.start:]
         return val, g
 
     # ------------------------------------------------------------------ second derivatives
@@ -287,13 +294,14 @@ class Likelihood:
             de = np.zeros((0, self.n))
         shift = self.shift(theta)
         state, D = fam.second_pass(theta[self._vs], e, de, self.presample, shift=shift,
-                                   dshift=self.Z if shift is not None else None)
+                                   dshift=self.Z if shift is not None else None, eta=eta, dist=self.dist)
         sig2 = state.sig2
         if not sig2.min() > 0 or not self.intercept_ok(theta):
             return self._bad_hessian()
         es = e[self.s0:]
         nm = self.n_mean
         kv = k - nd  # mean, variance and shift rows
+        kd = D.shape[0]  # D's rows: kv, or every row where the recursion reads the shape (EGARCH)
         dist = self.dist
         with np.errstate(all="ignore"):
             sd = np.sqrt(sig2)
@@ -314,29 +322,35 @@ class Likelihood:
             S[:nm, :nm] += self._ma_second(theta, de, ce)
         # scores
         G = np.empty((k, self.nobs))
-        G[:kv] = w * D
+        G[:kd] = w * D
         if nm:
             G[:nm] += (fz / sd) * des
         if nd:
-            G[kv:] = dist.dlogpdf_dparams(z, eta)
+            if kd == k:
+                G[kv:] += dist.dlogpdf_dparams(z, eta)
+            else:
+                G[kv:] = dist.dlogpdf_dparams(z, eta)
         # Hessian, with a = z / (2 sigma2) so that dz = de / sigma - a D: the D D' terms
-        # psi_zz a^2 + (3/4 psi_z z + 1/2) / sigma2^2 gathered in one weight
+        # psi_zz a^2 + (3/4 psi_z z + 1/2) / sigma2^2 gathered in one weight.  Where D has the
+        # shape parameters' rows too (kd = k), their block gathers the same terms, and the
+        # density's own cross terms psi_zeta (dz deta' + deta dz') and psi_etaeta add to it
         a = 0.5 * z * isig2
-        H = np.empty((k, k))
-        H[:kv, :kv] = ((fzz * a * a + (0.75 * fzz_z + 0.5) * isig2 * isig2) * D) @ D.T + S
+        H = np.zeros((k, k)) if kd < k else np.empty((k, k))
+        H[:kd, :kd] = ((fzz * a * a + (0.75 * fzz_z + 0.5) * isig2 * isig2) * D) @ D.T + S
         if nm:
             isd = 1.0 / sd
-            cross = des @ ((-(fzz * a + 0.5 * fz * isig2) * isd) * D).T  # nm x kv
-            H[:nm, :kv] += cross
-            H[:kv, :nm] += cross.T
+            cross = des @ ((-(fzz * a + 0.5 * fz * isig2) * isd) * D).T  # nm x kd
+            H[:nm, :kd] += cross
+            H[:kd, :nm] += cross.T
             H[:nm, :nm] += (fzz * isig2 * des) @ des.T
         if nd:
             dz = -a * D
             if nm:
                 dz[:nm] += des * isd
-            H[kv:, :kv] = fzp @ dz.T
-            H[:kv, kv:] = H[kv:, :kv].T
-            H[kv:, kv:] = fpp.sum(axis=-1)
+            C = fzp @ dz.T  # nd x kd
+            H[kv:, :kd] += C
+            H[:kd, kv:] += C.T
+            H[kv:, kv:] += fpp.sum(axis=-1)
         H = 0.5 * (H + H.T)
         if not (np.all(np.isfinite(H)) and np.all(np.isfinite(l))):
             return self._bad_hessian()

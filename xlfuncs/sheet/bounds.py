@@ -29,14 +29,15 @@ __all__ = [
 #: the slowest allowed measured 1.6-1.8 s (ARMA(6,6)-GARCH(1,1), 16); past it ARMA(12,12)-GARCH(1,1)
 #: (28) took 6-8 s and ARMA(12,12)-GARCH(12,12) (50) 8.6 s, and cost grows with the returns
 FIT_PARAMS = 16
-#: the same for EGARCH, whose recursion is a loop with numerical derivatives: the slowest 6-parameter
-#: fit measured 8-10 s (ZERO-EGARCH(1,2), t shocks), 7-parameter ones up to 18 s (ARMA(1,1)-EGARCH(1,1))
-EGARCH_FIT_PARAMS = Egarch.max_fit_params  # 6, kept with the family
+#: the same for EGARCH, whose compiled recursion gives the gradient and Hessian: the slowest
+#: 10-parameter fit measured about 0.9 s (AR(2)-EGARCH(2,1), t shocks); past it MA(2)-EGARCH(2,2)-ged
+#: (11) 2.6-3.2 s, not converged (benchmarks/bounds_timing.py)
+EGARCH_FIT_PARAMS = Egarch.max_fit_params  # 10, kept with the family
 #: the same for an in-mean model (-M), whose residuals and variances run together one observation
 #: at a time in Python with numerical derivatives: 8-parameter fits measured 1.7-4.3 s
 #: (GJR-GARCH(1,1)-M skewt, ARMA(1,1)-GARCH(1,1)-M t), ARCH(2)-M skewt (7) 5.4-7.8 s; past it
-#: ARMA(1,1)-GJR-GARCH(1,1)-M skewt (10) 5-11 s; an in-mean EGARCH keeps EGARCH's 6 (EGARCH(1,1)-M
-#: normal: 4.3-6.4 s)
+#: ARMA(1,1)-GJR-GARCH(1,1)-M skewt (10) 5-11 s; an in-mean EGARCH keeps the 6 EGARCH had before its
+#: recursion was compiled (``Egarch.max_in_mean_fit_params``; EGARCH(1,1)-M normal: 4.3-6.4 s)
 IN_MEAN_FIT_PARAMS = 8
 #: variance lags (ARCH plus GARCH orders) of an in-mean model a worksheet call estimates: past (1,1)
 #: an over-fitted variance makes the numerical search slow -- 7-8 parameter fits measured 10-37 s
@@ -47,10 +48,10 @@ IN_MEAN_LAGS = 2
 COMPARE_CANDIDATES = 24
 #: VOLCOMPARE's work in units: a candidate with k parameters weighs k x k, an EGARCH one
 #: EGARCH_WEIGHT x k x k.  The templates' comparison (GARCH, GJR-GARCH and EGARCH, normal and t)
-#: weighs 1,627 and took 5.6 s; 7 models of 16 parameters (1,792) 5.0 s; two 6-parameter EGARCH
-#: models (1,800) 13 s, which this bound refuses
+#: weighs 285; 7 models of 16 parameters (1,792) took 5.0 s; six 10-parameter EGARCH models (1,800)
+#: are refused (benchmarks/bounds_timing.py has the figures)
 COMPARE_WORK = 1_700
-EGARCH_WEIGHT = Egarch.cost_weight  # 25, kept with the family
+EGARCH_WEIGHT = Egarch.cost_weight  # 3, kept with the family
 #: an in-mean candidate weighs k x k x (its family's weight + IN_MEAN_WEIGHT): GARCH(1,1)-M t (396
 #: units) took 0.4-1.0 s, GJR-GARCH(1,1)-M skewt (704) 1.7-2.5 s, EGARCH(1,1)-M normal (1,260)
 #: 4.3-6.4 s; GARCH(1,1)-M and GJR-GARCH(1,1)-M x normal, t (1,606) 2.1-2.7 s
@@ -91,6 +92,9 @@ def check_fit(spec, dist) -> None:
     limit = FIT_PARAMS if special is None else min(special, FIT_PARAMS)
     if spec.in_mean and IN_MEAN_FIT_PARAMS < limit:
         special, limit = IN_MEAN_FIT_PARAMS, IN_MEAN_FIT_PARAMS
+    in_mean_special = spec.family.max_in_mean_fit_params
+    if spec.in_mean and in_mean_special is not None and in_mean_special < limit:
+        special = limit = in_mean_special  # the family's own in-mean bound, named after the family below
     lags = spec.family.arch_lags + spec.family.garch_lags
     if spec.in_mean and lags > IN_MEAN_LAGS:
         raise BoundError(f"{spec.canonical} has {lags} variance lags; a worksheet call estimates in-mean (-M) models "
@@ -107,10 +111,15 @@ def check_fit(spec, dist) -> None:
 
 
 def weight(spec, dist) -> int:
-    """The work units of estimating one candidate: k x k times its family's ``cost_weight`` (EGARCH 25),
-    and IN_MEAN_WEIGHT x k x k more for an in-mean model."""
+    """The work units of estimating one candidate: k x k times its family's ``cost_weight`` (EGARCH 3),
+    and for an in-mean model k x k times its family's ``in_mean_cost_weight`` (EGARCH 25; else the
+    ``cost_weight``) plus IN_MEAN_WEIGHT."""
     k = _n_params(spec, dist)
-    return k * k * (spec.family.cost_weight + (IN_MEAN_WEIGHT if spec.in_mean else 0))
+    fam = spec.family
+    if spec.in_mean:  # a family may weigh its in-mean models apart (EGARCH: by differences, as before)
+        own = fam.in_mean_cost_weight if fam.in_mean_cost_weight is not None else fam.cost_weight
+        return k * k * (own + IN_MEAN_WEIGHT)
+    return k * k * fam.cost_weight
 
 
 def check_compare(n: int, candidates) -> None:

@@ -115,8 +115,14 @@ class VarianceFamily:
     #: how much harder one estimation is than a linear family's with as many parameters (the
     #: worksheet bounds weigh candidates by it; measured by benchmarks/bounds_timing.py)
     cost_weight: int = 1
+    #: the same for its in-mean (-M) models (None: ``cost_weight``), which run the recursion one
+    #: observation at a time with numerical derivatives whatever the family's own derivatives
+    in_mean_cost_weight: int | None = None
     #: the most parameters a worksheet call estimates for this family (None: the general bound)
     max_fit_params: int | None = None
+    #: ... and for its in-mean (-M) models, whose recursion runs one observation at a time with
+    #: numerical derivatives (None: the in-mean bound)
+    max_in_mean_fit_params: int | None = None
     #: multi-step variance forecasts by seeded simulation (no closed form)
     simulated_forecast: bool = False
     #: the recursion is in the log of the variance, so omega may take any sign
@@ -126,6 +132,13 @@ class VarianceFamily:
     #: the second derivatives of sum_t w_t sigma2_t by the adjoint (``_second``), for the
     #: likelihood's analytic Hessian (else the estimator differentiates the analytic gradient)
     has_second: bool = False
+    #: the recursion reads the distribution's parameters (EGARCH's E|z|): :meth:`second_pass`
+    #: passes them to ``_second_pass``, and D and the second derivatives have their rows
+    second_reads_shape: bool = False
+    #: the closed-form second derivatives (``has_second``) hold between the kinks that the
+    #: recursion's |e| puts along the mean parameters (EGARCH's news |z|), which they leave out:
+    #: the estimator differences the analytic gradient along those parameters instead
+    second_between_kinks: bool = False
     #: the weights are held to sum to one, the last one implied (IGARCH)
     integrated: bool = False
     #: a maximum on the stationarity bound is re-estimated there with the persistence held at one
@@ -309,29 +322,39 @@ class VarianceFamily:
         return self._derivatives(self._vp(vp), e, np.asarray(de, dtype=float), presample,
                                  np.asarray(eta, dtype=float), dist, **kw)
 
-    def forward(self, vp, e, presample: str = "mean", shift=None):
-        """The recursion's state for :meth:`adjoint`; ``state.sig2`` holds the variances."""
+    def forward(self, vp, e, presample: str = "mean", shift=None, eta=(), dist=None):
+        """The recursion's state for :meth:`adjoint`; ``state.sig2`` holds the variances.  The
+        shape parameters reach only a family whose recursion reads them (:attr:`second_reads_shape`)."""
         if not self.has_adjoint:
             raise NotImplementedError(f"{self.canonical} has no adjoint gradient")
         kw = self._shift_kw(shift, self._lik_length(len(e), presample))
+        if self.second_reads_shape:
+            kw["eta"] = np.asarray(eta, dtype=float)
+            kw["dist"] = dist
         return self._forward(self._vp(vp), e, presample, **kw)
 
     def adjoint(self, state, w, de, gm, dshift=None):
         """Gradient of sum_t w_t sigma2_t in the variance parameters (then the shift's parameters
-        when ``dshift`` is given); adds the mean parameters' part to ``gm`` in place (``de``: the
-        residuals' derivatives)."""
+        when ``dshift`` is given, then the distribution's where the recursion reads them:
+        :attr:`second_reads_shape`); adds the mean parameters' part to ``gm`` in place (``de``:
+        the residuals' derivatives)."""
         if dshift is None:
             return self._adjoint(state, w, de, gm)
         return self._adjoint(state, w, de, gm, dshift=np.asarray(dshift, dtype=float))
 
-    def second_pass(self, vp, e, de, presample: str = "mean", shift=None, dshift=None):
+    def second_pass(self, vp, e, de, presample: str = "mean", shift=None, dshift=None, eta=(), dist=None):
         """(state, D): the forward derivatives D as :meth:`derivatives` gives them, and the
-        recursion's state (``state.sig2`` the variances) that :meth:`second` reads."""
+        recursion's state (``state.sig2`` the variances) that :meth:`second` reads.  A family
+        whose recursion reads the shape parameters (:attr:`second_reads_shape`) is given them and
+        adds their rows to D, which :meth:`second` then covers too."""
         if not self.has_second:
             raise NotImplementedError(f"{self.canonical} has no analytic second derivatives")
         kw = self._shift_kw(shift, self._lik_length(len(e), presample))
         if kw:
             kw["dshift"] = np.asarray(dshift, dtype=float)
+        if self.second_reads_shape:
+            kw["eta"] = np.asarray(eta, dtype=float)
+            kw["dist"] = dist
         return self._second_pass(self._vp(vp), np.asarray(e, dtype=float), np.asarray(de, dtype=float), presample, **kw)
 
     def second(self, state, D, de, w, residual_weights: bool = True):

@@ -199,6 +199,279 @@ def _log_variance_derivatives(e, de, om, dom, alpha, gamma, beta, kappa, dkappa,
     return sig2, D
 
 
+@kernel
+def _log_variance_second(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, d2kappa, sbar, dsbar, d2sbar, start, w):
+    """S = sum_s w[s] d2 sigma2 / d theta d theta' at position start + s (K x K, the columns of
+    :func:`_log_variance_derivatives`), in one forward pass carrying the second derivatives of
+    the log-variance v, of z = e exp(-v/2) and of the news g = |z| - E|z|.  With the residuals
+    linear in the mean parameters here (their own second derivatives enter through
+    :func:`_log_variance_adjoint`):
+
+        d2v_t = sum_i alpha_i d2g_{t-i} + gamma_i d2z_{t-i} + sum_j beta_j d2v_{t-j}
+                + sym(e_alpha_i dg_{t-i}' + e_gamma_i dz_{t-i}' + e_beta_j dv_{t-j}'),
+        d2z_t = -(de_t dv_t' + dv_t de_t') exp(-v_t/2) / 2 + z_t dv_t dv_t' / 4 - z_t d2v_t / 2,
+        d2g_t = sign(z_t) d2z_t - d2 E|z| (distribution rows),
+        d2 sigma2_t = sigma2_t (dv_t dv_t' + d2v_t)
+
+    (e_x: the unit vector of parameter x).  The presample log-variance ln(sbar) and, under
+    ``presample=drop``, the lag-only z = e / sqrt(sbar) move with the mean parameters through
+    sbar = mean(e^2) (``dsbar``, ``d2sbar``).  The news' derivatives are not stored: with s the
+    sign of z, dg = s dz and d2g = s d2z less E|z|'s own derivatives, which the lags' weights
+    alpha_i carry.  Second derivatives are kept on and above the diagonal only, flattened (pair
+    u = (pk[u], pl[u])), so that the inner loops run over one contiguous row.
+    """
+    n = e.shape[0]
+    nm = de.shape[0]
+    p = alpha.shape[0]
+    q = beta.shape[0]
+    nd = dkappa.shape[0]
+    ns = dom.shape[0]
+    K = nm + 1 + 2 * p + q + ns + nd
+    io = nm
+    ia = io + 1
+    ig = ia + p
+    ib = ig + p
+    iv = ib + q
+    ie = iv + ns
+    m = n - start
+    P = max(p, 1)
+    Q = max(q, 1)
+    L = K * (K + 1) // 2
+    pk = np.empty(L, dtype=np.int64)
+    pl = np.empty(L, dtype=np.int64)
+    at = np.empty((K, K), dtype=np.int64)  # the pair's place, either way round
+    u = 0
+    for k in range(K):
+        for l in range(k, K):
+            pk[u] = k
+            pl[u] = l
+            at[k, l] = u
+            at[l, k] = u
+            u += 1
+    Sf = np.zeros(L)
+    g = np.zeros(n + p)
+    z = np.zeros(n + p)
+    sz = np.zeros(P)  # sign of z at each ring row
+    dz = np.zeros((P, K))
+    d2z = np.zeros((P, L))
+    lv = np.empty(m + q)
+    dlv = np.zeros((Q, K))
+    d2lv = np.zeros((Q, L))
+    dls = np.zeros(K)  # the presample log-variance's derivatives
+    d2ls = np.zeros(L)
+    dek = np.zeros(K)  # the residual's derivatives over sigma at this position
+    if sbar > 0:
+        lsbar = math.log(sbar)
+        for k in range(nm):
+            dls[k] = dsbar[k] / sbar
+        for u in range(L):
+            k, l = pk[u], pl[u]
+            if l < nm:
+                d2ls[u] = d2sbar[k, l] / sbar - dsbar[k] * dsbar[l] / (sbar * sbar)
+    else:
+        lsbar = -700.0
+    for j in range(q):
+        for k in range(K):
+            dlv[j % Q, k] = dls[k]
+        for u in range(L):
+            d2lv[j % Q, u] = d2ls[u]
+        lv[j] = lsbar
+    if start > 0:
+        isd = 1.0 / math.sqrt(sbar) if sbar > 0 else 1.0
+        for t in range(start):
+            zt = e[t] * isd
+            z[p + t] = zt
+            g[p + t] = abs(zt) - kappa
+            row = t % P
+            sz[row] = 1.0 if zt > 0 else (-1.0 if zt < 0 else 0.0)
+            for k in range(K):
+                dek[k] = de[k, t] * isd if k < nm else 0.0
+            for k in range(K):
+                dz[row, k] = dek[k] - 0.5 * zt * dls[k]
+            for u in range(L):
+                k, l = pk[u], pl[u]
+                d2z[row, u] = (-0.5 * (dek[k] * dls[l] + dek[l] * dls[k]) + 0.25 * zt * dls[k] * dls[l]
+                               - 0.5 * zt * d2ls[u])
+    dv = np.empty(K)
+    d2v = np.empty(L)
+    cz = np.zeros(P)  # weight of the lag's dz and d2z: alpha_i sign(z) + gamma_i
+    rows = np.zeros(P, dtype=np.int64)
+    qrows = np.zeros(Q, dtype=np.int64)
+    for t in range(start, n):
+        pos = q + t - start
+        v = om[t]
+        for i in range(1, p + 1):
+            v += alpha[i - 1] * g[p + t - i] + gamma[i - 1] * z[p + t - i]
+        for j in range(1, q + 1):
+            v += beta[j - 1] * lv[pos - j]
+        if not (-700.0 <= v <= 700.0):
+            S = np.empty((K, K))
+            S[:] = np.nan
+            return S
+        np_ = min(p, t)  # news before the first residual is a constant zero
+        asum = 0.0  # the weight of E|z|'s derivatives
+        for i in range(np_):
+            r = (t - i - 1) % P
+            rows[i] = r
+            cz[i] = alpha[i] * sz[r] + gamma[i]
+            asum += alpha[i]
+        for j in range(q):
+            qrows[j] = (pos - j - 1) % Q
+        for k in range(K):
+            dv[k] = 0.0
+        for u in range(L):
+            d2v[u] = 0.0
+        for i in range(np_):
+            c = cz[i]
+            r = rows[i]
+            for k in range(K):
+                dv[k] += c * dz[r, k]
+            for u in range(L):
+                d2v[u] += c * d2z[r, u]
+        for j in range(q):
+            b = beta[j]
+            r = qrows[j]
+            for k in range(K):
+                dv[k] += b * dlv[r, k]
+            for u in range(L):
+                d2v[u] += b * d2lv[r, u]
+        for k in range(nd):
+            dv[ie + k] -= asum * dkappa[k]
+            for l in range(k, nd):
+                d2v[at[ie + k, ie + l]] -= asum * d2kappa[k, l]
+        # the direct terms: omega's 1, the intercept series' values (no second derivatives),
+        # then the coefficients' lagged news, shocks and log-variances; sym(e_a x') adds x to
+        # row a and to column a, so twice x_a on the diagonal
+        dv[io] += 1.0
+        for k in range(ns):
+            dv[iv + k] += dom[k, t]
+        for i in range(1, p + 1):
+            dv[ia + i - 1] += g[p + t - i]
+            dv[ig + i - 1] += z[p + t - i]
+        for j in range(1, q + 1):
+            dv[ib + j - 1] += lv[pos - j]
+        for i in range(np_):
+            r = rows[i]
+            sg = sz[r]
+            a = ia + i
+            c = ig + i
+            for l in range(K):
+                x = dz[r, l]
+                y = sg * x
+                if l >= ie:
+                    y -= dkappa[l - ie]
+                d2v[at[a, l]] += y
+                d2v[at[c, l]] += x
+            d2v[at[a, a]] += sg * dz[r, a]
+            d2v[at[c, c]] += dz[r, c]
+        for j in range(q):
+            r = qrows[j]
+            b = ib + j
+            for l in range(K):
+                d2v[at[b, l]] += dlv[r, l]
+            d2v[at[b, b]] += dlv[r, b]
+        lv[pos] = v
+        sig = math.exp(0.5 * v)
+        s2 = sig * sig
+        isg = 1.0 / sig
+        zt = e[t] * isg
+        z[p + t] = zt
+        g[p + t] = abs(zt) - kappa
+        ws = w[t - start] * s2
+        row = t % P
+        qrow = pos % Q
+        sz[row] = 1.0 if zt > 0 else (-1.0 if zt < 0 else 0.0)
+        hz = 0.5 * zt
+        for k in range(K):
+            dek[k] = de[k, t] * isg if k < nm else 0.0
+            dlv[qrow, k] = dv[k]
+            dz[row, k] = dek[k] - hz * dv[k]
+        for u in range(L):
+            k = pk[u]
+            l = pl[u]
+            pr = dv[k] * dv[l]
+            d2l = d2v[u]
+            Sf[u] += ws * (pr + d2l)
+            d2lv[qrow, u] = d2l
+            d2z[row, u] = -0.5 * (dek[k] * dv[l] + dek[l] * dv[k]) + hz * (0.5 * pr - d2l)
+    S = np.empty((K, K))
+    for u in range(L):
+        S[pk[u], pl[u]] = Sf[u]
+        S[pl[u], pk[u]] = Sf[u]
+    return S
+
+
+@kernel
+def _log_variance_adjoint(e, sig2, alpha, gamma, beta, kappa, sbar, start, w):
+    """The gradient of J = sum_s w[s] sigma2 at position start + s by the adjoint of the
+    log-variance recursion: one backward pass over the forward pass's variances ``sig2``.  With
+    vbar, zbar the adjoint variables of the log-variance v and of z = e exp(-v/2),
+
+        zbar_t = sum_i vbar_{t+i} (alpha_i sign(z_t) + gamma_i),
+        vbar_t = w_t sigma2_t + sum_j beta_j vbar_{t+j} - zbar_t z_t / 2,
+
+    and dJ/d omega = sum vbar, dJ/d alpha_i = sum_t vbar_t g_{t-i}, dJ/d gamma_i = sum_t vbar_t
+    z_{t-i}, dJ/d beta_j = sum_t vbar_t v_{t-j}, dJ/d E|z| = -sum_t vbar_t sum_i alpha_i (over the
+    news that are residuals').  Returns (those in the family's order, vbar, ebar, dJ/d E|z|) with
+    ebar = dJ/de on every residual position: zbar_t / sigma_t, plus every residual's share
+    through sbar = mean(e^2), which sets the presample log-variance (and, under
+    ``presample=drop``, scales the lag-only z = e / sqrt(sbar)): 2 e_s / n times dJ/d sbar.
+    ebar also weighs the residuals' own second derivatives (an MA part) in the Hessian."""
+    n = e.shape[0]
+    p = alpha.shape[0]
+    q = beta.shape[0]
+    m = n - start
+    lsbar = math.log(sbar) if sbar > 0 else -700.0
+    isd = 1.0 / math.sqrt(sbar) if sbar > 0 else 1.0
+    z = np.empty(n)
+    lv = np.empty(m)
+    for t in range(start):
+        z[t] = e[t] * isd
+    for s in range(m):
+        lv[s] = math.log(sig2[s])
+        z[start + s] = e[start + s] / math.sqrt(sig2[s])
+    ebar = np.zeros(n)
+    vbar = np.zeros(m)
+    gv = np.zeros(1 + 2 * p + q)
+    dk = 0.0
+    sbarbar = 0.0
+    for t in range(n - 1, -1, -1):
+        zt = z[t]
+        sg = 1.0 if zt > 0 else (-1.0 if zt < 0 else 0.0)
+        zbar = 0.0
+        for i in range(1, p + 1):
+            if start <= t + i < n:
+                zbar += vbar[t + i - start] * (alpha[i - 1] * sg + gamma[i - 1])
+        if t >= start:
+            s = t - start
+            vb = w[s] * sig2[s] - 0.5 * zbar * zt
+            for j in range(1, q + 1):
+                if s + j < m:
+                    vb += beta[j - 1] * vbar[s + j]
+            vbar[s] = vb
+            ebar[t] = zbar / math.sqrt(sig2[s])
+            gv[0] += vb
+            for i in range(1, p + 1):
+                if t - i >= 0:
+                    zl = z[t - i]
+                    gv[i] += vb * (abs(zl) - kappa)
+                    gv[p + i] += vb * zl
+                    dk -= vb * alpha[i - 1]
+            for j in range(1, q + 1):
+                gv[2 * p + j] += vb * (lv[s - j] if s - j >= 0 else lsbar)
+        else:
+            ebar[t] = zbar * isd
+            if sbar > 0:
+                sbarbar -= 0.5 * zbar * zt / sbar
+    if sbar > 0:
+        for s in range(min(q, m)):
+            for j in range(s + 1, q + 1):
+                sbarbar += beta[j - 1] * vbar[s] / sbar
+        for t in range(n):
+            ebar[t] += 2.0 * e[t] * sbarbar / n
+    return gv, vbar, ebar, dk
+
+
 def _plain(x) -> np.ndarray:
     """``x`` as a writable C-ordered float array: the one layout the kernels are compiled for
     (numba compiles, and caches, a separate version for each layout and for read-only arrays)."""
@@ -218,6 +491,33 @@ def _abs_moment_gradient(dist, eta) -> np.ndarray:
         up[i] += h
         dn[i] -= h
         out[i] = (dist.abs_moment(up) - dist.abs_moment(dn)) / (2.0 * h)
+    return out
+
+
+def _abs_moment_curvature(dist, eta) -> np.ndarray:
+    """d2 E|z| / d eta^2 by central differences of the scalar E|z|: five points on the diagonal
+    (error of order h^4), four across at steps h and h/2 combined by Richardson's rule; h is
+    1e-3 of the parameter (at least 1e-3), so about ten digits (common practice)."""
+    eta = np.asarray(eta, dtype=float)
+    k = len(eta)
+    out = np.zeros((k, k))
+    f = dist.abs_moment
+    hs = [1e-3 * max(1.0, abs(x)) for x in eta]
+
+    def at(*moves):
+        x = eta.copy()
+        for i, s in moves:
+            x[i] += s
+        return f(x)
+
+    f0 = f(eta)
+    for i in range(k):
+        h = hs[i]
+        out[i, i] = (-at((i, 2 * h)) + 16.0 * at((i, h)) - 30.0 * f0 + 16.0 * at((i, -h)) - at((i, -2 * h))) / (12.0 * h * h)
+        for j in range(i):
+            def cross(a, b):
+                return (at((i, a), (j, b)) - at((i, a), (j, -b)) - at((i, -a), (j, b)) + at((i, -a), (j, -b))) / (4.0 * a * b)
+            out[i, j] = out[j, i] = (4.0 * cross(0.5 * h, 0.5 * hs[j]) - cross(h, hs[j])) / 3.0
     return out
 
 
@@ -371,14 +671,26 @@ class _SimState:
         self.g, self.z, self.lv, self.kappa, self.clip, self.v = g, z, lv, kappa, clip, None
 
 
+class _SecondState:
+    """What :meth:`Egarch._second` reads from :meth:`Egarch._second_pass`: the variances and the
+    forward pass's inputs."""
+
+    __slots__ = ("sig2", "args", "start")
+
+
 class Egarch(VarianceFamily):
     key = "egarch"
-    # the worksheet bounds (sheet/bounds.py) still weigh EGARCH as the numerically differentiated,
-    # simulated-forecast family it was (cost 25, forecasts as simulations): conservative now that
-    # fits cost about what a GARCH's does and forecasts are exact; re-measure there before lowering
-    cost_weight = 25
+    # the worksheet bounds (sheet/bounds.py; measured by benchmarks/bounds_timing.py): with the
+    # compiled gradient and Hessian a fit costs 1-3 times a GARCH fit with as many parameters
+    cost_weight = 3
+    in_mean_cost_weight = 25  # an in-mean EGARCH: one observation at a time, by differences (as before)
     analytic = True  # scores from the compiled forward pass (_derivatives)
-    max_fit_params = 6
+    has_second = True  # the Hessian from a compiled second-order forward pass (_second)
+    has_adjoint = True  # the gradient by a compiled backward pass (_adjoint)
+    second_between_kinks = True  # |z| kinks the likelihood along the mean parameters
+    second_reads_shape = True  # E|z| moves with the shape parameters: _second_pass reads them
+    max_fit_params = 10
+    max_in_mean_fit_params = 6  # an in-mean EGARCH still goes one observation at a time, by differences
     simulated_forecast = True
     log_variance = True
     takes_shift = True
@@ -463,6 +775,86 @@ class Egarch(VarianceFamily):
             dom[:, start:] = dshift
         sig2, D = _log_variance_derivatives(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start)
         return sig2, D.T
+
+    def _forward(self, vp, e, presample, shift=None, eta=(), dist=None):
+        """The state :meth:`_adjoint` reads: the variances of the compiled loop and its inputs."""
+        omega, alpha, gamma, beta = self._parts(vp)
+        e = _plain(e)
+        eta = np.asarray(eta, dtype=float)
+        kappa, dkappa = self._kappa_and_gradient(eta, dist)
+        sbar, lsbar, sd0 = self._presample(e)
+        start = self.p if presample == "drop" else 0
+        om = self._intercepts(omega, len(e), start, shift)
+        st = _SecondState()
+        st.sig2 = _log_variance_loop(e, om, alpha, gamma, beta, kappa, lsbar, sd0, start)
+        st.args = (e, alpha, gamma, beta, kappa, dkappa, sbar)
+        st.start = start
+        return st
+
+    def _adjoint(self, st, w, de, gm, dshift=None):
+        """Gradient of sum_t w_t sigma2_t by one backward pass (:func:`_log_variance_adjoint`):
+        the variance parameters, the intercept series' (``dshift``), then the distribution's
+        (through E|z|); the mean parameters' part is added to ``gm`` in place."""
+        e, alpha, gamma, beta, kappa, dkappa, sbar = st.args
+        gv, vbar, ebar, dk = _log_variance_adjoint(e, st.sig2, alpha, gamma, beta, kappa, sbar, st.start, _plain(w))
+        if gm is not None and len(gm):
+            gm += np.reshape(de, (-1, len(e))) @ ebar
+        parts = [gv]
+        if dshift is not None:
+            parts.append(dshift @ vbar)
+        parts.append(dk * dkappa)
+        return np.concatenate(parts)
+
+    def _second_pass(self, vp, e, de, presample, shift=None, dshift=None, eta=(), dist=None):
+        """(state, D): the forward derivatives of :meth:`_derivatives` (the distribution's rows
+        included) and what :meth:`_second` reads."""
+        omega, alpha, gamma, beta = self._parts(vp)
+        e = _plain(e)
+        n = len(e)
+        de = _plain(np.reshape(de, (-1, n)))
+        eta = np.asarray(eta, dtype=float)
+        kappa, dkappa = self._kappa_and_gradient(eta, dist)
+        sbar, _, _ = self._presample(e)
+        dsbar = (2.0 / n) * (de @ e)
+        start = self.p if presample == "drop" else 0
+        om = self._intercepts(omega, n, start, shift)
+        dom = np.zeros((0 if dshift is None else len(dshift), n))
+        if dshift is not None:
+            dom[:, start:] = dshift
+        sig2, D = _log_variance_derivatives(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start)
+        st = _SecondState()
+        st.sig2 = sig2
+        st.args = (e, de, om, dom, alpha, gamma, beta, kappa, dkappa, self._kappa_curvature(eta, dist), sbar, dsbar)
+        st.start = start
+        return st, D.T
+
+    def _second(self, st, D, de, w, residual_weights=True):
+        """(S, ce): S = sum_t w_t d2 sigma2_t / d theta^2 over every row of D (mean, variance,
+        intercept series' and the distribution's parameters) by the compiled forward pass
+        :func:`_log_variance_second`, with the residuals taken as linear in the mean parameters;
+        ce = d (sum_t w_t sigma2_t) / d e, the weights of the residuals' own second derivatives
+        (an MA part), by the adjoint pass :func:`_log_variance_adjoint` (None when
+        ``residual_weights`` is False or there are no mean parameters)."""
+        e, de, om, dom, alpha, gamma, beta, kappa, dkappa, d2kappa, sbar, dsbar = st.args
+        n = len(e)
+        w = _plain(w)
+        d2sbar = (2.0 / n) * (de @ de.T)
+        S = _log_variance_second(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, d2kappa, sbar, dsbar,
+                                 _plain(d2sbar), st.start, w)
+        ce = None
+        if residual_weights and de.shape[0]:
+            ce = _log_variance_adjoint(e, _plain(st.sig2), alpha, gamma, beta, kappa, sbar, st.start, w)[2]
+        return S, ce
+
+    def _kappa_curvature(self, eta, dist):
+        """d2 E|z| / d eta^2 (shape parameters x shape parameters), kept for the last shape asked:
+        five-point central differences of the scalar E|z| on the diagonal, and Richardson-
+        extrapolated four-point ones across (steps 1e-3 relative; about ten correct digits)."""
+        key = (dist.name, eta.tobytes())
+        memo = getattr(self, "_curv_memo", None)
+        if memo is None or memo[0] != key:
+            memo = self._curv_memo = (key, _abs_moment_curvature(dist, eta))
+        return memo[1]
 
     def _kappa_and_gradient(self, eta, dist):
         """E|z| and its gradient in the shape parameters, kept for the last shape asked (the
