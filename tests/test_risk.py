@@ -467,3 +467,34 @@ def test_last_step_interpolants_match_scipy(dist, eta):
     for kk, FF, MM in zip(k[::4], F[::4], M[::4]):
         assert abs(FF - quad(pdf, kk)) < 5e-9, kk
         assert abs(MM - quad(lambda z: z * pdf(z), kk)) < 5e-9, kk
+
+
+@pytest.mark.parametrize("model,dist,params", [
+    ("GARCH(1,1)", "t", {"mu": 0.02, "omega": 0.05, "alpha[1]": 0.1, "beta[1]": 0.88, "nu": 5.0}),
+    ("GJR-GARCH(1,1)", "skewt",
+     {"mu": 0.02, "omega": 0.05, "alpha[1]": 0.03, "gamma[1]": 0.15, "beta[1]": 0.85, "nu": 8.0, "lambda": -0.3}),
+    ("ZERO-GARCH(2,2)", "normal",
+     {"omega": 0.05, "alpha[1]": 0.05, "alpha[2]": 0.04, "beta[1]": 0.5, "beta[2]": 0.35}),
+    ("EGARCH(1,1)", "ged", {"mu": 0.02, "omega": 0.01, "alpha[1]": 0.15, "gamma[1]": -0.06, "beta[1]": 0.96, "nu": 1.3}),
+    ("EGARCH(2,1)", "t",
+     {"mu": 0.02, "omega": 0.01, "alpha[1]": 0.1, "alpha[2]": 0.05, "gamma[1]": -0.06, "gamma[2]": 0.02,
+      "beta[1]": 0.95, "nu": 6.0}),
+])
+def test_compiled_paths_are_the_step_by_step_paths(series, model, dist, params, monkeypatch):
+    """Beyond one period, a constant-mean GARCH-type or EGARCH fit's paths run in one compiled pass
+    of the family's kernel (risk_sums); with VOLCAST_NO_JIT=1 they are simulated step by step
+    (forward_steps, whose paths the tests above check against closed forms and SciPy).  The two
+    routes give the same VaR and ES from the same scores (internal consistency)."""
+    import xlfuncs.core.risk as rmod
+
+    f = _fit(model, dist, params, series)
+    used = []
+    fast = rmod._compiled_sums
+    monkeypatch.setattr(rmod, "_compiled_sums", lambda *a: used.append(fast(*a)) or used[-1])
+    a = risk(f, series, 0.99, 22, paths=4096, seed=7)
+    assert used and used[-1] is not None  # the compiled route served
+    monkeypatch.setenv("VOLCAST_NO_JIT", "1")
+    b = risk(f, series, 0.99, 22, paths=4096, seed=7)
+    assert used[-1] is None
+    assert_allclose([a.var, a.es], [b.var, b.es], rtol=1e-12)
+    assert a.method == b.method

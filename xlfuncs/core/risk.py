@@ -27,7 +27,11 @@ horizon        how
                distribution function of R is the weighted mean of F((x - a)/s) and
                VaR solves F_R(x) = 1 - level; ES is the weighted mean of
                a F(k) + s M(k), M the partial first moment of z, over the weighted
-               mean of F(k), k = (x - a)/s; :func:`_tail_solve`)
+               mean of F(k), k = (x - a)/s; :func:`_tail_solve`, with F, its density
+               and partial first moment from interpolants, :class:`_LastLaw`).  For a
+               constant-mean GARCH-type or EGARCH fit the paths run in one compiled pass
+               of the family's kernel (:func:`_compiled_sums`), the same numbers as the
+               step-by-step route
 =============  ====================================================================
 
 The ``mean`` and ``sd`` reported with them are those of R from the analytic forecast (the
@@ -442,6 +446,34 @@ def _conditional_es(dist, eta, a, s, w, cut: float) -> float:
     return -float((p @ a + np.sum(m)) / np.sum(p))
 
 
+def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
+    """(cum, a_last, s_last) of the simulated paths in one compiled pass of the variance family's
+    own kernel (``risk_sums`` in :mod:`~xlfuncs.core.families._linear` and
+    :mod:`~xlfuncs.core.families.egarch`): the sum of the returns, the sum before the last step
+    plus its mean, and the last step's volatility, the numbers the step-by-step route
+    (:func:`~xlfuncs.core.simulate.forward_steps`) gives from the same scores.  For a constant (or
+    zero) mean without regressors or in-mean term, when every step's scores are quasi-random
+    (:data:`QMC_STEPS`), so that they and the paths' weights are known before the first step;
+    None otherwise, or where the family has no such kernel or numba does not run them.
+    """
+    spec = fit.spec
+    if spec.ar or spec.ma or spec.in_mean or spec.n_regressors or horizon > QMC_STEPS or scores.d != horizon - 1:
+        return None
+    from .families import History, _linear, egarch
+    from .forecast import in_sample
+
+    resid, var, lik = in_sample(fit, r, X)
+    theta = np.asarray(fit.params, dtype=float)
+    mu, _, _, vp, eta = lik.split(theta)
+    mu = float(mu) if spec.has_mu else 0.0
+    fam = spec.family
+    if not isinstance(fam, (_linear.LinearFamily, egarch.Egarch)):
+        return None
+    state = fam.sim_continue(vp, eta, fit.dist, History(resid[lik.a:], var[lik.a + lik.s0:], lik.s0))
+    mod = _linear if isinstance(fam, _linear.LinearFamily) else egarch
+    return mod.risk_sums(fam, state, vp, scores.y[:horizon], to_shock, mu)
+
+
 def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=None, Xf=None) -> Risk:
     """VaR and expected shortfall of the sum of the next ``horizon`` returns after ``r``.
 
@@ -511,11 +543,16 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
                 last.append(z)
             return z
 
-        cum = np.zeros(paths)
         # log of the value factor prod (1 + c r), for simple returns only
         log_factor = np.zeros(paths) if defn in ("simple100", "simple") else None
+        sums = None if log_factor is not None else _compiled_sums(fit, r, horizon, scores, to_shock, X)
+        if sums is not None:
+            cum, a_last, s_last = sums
+        else:
+            cum = np.zeros(paths)
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            for h, (ret, s2) in enumerate(forward_steps(fit, r, horizon, paths, None, X, Xf, draw=draw)):
+            for h, (ret, s2) in enumerate(() if sums is not None else
+                                          forward_steps(fit, r, horizon, paths, None, X, Xf, draw=draw)):
                 if h == horizon - 1:
                     # given the first h-1 steps, R = a + s z with the last shock z independent of (a, s)
                     s_last = np.sqrt(s2)
