@@ -692,3 +692,111 @@ class LinearFamily(VarianceFamily):
         rest = float(np.sum(alpha[1:] + kappa * gamma[1:])) * s2  # later lags at their expectation
         return omega + (alpha[0] + gamma[0] * (e < 0)) * e ** 2 + rest + beta.sum() * s2
 
+
+
+# ------------------------------------------------------------------ the risk figures' paths, compiled
+from ._compiled import jit_enabled, kernel  # noqa: E402  (the section's own; no numba until first call)
+
+
+@kernel
+def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, e2, n2, s2, cum, a_last, s_last):
+    """Paths of sigma2 = omega + sum (alpha_i + gamma_i 1(e < 0)) e^2 + sum beta_j sigma2 that start
+    from the lags e2, n2 (negative parts), s2 (newest last) and take the normal scores Y (a row per
+    step) through the cubic Hermite map of the law's quantiles (nodes gt, slopes dt per step, over
+    [-half, half]; ``ident``: the scores are the shocks).  The return is mu + e; ``cum`` gets the
+    sum of the returns, ``a_last`` the sum up to the last step plus its mean and ``s_last`` its
+    volatility.  Returns 1, or 0 at once if a score lies beyond the map's nodes (the caller then
+    takes the NumPy route, which maps those exactly)."""
+    h, n = Y.shape
+    p = alpha.shape[0]
+    q = beta.shape[0]
+    E2 = np.empty((max(p, 1), n))
+    N2 = np.empty((max(p, 1), n))
+    S2 = np.empty((max(q, 1), n))
+    for k in range(1, p + 1):  # lag k sits at ring position (-k) mod p at step 0
+        pos = (p - k) % p
+        for i in range(n):
+            E2[pos, i] = e2[p - k]
+            N2[pos, i] = n2[p - k]
+    for k in range(1, q + 1):
+        pos = (q - k) % q
+        for i in range(n):
+            S2[pos, i] = s2[q - k]
+    last = gt.shape[0] - 2
+    inv_step = 1.0 / step
+    top = last + 1.0
+    pa = np.empty(max(p, 1), dtype=np.int64)
+    pb = np.empty(max(q, 1), dtype=np.int64)
+    for i in range(n):
+        cum[i] = 0.0
+    for t in range(h):
+        for k in range(1, p + 1):  # the ring positions of the lags at this step
+            pa[k - 1] = (t - k) % p
+        for k in range(1, q + 1):
+            pb[k - 1] = (t - k) % q
+        for i in range(n):
+            v = omega
+            for k in range(p):
+                v += alpha[k] * E2[pa[k], i]  # in the order of the step-by-step route's sums
+                v += gamma[k] * N2[pa[k], i]
+            for k in range(q):
+                v += beta[k] * S2[pb[k], i]
+            y = Y[t, i]
+            if ident:
+                z = y
+            else:
+                u = (y + half) * inv_step
+                if not (0.0 <= u <= top):
+                    return 0
+                j = int(u)
+                if j > last:
+                    j = last
+                x = u - j
+                x1 = 1.0 - x
+                z = x1 * x1 * ((1.0 + 2.0 * x) * gt[j] + x * dt[j]) + x * x * ((3.0 - 2.0 * x) * gt[j + 1] - x1 * dt[j + 1])
+            sig = math.sqrt(v)
+            e = sig * z
+            ret = mu + e
+            if t == h - 1:
+                a_last[i] = cum[i] + (ret - sig * z)  # as the step-by-step route rounds it
+                s_last[i] = sig
+            cum[i] += ret
+            if p:
+                pos = t % p
+                E2[pos, i] = e * e
+                N2[pos, i] = e * e if e < 0 else 0.0
+            if q:
+                S2[t % q, i] = v
+    return 1
+
+
+def risk_sums(family, state, vp, Y, score_map, mu):
+    """(cum, a_last, s_last) of the paths that continue ``state`` (from ``sim_continue``) with the
+    normal scores ``Y`` (a row per step) mapped to shocks by ``score_map`` (``Distribution.normal_scores``)
+    and the constant mean ``mu``: the sum of the returns, the sum before the last step plus the last
+    step's mean, and the last step's volatility, as the NumPy route of the simulation gives them
+    (``sim_step``), in one compiled pass.  None where the family keeps its own simulation steps, the
+    kernels run as plain Python, or a score lies beyond the map's nodes: the caller then simulates
+    step by step."""
+    if not (jit_enabled() and isinstance(family, LinearFamily)
+            and type(family)._sim_variance is LinearFamily._sim_variance
+            and type(family)._sim_push is LinearFamily._sim_push
+            and type(family)._sim_continue is LinearFamily._sim_continue):
+        return None
+    omega, alpha, gamma, beta = family._coefficients(family._vp(vp))
+    alpha = np.asarray(alpha, dtype=float)
+    gamma = np.asarray(gamma, dtype=float) if family.asymmetric else np.zeros(len(alpha))
+    beta = np.asarray(beta, dtype=float)
+    e2 = np.array([float(x) for x in state.e2], dtype=float)
+    n2 = np.array([float(x) for x in state.n2], dtype=float) if family.asymmetric else np.zeros(len(e2))
+    s2 = np.array([float(x) for x in state.s2], dtype=float)
+    ident = not hasattr(score_map, "g")
+    gt = np.zeros(2) if ident else score_map.g
+    dt = np.zeros(2) if ident else score_map.d
+    half = 1.0 if ident else float(score_map.HALF)
+    step = 1.0 if ident else float(score_map.STEP)
+    n = Y.shape[1]
+    cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
+    ok = _risk_sum_loop(np.ascontiguousarray(Y, dtype=float), gt, dt, half, step, ident, float(mu), float(omega),
+                        alpha, gamma, beta, e2, n2, s2, cum, a_last, s_last)
+    return (cum, a_last, s_last) if ok else None

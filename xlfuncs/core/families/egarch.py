@@ -1078,3 +1078,110 @@ class Egarch(VarianceFamily):
             vp[0] = math.log(v) * (1.0 - b_tot)
             out.append(vp)
         return out
+
+
+# ------------------------------------------------------------------ the risk figures' paths, compiled
+from ._compiled import jit_enabled  # noqa: E402  (the section's own)
+
+
+@kernel
+def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, kappa, g0, z0, lv0,
+                   cum, a_last, s_last):
+    """Paths of ln sigma2 = omega + sum alpha_i (|z| - kappa) + gamma_i z + sum beta_j ln sigma2 (clipped
+    to [-700, 700], as the simulation's steps) that start from the news g0, shocks z0 and
+    log-variances lv0 (newest last) and take the normal scores Y (a row per step) through the cubic
+    Hermite map of the law's quantiles (nodes gt, slopes dt per step, over [-half, half];
+    ``ident``: the scores are the shocks).  The return is mu + e; ``cum`` gets the sum of the
+    returns, ``a_last`` the sum up to the last step plus its mean and ``s_last`` its volatility.
+    Returns 1, or 0 at once if a score lies beyond the map's nodes (the caller then takes the
+    NumPy route, which maps those exactly)."""
+    h, n = Y.shape
+    p = alpha.shape[0]
+    q = beta.shape[0]
+    G = np.empty((max(p, 1), n))
+    Z = np.empty((max(p, 1), n))
+    L = np.empty((max(q, 1), n))
+    for k in range(1, p + 1):
+        pos = (p - k) % p
+        for i in range(n):
+            G[pos, i] = g0[p - k]
+            Z[pos, i] = z0[p - k]
+    for k in range(1, q + 1):
+        pos = (q - k) % q
+        for i in range(n):
+            L[pos, i] = lv0[q - k]
+    last = gt.shape[0] - 2
+    inv_step = 1.0 / step
+    top = last + 1.0
+    pa = np.empty(max(p, 1), dtype=np.int64)
+    pb = np.empty(max(q, 1), dtype=np.int64)
+    for i in range(n):
+        cum[i] = 0.0
+    for t in range(h):
+        for k in range(1, p + 1):  # the ring positions of the lags at this step
+            pa[k - 1] = (t - k) % p
+        for k in range(1, q + 1):
+            pb[k - 1] = (t - k) % q
+        for i in range(n):
+            v = omega
+            for k in range(p):
+                v += alpha[k] * G[pa[k], i]  # in the order of the step-by-step route's sums
+                v += gamma[k] * Z[pa[k], i]
+            for k in range(q):
+                v += beta[k] * L[pb[k], i]
+            if v > 700.0:
+                v = 700.0
+            elif v < -700.0:
+                v = -700.0
+            y = Y[t, i]
+            if ident:
+                z = y
+            else:
+                u = (y + half) * inv_step
+                if not (0.0 <= u <= top):
+                    return 0
+                j = int(u)
+                if j > last:
+                    j = last
+                x = u - j
+                x1 = 1.0 - x
+                z = x1 * x1 * ((1.0 + 2.0 * x) * gt[j] + x * dt[j]) + x * x * ((3.0 - 2.0 * x) * gt[j + 1] - x1 * dt[j + 1])
+            sig = math.sqrt(math.exp(v))
+            e = sig * z
+            ret = mu + e
+            if t == h - 1:
+                a_last[i] = cum[i] + (ret - sig * z)  # as the step-by-step route rounds it
+                s_last[i] = sig
+            cum[i] += ret
+            if p:
+                pos = t % p
+                G[pos, i] = abs(z) - kappa
+                Z[pos, i] = z
+            if q:
+                L[t % q, i] = v
+    return 1
+
+
+def risk_sums(family, state, vp, Y, score_map, mu):
+    """(cum, a_last, s_last) of the paths that continue ``state`` (from ``sim_continue``) with the
+    normal scores ``Y`` (a row per step) mapped to shocks by ``score_map`` (``Distribution.normal_scores``)
+    and the constant mean ``mu``, in one compiled pass: the NumPy route's numbers (``sim_step``).
+    None where the kernels run as plain Python or a score lies beyond the map's nodes: the caller
+    then simulates step by step."""
+    if not (jit_enabled() and isinstance(family, Egarch) and state.clip):
+        return None
+    omega, alpha, gamma, beta = family._split(family._vp(vp))
+    g0 = np.array([float(x) for x in state.g], dtype=float)
+    z0 = np.array([float(x) for x in state.z], dtype=float)
+    lv0 = np.array([float(x) for x in state.lv], dtype=float)
+    ident = not hasattr(score_map, "g")
+    gt = np.zeros(2) if ident else score_map.g
+    dt = np.zeros(2) if ident else score_map.d
+    half = 1.0 if ident else float(score_map.HALF)
+    step = 1.0 if ident else float(score_map.STEP)
+    n = Y.shape[1]
+    cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
+    ok = _risk_sum_loop(np.ascontiguousarray(Y, dtype=float), gt, dt, half, step, ident, float(mu), float(omega),
+                        np.asarray(alpha, dtype=float), np.asarray(gamma, dtype=float), np.asarray(beta, dtype=float),
+                        float(state.kappa), g0, z0, lv0, cum, a_last, s_last)
+    return (cum, a_last, s_last) if ok else None
