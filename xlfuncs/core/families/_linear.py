@@ -217,20 +217,28 @@ class LinearFamily(VarianceFamily):
             if asym:
                 dN2 = np.where(neg, dE2, 0.0)
                 dnbar = dN2.mean(axis=1)
-            if presample == "mean":
-                dP = np.concatenate([np.repeat(dsbar[:, None], p, axis=1), dE2], axis=1)
-                if asym:
-                    dN = np.concatenate([np.repeat(dnbar[:, None], p, axis=1), dN2], axis=1)
-            else:
-                dP = dE2
-                if asym:
-                    dN = dN2
             Rm = RHS[:nm]
-            Rm[:] = 0.0
-            for i in range(1, p + 1):
-                Rm += alpha[i - 1] * dP[:, p - i: p - i + m]
-                if asym:
-                    Rm += gamma[i - 1] * dN[:, p - i: p - i + m]
+            if presample == "mean":
+                # sum_i alpha_i dP[t-i] with dP the squares' derivatives behind their presample
+                # (dsbar): written window by window into RHS, the first term set, not added to zero
+                for i in range(1, p + 1):
+                    if i == 1:
+                        Rm[:, :1] = alpha[0] * dsbar[:, None]
+                        np.multiply(dE2[:, : m - 1], alpha[0], out=Rm[:, 1:])
+                    else:
+                        Rm[:, :i] += alpha[i - 1] * dsbar[:, None]
+                        Rm[:, i:] += alpha[i - 1] * dE2[:, : m - i]
+                    if asym:
+                        Rm[:, :i] += gamma[i - 1] * dnbar[:, None]
+                        Rm[:, i:] += gamma[i - 1] * dN2[:, : m - i]
+                if not p:
+                    Rm[:] = 0.0
+            else:
+                Rm[:] = 0.0
+                for i in range(1, p + 1):
+                    Rm += alpha[i - 1] * dE2[:, p - i: p - i + m]
+                    if asym:
+                        Rm += gamma[i - 1] * dN2[:, p - i: p - i + m]
             if q:
                 ZI[:nm] = dsbar[:, None] * tail[None, :]
         base = nm
@@ -479,6 +487,24 @@ class LinearFamily(VarianceFamily):
                 raise InputError(f"{n} must be 0 or more, got {v:g}")
 
     def _admissible(self, vp, eta, dist, held):
+        if not self.asymmetric and type(self)._coefficients is LinearFamily._coefficients:
+            # the parameters are (omega, alpha, beta) themselves: the same tests in plain floats
+            # (the optimiser asks at every trial point; NumPy's reductions over four numbers cost
+            # more than the tests), the persistence summed alphas first, then betas, as below
+            v = vp.tolist()
+            if not v[0] > 0:
+                return False
+            for x in v[1:]:
+                if x < 0:
+                    return False
+            if held:
+                return True
+            sa = sb = 0.0
+            for x in v[1: 1 + self.p]:
+                sa += x
+            for x in v[1 + self.p:]:
+                sb += x
+            return sa + sb < 1.0
         omega, alpha, gamma, beta = self._coefficients(vp)
         if not omega > 0 or (alpha < 0).any() or (beta < 0).any():
             return False
