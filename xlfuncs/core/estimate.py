@@ -65,6 +65,12 @@ def _pd_solve(M, g):
     return x
 
 
+def _same(a, b) -> bool:
+    """np.array_equal for two vectors of free parameters, without its argument handling."""
+    b = np.asarray(b)
+    return a.shape == b.shape and bool((a == b).all())
+
+
 def _solve(B, g):
     """B^-1 g by LU with partial pivoting (numpy.linalg.solve's routine); LinAlgError where B is
     singular."""
@@ -327,7 +333,7 @@ class _Problem:
     # ----- objective -------------------------------------------------------------------
     def negll(self, u):
         last = self.last_value
-        if last is not None and np.array_equal(last[0], u):
+        if last is not None and _same(last[0], u):
             return last[1]  # the point a pass just scored (the estimate, scored again by _run)
         self.n_calls += 1
         theta = self.full(u)
@@ -745,7 +751,7 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
 
     def at(v):  # (f, g, -H) at v
         last = problem.last_second
-        if exact and last is not None and np.array_equal(last[0], v):
+        if exact and last is not None and _same(last[0], v):
             return float(last[1].sum()), last[2].sum(axis=0), -last[3]
         if exact:
             l, G, H = problem.second(v)
@@ -1260,8 +1266,9 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
         # mean parameters on a kink: curvature over one SE (a likelihood smooth in the
         # residuals has no kink, and the check would cost four gradients)
         H = _across_kinks(problem, u, H, active)
-    G = G[:, fr]
-    Hf = H[np.ix_(fr, fr)]
+    every = bool(fr.all())  # no parameter at a bound: the whole matrices, not copies of them
+    G = G if every else G[:, fr]
+    Hf = H if every else H[np.ix_(fr, fr)]
     try:
         Hinv = np.linalg.inv(-Hf)
         if kind == "hessian":
@@ -1272,8 +1279,11 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
             V = Hinv @ (G.T @ G) @ Hinv
     except np.linalg.LinAlgError:
         return se, None
-    A = problem.jacobian(problem.full(u))[:, fr]
-    Vfull = A @ V @ A.T
+    if every and problem.identity:
+        Vfull = V  # the free parameters are the full vector (A is the identity)
+    else:
+        A = problem.jacobian(problem.full(u))[:, fr]
+        Vfull = A @ V @ A.T
     d = np.diag(Vfull)
     ok = d > 0
     se[ok] = np.sqrt(d[ok])

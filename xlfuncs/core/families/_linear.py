@@ -59,6 +59,15 @@ def _mean(x):
     return x.sum() / len(x)
 
 
+def _head_sum(x, k: int) -> float:
+    """x[:k].sum() for the few presample positions (k <= the orders): the same sequential sum
+    in plain floats, without a NumPy reduction's call overhead."""
+    total = 0.0
+    for v in x[:k].tolist():
+        total += v
+    return total
+
+
 def _window_means(x, starts, ends) -> np.ndarray:
     """The mean of x[starts[k]:ends[k]] for each k (one reduction when the windows are all as long)."""
     lengths = ends - starts
@@ -367,7 +376,7 @@ class LinearFamily(VarianceFamily):
                 if mean_mode:
                     pre = max(0, p - lo)
                     x0, x1 = max(lo - p, 0), hi - p
-                    lpre = lam[:pre].sum()
+                    lpre = _head_sum(lam, pre)
                 else:
                     pre, x0, x1, lpre = 0, lo, hi, 0.0
                 lw = lam[pre:]
@@ -389,8 +398,9 @@ class LinearFamily(VarianceFamily):
                         ce[x0:x1] += (2.0 * st.gamma[i - 1]) * e[x0:x1] * lwn
                     k_nbar += st.gamma[i - 1] * lpre
             if q:
-                S[:nm, :nm] += d2sbar * (lam[:q] @ st.tail)
-                k_sbar += lam[:q] @ st.tail
+                ltail = lam[:q] @ st.tail
+                S[:nm, :nm] += d2sbar * ltail
+                k_sbar += ltail
             if want:
                 ce += (2.0 * inv_n * k_sbar) * e
                 if asym and k_nbar:
@@ -399,7 +409,7 @@ class LinearFamily(VarianceFamily):
         for j in range(1, q + 1):
             v = D[:, : m - j] @ lam[j:]
             if nm:
-                v[:nm] += dsbar * lam[:j].sum()  # the presample variance's derivatives
+                v[:nm] += dsbar * _head_sum(lam, j)  # the presample variance's derivatives
             S[off + j - 1] += v
             S[:, off + j - 1] += v
         return S, ce
