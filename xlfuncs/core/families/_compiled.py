@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import os
 
-__all__ = ["kernel", "Kernel", "jit_enabled", "jit_state"]
+__all__ = ["kernel", "Kernel", "jit_enabled", "jit_state", "compiled_available"]
 
 _ENV = "VOLCAST_NO_JIT"
 _numba = None  # the numba module once imported; False when it cannot be
@@ -27,6 +27,12 @@ _numba = None  # the numba module once imported; False when it cannot be
 def jit_enabled() -> bool:
     """True unless ``VOLCAST_NO_JIT`` asks for the plain-Python kernels."""
     return os.environ.get(_ENV, "") in ("", "0")
+
+
+def compiled_available() -> bool:
+    """True where kernels run compiled: the JIT not switched off and numba importable (imported
+    on the first ask).  For a caller whose own fallback beats the plain-Python kernel."""
+    return jit_enabled() and bool(_load_numba())
 
 
 def _load_numba():
