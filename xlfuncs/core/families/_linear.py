@@ -4,7 +4,10 @@
 
 with e2 = e^2 and N = 1(e < 0) e^2 (the GJR news term; no gamma in the symmetric families).  The
 recursion runs through ``scipy.signal.lfilter``; its derivatives (forward) run through the same
-filter, and the gradient of sum_t w_t sigma2_t runs the filter once backwards (the adjoint).
+filter, and the gradient of sum_t w_t sigma2_t runs the filter once backwards (the adjoint).  With
+one lag of each and no news term (GARCH(1,1), IGARCH(1,1)) the variance, its forward derivatives
+and the adjoint's second-derivative sums run in two compiled loops where numba runs the kernels
+(:func:`_one_lag_forward`, :func:`_one_lag_second`; the filters' numbers to the last bit).
 
 A family of this kind says how its own parameters give the *linear coefficients*
 (omega, alpha[1..p], gamma[1..p], beta[1..q]): :meth:`LinearFamily._coefficients` and its
