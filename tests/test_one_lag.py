@@ -75,3 +75,21 @@ def test_fit_is_the_numpy_paths(dmbp, monkeypatch):
     assert_allclose(a.params, b.params, rtol=1e-12)
     assert_allclose(a.std_errors, b.std_errors, rtol=1e-10)
     assert abs(a.loglik - b.loglik) < 1e-9
+
+
+def test_only_estimation_loads_numba():
+    """Scoring given parameters (a fit table's log-likelihood, its variances) stays with SciPy's
+    filter; the first GARCH(1,1) estimation loads numba."""
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    code = ("import sys, numpy as np\nfrom xlfuncs.core import get_distribution, parse_model\n"
+            "from xlfuncs.core.estimate import evaluate, fit\nr = np.random.default_rng(1).standard_normal(400)\n"
+            "evaluate(r, parse_model('GARCH(1,1)'), get_distribution('normal'), ('mu', 'omega', 'alpha[1]', 'beta[1]'),"
+            " [0.0, 0.1, 0.1, 0.8])\nprint('numba' in sys.modules)\nfit(r, 'GARCH(1,1)')\nprint('numba' in sys.modules)\n")
+    env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1]))
+    env.pop("VOLCAST_NO_JIT", None)
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
+    assert out.stdout.split() == ["False", "True"]

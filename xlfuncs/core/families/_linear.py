@@ -76,7 +76,9 @@ def _one_lag_forward(P, dE2, dsbar, omega, alpha, beta, sbar, sig2, D):
     sigma2[t] = omega + alpha P[t] + beta sigma2[t-1] (P[t] the square before t, P[0] its
     presample), the lagged variance before the start sbar; ``dE2`` the squares' derivatives in
     the mean parameters (dE2[:, t] that of P[t + 1]), ``dsbar`` the presample's.  ``D`` may have
-    no rows (the variances alone)."""
+    no rows (the variances alone).  The estimator's passes only: the
+    variances alone (a log-likelihood, a forecast's filter) stay with SciPy's filter, so that
+    what never estimates never loads numba."""
     m = sig2.shape[0]
     nm = dE2.shape[0]
     rows = D.shape[0]
@@ -280,11 +282,6 @@ class LinearFamily(VarianceFamily):
     def _run(self, omega, alpha, gamma, beta, P, N, sbar, shift=None):
         p, q = self.p, self.q
         m = len(P) - p
-        if _one_lag(self, shift):
-            b = float(beta[0])
-            sig2 = _one_lag_forward(np.ascontiguousarray(P, dtype=float), _NO_ROWS, _NO_VALUES, float(omega),
-                                    float(alpha[0]), b, float(sbar), np.empty(m), _NO_ROWS)
-            return sig2, np.array([1.0, -b]), beta.copy(), m
         if shift is None and p:
             # omega + alpha_1 P_{t-1} as alpha_1 P_{t-1} + omega (the same sum: addition commutes)
             x = np.multiply(alpha[0], P[p - 1: p - 1 + m])
