@@ -322,7 +322,7 @@ class Likelihood:
             S[:nm, :nm] += self._ma_second(theta, de, ce)
         # scores
         G = np.empty((k, self.nobs))
-        G[:kd] = w * D
+        np.multiply(w, D, out=G[:kd])
         if nm:
             G[:nm] += (fz / sd) * des
         if nd:
@@ -352,7 +352,8 @@ class Likelihood:
             H[:kd, kv:] += C.T
             H[kv:, kv:] += fpp.sum(axis=-1)
         H = 0.5 * (H + H.T)
-        if not (np.all(np.isfinite(H)) and np.all(np.isfinite(l))):
+        # every entry finite: their sums are (a nan or an infinity carries into a sum)
+        if not (math.isfinite(H.sum()) and math.isfinite(l.sum())):
             return self._bad_hessian()
         return l, G.T, H
 

@@ -211,6 +211,9 @@ class MeanModel:
         de[self.lin_idx] = -self.R
         self._de_const = de
         self._de_const.setflags(write=False)
+        # the intercept alone (a constant mean): the residuals are y - mu, which the product with
+        # the design row of ones gives exactly, without the product's cost on every evaluation
+        self._mu_only = len(linear) == 1 and isinstance(linear[0], Intercept) and self.lin_idx.tolist() == [0]
 
     # ------------------------------------------------------------------ pieces of the vector
     def mu_phi_theta(self, tm):
@@ -249,7 +252,10 @@ class MeanModel:
     def residuals(self, tm, derivs: bool = False):
         """Residuals u on [a, T) of every part but the in-mean term, and if asked their
         derivatives (one row per mean parameter; the in-mean row is left at zero)."""
-        w = self.y - tm[self.lin_idx] @ self.R if len(self.lin_idx) else self.y
+        if self._mu_only:
+            w = self.y - tm[0]
+        else:
+            w = self.y - tm[self.lin_idx] @ self.R if len(self.lin_idx) else self.y
         if self.ma is None:
             return w, (self._de_const if derivs else None)
         den = self.ma.den(tm[self.ma_idx])

@@ -180,6 +180,15 @@ def returns_column(value, arg: str = "returns", missing: str = "error") -> Retur
     if is_error_text(value):
         raise SheetError(f"{arg} holds an error from another cell: {_chained(value)}")
     rows = as_rows(value)
+    if len(rows) > 1:
+        # the common case first: a column of one-cell rows of plain numbers (the unpacking fails
+        # on any row that is not one cell, and the careful path below then reads the range)
+        try:
+            fast = _fast_numbers([v for (v,) in rows], "column")
+        except ValueError:
+            fast = None
+        if fast is not None:
+            return fast
     lengths = set(map(len, rows))
     if not rows or lengths == {0}:
         raise SheetError(f"{arg} is empty; select a column of numbers")
