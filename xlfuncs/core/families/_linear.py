@@ -5,10 +5,11 @@
 with e2 = e^2 and N = 1(e < 0) e^2 (the GJR news term; no gamma in the symmetric families).  The
 recursion runs through ``scipy.signal.lfilter``; its derivatives (forward) run through the same
 filter, and the gradient of sum_t w_t sigma2_t runs the filter once backwards (the adjoint).  With
-one lag of each and no news term (GARCH(1,1), IGARCH(1,1)) the variance, its forward derivatives
-and the adjoint's second-derivative sums run in two compiled loops where numba is already loaded
-in the process (:func:`_one_lag_forward`, :func:`_one_lag_second`; the filters' numbers to the last
-bit).
+one lag of each and no news term (GARCH(1,1), IGARCH(1,1)) the variance and its forward
+derivatives run side by side in one compiled loop where numba is already loaded in the process
+(:func:`_one_lag_forward`: the filters' numbers to the last bit, so a fit gives the same estimate,
+bit for bit, whichever route ran; the Hessian's second-derivative sums stay with the filters, whose
+pairwise sums a compiled loop would not repeat to the last bit).
 
 A family of this kind says how its own parameters give the *linear coefficients*
 (omega, alpha[1..p], gamma[1..p], beta[1..q]): :meth:`LinearFamily._coefficients` and its
@@ -61,10 +62,9 @@ def linear_filter(den, x, zi=None):
 
 # ---------------------------------------------------------------------------------- kernels
 # The commonest recursion, one lag of each (GARCH(1,1) and its kin with no news term), in one
-# compiled loop where numba runs the kernels (:mod:`._compiled`; else the filters below).  A
-# filter is a chain of dependent multiply-adds, so SciPy's loop and a compiled one cost about the
-# same per row; the gain is in running the variance and its derivatives' rows side by side in one
-# loop, and in the adjoint's sums without NumPy's per-call overhead on many small operations.
+# compiled loop where numba is loaded (:mod:`._compiled`; else the filters below).  A filter is a
+# chain of dependent multiply-adds, so SciPy's loop and a compiled one cost about the same per row;
+# the gain is in running the variance and its derivatives' rows side by side in one loop.
 # Each filter step is SciPy's transposed direct form II with its numerator [1, 0] (the output is
 # the delay plus the input; the delay the input times zero less the output times -beta), so
 # the variances and the forward derivatives are the filters' numbers to the last bit.
@@ -114,57 +114,6 @@ def _one_lag_forward(P, dE2, dsbar, omega, alpha, beta, sbar, sig2, D):
             D[nm + 2, t] = yb
         prev = yt
     return sig2
-
-
-@kernel
-def _one_lag_second(w, beta, alpha, D, dE2, de, dsbar, d2sbar, S):
-    """S = sum_t w_t d2 sigma2_t for the recursion of :func:`_one_lag_forward` (presample mean,
-    residuals linear in the mean parameters): :meth:`LinearFamily._second` for p = q = 1, its
-    sums taken in one pass after the adjoint variables lam (the filter run backwards over w)."""
-    m = w.shape[0]
-    nm = de.shape[0]
-    kk = D.shape[0]
-    den1 = -beta
-    lam = np.empty(m)
-    z = 0.0
-    for t in range(m - 1, -1, -1):
-        y = z + w[t]
-        z = w[t] * 0.0 - y * den1
-        lam[t] = y
-    for i in range(kk):
-        for j in range(kk):
-            S[i, j] = 0.0
-    l0 = lam[0]
-    ib = nm + 2  # beta's row
-    v = np.zeros(kk)
-    for t in range(m - 1):
-        lt = lam[t + 1]
-        for c in range(kk):
-            v[c] += D[c, t] * lt
-    if nm:
-        first = np.zeros(nm)
-        cross = np.zeros((nm, nm))
-        for t in range(m - 1):
-            lt = lam[t + 1]
-            for r in range(nm):
-                first[r] += dE2[r, t] * lt
-                a = 2.0 * de[r, t] * lt
-                for c in range(nm):
-                    cross[r, c] += a * de[c, t]
-        ltail = l0 * beta
-        for r in range(nm):
-            f = first[r] + dsbar[r] * l0
-            S[r, nm + 1] += f
-            S[nm + 1, r] += f
-            for c in range(nm):
-                S[r, c] += alpha * (cross[r, c] + d2sbar[r, c] * l0)
-                S[r, c] += d2sbar[r, c] * ltail
-            v[r] += dsbar[r] * l0
-    for c in range(kk):
-        S[ib, c] += v[c]
-    for c in range(kk):
-        S[c, ib] += v[c]
-    return S
 
 
 def _one_lag(family, shift) -> bool:
@@ -505,19 +454,6 @@ class LinearFamily(VarianceFamily):
         m = st.m
         nm = de.shape[0]
         kk = D.shape[0]
-        if st.mean_mode and kk == nm + 3 and (not nm or not residual_weights) and _one_lag(self, None) \
-                and type(self)._jacobian is LinearFamily._jacobian:
-            S = np.empty((kk, kk))
-            if nm:
-                inv_n = 1.0 / len(st.e)
-                dE2 = st.dE2 if st.dE2 is not None else 2.0 * st.e * de
-                dsbar = dE2.sum(axis=1) * inv_n
-                d2sbar = 2.0 * (de @ de.T) * inv_n
-            else:
-                dE2, dsbar, d2sbar = _NO_ROWS, _NO_VALUES, _NO_ROWS
-            _one_lag_second(np.ascontiguousarray(w, dtype=float), float(st.beta[0]), float(st.alpha[0]),
-                            np.ascontiguousarray(D), dE2, np.ascontiguousarray(de, dtype=float), dsbar, d2sbar, S)
-            return S, (np.zeros(len(st.e)) if nm and residual_weights else None)
         # the adjoint variables: the recursion's filter run backwards over the weights
         lam = linear_filter(st.den, np.ascontiguousarray(w[::-1]))[::-1] if q else w
         S = np.zeros((kk, kk))
