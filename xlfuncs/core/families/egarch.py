@@ -755,11 +755,9 @@ class Egarch(VarianceFamily):
         om = self._intercepts(omega, len(e), start, shift)
         return _log_variance_loop(e, om, alpha, gamma, beta, kappa, lsbar, sd0, start)
 
-    def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
-        """(sigma2, D) from one compiled forward pass: D's rows are the mean parameters, the
-        variance parameters, the intercept series' parameters (``dshift``: d shift / d v[k], one
-        row per parameter on the likelihood positions), then the distribution's (E|z| moves
-        with them)."""
+    def _derivative_pass(self, vp, e, de, presample, eta, dist, shift, dshift):
+        """The compiled forward pass of the derivatives (:func:`_log_variance_derivatives`) and its
+        inputs: (sig2, D with a row per time, inputs as a tuple, start)."""
         omega, alpha, gamma, beta = self._parts(vp)
         e = _plain(e)
         n = len(e)
@@ -774,6 +772,14 @@ class Egarch(VarianceFamily):
         if dshift is not None:
             dom[:, start:] = dshift
         sig2, D = _log_variance_derivatives(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start)
+        return sig2, D, (e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar), start
+
+    def _derivatives(self, vp, e, de, presample, eta=(), dist=None, shift=None, dshift=None):
+        """(sigma2, D) from one compiled forward pass: D's rows are the mean parameters, the
+        variance parameters, the intercept series' parameters (``dshift``: d shift / d v[k], one
+        row per parameter on the likelihood positions), then the distribution's (E|z| moves
+        with them)."""
+        sig2, D, _, _ = self._derivative_pass(vp, e, de, presample, eta, dist, shift, dshift)
         return sig2, D.T
 
     def _forward(self, vp, e, presample, shift=None, eta=(), dist=None):
@@ -808,23 +814,12 @@ class Egarch(VarianceFamily):
     def _second_pass(self, vp, e, de, presample, shift=None, dshift=None, eta=(), dist=None):
         """(state, D): the forward derivatives of :meth:`_derivatives` (the distribution's rows
         included) and what :meth:`_second` reads."""
-        omega, alpha, gamma, beta = self._parts(vp)
-        e = _plain(e)
-        n = len(e)
-        de = _plain(np.reshape(de, (-1, n)))
-        eta = np.asarray(eta, dtype=float)
-        kappa, dkappa = self._kappa_and_gradient(eta, dist)
-        sbar, _, _ = self._presample(e)
-        dsbar = (2.0 / n) * (de @ e)
-        start = self.p if presample == "drop" else 0
-        om = self._intercepts(omega, n, start, shift)
-        dom = np.zeros((0 if dshift is None else len(dshift), n))
-        if dshift is not None:
-            dom[:, start:] = dshift
-        sig2, D = _log_variance_derivatives(e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar, start)
+        sig2, D, args, start = self._derivative_pass(vp, e, de, presample, eta, dist, shift, dshift)
+        e, de, om, dom, alpha, gamma, beta, kappa, dkappa, sbar, dsbar = args
         st = _SecondState()
         st.sig2 = sig2
-        st.args = (e, de, om, dom, alpha, gamma, beta, kappa, dkappa, self._kappa_curvature(eta, dist), sbar, dsbar)
+        st.args = (e, de, om, dom, alpha, gamma, beta, kappa, dkappa,
+                   self._kappa_curvature(np.asarray(eta, dtype=float), dist), sbar, dsbar)
         st.start = start
         return st, D.T
 
