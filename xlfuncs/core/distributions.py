@@ -357,6 +357,16 @@ class _ScoreMap:
         return out
 
 
+def score_map_arrays(score_map) -> tuple:
+    """(ident, g, d, half, step): what a compiled loop needs to apply ``score_map`` (from
+    :meth:`Distribution.normal_scores`) itself: ``ident`` where the map is the identity (normal
+    shocks; the arrays are then placeholders), else the Hermite nodes, slopes per grid step and
+    the grid's half-width and step."""
+    if not isinstance(score_map, _ScoreMap):
+        return True, np.zeros(2), np.zeros(2), 1.0, 1.0
+    return False, score_map.g, score_map.d, float(score_map.HALF), float(score_map.STEP)
+
+
 def _hermite_map_py(x, g, d, half, step, out):
     """The cubic Hermite interpolant of _ScoreMap.__call__, one point at a time (a numba kernel)."""
     last = g.shape[0] - 2

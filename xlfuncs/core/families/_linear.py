@@ -831,6 +831,7 @@ class LinearFamily(VarianceFamily):
 
 
 # ------------------------------------------------------------------ the risk figures' paths, compiled
+from ..distributions import score_map_arrays  # noqa: E402
 from ._compiled import jit_enabled, kernel  # noqa: E402  (the section's own; no numba until first call)
 
 
@@ -926,11 +927,7 @@ def risk_sums(family, state, vp, Y, score_map, mu):
     e2 = np.array([float(x) for x in state.e2], dtype=float)
     n2 = np.array([float(x) for x in state.n2], dtype=float) if family.asymmetric else np.zeros(len(e2))
     s2 = np.array([float(x) for x in state.s2], dtype=float)
-    ident = not hasattr(score_map, "g")
-    gt = np.zeros(2) if ident else score_map.g
-    dt = np.zeros(2) if ident else score_map.d
-    half = 1.0 if ident else float(score_map.HALF)
-    step = 1.0 if ident else float(score_map.STEP)
+    ident, gt, dt, half, step = score_map_arrays(score_map)
     n = Y.shape[1]
     cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
     ok = _risk_sum_loop(np.ascontiguousarray(Y, dtype=float), gt, dt, half, step, ident, float(mu), float(omega),

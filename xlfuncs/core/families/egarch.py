@@ -1076,6 +1076,7 @@ class Egarch(VarianceFamily):
 
 
 # ------------------------------------------------------------------ the risk figures' paths, compiled
+from ..distributions import score_map_arrays  # noqa: E402
 from ._compiled import jit_enabled  # noqa: E402  (the section's own)
 
 
@@ -1169,11 +1170,7 @@ def risk_sums(family, state, vp, Y, score_map, mu):
     g0 = np.array([float(x) for x in state.g], dtype=float)
     z0 = np.array([float(x) for x in state.z], dtype=float)
     lv0 = np.array([float(x) for x in state.lv], dtype=float)
-    ident = not hasattr(score_map, "g")
-    gt = np.zeros(2) if ident else score_map.g
-    dt = np.zeros(2) if ident else score_map.d
-    half = 1.0 if ident else float(score_map.HALF)
-    step = 1.0 if ident else float(score_map.STEP)
+    ident, gt, dt, half, step = score_map_arrays(score_map)
     n = Y.shape[1]
     cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
     ok = _risk_sum_loop(np.ascontiguousarray(Y, dtype=float), gt, dt, half, step, ident, float(mu), float(omega),
