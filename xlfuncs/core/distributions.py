@@ -346,15 +346,18 @@ class _ScoreMap:
                 return out
         u = (x + self.HALF) / self.STEP
         i = np.clip(np.floor(u), 0, len(self.g) - 2).astype(np.intp)
-        t = u - i
-        t2 = t * t
-        t1 = 1.0 - t
-        g0, g1, d0, d1 = self.g[i], self.g[i + 1], self.d[i], self.d[i + 1]
-        out = t1 * t1 * ((1.0 + 2.0 * t) * g0 + t * d0) + t2 * ((3.0 - 2.0 * t) * g1 - t1 * d1)
+        out = hermite(self.g, self.d, i, u - i)
         far = np.abs(x) > self.HALF
         if np.any(far):
             out[far] = self._exact(x[far])
         return out
+
+
+def hermite(v, dv, i, t):
+    """The cubic Hermite interpolant on a uniform grid: values ``v`` and slopes per grid step
+    ``dv`` at the nodes, evaluated in cell ``i`` at the fraction ``t`` of the step (arrays)."""
+    t1 = 1.0 - t
+    return t1 * t1 * ((1.0 + 2.0 * t) * v[i] + t * dv[i]) + t * t * ((3.0 - 2.0 * t) * v[i + 1] - t1 * dv[i + 1])
 
 
 def score_map_arrays(score_map) -> tuple:

@@ -76,6 +76,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import integrate, special
 
+from .distributions import hermite
 from .errors import InputError, value_words
 from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
@@ -285,11 +286,6 @@ class _LastLaw:
         t = u - i
         return i, t, out
 
-    @staticmethod
-    def _hermite(v, dv, i, t):
-        t1 = 1.0 - t
-        return t1 * t1 * ((1.0 + 2.0 * t) * v[i] + t * dv[i]) + t * t * ((3.0 - 2.0 * t) * v[i + 1] - t1 * dv[i + 1])
-
     def values(self, k, what):
         """A tuple of the functions named in ``what`` ('F', 'f', 'M', 'df') at the points ``k``."""
         i, t, out = self._cell(k)
@@ -301,7 +297,7 @@ class _LastLaw:
                 v = ((6.0 * t2 - 6.0 * t) * (f0 - f1) + (3.0 * t2 - 4.0 * t + 1.0) * self.df[i]
                      + (3.0 * t2 - 2.0 * t) * self.df[i + 1]) * (1.0 / self.STEP)
             else:
-                v = self._hermite(getattr(self, w), getattr(self, "d" + w), i, t)
+                v = hermite(getattr(self, w), getattr(self, "d" + w), i, t)
             res.append(v)
         if np.any(out):
             ko = k[out]
@@ -347,10 +343,10 @@ def _tail_solve(law, a, s, w, alpha: float, start: float):
         return None
     d = -(wF / n - alpha) / g1
     x2 = x1 + d
-    if not abs(d) <= 1e-4 * (1.0 + abs(x1)):
+    if not abs(d) <= 1e-4 * (1.0 + abs(x1)):  # x2 then within about 1e-8 of the root (quadratic convergence)
         return None
     num = float((w * F) @ a) + float(w @ (s * M))
-    num += x1 * n * g1 * d
+    num += x1 * n * g1 * d  # the tail sum moved from x1 to x2, first order
     den = wF + n * g1 * d
     return -x2, -num / den
 
@@ -448,8 +444,8 @@ def _conditional_es(dist, eta, a, s, w, cut: float) -> float:
 
 def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
     """(cum, a_last, s_last) of the simulated paths in one compiled pass of the variance family's
-    own kernel (``risk_sums`` in :mod:`~xlfuncs.core.families._linear` and
-    :mod:`~xlfuncs.core.families.egarch`): the sum of the returns, the sum before the last step
+    own kernel (the family's ``sim_sums``: ``risk_sums`` in :mod:`~xlfuncs.core.families._linear`
+    and :mod:`~xlfuncs.core.families.egarch`): the sum of the returns, the sum before the last step
     plus its mean, and the last step's volatility, the numbers the step-by-step route
     (:func:`~xlfuncs.core.simulate.forward_steps`) gives from the same scores.  For a constant (or
     zero) mean without regressors or in-mean term, when every step's scores are quasi-random
@@ -459,19 +455,18 @@ def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
     spec = fit.spec
     if spec.ar or spec.ma or spec.in_mean or spec.n_regressors or horizon > QMC_STEPS or scores.d != horizon - 1:
         return None
-    from .families import History, _linear, egarch
+    fam = spec.family
+    if not fam.compiled_paths:
+        return None
+    from .families import History
     from .forecast import in_sample
 
     resid, var, lik = in_sample(fit, r, X)
     theta = np.asarray(fit.params, dtype=float)
     mu, _, _, vp, eta = lik.split(theta)
     mu = float(mu) if spec.has_mu else 0.0
-    fam = spec.family
-    if not isinstance(fam, (_linear.LinearFamily, egarch.Egarch)):
-        return None
     state = fam.sim_continue(vp, eta, fit.dist, History(resid[lik.a:], var[lik.a + lik.s0:], lik.s0))
-    mod = _linear if isinstance(fam, _linear.LinearFamily) else egarch
-    return mod.risk_sums(fam, state, vp, scores.y[:horizon], to_shock, mu)
+    return fam.sim_sums(state, vp, scores.y[:horizon], to_shock, mu)
 
 
 def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=None, Xf=None) -> Risk:

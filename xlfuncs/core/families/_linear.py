@@ -175,6 +175,7 @@ class LinearFamily(VarianceFamily):
     has_adjoint = True
     takes_shift = True
     window_forecasts = True
+    compiled_paths = True  # sim_sums: risk_sums below
     smooth_in_residuals = True
     #: the recursion carries the GJR news term gamma_i 1(e<0) e^2
     asymmetric = False
@@ -744,6 +745,9 @@ class LinearFamily(VarianceFamily):
                 state.n2 = state.n2[1:] + [np.where(e < 0, e2, 0.0)]
         if self.q:
             state.s2 = state.s2[1:] + [s2]
+
+    def sim_sums(self, state, vp, Y, score_map, mu):
+        return risk_sums(self, state, vp, Y, score_map, mu)
 
     # ------------------------------------------------------------------ one observation at a time
     def _bad_shift(self, vp, shift):

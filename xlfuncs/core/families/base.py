@@ -530,6 +530,19 @@ class VarianceFamily:
         return out
 
     # ------------------------------------------------------------------ simulation
+    #: the family can run whole simulated paths in one compiled pass (:meth:`sim_sums`)
+    compiled_paths = False
+
+    def sim_sums(self, state, vp, Y, score_map, mu):
+        """(cum, a_last, s_last) of the paths that continue ``state`` (from :meth:`sim_continue`)
+        with the normal scores ``Y`` (a row per step) mapped to shocks by ``score_map``
+        (``Distribution.normal_scores``) and the constant mean ``mu``: the sum of the returns, the
+        sum before the last step plus the last step's mean, and the last step's volatility, as
+        :meth:`sim_step` step by step gives them, in one compiled pass of the family's own kernel
+        (``compiled_paths`` families).  None where there is no such pass: the caller then
+        simulates step by step."""
+        return None
+
     def sim_start(self, vp, eta, dist, paths: int):
         """The state of ``paths`` fresh paths before their first period."""
         return self._sim_start(self._vp(vp), np.asarray(eta, dtype=float), dist, int(paths))

@@ -685,6 +685,7 @@ class Egarch(VarianceFamily):
     cost_weight = 3
     in_mean_cost_weight = 25  # an in-mean EGARCH: one observation at a time, by differences (as before)
     analytic = True  # scores from the compiled forward pass (_derivatives)
+    compiled_paths = True  # sim_sums: risk_sums below
     has_second = True  # the Hessian from a compiled second-order forward pass (_second)
     has_adjoint = True  # the gradient by a compiled backward pass (_adjoint)
     second_between_kinks = True  # |z| kinks the likelihood along the mean parameters
@@ -999,6 +1000,9 @@ class Egarch(VarianceFamily):
             state.z = state.z[1:] + [z]
         if self.q:
             state.lv = state.lv[1:] + [state.v]
+
+    def sim_sums(self, state, vp, Y, score_map, mu):
+        return risk_sums(self, state, vp, Y, score_map, mu)
 
     # ------------------------------------------------------------------ one observation at a time
     def _filter_start(self, vp, eta, dist, u, e_lags, presample):
