@@ -137,7 +137,8 @@ class VarianceFamily:
     second_reads_shape: bool = False
     #: the closed-form second derivatives (``has_second``) hold between the kinks that the
     #: recursion's |e| puts along the mean parameters (EGARCH's news |z|), which they leave out:
-    #: the estimator differences the analytic gradient along those parameters instead
+    #: the Newton steps difference the analytic gradient along those parameters instead (and keep
+    #: the bookkeeping for a maximum on a kink); the standard errors take the closed form
     second_between_kinks: bool = False
     #: the weights are held to sum to one, the last one implied (IGARCH)
     integrated: bool = False
