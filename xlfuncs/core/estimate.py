@@ -1332,11 +1332,12 @@ def _std_errors(problem: _Problem, u, H, active, kind: str):
     else:
         _, G = problem.scores_free(u)
     across = {}
+    differenced = not closed and problem.analytic and kind != "opg"  # Richardson, of the analytic gradient
     if _needs_kink_check(problem, closed):
         # mean parameters on a kink: curvature over one SE (the check costs four gradients);
-        # a differenced Hessian takes the check's clean columns too
-        across = _across_kinks(problem, u, active, G, clean=not closed)
-    if not closed and problem.analytic and kind != "opg":
+        # a Hessian differenced here takes the check's clean columns too
+        across = _across_kinks(problem, u, active, G, clean=differenced)
+    if differenced:
         H = problem.hessian(u, accurate=True, skip=across)
     if across:
         H = H.copy()
