@@ -16,7 +16,7 @@ import openpyxl
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from xlfuncs.headless.columns import ColumnShape, Unsupported, shape_key
+from xlfuncs.headless.columns import ColumnShape, Unsupported, digit_runs, shape_groups, shape_key
 from xlfuncs.headless.recalc import Workbook
 
 _SHAPES = [
@@ -154,3 +154,40 @@ def test_shape_key_and_reading():
     for text in ("=SUM(A1:A3)", "=A1&B1", "=1E3*A1", "=--A1", "=ROUND(A1,2)", "=A1 B1", "=TRUE+A1", "=name1*2"):
         with pytest.raises(Unsupported):
             ColumnShape(text).evaluate([np.ones(2)] * 4)
+
+
+# formula-like texts: letters, operators, ASCII digits (runs of any length, leading zeros), a digit
+# outside ASCII (which \d matches too), the separator the grouping joins with, and '#'
+_TEXT = st.lists(st.sampled_from(["A", "B", "$", "(", ")", "/", "*", "+", '"', "#", ".", "!", "LN(", "IF(",
+                                   "0", "1", "7", "9", "12", "007", "99999999999999999999", "\u0663", "\x00"]),
+                 min_size=1, max_size=12).map("".join)
+
+
+@given(texts=st.lists(_TEXT, min_size=1, max_size=40), sheets=st.lists(st.sampled_from(["S", "T"]), min_size=40,
+                                                                       max_size=40))
+@settings(max_examples=300, deadline=None)
+def test_shape_groups_are_the_shape_key_groups(texts, sheets):
+    """shape_groups partitions the cells exactly as shape_key does (reference: shape_key on each
+    text, the grouping it replaces), and digit_runs reads each member's digit runs as int() reads
+    the runs the regular expression finds (or says None where int64 cannot hold one)."""
+    import re
+
+    keys = [(sheets[i], i + 1, 1) for i in range(len(texts))]
+    want: dict = {}
+    for k, t in zip(keys, texts):
+        want.setdefault((k[0], shape_key(t)), []).append(k)
+    got = shape_groups(keys, texts)
+    assert set(got) == set(want)
+    text_of = dict(zip(keys, texts))
+    for gk, parts in got.items():
+        assert sorted(k for _, members in parts for k in members) == sorted(want[gk])
+        for pattern, members in parts:
+            runs = [[int(x) for x in re.findall(r"\d+", text_of[k])] for k in members]
+            n = len(runs[0])
+            assert all(len(r) == n for r in runs)
+            arr = digit_runs([text_of[k] for k in members], pattern, n)
+            if any(x >= 2**63 for r in runs for x in r):
+                assert arr is None
+            else:
+                assert arr is not None and arr.tolist() == runs
+            assert digit_runs([text_of[k] for k in members], pattern, n + 1) is None

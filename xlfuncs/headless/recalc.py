@@ -565,24 +565,23 @@ class Workbook:
         column are evaluated by the engine too and must agree in type and value, or the column
         is left whole (``tests/test_columns.py`` compares the two routes cell by cell).
         """
-        from .columns import ColumnShape, Unsupported, shape_key
+        from .columns import ColumnShape, Unsupported, digit_runs, shape_groups
 
         import numpy as np
 
         spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
-        groups: dict = {}
-        done = self.values
-        for key, text in self.formulas.items():
-            if key not in done:
-                groups.setdefault((key[0], shape_key(text)), []).append(key)
-        digits = re.compile(r"\d+")
-        for (sheet, _), keys in groups.items():
+        done, formulas = self.values, self.formulas
+        todo = [k for k in formulas if k not in done]
+        columns: dict = {}  # (sheet, column) -> its cells as arrays (_column_arrays), shared by the groups
+        for (sheet, _), parts in shape_groups(todo, [formulas[k] for k in todo]).items():
+            if sum(len(members) for _, members in parts) < min_size:
+                continue
+            parts = [(pattern, [k for k in members if k not in self.arrays and k not in self._anchors])
+                     for pattern, members in parts]
+            keys = [k for _, members in parts for k in members]
             if len(keys) < min_size:
                 continue
-            keys = [k for k in keys if k not in self.arrays and k not in self._anchors]
-            if len(keys) < min_size:
-                continue
-            text0 = self.formulas[keys[0]]
+            text0 = formulas[keys[0]]
             try:
                 shape = ColumnShape(text0)
             except (Unsupported, RecursionError):
@@ -597,39 +596,48 @@ class Workbook:
                 targets.append((title, col))
             else:
                 # the members share their text but for the digit runs (shape_key), so they hold as
-                # many runs each: read all at once, one row of runs per member
-                flat = digits.findall("\x00".join([self.formulas[k] for k in keys]))
-                if len(flat) != len(keys) * shape.n_runs:
+                # many runs each: read one digit pattern at a time, one row of runs per member
+                runs = [digit_runs([formulas[k] for k in members], pattern, shape.n_runs)
+                        for pattern, members in parts if members]
+                if any(r is None for r in runs):
                     continue
-                runs = np.fromiter(map(int, flat), dtype=np.int64, count=len(flat)).reshape(len(keys), shape.n_runs)
+                runs = np.concatenate(runs)
                 if shape.fixed and not (runs[:, shape.fixed] == runs[0, shape.fixed]).all():
                     continue
-                self._vector_group(keys, shape, targets, runs, spilling)
+                self._vector_group(keys, shape, targets, runs, spilling, columns)
 
-    def _vector_group(self, keys, shape, targets, runs, spilling):
+    def _column_arrays(self, title, col, cache):
+        """(values, floats, numbers) of column ``col`` of sheet ``title``, rows 0 to its last
+        (row 0 an empty cell), as _vector_group reads a reference's cells: the cells' floats (a
+        whole number as its float, anything else 1.0), which cells hold a float, which a float or
+        a whole number within the doubles' exact range."""
+        hit = cache.get((title, col))
+        if hit is None:
+            got = list(map(self.inputs.get, [(title, r, col) for r in range(self.max_row.get(title, 0) + 1)]))
+            hit = cache[(title, col)] = _typed_column(got)
+        return hit
+
+    def _vector_group(self, keys, shape, targets, runs, spilling, cache=None):
         import numpy as np
 
         from .columns import Unsupported
 
         inputs = self.inputs  # constants only: a formula cell is never among them
+        cache = {} if cache is None else cache
         n = len(keys)
         ok = np.ones(n, dtype=bool)
         columns, seen = [], {}
         for idx, ((title, col), (_, _, run)) in enumerate(zip(targets, shape.refs)):
             hit = seen.get((title, col, run))  # the same cell read twice (=IF(A3="","",LN(A3/A2)))
             if hit is None:
-                got = list(map(inputs.get, [(title, r, col) for r in runs[:, run].tolist()]))  # a formula is no input
-                if set(map(type, got)) == {float}:
-                    floats = np.ones(n, dtype=bool)
-                    hit = np.array(got, dtype=float), floats, floats
-                else:
-                    floats = np.fromiter((type(v) is float for v in got), dtype=bool, count=n)  # a blank, a text, a bool, an error, a formula: the engine's rules
-                    # a whole number within the doubles' exact range counts as its float where it
-                    # is only computed with (ColumnShape.raw)
-                    whole = np.fromiter((type(v) is int and -_EXACT < v < _EXACT for v in got), dtype=bool, count=n)
-                    values = np.array([v if type(v) is float else float(v) if w else 1.0 for v, w in zip(got, whole)],
-                                      dtype=float)
-                    hit = values, floats, floats | whole
+                rows = runs[:, run]
+                last = self.max_row.get(title, 0)
+                if last <= 4 * n + 1024:  # the whole column read once (shared by the references to it)
+                    values, floats, numbers = self._column_arrays(title, col, cache)
+                    at = np.where((rows >= 1) & (rows <= last), rows, 0)  # row 0: an empty cell
+                    hit = values[at], floats[at], numbers[at]
+                else:  # a few rows of a long column: those rows only
+                    hit = _typed_column(list(map(inputs.get, [(title, r, col) for r in rows.tolist()])))
                 seen[(title, col, run)] = hit
             values, floats, numbers = hit
             ok &= floats if idx in shape.raw else numbers
@@ -817,6 +825,23 @@ _DECIMAL_RE = re.compile(r"\d+\.\d+")
 
 _MISSING = object()
 _EXACT = 2**53  # whole numbers below this in size are exactly doubles
+
+
+def _typed_column(got):
+    """(values, floats, numbers) of cell values ``got`` as the NumPy columns read them: a float as
+    it is; a whole number within the doubles' exact range as its float (it counts as a number
+    where a formula only computes with it, ColumnShape.raw); anything else (a blank, a text, a
+    bool, an error, a formula) as 1.0, left to the engine's rules."""
+    import numpy as np
+
+    n = len(got)
+    if set(map(type, got)) == {float}:
+        floats = np.ones(n, dtype=bool)
+        return np.array(got, dtype=float), floats, floats
+    floats = np.fromiter((type(v) is float for v in got), dtype=bool, count=n)
+    whole = np.fromiter((type(v) is int and -_EXACT < v < _EXACT for v in got), dtype=bool, count=n)
+    values = np.array([v if type(v) is float else float(v) if w else 1.0 for v, w in zip(got, whole)], dtype=float)
+    return values, floats, floats | whole
 _PLAIN = frozenset((float, int, str, bool, type(None)))  # cell values passed to our functions as they are
 
 _ELEMENTWISE = {"LN", "LOG", "LOG10", "EXP", "SQRT", "ABS", "IF", "IFERROR", "ROUND", "ISNUMBER", "ISBLANK", "SIGN", "POWER"}
