@@ -36,7 +36,7 @@ import re
 
 import numpy as np
 
-__all__ = ["Unsupported", "ColumnShape", "shape_key", "shape_groups", "digit_runs"]
+__all__ = ["Unsupported", "ColumnShape", "shape_key", "shape_groups", "digit_patterns", "digit_runs"]
 
 
 class Unsupported(Exception):
@@ -54,6 +54,16 @@ def shape_key(text: str) -> str:
 _ZERO_DIGITS = str.maketrans("123456789", "000000000")
 
 
+def digit_patterns(texts) -> list:
+    """Each text with every ASCII digit written 0 (its *digit pattern*), made in one pass over
+    the join of all the texts."""
+    texts = list(texts)
+    joined = "\x00".join(texts)
+    if texts and joined.count("\x00") == len(texts) - 1:  # no text holds the separator
+        return joined.translate(_ZERO_DIGITS).split("\x00")
+    return [t.translate(_ZERO_DIGITS) for t in texts]
+
+
 def shape_groups(keys, texts) -> dict:
     """The formula cells ``keys`` ((sheet, row, col), with their ``texts``) grouped by sheet and
     :func:`shape_key`: {(sheet, shape key): [(digit pattern, [key, ...]), ...]}.
@@ -64,14 +74,8 @@ def shape_groups(keys, texts) -> dict:
     (``str.translate`` of their join), and the shape key once per pattern: a shape key is a
     function of the pattern (runs of digits stay runs of digits), so the groups are exactly those
     of :func:`shape_key` applied to each text, at a fraction of its cost."""
-    texts = list(texts)
-    joined = "\x00".join(texts)
-    if texts and joined.count("\x00") == len(texts) - 1:  # no text holds the separator
-        patterns = joined.translate(_ZERO_DIGITS).split("\x00")
-    else:
-        patterns = [t.translate(_ZERO_DIGITS) for t in texts]
     by_pattern: dict = {}
-    for key, pattern in zip(keys, patterns):
+    for key, pattern in zip(keys, digit_patterns(texts)):
         by_pattern.setdefault((key[0], pattern), []).append(key)
     groups: dict = {}
     for (sheet, pattern), members in by_pattern.items():

@@ -175,7 +175,7 @@ class Workbook:
         self.owner: dict = {}  # spilled cell -> anchor
         self._stack: set = set()
         self._templates: dict = {}
-        self._anchors = {k for k, f in self.formulas.items() if k not in self.arrays and top_level_call(f)}
+        self._anchors = _spilling_calls(self.formulas, self.arrays)
         self.report = RecalcReport(formulas=len(self.formulas))
         self._reader = None  # the formula of ours whose arguments are being read
         self._names_open: list = []  # the names being resolved, outermost first
@@ -968,6 +968,26 @@ def file_formula(text: str) -> str:
     return "".join(out)
 
 
+def _spilling_calls(formulas: dict, arrays) -> set:
+    """The formula cells (not legacy arrays) whose top-level call is ours, which spill.
+
+    ``top_level_call`` looks at letters, parentheses, quotes and spaces, never at a digit, so it
+    gives the same answer for a formula and for its digit pattern (its digits written 0,
+    ``columns.digit_patterns``): it is asked once per pattern, not once per cell of a column."""
+    from .columns import digit_patterns
+
+    keys = [k for k in formulas if k not in arrays]
+    answers: dict = {}
+    out = set()
+    for key, pattern in zip(keys, digit_patterns([formulas[k] for k in keys])):
+        hit = answers.get(pattern)
+        if hit is None:
+            hit = answers[pattern] = bool(top_level_call(pattern))
+        if hit:
+            out.add(key)
+    return out
+
+
 def _openpyxl_cells(ws):
     """(row, column, value, array ref or None) of each cell openpyxl holds a value for."""
     from openpyxl.worksheet.formula import ArrayFormula
@@ -987,7 +1007,7 @@ def _fast_cells(cells, arrays):
     """The fast reader's cells in row-major order: as a dict where no array formula is among
     them (read as they are by Workbook), else as (row, column, value, array ref or None)."""
     keys = list(cells)
-    if any(a > b for a, b in zip(keys, keys[1:])):  # a package not written in row order
+    if keys != sorted(keys):  # a package not written in row order
         cells = dict(sorted(cells.items()))
     if not arrays:
         return cells
