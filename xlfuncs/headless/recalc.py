@@ -18,6 +18,8 @@ import datetime as _dt
 import os
 import re
 import tempfile
+from itertools import compress, repeat
+from operator import is_, not_
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -202,7 +204,10 @@ class Workbook:
     # ------------------------------------------------------------------ evaluation
     def evaluate_all(self):
         self._batch_elementwise()
-        for key in sorted(self.formulas, key=lambda k: (k[0], k[1], k[2])):
+        values = self.values
+        # in the order of (sheet, row, column), those the batches left (value() of a computed cell
+        # returns at once, so skipping them here changes nothing)
+        for key in sorted([k for k in self.formulas if k not in values]):
             self.value(key)
         return self
 
@@ -454,13 +459,14 @@ class Workbook:
         # self.value of each cell, with the common cases (a value computed, a constant) inline
         values, inputs, formulas, value = self.values, self.inputs, self.formulas, self.value
         if c1 == c2:  # one column (the common case): the values computed read at once
-            column = [values.get((sheet, r, c1), _MISSING) for r in range(r1, r2 + 1)]
-            for i, v in enumerate(column):
-                if v is _MISSING:
-                    k = (sheet, r1 + i, c1)
-                    v = value(k) if k in formulas else inputs.get(k, _MISSING)
-                    column[i] = value(k) if v is _MISSING else v
-            return [[v] for v in column]
+            column = list(map(values.get, zip(repeat(sheet), range(r1, r2 + 1), repeat(c1)), repeat(_MISSING)))
+            if any(v is _MISSING for v in column):
+                for i, v in enumerate(column):
+                    if v is _MISSING:
+                        k = (sheet, r1 + i, c1)
+                        v = value(k) if k in formulas else inputs.get(k, _MISSING)
+                        column[i] = value(k) if v is _MISSING else v
+            return list(map(list, zip(column)))
         out = []
         for r in range(r1, r2 + 1):  # row by row, as Excel reads a range
             row = []
@@ -569,6 +575,8 @@ class Workbook:
 
         import numpy as np
 
+        spread = self._anchors | set(self.arrays)  # cells that are no member of a column
+
         spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
         done, formulas = self.values, self.formulas
         todo = [k for k in formulas if k not in done]
@@ -576,7 +584,7 @@ class Workbook:
         for (sheet, _), parts in shape_groups(todo, [formulas[k] for k in todo]).items():
             if sum(len(members) for _, members in parts) < min_size:
                 continue
-            parts = [(pattern, [k for k in members if k not in self.arrays and k not in self._anchors])
+            parts = [(pattern, members if spread.isdisjoint(members) else [k for k in members if k not in spread])
                      for pattern, members in parts]
             keys = [k for _, members in parts for k in members]
             if len(keys) < min_size:
@@ -805,7 +813,11 @@ class Workbook:
 
     def collect_errors(self):
         """Every cell that shows an error, once each (linear in the cells computed)."""
-        for key, v in self.values.items():
+        items = list(self.values.items())
+        numbers = frozenset((float, int, bool, type(None)))
+        # only the cells that may show an error are looked at one by one: those holding neither a
+        # number, a truth value nor nothing (their types found in one pass)
+        for key, v in compress(items, map(not_, map(numbers.__contains__, map(type, self.values.values())))):
             shown = None
             if isinstance(v, ExcelError):
                 shown = v.code
@@ -835,12 +847,19 @@ def _typed_column(got):
     import numpy as np
 
     n = len(got)
-    if set(map(type, got)) == {float}:
+    types = list(map(type, got))
+    if set(types) == {float}:
         floats = np.ones(n, dtype=bool)
         return np.array(got, dtype=float), floats, floats
-    floats = np.fromiter((type(v) is float for v in got), dtype=bool, count=n)
-    whole = np.fromiter((type(v) is int and -_EXACT < v < _EXACT for v in got), dtype=bool, count=n)
-    values = np.array([v if type(v) is float else float(v) if w else 1.0 for v, w in zip(got, whole)], dtype=float)
+    floats = np.fromiter(map(is_, types, repeat(float)), dtype=bool, count=n)
+    values = np.ones(n)
+    at = np.flatnonzero(floats)
+    values[at] = np.array(got, dtype=object)[at].astype(float)  # floats as they are
+    whole = np.zeros(n, dtype=bool)
+    for i in np.flatnonzero(np.fromiter(map(is_, types, repeat(int)), dtype=bool, count=n)).tolist():
+        if -_EXACT < got[i] < _EXACT:
+            whole[i] = True
+            values[i] = float(got[i])
     return values, floats, floats | whole
 _PLAIN = frozenset((float, int, str, bool, type(None)))  # cell values passed to our functions as they are
 
