@@ -19,7 +19,7 @@ import os
 import re
 import tempfile
 from itertools import compress, repeat
-from operator import is_, not_
+from operator import add, is_, itemgetter, not_
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -64,6 +64,12 @@ def cell_name(row: int, col: int) -> str:
     if letters is None:
         letters = _LETTERS[col] = _col_letters(col)
     return f"{letters}{row}"
+
+
+def _cell_names(rows, cols) -> list:
+    """cell_name of each (row, column) pair, with maps rather than a call per cell."""
+    letters = {c: _LETTERS.get(c) or _col_letters(c) for c in set(cols)}
+    return list(map(add, map(letters.__getitem__, cols), map(str, rows)))
 
 
 def _parse_cell(ref: str):
@@ -1252,17 +1258,23 @@ def _write_patched(wb, src: Path, dst: Path, report) -> bool:
         if any((sheet, r, c) not in wb.spills for r, c in marked):
             return False
     formula_values, dynamic, constants = {}, {}, {}
-    for key, text in wb.formulas.items():
-        if "#" in text and file_formula(text) != text:
-            return False
-        sheet, row, col = key
-        name = cell_name(row, col)
-        raw = wb.values.get(key)
-        formula_values[(sheet, name)] = raw if isinstance(raw, ExcelError) or not isinstance(raw, str) else plain(
-            raw, f"{sheet}!{name}")
-        if key in wb.spills:
-            r1, c1, r2, c2 = wb.spills[key]
-            dynamic[(sheet, name)] = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
+    formulas = wb.formulas
+    if "#" in "\x00".join(formulas.values()):  # a spill reference E2#, written in another form
+        for text in formulas.values():
+            if "#" in text and file_formula(text) != text:
+                return False
+    # each formula's (sheet, "B3") and value, in the formulas' order, with maps rather than a
+    # loop in Python (50,000 cells in a workbook of returns): a text goes through plain()
+    keys = list(formulas)
+    sheets = list(map(itemgetter(0), keys))
+    names = _cell_names(list(map(itemgetter(1), keys)), list(map(itemgetter(2), keys)))
+    raws = list(map(wb.values.get, keys))
+    formula_values = dict(zip(zip(sheets, names), raws))
+    for i in compress(range(len(keys)), map(isinstance, raws, repeat(str))):
+        formula_values[(sheets[i], names[i])] = plain(raws[i], f"{sheets[i]}!{names[i]}")
+    for i in compress(range(len(keys)), map(wb.spills.__contains__, keys)):
+        r1, c1, r2, c2 = wb.spills[keys[i]]
+        dynamic[(sheets[i], names[i])] = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
     for cell, anchor in wb.owner.items():
         if anchor in wb.arrays and cell in wb.formulas:
             continue

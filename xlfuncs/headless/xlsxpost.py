@@ -68,6 +68,8 @@ import tempfile
 import zipfile
 import zlib
 import xml.etree.ElementTree as ET
+from itertools import compress, repeat
+from operator import eq, itemgetter
 from pathlib import Path
 
 __all__ = ["ERROR_LITERALS", "ExcelError", "check_package", "dynamic_anchors", "place_values", "store_values"]
@@ -754,17 +756,22 @@ def _canonical_keys(mapping: dict, titles) -> dict | None:
     already canonical (upper case, no $, no leading zero, within two letters and six digits, as a
     recalculation names its cells): the refs of a sheet checked in one pass over their join
     rather than one by one.  None where any key is otherwise: the general loop decides."""
-    out: dict = {}
-    for key, item in mapping.items():
-        if type(key) is not tuple or len(key) != 2:
-            return None
-        sheet, ref = key
-        cells = out.get(sheet)
-        if cells is None:
-            if type(sheet) is not str or sheet not in titles:
-                return None
-            cells = out[sheet] = {}
-        cells[ref] = item
+    keys = list(mapping)
+    if set(map(type, keys)) != {tuple} or set(map(len, keys)) != {2}:
+        return None
+    sheets = list(map(itemgetter(0), keys))
+    refs = list(map(itemgetter(1), keys))
+    order = list(dict.fromkeys(sheets))  # the sheets in the order they first come
+    if any(type(sheet) is not str or sheet not in titles for sheet in order):
+        return None
+    if len(order) == 1:
+        out = {order[0]: dict(zip(refs, mapping.values()))}
+    else:
+        items = list(mapping.values())
+        out = {}
+        for sheet in order:
+            mine = list(map(eq, sheets, repeat(sheet)))
+            out[sheet] = dict(zip(compress(refs, mine), compress(items, mine)))
     for cells in out.values():
         if set(map(type, cells)) != {str}:
             return None
