@@ -73,11 +73,13 @@ def _same(a, b) -> bool:
 
 
 @given(shape=st.sampled_from(_SHAPES), rows=st.integers(3, 30), col=st.integers(1, 4), other_sheet=st.booleans(),
-       absolute=st.booleans(), lag=st.integers(0, 2), data=st.data())
+       absolute=st.booleans(), lag=st.integers(0, 2), far=st.booleans(), data=st.data())
 @settings(max_examples=int(__import__("os").environ.get("VOLCAST_COLUMN_EXAMPLES", "60")), deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
-def test_generated_layouts_equal_cell_by_cell_evaluation(tmp_path, shape, rows, col, other_sheet, absolute, lag, data):
+def test_generated_layouts_equal_cell_by_cell_evaluation(tmp_path, shape, rows, col, other_sheet, absolute, lag, far,
+                                                         data):
     """Every cell the fast route answers, and every cell after the whole evaluation, equals the
-    engine's cell-by-cell value (value and type)."""
+    engine's cell-by-cell value (value and type).  With ``far`` the sheet read holds a cell far
+    below the column, so the fast route reads the rows referenced, not the whole column."""
     values = data.draw(st.lists(_VALUES, min_size=rows + 3, max_size=rows + 3))
     mostly_floats = data.draw(st.booleans())
     if mostly_floats:  # most real columns are numbers: a few odd cells among floats (not whole
@@ -92,6 +94,8 @@ def test_generated_layouts_equal_cell_by_cell_evaluation(tmp_path, shape, rows, 
     for i, v in enumerate(values):
         if v is not None:
             src.cell(i + 1, col, v)
+    if far:
+        src.cell(6000, 5, 1.25)
     prefix = "'In put'!" if other_sheet else ""
     dollar = "$" if absolute else ""
     out_col = 6 + col

@@ -464,14 +464,15 @@ class Workbook:
             self.reads.append((self._reader, sheet, r1, c1, r2, c2))
         # self.value of each cell, with the common cases (a value computed, a constant) inline
         values, inputs, formulas, value = self.values, self.inputs, self.formulas, self.value
-        if c1 == c2:  # one column (the common case): the values computed read at once
-            column = list(map(values.get, zip(repeat(sheet), range(r1, r2 + 1), repeat(c1)), repeat(_MISSING)))
-            if any(v is _MISSING for v in column):
-                for i, v in enumerate(column):
-                    if v is _MISSING:
-                        k = (sheet, r1 + i, c1)
-                        v = value(k) if k in formulas else inputs.get(k, _MISSING)
-                        column[i] = value(k) if v is _MISSING else v
+        if c1 == c2:  # one column (the common case): the values computed and the constants read at once
+            keys = list(zip(repeat(sheet), range(r1, r2 + 1), repeat(c1)))
+            # a cell is a formula or a constant, never both: a value computed, else a constant, else
+            # (a formula not computed yet, an empty cell) value() of the cell
+            column = list(map(values.get, keys, map(inputs.get, keys, repeat(_MISSING))))
+            missing = list(map(is_, column, repeat(_MISSING)))
+            if any(missing):
+                for i in compress(range(len(keys)), missing):
+                    column[i] = value(keys[i])
             return list(map(list, zip(column)))
         out = []
         for r in range(r1, r2 + 1):  # row by row, as Excel reads a range
