@@ -86,3 +86,20 @@ def test_fit_without_the_subpackages_is_the_same_fit():
         runs[how] = json.loads(got.stdout)
     assert runs["lazy"]["special"] is False and runs["lazy"]["linalg"] is False
     assert runs["lazy"]["fits"] == runs["pre"]["fits"]
+
+
+def test_the_subpackages_imported_afterwards_are_whole_and_the_same():
+    """Served first, imported later (a VOLTESTS after a VOLFIT): SciPy's subpackages load and use
+    the very compiled modules the stand-ins loaded (reference: SciPy's own functions)."""
+    code = r"""
+from xlfuncs.core._lazy import special, lazy_module
+g, pg = special.gammaln, special.polygamma(1, 3.5)
+f = lazy_module("scipy.linalg.lapack").dpotrf
+import scipy.stats, scipy.special, scipy.linalg.lapack
+assert g is scipy.special.gammaln and f is scipy.linalg.lapack.dpotrf
+assert pg == scipy.special.polygamma(1, 3.5)
+assert special.stdtrit is scipy.special.stdtrit  # a name not served: the subpackage's own
+print("ok")
+"""
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "ok"
