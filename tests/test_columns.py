@@ -16,7 +16,7 @@ import openpyxl
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
-from xlfuncs.headless.columns import ColumnShape, Unsupported, shape_key
+from xlfuncs.headless.columns import ColumnShape, Unsupported, digit_runs, shape_groups, shape_key
 from xlfuncs.headless.recalc import Workbook
 
 _SHAPES = [
@@ -73,11 +73,13 @@ def _same(a, b) -> bool:
 
 
 @given(shape=st.sampled_from(_SHAPES), rows=st.integers(3, 30), col=st.integers(1, 4), other_sheet=st.booleans(),
-       absolute=st.booleans(), lag=st.integers(0, 2), data=st.data())
+       absolute=st.booleans(), lag=st.integers(0, 2), far=st.booleans(), data=st.data())
 @settings(max_examples=int(__import__("os").environ.get("VOLCAST_COLUMN_EXAMPLES", "60")), deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
-def test_generated_layouts_equal_cell_by_cell_evaluation(tmp_path, shape, rows, col, other_sheet, absolute, lag, data):
+def test_generated_layouts_equal_cell_by_cell_evaluation(tmp_path, shape, rows, col, other_sheet, absolute, lag, far,
+                                                         data):
     """Every cell the fast route answers, and every cell after the whole evaluation, equals the
-    engine's cell-by-cell value (value and type)."""
+    engine's cell-by-cell value (value and type).  With ``far`` the sheet read holds a cell far
+    below the column, so the fast route reads the rows referenced, not the whole column."""
     values = data.draw(st.lists(_VALUES, min_size=rows + 3, max_size=rows + 3))
     mostly_floats = data.draw(st.booleans())
     if mostly_floats:  # most real columns are numbers: a few odd cells among floats (not whole
@@ -92,6 +94,8 @@ def test_generated_layouts_equal_cell_by_cell_evaluation(tmp_path, shape, rows, 
     for i, v in enumerate(values):
         if v is not None:
             src.cell(i + 1, col, v)
+    if far:
+        src.cell(6000, 5, 1.25)
     prefix = "'In put'!" if other_sheet else ""
     dollar = "$" if absolute else ""
     out_col = 6 + col
@@ -154,3 +158,40 @@ def test_shape_key_and_reading():
     for text in ("=SUM(A1:A3)", "=A1&B1", "=1E3*A1", "=--A1", "=ROUND(A1,2)", "=A1 B1", "=TRUE+A1", "=name1*2"):
         with pytest.raises(Unsupported):
             ColumnShape(text).evaluate([np.ones(2)] * 4)
+
+
+# formula-like texts: letters, operators, ASCII digits (runs of any length, leading zeros), a digit
+# outside ASCII (which \d matches too), the separator the grouping joins with, and '#'
+_TEXT = st.lists(st.sampled_from(["A", "B", "$", "(", ")", "/", "*", "+", '"', "#", ".", "!", "LN(", "IF(",
+                                   "0", "1", "7", "9", "12", "007", "99999999999999999999", "\u0663", "\x00"]),
+                 min_size=1, max_size=12).map("".join)
+
+
+@given(texts=st.lists(_TEXT, min_size=1, max_size=40), sheets=st.lists(st.sampled_from(["S", "T"]), min_size=40,
+                                                                       max_size=40))
+@settings(max_examples=300, deadline=None)
+def test_shape_groups_are_the_shape_key_groups(texts, sheets):
+    """shape_groups partitions the cells exactly as shape_key does (reference: shape_key on each
+    text, the grouping it replaces), and digit_runs reads each member's digit runs as int() reads
+    the runs the regular expression finds (or says None where int64 cannot hold one)."""
+    import re
+
+    keys = [(sheets[i], i + 1, 1) for i in range(len(texts))]
+    want: dict = {}
+    for k, t in zip(keys, texts):
+        want.setdefault((k[0], shape_key(t)), []).append(k)
+    got = shape_groups(keys, texts)
+    assert set(got) == set(want)
+    text_of = dict(zip(keys, texts))
+    for gk, parts in got.items():
+        assert sorted(k for _, members in parts for k in members) == sorted(want[gk])
+        for pattern, members in parts:
+            runs = [[int(x) for x in re.findall(r"\d+", text_of[k])] for k in members]
+            n = len(runs[0])
+            assert all(len(r) == n for r in runs)
+            arr = digit_runs([text_of[k] for k in members], pattern, n)
+            if any(x >= 2**63 for r in runs for x in r):
+                assert arr is None
+            else:
+                assert arr is not None and arr.tolist() == runs
+            assert digit_runs([text_of[k] for k in members], pattern, n + 1) is None

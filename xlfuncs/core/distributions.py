@@ -38,7 +38,7 @@ xlfuncs.core.errors.InputError: unknown distribution "cauchy"; use normal, t, sk
 import math
 
 import numpy as np
-from scipy import special
+from xlfuncs.core._lazy import special
 
 from xlfuncs.core.errors import InputError, describe_value, excerpt, number_words
 

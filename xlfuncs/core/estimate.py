@@ -26,7 +26,7 @@ import warnings
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy import special
+from ._lazy import special
 
 from ._lazy import lazy_module
 from .distributions import Distribution, get_distribution

@@ -45,10 +45,17 @@ def _engine():
 _REGISTERED = False
 
 
-def our_function_names() -> tuple:
-    from .. import sheet
+_OUR_NAMES: tuple = ()
 
-    return tuple(sheet.__all__)
+
+def our_function_names() -> tuple:
+    """The catalogue names of our worksheet functions (read once from the worksheet layer)."""
+    global _OUR_NAMES
+    if not _OUR_NAMES:
+        from .. import sheet
+
+        _OUR_NAMES = tuple(sheet.__all__)
+    return _OUR_NAMES
 
 
 def _register_ours():

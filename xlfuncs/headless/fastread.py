@@ -319,7 +319,9 @@ _COLS: dict = {}
 
 def _quick_cells(body: str, strings, dates, deltas):
     found = _QUICK_RE.findall(body)
-    if len(found) != len(_CELL_START_RE.findall(body)):
+    # every cell read: as many as start tags, of which there are at most as many as "<c" (counted
+    # first, as it is quicker, and equal in a cell table of cells alone)
+    if len(found) != body.count("<c") and len(found) != len(_CELL_START_RE.findall(body)):
         return None
     cells = {}
     max_row = max_col = 1

@@ -18,6 +18,8 @@ import datetime as _dt
 import os
 import re
 import tempfile
+from itertools import compress, repeat
+from operator import add, is_, itemgetter, not_
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -62,6 +64,12 @@ def cell_name(row: int, col: int) -> str:
     if letters is None:
         letters = _LETTERS[col] = _col_letters(col)
     return f"{letters}{row}"
+
+
+def _cell_names(rows, cols) -> list:
+    """cell_name of each (row, column) pair, with maps rather than a call per cell."""
+    letters = {c: _LETTERS.get(c) or _col_letters(c) for c in set(cols)}
+    return list(map(add, map(letters.__getitem__, cols), map(str, rows)))
 
 
 def _parse_cell(ref: str):
@@ -175,7 +183,7 @@ class Workbook:
         self.owner: dict = {}  # spilled cell -> anchor
         self._stack: set = set()
         self._templates: dict = {}
-        self._anchors = {k for k, f in self.formulas.items() if k not in self.arrays and top_level_call(f)}
+        self._anchors = _spilling_calls(self.formulas, self.arrays)
         self.report = RecalcReport(formulas=len(self.formulas))
         self._reader = None  # the formula of ours whose arguments are being read
         self._names_open: list = []  # the names being resolved, outermost first
@@ -202,7 +210,10 @@ class Workbook:
     # ------------------------------------------------------------------ evaluation
     def evaluate_all(self):
         self._batch_elementwise()
-        for key in sorted(self.formulas, key=lambda k: (k[0], k[1], k[2])):
+        values = self.values
+        # in the order of (sheet, row, column), those the batches left (value() of a computed cell
+        # returns at once, so skipping them here changes nothing)
+        for key in sorted([k for k in self.formulas if k not in values]):
             self.value(key)
         return self
 
@@ -453,14 +464,16 @@ class Workbook:
             self.reads.append((self._reader, sheet, r1, c1, r2, c2))
         # self.value of each cell, with the common cases (a value computed, a constant) inline
         values, inputs, formulas, value = self.values, self.inputs, self.formulas, self.value
-        if c1 == c2:  # one column (the common case): the values computed read at once
-            column = [values.get((sheet, r, c1), _MISSING) for r in range(r1, r2 + 1)]
-            for i, v in enumerate(column):
-                if v is _MISSING:
-                    k = (sheet, r1 + i, c1)
-                    v = value(k) if k in formulas else inputs.get(k, _MISSING)
-                    column[i] = value(k) if v is _MISSING else v
-            return [[v] for v in column]
+        if c1 == c2:  # one column (the common case): the values computed and the constants read at once
+            keys = list(zip(repeat(sheet), range(r1, r2 + 1), repeat(c1)))
+            # a cell is a formula or a constant, never both: a value computed, else a constant, else
+            # (a formula not computed yet, an empty cell) value() of the cell
+            column = list(map(values.get, keys, map(inputs.get, keys, repeat(_MISSING))))
+            missing = list(map(is_, column, repeat(_MISSING)))
+            if any(missing):
+                for i in compress(range(len(keys)), missing):
+                    column[i] = value(keys[i])
+            return list(map(list, zip(column)))
         out = []
         for r in range(r1, r2 + 1):  # row by row, as Excel reads a range
             row = []
@@ -565,24 +578,25 @@ class Workbook:
         column are evaluated by the engine too and must agree in type and value, or the column
         is left whole (``tests/test_columns.py`` compares the two routes cell by cell).
         """
-        from .columns import ColumnShape, Unsupported, shape_key
+        from .columns import ColumnShape, Unsupported, digit_runs, shape_groups
 
         import numpy as np
 
+        spread = self._anchors | set(self.arrays)  # cells that are no member of a column
+
         spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
-        groups: dict = {}
-        done = self.values
-        for key, text in self.formulas.items():
-            if key not in done:
-                groups.setdefault((key[0], shape_key(text)), []).append(key)
-        digits = re.compile(r"\d+")
-        for (sheet, _), keys in groups.items():
+        done, formulas = self.values, self.formulas
+        todo = [k for k in formulas if k not in done]
+        columns: dict = {}  # (sheet, column) -> its cells as arrays (_column_arrays), shared by the groups
+        for (sheet, _), parts in shape_groups(todo, [formulas[k] for k in todo]).items():
+            if sum(len(members) for _, members in parts) < min_size:
+                continue
+            parts = [(pattern, members if spread.isdisjoint(members) else [k for k in members if k not in spread])
+                     for pattern, members in parts]
+            keys = [k for _, members in parts for k in members]
             if len(keys) < min_size:
                 continue
-            keys = [k for k in keys if k not in self.arrays and k not in self._anchors]
-            if len(keys) < min_size:
-                continue
-            text0 = self.formulas[keys[0]]
+            text0 = formulas[keys[0]]
             try:
                 shape = ColumnShape(text0)
             except (Unsupported, RecursionError):
@@ -597,39 +611,48 @@ class Workbook:
                 targets.append((title, col))
             else:
                 # the members share their text but for the digit runs (shape_key), so they hold as
-                # many runs each: read all at once, one row of runs per member
-                flat = digits.findall("\x00".join([self.formulas[k] for k in keys]))
-                if len(flat) != len(keys) * shape.n_runs:
+                # many runs each: read one digit pattern at a time, one row of runs per member
+                runs = [digit_runs([formulas[k] for k in members], pattern, shape.n_runs)
+                        for pattern, members in parts if members]
+                if any(r is None for r in runs):
                     continue
-                runs = np.fromiter(map(int, flat), dtype=np.int64, count=len(flat)).reshape(len(keys), shape.n_runs)
+                runs = np.concatenate(runs)
                 if shape.fixed and not (runs[:, shape.fixed] == runs[0, shape.fixed]).all():
                     continue
-                self._vector_group(keys, shape, targets, runs, spilling)
+                self._vector_group(keys, shape, targets, runs, spilling, columns)
 
-    def _vector_group(self, keys, shape, targets, runs, spilling):
+    def _column_arrays(self, title, col, cache):
+        """(values, floats, numbers) of column ``col`` of sheet ``title``, rows 0 to its last
+        (row 0 an empty cell), as _vector_group reads a reference's cells: the cells' floats (a
+        whole number as its float, anything else 1.0), which cells hold a float, which a float or
+        a whole number within the doubles' exact range."""
+        hit = cache.get((title, col))
+        if hit is None:
+            got = list(map(self.inputs.get, [(title, r, col) for r in range(self.max_row.get(title, 0) + 1)]))
+            hit = cache[(title, col)] = _typed_column(got)
+        return hit
+
+    def _vector_group(self, keys, shape, targets, runs, spilling, cache=None):
         import numpy as np
 
         from .columns import Unsupported
 
         inputs = self.inputs  # constants only: a formula cell is never among them
+        cache = {} if cache is None else cache
         n = len(keys)
         ok = np.ones(n, dtype=bool)
         columns, seen = [], {}
         for idx, ((title, col), (_, _, run)) in enumerate(zip(targets, shape.refs)):
             hit = seen.get((title, col, run))  # the same cell read twice (=IF(A3="","",LN(A3/A2)))
             if hit is None:
-                got = list(map(inputs.get, [(title, r, col) for r in runs[:, run].tolist()]))  # a formula is no input
-                if set(map(type, got)) == {float}:
-                    floats = np.ones(n, dtype=bool)
-                    hit = np.array(got, dtype=float), floats, floats
-                else:
-                    floats = np.fromiter((type(v) is float for v in got), dtype=bool, count=n)  # a blank, a text, a bool, an error, a formula: the engine's rules
-                    # a whole number within the doubles' exact range counts as its float where it
-                    # is only computed with (ColumnShape.raw)
-                    whole = np.fromiter((type(v) is int and -_EXACT < v < _EXACT for v in got), dtype=bool, count=n)
-                    values = np.array([v if type(v) is float else float(v) if w else 1.0 for v, w in zip(got, whole)],
-                                      dtype=float)
-                    hit = values, floats, floats | whole
+                rows = runs[:, run]
+                last = self.max_row.get(title, 0)
+                if last <= 4 * n + 1024:  # the whole column read once (shared by the references to it)
+                    values, floats, numbers = self._column_arrays(title, col, cache)
+                    at = np.where((rows >= 1) & (rows <= last), rows, 0)  # row 0: an empty cell
+                    hit = values[at], floats[at], numbers[at]
+                else:  # a few rows of a long column: those rows only
+                    hit = _typed_column(list(map(inputs.get, [(title, r, col) for r in rows.tolist()])))
                 seen[(title, col, run)] = hit
             values, floats, numbers = hit
             ok &= floats if idx in shape.raw else numbers
@@ -797,7 +820,11 @@ class Workbook:
 
     def collect_errors(self):
         """Every cell that shows an error, once each (linear in the cells computed)."""
-        for key, v in self.values.items():
+        items = list(self.values.items())
+        numbers = frozenset((float, int, bool, type(None)))
+        # only the cells that may show an error are looked at one by one: those holding neither a
+        # number, a truth value nor nothing (their types found in one pass)
+        for key, v in compress(items, map(not_, map(numbers.__contains__, map(type, self.values.values())))):
             shown = None
             if isinstance(v, ExcelError):
                 shown = v.code
@@ -817,6 +844,30 @@ _DECIMAL_RE = re.compile(r"\d+\.\d+")
 
 _MISSING = object()
 _EXACT = 2**53  # whole numbers below this in size are exactly doubles
+
+
+def _typed_column(got):
+    """(values, floats, numbers) of cell values ``got`` as the NumPy columns read them: a float as
+    it is; a whole number within the doubles' exact range as its float (it counts as a number
+    where a formula only computes with it, ColumnShape.raw); anything else (a blank, a text, a
+    bool, an error, a formula) as 1.0, left to the engine's rules."""
+    import numpy as np
+
+    n = len(got)
+    types = list(map(type, got))
+    if set(types) == {float}:
+        floats = np.ones(n, dtype=bool)
+        return np.array(got, dtype=float), floats, floats
+    floats = np.fromiter(map(is_, types, repeat(float)), dtype=bool, count=n)
+    values = np.ones(n)
+    at = np.flatnonzero(floats)
+    values[at] = np.array(got, dtype=object)[at].astype(float)  # floats as they are
+    whole = np.zeros(n, dtype=bool)
+    for i in np.flatnonzero(np.fromiter(map(is_, types, repeat(int)), dtype=bool, count=n)).tolist():
+        if -_EXACT < got[i] < _EXACT:
+            whole[i] = True
+            values[i] = float(got[i])
+    return values, floats, floats | whole
 _PLAIN = frozenset((float, int, str, bool, type(None)))  # cell values passed to our functions as they are
 
 _ELEMENTWISE = {"LN", "LOG", "LOG10", "EXP", "SQRT", "ABS", "IF", "IFERROR", "ROUND", "ISNUMBER", "ISBLANK", "SIGN", "POWER"}
@@ -943,6 +994,26 @@ def file_formula(text: str) -> str:
     return "".join(out)
 
 
+def _spilling_calls(formulas: dict, arrays) -> set:
+    """The formula cells (not legacy arrays) whose top-level call is ours, which spill.
+
+    ``top_level_call`` looks at letters, parentheses, quotes and spaces, never at a digit, so it
+    gives the same answer for a formula and for its digit pattern (its digits written 0,
+    ``columns.digit_patterns``): it is asked once per pattern, not once per cell of a column."""
+    from .columns import digit_patterns
+
+    keys = [k for k in formulas if k not in arrays]
+    answers: dict = {}
+    out = set()
+    for key, pattern in zip(keys, digit_patterns([formulas[k] for k in keys])):
+        hit = answers.get(pattern)
+        if hit is None:
+            hit = answers[pattern] = bool(top_level_call(pattern))
+        if hit:
+            out.add(key)
+    return out
+
+
 def _openpyxl_cells(ws):
     """(row, column, value, array ref or None) of each cell openpyxl holds a value for."""
     from openpyxl.worksheet.formula import ArrayFormula
@@ -962,7 +1033,7 @@ def _fast_cells(cells, arrays):
     """The fast reader's cells in row-major order: as a dict where no array formula is among
     them (read as they are by Workbook), else as (row, column, value, array ref or None)."""
     keys = list(cells)
-    if any(a > b for a, b in zip(keys, keys[1:])):  # a package not written in row order
+    if keys != sorted(keys):  # a package not written in row order
         cells = dict(sorted(cells.items()))
     if not arrays:
         return cells
@@ -1188,17 +1259,23 @@ def _write_patched(wb, src: Path, dst: Path, report) -> bool:
         if any((sheet, r, c) not in wb.spills for r, c in marked):
             return False
     formula_values, dynamic, constants = {}, {}, {}
-    for key, text in wb.formulas.items():
-        if "#" in text and file_formula(text) != text:
-            return False
-        sheet, row, col = key
-        name = cell_name(row, col)
-        raw = wb.values.get(key)
-        formula_values[(sheet, name)] = raw if isinstance(raw, ExcelError) or not isinstance(raw, str) else plain(
-            raw, f"{sheet}!{name}")
-        if key in wb.spills:
-            r1, c1, r2, c2 = wb.spills[key]
-            dynamic[(sheet, name)] = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
+    formulas = wb.formulas
+    if "#" in "\x00".join(formulas.values()):  # a spill reference E2#, written in another form
+        for text in formulas.values():
+            if "#" in text and file_formula(text) != text:
+                return False
+    # each formula's (sheet, "B3") and value, in the formulas' order, with maps rather than a
+    # loop in Python (50,000 cells in a workbook of returns): a text goes through plain()
+    keys = list(formulas)
+    sheets = list(map(itemgetter(0), keys))
+    names = _cell_names(list(map(itemgetter(1), keys)), list(map(itemgetter(2), keys)))
+    raws = list(map(wb.values.get, keys))
+    formula_values = dict(zip(zip(sheets, names), raws))
+    for i in compress(range(len(keys)), map(isinstance, raws, repeat(str))):
+        formula_values[(sheets[i], names[i])] = plain(raws[i], f"{sheets[i]}!{names[i]}")
+    for i in compress(range(len(keys)), map(wb.spills.__contains__, keys)):
+        r1, c1, r2, c2 = wb.spills[keys[i]]
+        dynamic[(sheets[i], names[i])] = f"{cell_name(r1, c1)}:{cell_name(r2, c2)}"
     for cell, anchor in wb.owner.items():
         if anchor in wb.arrays and cell in wb.formulas:
             continue

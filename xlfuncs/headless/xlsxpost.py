@@ -68,6 +68,8 @@ import tempfile
 import zipfile
 import zlib
 import xml.etree.ElementTree as ET
+from itertools import compress, repeat
+from operator import eq, itemgetter
 from pathlib import Path
 
 __all__ = ["ERROR_LITERALS", "ExcelError", "check_package", "dynamic_anchors", "place_values", "store_values"]
@@ -482,8 +484,10 @@ _IS_RE = re.compile(r"<is(?=[\s/>])[^>]*?(?:/>|>.*?</is>)", re.S)
 _ROOT_RE = re.compile(r"<worksheet\b[^>]*\sxmlns\s*=\s*[\"']" + re.escape(_MAIN) + "[\"']")
 
 
+# a formula cell as openpyxl writes it (r, s, t, an ordinary formula, a value), edited without
+# the general parser; every part of it captured, so that splitting a block at such cells keeps it all
 _PLAIN_F_CELL_RE = re.compile(r'<c r="([A-Z]{1,3}[0-9]{1,7})"(?: s="([0-9]+)")?(?: t="([a-z]+)")?>'
-                              r'(<f>[^<]*</f>)(?:<v>[^<]*</v>|<v\s*/>)?</c>')
+                              r'(<f>[^<]*</f>)(<v>[^<]*</v>|<v\s*/>)?</c>')
 
 
 def _attrs(text: str) -> dict[str, str]:
@@ -591,31 +595,38 @@ def _edit_sheet(title: str, part: str, texts, values: dict, dynamic: dict, absen
                 v_xml = existing.group(0)
         return f"<c{_attrs_text(attrs)}>{f_xml}{v_xml}{rest}</c>"
 
-    plain = [0]
-
-    def edit_plain(m: re.Match) -> str:
-        # a formula cell as openpyxl writes it (r, s, t, an ordinary formula, a value), edited
-        # as edit() edits it, its attributes read without the general parser
-        plain[0] += 1
-        ref = m.group(1)
-        if ref not in values:
-            return m.group(0)
-        done.add(ref)
-        kind, text = values[ref]
-        style = "" if m.group(2) is None else f' s="{m.group(2)}"'
-        kind = "" if kind is None else f' t="{kind}"'
-        v_xml = "" if text is None else f"<v>{text}</v>"
-        return f'<c r="{ref}"{style}{kind}>{m.group(4)}{v_xml}</c>'
+    def edit_plain_cells(block: str):
+        # every formula cell of the block in openpyxl's form (as many as "<f" is found; a "<c r="
+        # is always a cell's start, text holding no "<") edited as edit() edits it, from the
+        # pieces that splitting the block at such cells gives (the text between them, then each
+        # cell's reference, style, type, formula and value element): no call per cell
+        pieces = _PLAIN_F_CELL_RE.split(block)
+        cells = (len(pieces) - 1) // 6
+        if cells != block.count("<f"):
+            return None
+        get = values.get
+        for i in range(1, len(pieces), 6):
+            ref, style, kind, f_xml, v_xml = pieces[i:i + 5]
+            style = "" if style is None else f' s="{style}"'
+            enc = get(ref)
+            if enc is None:  # not to be stored: the cell as it was
+                kind = "" if kind is None else f' t="{kind}"'
+                pieces[i] = f'<c r="{ref}"{style}{kind}>{f_xml}{v_xml or ""}</c>'
+            else:
+                done.add(ref)
+                kind, text = enc
+                kind = "" if kind is None else f' t="{kind}"'
+                v_xml = "" if text is None else f"<v>{text}</v>"
+                pieces[i] = f'<c r="{ref}"{style}{kind}>{f_xml}{v_xml}</c>'
+            pieces[i + 1] = pieces[i + 2] = pieces[i + 3] = pieces[i + 4] = ""
+        return "".join(pieces)
 
     def edit_rows(block: str) -> str:
         if "<f" not in block:  # only formula cells change
             return block
         if not dynamic:
-            # every formula cell of the block in openpyxl's form (as many as "<f" is found; a
-            # "<c r=" is always a cell's start, text holding no "<"): edited in one pass
-            plain[0] = 0
-            out = _PLAIN_F_CELL_RE.sub(edit_plain, block)
-            if plain[0] == block.count("<f"):
+            out = edit_plain_cells(block)
+            if out is not None:
                 return out
         return _CELL_RE.sub(edit, block)
 
@@ -736,9 +747,46 @@ def _ensure_metadata(members: _Package | dict, wb_part: str, changed: dict) -> N
             ct_name, members[ct_name].decode("utf-8"), "Types", element).encode("utf-8")
 
 
+_CANON_LINES_RE = re.compile(r"(?:[A-Z]{1,3}[1-9][0-9]{0,6}\n)+")
+_LONG_REF_RE = re.compile(r"[A-Z]{3}|[0-9]{7}")  # a column past XFD or a row past 1,048,576 may hide here
+
+
+def _canonical_keys(mapping: dict, titles) -> dict | None:
+    """What :func:`_check_keys` returns, where every key is a (title, ref) tuple whose ref is
+    already canonical (upper case, no $, no leading zero, within two letters and six digits, as a
+    recalculation names its cells): the refs of a sheet checked in one pass over their join
+    rather than one by one.  None where any key is otherwise: the general loop decides."""
+    keys = list(mapping)
+    if set(map(type, keys)) != {tuple} or set(map(len, keys)) != {2}:
+        return None
+    sheets = list(map(itemgetter(0), keys))
+    refs = list(map(itemgetter(1), keys))
+    order = list(dict.fromkeys(sheets))  # the sheets in the order they first come
+    if any(type(sheet) is not str or sheet not in titles for sheet in order):
+        return None
+    if len(order) == 1:
+        out = {order[0]: dict(zip(refs, mapping.values()))}
+    else:
+        items = list(mapping.values())
+        out = {}
+        for sheet in order:
+            mine = list(map(eq, sheets, repeat(sheet)))
+            out[sheet] = dict(zip(compress(refs, mine), compress(items, mine)))
+    for cells in out.values():
+        if set(map(type, cells)) != {str}:
+            return None
+        joined = "\n".join(cells) + "\n"
+        if _CANON_LINES_RE.fullmatch(joined) is None or _LONG_REF_RE.search(joined):
+            return None
+    return out
+
+
 def _check_keys(mapping: dict, name: str, titles: dict) -> dict:
     """{sheet title: {canonical ref: item}} from {(title, ref): item}, with ValueErrors for bad keys."""
-    out: dict = {}
+    out = _canonical_keys(mapping, titles)
+    if out is not None:
+        return out
+    out = {}
     for key, item in mapping.items():
         if not (isinstance(key, tuple) and len(key) == 2 and isinstance(key[0], str)):
             raise ValueError(f"{name} keys must be (sheet title, 'B3') pairs, got {key!r}")

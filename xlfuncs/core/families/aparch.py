@@ -38,7 +38,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import special
+from .._lazy import special
 
 from .._lazy import lazy_module, lfilter
 from ..errors import InputError

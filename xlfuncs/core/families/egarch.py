@@ -22,7 +22,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import special
+from .._lazy import special
 
 from ..errors import InputError
 from ._compiled import kernel

@@ -96,13 +96,15 @@ import re
 from functools import lru_cache
 
 import numpy as np
-from scipy import fft as sfft
-from .._lazy import lfilter
+
+from .._lazy import lazy_module, lfilter
 
 from ..errors import InputError
 from .base import VarianceFamily
 
 __all__ = ["Figarch", "TRUNCATION", "weights"]
+
+sfft = lazy_module("scipy.fft")  # on a FIGARCH fit's first transform: the module imports scipy.special
 
 #: lags of the ARCH(infinity) weights kept (common practice)
 TRUNCATION = 1000
