@@ -98,8 +98,12 @@ def risk_now(f, r, seed):
     return rk.var, rk.es
 
 
-def reference(f, r, paths=REF_PATHS):
+def reference(f, r, paths=REF_PATHS, cache=None):
     """(VaR, ES, se VaR, se ES, batch se VaR, batch se ES) of ``paths`` plain paths.
+
+    ``cache`` (default: the environment's RISK_REF_CACHE, if set) is a folder where each result is
+    kept in a small JSON file named by the model, the law, the paths and a hash of the fitted
+    parameters and returns, so that a second run reads it instead of simulating again.
 
     Streamed in chunks of CHUNK paths (own seeds 10,000 + i): only the lower tail of each chunk
     (below the first chunk's 5% quantile, far beyond the 1% wanted) is kept, so 10^8 paths fit in
@@ -107,6 +111,24 @@ def reference(f, r, paths=REF_PATHS):
     heavy tails (Student t shocks with nu near 4) the tail mean's is optimistic, so the spread of
     the chunks' own VaR and ES over sqrt(chunks) (batch means, common practice) is given beside it.
     """
+    cache = os.environ.get("RISK_REF_CACHE") if cache is None else cache
+    if cache:
+        import hashlib
+        import json
+
+        key = hashlib.sha256(np.asarray(f.params, dtype=float).tobytes() + np.asarray(r, dtype=float).tobytes()
+                             + repr((H, LEVEL, CHUNK)).encode()).hexdigest()[:16]
+        name = f"{f.spec.canonical}-{f.dist.name}-{paths}-{key}".replace("(", "").replace(")", "").replace(",", "")
+        path = os.path.join(cache, name + ".json")
+        if os.path.exists(path):
+            with open(path) as fh:
+                return tuple(json.load(fh)["reference"])
+        out = reference(f, r, paths, cache="")
+        os.makedirs(cache, exist_ok=True)
+        with open(path, "w") as fh:
+            json.dump({"model": f.spec.canonical, "dist": f.dist.name, "paths": paths,
+                       "reference": [float(x) for x in out]}, fh)
+        return out
     chunk = min(CHUNK, paths)
     n_chunks = paths // chunk
     a = 1 - LEVEL
