@@ -16,7 +16,11 @@ horizon        how
                :func:`risk_paths`: 2^16, 2^15 beyond 300 periods) that continue the
                fitted recursions from the end of the sample (:func:`forward_steps`),
                with four variance reductions: scrambled Sobol' points (randomised
-               quasi-Monte Carlo) as the shocks' normal scores, each shock the fitted
+               quasi-Monte Carlo: a random linear scramble and digital shift of the
+               sequence's direction numbers, :func:`_scrambled_directions`, and the
+               normal quantile from interpolants, :class:`_NormalTable`, made with
+               the proposal below in one compiled pass where numba runs) as the
+               shocks' normal scores, each shock the fitted
                law's quantile of its score's normal probability
                (``Distribution.normal_scores``); the scores rotated so that the
                Sobol' sequence's first coordinate drives their sum; importance
@@ -470,9 +474,9 @@ def _sobol_uniforms(vs, shift, n: int) -> np.ndarray:
     return (q[:n] >> np.uint64(12)).astype(np.float64) * 2.0 ** -52 + 2.0 ** -53
 
 
-def _score_kernel_py(vs, shift, d, first_shift, scale, log_scale, v, vw, cv, cd, r0, inv_cstep, ccells,
+def _score_kernel_py(i0, vs, shift, d, first_shift, scale, log_scale, v, vw, cv, cd, r0, inv_cstep, ccells,
                      tv, td, t0, inv_tstep, Y, logw):
-    """The normal scores of :class:`_Scores` for paths 0..n-1, one path at a time (a numba kernel):
+    """The normal scores of :class:`_Scores` for paths i0..i0+n-1, one path at a time (a numba kernel):
     the path's Sobol' point (Gray-code order: point k is point k-1 XOR the direction of the lowest set
     bit of k), each coordinate's uniform (the centre of its cell of width 2^-52) turned into a normal
     score by the interpolants of :class:`_NormalTable`, then the proposal's move and widening of
@@ -481,12 +485,20 @@ def _score_kernel_py(vs, shift, d, first_shift, scale, log_scale, v, vw, cv, cd,
     dims, n = Y.shape
     m = vs.shape[1]
     q = shift.copy()
+    gray = i0 ^ (i0 >> 1)  # point i0: the XOR of the directions of the set bits of its Gray code
+    b = 0
+    while gray > 0:
+        if gray & 1:
+            for j in range(dims):
+                q[j] ^= vs[j, b]
+        gray >>= 1
+        b += 1
     g = np.empty(dims)
     top = tv.shape[0] - 2
     twelve = np.uint64(12)
     for i in range(n):
         if i > 0:
-            k = i
+            k = i0 + i
             b = 0
             while (k & 1) == 0:
                 k >>= 1
@@ -495,7 +507,7 @@ def _score_kernel_py(vs, shift, d, first_shift, scale, log_scale, v, vw, cv, cd,
                 for j in range(dims):
                     q[j] ^= vs[j, b]
         for j in range(dims):
-            u = float(q[j] >> twelve) * 2.0 ** -52 + 2.0 ** -53
+            u = float(np.int64(q[j] >> twelve)) * 2.0 ** -52 + 2.0 ** -53
             low = u < 0.5
             r = u if low else 1.0 - u
             if r >= r0:
@@ -549,6 +561,9 @@ _score_kernel = kernel(_score_kernel_py)
 #: (s^2 / sqrt(2 s^2 - 1))^(h-2), stays near that at 22 periods
 TILT = 0.8
 SCALE = 1.2
+#: the paths whose scores one pass of the compiled kernels makes before the family's kernel takes
+#: them (22 x 4,096 scores, 0.7 MB: in the cache between the two)
+BLOCK = 4096
 #: the steps that take quasi-random scores; later steps of a long horizon take pseudo-random ones
 #: (padding, common practice), so the points held stay paths x QMC_STEPS
 QMC_STEPS = 64
@@ -558,8 +573,12 @@ class _Scores:
     """Normal scores of the shocks, one step at a time, and each path's log likelihood ratio.
 
     Randomised quasi-Monte Carlo: the points of a Sobol' sequence in min(h, QMC_STEPS)
-    dimensions, scrambled with the seed (the estimator stays unbiased), turned into standard-normal
-    scores g; steps beyond take pseudo-random scores from the same seeded generator.
+    dimensions, scrambled with the seed (:func:`_scrambled_directions`: the estimator stays
+    unbiased), turned into standard-normal scores g by :class:`_NormalTable`; steps beyond take
+    pseudo-random scores from the same seeded generator.  Where numba runs, one compiled pass
+    (:func:`_score_kernel_py`) makes a path's point, scores, move, weight and rotation at once, a
+    block of paths at a time for the family's kernel (:meth:`blocks`), or all of them when the
+    step-by-step route asks for ``y``; elsewhere NumPy makes them with the same arithmetic.
 
     The d = min(h - 1, QMC_STEPS) quasi-random scores of steps 1..h-1 are rotated so that the
     first coordinate, the best spread of a Sobol' sequence, drives their sum: y = H g with H the
@@ -589,28 +608,55 @@ class _Scores:
         vw = v * (2.0 / float(v @ v)) if d > 1 else np.zeros(len(v))
         first_shift = self.theta * math.sqrt(d) if d >= 1 else 0.0
         log_scale = (d - 1) * math.log(self.scale) if d >= 1 else 0.0
-        table = _normal_table()
+        self._args = (vs, shift, d, first_shift, self.scale, log_scale, v, vw)
+        self._y = None
         from .families._compiled import _load_numba, jit_enabled  # not at import: numba only when used
 
-        if jit_enabled() and _load_numba():
-            self.y = np.empty((dims, paths))
-            self.logw = np.empty(paths)
-            _score_kernel(vs, shift, d, first_shift, self.scale, log_scale, v, vw, table.cv, table.cd, _R0,
-                          1.0 / table.cstep, table.CCELLS, table.tv, table.td, table.t0, 1.0 / table.TSTEP,
-                          self.y, self.logw)
-            return
-        g = table(_sobol_uniforms(vs, shift, paths))  # paths x dims
+        self.compiled = bool(jit_enabled() and _load_numba())
+        if self.compiled:
+            self.logw = np.empty(paths)  # filled block by block (blocks) or at once (y)
+        else:
+            self._numpy_scores()
+
+    def _kernel(self, i0: int, Y, logw):
+        vs, shift, d, first_shift, scale, log_scale, v, vw = self._args
+        t = _normal_table()
+        _score_kernel(i0, vs, shift, d, first_shift, scale, log_scale, v, vw, t.cv, t.cd, _R0, 1.0 / t.cstep,
+                      t.CCELLS, t.tv, t.td, t.t0, 1.0 / t.TSTEP, Y, logw)
+
+    def _numpy_scores(self):
+        vs, shift, d, first_shift, scale, log_scale, v, vw = self._args
+        g = _normal_table()(_sobol_uniforms(vs, shift, self.paths))  # paths x dims
         if d >= 1:
             x = g[:, :d]  # a view: moved and rotated in place
             before = np.sum(x * x, axis=1)
             x[:, 0] -= first_shift
-            x[:, 1:] *= self.scale
+            x[:, 1:] *= scale
             self.logw = 0.5 * (before - np.sum(x * x, axis=1)) + log_scale
             if d > 1:
                 x -= np.outer(x @ vw, v)
         else:
-            self.logw = np.zeros(paths)
-        self.y = np.ascontiguousarray(g.T)  # one row a step
+            self.logw = np.zeros(self.paths)
+        self._y = np.ascontiguousarray(g.T)  # one row a step
+
+    @property
+    def y(self) -> np.ndarray:
+        """The scores of every path, a row a step (made at the first use on the compiled route)."""
+        if self._y is None:
+            self._y = np.empty((self.dims, self.paths))
+            self._kernel(0, self._y, self.logw)
+        return self._y
+
+    def blocks(self, size: int = BLOCK):
+        """(i0, Y) for the paths i0..i0+len-1 in blocks of ``size`` (compiled route), the weights
+        written into ``logw`` on the way: a block's scores stay in the cache for the family's kernel."""
+        Y = np.empty((self.dims, min(size, self.paths)))
+        for i0 in range(0, self.paths, size):
+            n = min(size, self.paths - i0)
+            if n < Y.shape[1]:
+                Y = np.empty((self.dims, n))
+            self._kernel(i0, Y, self.logw[i0:i0 + n])
+            yield i0, Y
 
     def step(self, h: int) -> np.ndarray:
         if h < self.d:
@@ -660,7 +706,17 @@ def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
     mu, _, _, vp, eta = lik.split(theta)
     mu = float(mu) if spec.has_mu else 0.0
     state = fam.sim_continue(vp, eta, fit.dist, History(resid[lik.a:], var[lik.a + lik.s0:], lik.s0))
-    return fam.sim_sums(state, vp, scores.y[:horizon], to_shock, mu)
+    if not scores.compiled or scores._y is not None:
+        return fam.sim_sums(state, vp, scores.y[:horizon], to_shock, mu)
+    n = scores.paths
+    cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
+    for i0, Y in scores.blocks():  # scores made a block at a time, while they are in the cache
+        out = fam.sim_sums(state, vp, Y[:horizon], to_shock, mu)
+        if out is None:
+            return None
+        k = Y.shape[1]
+        cum[i0:i0 + k], a_last[i0:i0 + k], s_last[i0:i0 + k] = out
+    return cum, a_last, s_last
 
 
 def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=None, Xf=None) -> Risk:
