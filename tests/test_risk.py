@@ -549,3 +549,15 @@ def test_scrambled_sobol_points_are_a_net_and_the_compiled_scores_the_numpy_ones
     b = rmod._Scores(22, 3000, 5, 0.01)
     assert_allclose(a.y, b.y, rtol=1e-13, atol=1e-13)
     assert_allclose(a.logw, b.logw, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("k", [2, 5, 20, 63])
+def test_radius_interpolant_is_scipy_chi_quantile(k):
+    """The radius of the scores across the sum direction (its own quasi-random coordinate): the chi
+    law's quantile with k degrees of freedom at the normal score's probability, against SciPy's
+    chi.ppf / chi.isf, over the scores' whole range (|g| <= 8.13)."""
+    from xlfuncs.core.risk import _radius_table
+
+    g = np.linspace(-8.13, 8.13, 100_001)
+    exact = np.where(g <= 0, stats.chi.ppf(special.ndtr(g), k), stats.chi.isf(special.ndtr(-g), k))
+    assert np.max(np.abs(_radius_table(k)(g) / exact - 1)) < 1e-7

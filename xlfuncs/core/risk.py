@@ -382,7 +382,9 @@ class _NormalTable:
         r[-1] = 0.5
         a = -special.ndtri(r)
         phi = np.exp(-0.5 * a * a) / math.sqrt(2.0 * math.pi)
-        self.cv, self.cd = a, (-1.0 / phi) * self.cstep
+        self.cvd = np.empty(2 * (n + 1))  # values and slopes interleaved, for the compiled kernel
+        self.cvd[0::2], self.cvd[1::2] = a, (-1.0 / phi) * self.cstep
+        self.cv, self.cd = self.cvd[0::2], self.cvd[1::2]
         self.t0 = math.sqrt(-2.0 * math.log(_R0))
         tmax = math.sqrt(-2.0 * math.log(2.0 ** -60))
         m = int(math.ceil((tmax - self.t0) / self.TSTEP)) + 1
@@ -417,6 +419,40 @@ def _normal_table() -> _NormalTable:
     if _NORMAL_TABLE is None:
         _NORMAL_TABLE = _NormalTable()
     return _NORMAL_TABLE
+
+
+class _RadiusTable:
+    """rho(g) = F^-1(Phi(g)), the chi law's quantile with ``k`` degrees of freedom at a normal
+    score's probability: the length of k independent standard normal scores drawn from one normal
+    score, a cubic Hermite interpolant on a uniform grid of g over [-HALF, HALF] (SciPy's chi.ppf,
+    chi.isf above 0, and the exact slopes phi(g) / f(rho) at the nodes)."""
+
+    HALF, STEP = 8.25, 1.0 / 64.0
+
+    def __init__(self, k: int):
+        from scipy import stats
+
+        n = int(round(2 * self.HALF / self.STEP))
+        g = -self.HALF + self.STEP * np.arange(n + 1)
+        rho = np.where(g <= 0.0, stats.chi.ppf(special.ndtr(np.minimum(g, 0.0)), k),
+                       stats.chi.isf(special.ndtr(-np.maximum(g, 0.0)), k))
+        slope = np.exp(-0.5 * g * g - stats.chi.logpdf(rho, k)) / math.sqrt(2.0 * math.pi)
+        self.v, self.d = rho, slope * self.STEP
+
+    def __call__(self, g):
+        u = (np.asarray(g, dtype=float) + self.HALF) * (1.0 / self.STEP)
+        i = np.minimum(np.maximum(u, 0.0), len(self.v) - 2).astype(np.intp)
+        return hermite(self.v, self.d, i, u - i)
+
+
+_RADII: dict = {}
+
+
+def _radius_table(k: int) -> _RadiusTable:
+    t = _RADII.get(k)
+    if t is None:
+        t = _RADII[k] = _RadiusTable(k)
+    return t
 
 
 _DIRECTIONS: dict = {}
@@ -474,15 +510,18 @@ def _sobol_uniforms(vs, shift, n: int) -> np.ndarray:
     return (q[:n] >> np.uint64(12)).astype(np.float64) * 2.0 ** -52 + 2.0 ** -53
 
 
-def _score_kernel_py(i0, vs, shift, d, first_shift, scale, log_scale, v, vw, cv, cd, r0, inv_cstep, ccells,
-                     tv, td, t0, inv_tstep, Y, logw):
+def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v, vw, cvd, r0, inv_cstep, ccells,
+                     tv, td, t0, inv_tstep, rv, rd, rhalf, inv_rstep, Y, logw):
     """The normal scores of :class:`_Scores` for paths i0..i0+n-1, one path at a time (a numba kernel):
     the path's Sobol' point (Gray-code order: point k is point k-1 XOR the direction of the lowest set
     bit of k), each coordinate's uniform (the centre of its cell of width 2^-52) turned into a normal
-    score by the interpolants of :class:`_NormalTable`, then the proposal's move and widening of
+    score by the interpolants of :class:`_NormalTable`; with ``radial``, the scores across the sum
+    direction made from a radius (coordinate 1, through the chi law's interpolant rv, rd) times the
+    direction of the normal scores of coordinates 2..d; then the proposal's move and widening of
     the first ``d`` scores, their log likelihood ratio, and the reflection onto the sum direction
-    (``v``, with ``vw`` = 2 v / v.v).  Y holds a row per coordinate, a column per path."""
-    dims, n = Y.shape
+    (``v``, with ``vw`` = 2 v / v.v).  Y holds a row per step, a column per path."""
+    steps, n = Y.shape
+    dims = vs.shape[0]
     m = vs.shape[1]
     q = shift.copy()
     gray = i0 ^ (i0 >> 1)  # point i0: the XOR of the directions of the set bits of its Gray code
@@ -494,7 +533,9 @@ def _score_kernel_py(i0, vs, shift, d, first_shift, scale, log_scale, v, vw, cv,
         gray >>= 1
         b += 1
     g = np.empty(dims)
+    x = np.empty(steps)
     top = tv.shape[0] - 2
+    rtop = rv.shape[0] - 2
     twelve = np.uint64(12)
     for i in range(n):
         if i > 0:
@@ -517,7 +558,9 @@ def _score_kernel_py(i0, vs, shift, d, first_shift, scale, log_scale, v, vw, cv,
                     c = ccells - 1
                 t = s - c
                 t1 = 1.0 - t
-                a = t1 * t1 * ((1.0 + 2.0 * t) * cv[c] + t * cd[c]) + t * t * ((3.0 - 2.0 * t) * cv[c + 1] - t1 * cd[c + 1])
+                c2 = 2 * c  # cvd interleaves the nodes' values and slopes: one cache line a cell
+                a = (t1 * t1 * ((1.0 + 2.0 * t) * cvd[c2] + t * cvd[c2 + 1])
+                     + t * t * ((3.0 - 2.0 * t) * cvd[c2 + 2] - t1 * cvd[c2 + 3]))
             else:
                 s = (math.sqrt(-2.0 * math.log(r)) - t0) * inv_tstep
                 c = int(s)
@@ -527,27 +570,50 @@ def _score_kernel_py(i0, vs, shift, d, first_shift, scale, log_scale, v, vw, cv,
                 t1 = 1.0 - t
                 a = t1 * t1 * ((1.0 + 2.0 * t) * tv[c] + t * td[c]) + t * t * ((3.0 - 2.0 * t) * tv[c + 1] - t1 * td[c + 1])
             g[j] = -a if low else a
-        if d >= 1:
+        if radial:  # x[1..d-1]: the radius times the direction of g[2..d]; later steps from g[d+1..]
+            s = (g[1] + rhalf) * inv_rstep
+            c = int(s)
+            if c < 0:
+                c = 0
+            elif c > rtop:
+                c = rtop
+            t = s - c
+            t1 = 1.0 - t
+            rho = t1 * t1 * ((1.0 + 2.0 * t) * rv[c] + t * rd[c]) + t * t * ((3.0 - 2.0 * t) * rv[c + 1] - t1 * rd[c + 1])
+            nn = 0.0
+            for j in range(2, d + 1):
+                nn += g[j] * g[j]
+            f = rho / math.sqrt(nn)
+            x[0] = g[0]
+            for j in range(1, d):
+                x[j] = g[j + 1] * f
+            for j in range(d, steps):
+                x[j] = g[j + 1]
+            before = g[0] * g[0] + rho * rho
+        else:
+            for j in range(steps):
+                x[j] = g[j]
             before = 0.0
             for j in range(d):
-                before += g[j] * g[j]
-            g[0] = g[0] - first_shift
+                before += x[j] * x[j]
+        if d >= 1:
+            x[0] = x[0] - first_shift
             for j in range(1, d):
-                g[j] = g[j] * scale
+                x[j] = x[j] * scale
             after = 0.0
             for j in range(d):
-                after += g[j] * g[j]
+                after += x[j] * x[j]
             logw[i] = 0.5 * (before - after) + log_scale
             if d > 1:
                 c2 = 0.0
                 for j in range(d):
-                    c2 += g[j] * vw[j]
+                    c2 += x[j] * vw[j]
                 for j in range(d):
-                    g[j] = g[j] - c2 * v[j]
+                    x[j] = x[j] - c2 * v[j]
         else:
             logw[i] = 0.0
-        for j in range(dims):
-            Y[j, i] = g[j]
+        for j in range(steps):
+            Y[j, i] = x[j]
 
 
 _score_kernel = kernel(_score_kernel_py)
@@ -561,6 +627,10 @@ _score_kernel = kernel(_score_kernel_py)
 #: (s^2 / sqrt(2 s^2 - 1))^(h-2), stays near that at 22 periods
 TILT = 0.8
 SCALE = 1.2
+#: the scores across the sum direction as a radius (its own Sobol' coordinate, the second, so
+#: that the sum and the radius, which drive the losses and the volatility, form a two-dimensional
+#: net) times a direction (the normal scores of the next coordinates, normalised)
+RADIAL = True
 #: the paths whose scores one pass of the compiled kernels makes before the family's kernel takes
 #: them (22 x 4,096 scores, 0.7 MB: in the cache between the two)
 BLOCK = 4096
@@ -585,6 +655,14 @@ class _Scores:
     Householder reflection that maps the first axis to (1, ..., 1) / sqrt(d), an orthogonal map,
     so y are independent standard normal scores again (the sum-direction construction, as the
     Brownian bridge for paths: Moskowitz and Caflisch 1996; Caflisch, Morokoff and Owen 1997).
+    With :data:`RADIAL` (d >= 2), the d - 1 scores across the sum direction are a radius times a
+    direction: the radius, the chi law's quantile (d - 1 degrees of freedom) of the second Sobol'
+    coordinate's normal probability (:class:`_RadiusTable`), the direction that of the normal scores
+    of coordinates 3..d+1 (an isotropic normal vector is its chi-distributed length times an
+    independent uniform direction, so the scores are standard normal again).  The sum and the
+    radius, which drive a path's loss and its volatility, then take the sequence's two best
+    coordinates, a two-dimensional net (measured: the VaR's spread over 200 seeds 8% lower on
+    DEM/GBP GARCH(1,1)-t and GJR-GARCH(1,1)-skewt).
     Importance sampling acts on g before the rotation: g_1 moved down by theta sqrt(d), which moves
     every step's score by theta (TILT times the shift of the sum of h unit shocks to its
     alpha-quantile spread over the steps, common practice); the other coordinates widened by s
@@ -599,7 +677,8 @@ class _Scores:
         self.dims = dims = min(horizon, QMC_STEPS)
         self.rng = np.random.default_rng(seed)
         m = max(int(math.ceil(math.log2(paths))), 0)
-        vs, shift = _scrambled_directions(dims, m, self.rng)
+        self.radial = bool(RADIAL) and min(horizon - 1, dims) >= 2
+        vs, shift = _scrambled_directions(dims + 1 if self.radial else dims, m, self.rng)
         self.theta = TILT * -float(special.ndtri(alpha)) / math.sqrt(horizon)
         self.scale = 1.0 + (SCALE - 1.0) * min(1.0, math.sqrt(21.0 / max(horizon - 1, 1)))
         self.d = d = min(horizon - 1, dims)
@@ -609,6 +688,7 @@ class _Scores:
         first_shift = self.theta * math.sqrt(d) if d >= 1 else 0.0
         log_scale = (d - 1) * math.log(self.scale) if d >= 1 else 0.0
         self._args = (vs, shift, d, first_shift, self.scale, log_scale, v, vw)
+        self._radius = _radius_table(d - 1 if self.radial else 1)
         self._y = None
         from .families._compiled import _load_numba, jit_enabled  # not at import: numba only when used
 
@@ -620,16 +700,23 @@ class _Scores:
 
     def _kernel(self, i0: int, Y, logw):
         vs, shift, d, first_shift, scale, log_scale, v, vw = self._args
-        t = _normal_table()
-        _score_kernel(i0, vs, shift, d, first_shift, scale, log_scale, v, vw, t.cv, t.cd, _R0, 1.0 / t.cstep,
-                      t.CCELLS, t.tv, t.td, t.t0, 1.0 / t.TSTEP, Y, logw)
+        t, rt = _normal_table(), self._radius
+        _score_kernel(i0, vs, shift, d, self.radial, first_shift, scale, log_scale, v, vw, t.cvd, _R0,
+                      1.0 / t.cstep, t.CCELLS, t.tv, t.td, t.t0, 1.0 / t.TSTEP, rt.v, rt.d, rt.HALF, 1.0 / rt.STEP,
+                      Y, logw)
 
     def _numpy_scores(self):
         vs, shift, d, first_shift, scale, log_scale, v, vw = self._args
-        g = _normal_table()(_sobol_uniforms(vs, shift, self.paths))  # paths x dims
+        g = _normal_table()(_sobol_uniforms(vs, shift, self.paths))  # paths x Sobol' coordinates
+        if self.radial:  # the scores across the sum direction: a radius times a direction
+            rho = self._radius(g[:, 1])
+            f = rho / np.sqrt(np.sum(g[:, 2:d + 1] * g[:, 2:d + 1], axis=1))
+            before = g[:, 0] * g[:, 0] + rho * rho
+            g = np.concatenate([g[:, :1], g[:, 2:d + 1] * f[:, None], g[:, d + 1:]], axis=1)
         if d >= 1:
             x = g[:, :d]  # a view: moved and rotated in place
-            before = np.sum(x * x, axis=1)
+            if not self.radial:
+                before = np.sum(x * x, axis=1)
             x[:, 0] -= first_shift
             x[:, 1:] *= scale
             self.logw = 0.5 * (before - np.sum(x * x, axis=1)) + log_scale
