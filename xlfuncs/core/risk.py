@@ -491,8 +491,10 @@ def _scrambled_directions(dims: int, m: int, rng) -> tuple:
     pos = np.uint64(63) - k  # row k gives the digit at bit 63 - k: the (k+1)-th digit
     keep = np.where(k == 0, np.uint64(0), ones << (np.uint64(64) - np.maximum(k, np.uint64(1))))
     rows = (rows & keep) | (np.uint64(1) << pos)
-    par = np.bitwise_count(rows[:, None, :] & v[:, :, None]) & np.uint8(1)  # dims x m x 64
-    vs = np.bitwise_or.reduce(par.astype(np.uint64) << pos, axis=-1)
+    par = rows[:, None, :] & v[:, :, None]  # dims x m x 64: each digit's bits, folded to their parity
+    for k in (32, 16, 8, 4, 2, 1):  # (NumPy >= 1.24: no bitwise_count before 2.0)
+        par ^= par >> np.uint64(k)
+    vs = np.bitwise_or.reduce((par & np.uint64(1)) << pos, axis=-1)
     shift = rng.integers(0, ones, size=dims, dtype=np.uint64, endpoint=True)
     return np.ascontiguousarray(vs), shift
 
