@@ -22,6 +22,7 @@ rounds, one BLAS thread.  Rows, and the benchmark scripts whose functions they r
 
     python benchmarks/issue12_table.py            # about 18 minutes here (8 of them the 10^8-path references)
     python benchmarks/issue12_table.py --quick    # fewer rounds, a 1,000,000-path reference: ~3 minutes
+    RISK_REF_CACHE=/tmp/risk_refs RISK_REF_RUNS=2 python benchmarks/issue12_table.py --only risk  # kept, pooled
 """
 
 from __future__ import annotations
@@ -114,7 +115,8 @@ def risk_rows(ref_paths, seeds):
     for model, dist in ra.MODELS:
         f = fit(r, model, dist)
         t0 = time.process_time()
-        ref = ra.reference(f, r, ref_paths)
+        runs = int(os.environ.get("RISK_REF_RUNS", "1"))  # 2: two independent references pooled
+        ref = ra.reference(f, r, ref_paths) if runs <= 1 else ra.pooled_reference(f, r, runs, ref_paths)
         tref = time.process_time() - t0
         vals, times = [], []
         for s in seeds:

@@ -498,3 +498,66 @@ def test_compiled_paths_are_the_step_by_step_paths(series, model, dist, params, 
     assert used[-1] is None
     assert_allclose([a.var, a.es], [b.var, b.es], rtol=1e-12)
     assert a.method == b.method
+
+
+def test_normal_scores_interpolant_is_scipy_ndtri():
+    """The inverse normal behind the quasi-random scores (two cubic Hermite interpolants, in r and in
+    sqrt(-2 ln r)) against SciPy's ndtri, over the whole range of the uniforms it is given (the
+    centres (2k + 1) 2^-53 of cells of width 2^-52, so down to 2^-53 and up to 1 - 2^-53)."""
+    from xlfuncs.core.risk import _normal_table
+
+    rng = np.random.default_rng(3)
+    k = np.concatenate([np.arange(0, 5000), rng.integers(0, 2 ** 52, 200_000),
+                        (2.0 ** 52 * np.logspace(-15.5, 0, 20_000)).astype(np.int64)])
+    k = np.clip(k, 0, 2 ** 52 - 1)
+    u = k.astype(float) * 2.0 ** -52 + 2.0 ** -53
+    u = np.concatenate([u, 1.0 - u])
+    exact = special.ndtri(u)
+    got = _normal_table()(u)
+    assert np.max(np.abs(got - exact) / np.maximum(1.0, np.abs(exact))) < 1e-12
+    assert np.array_equal(got[: len(k)], -got[len(k):])  # symmetric to the last bit
+
+
+def test_scrambled_sobol_points_are_a_net_and_the_compiled_scores_the_numpy_ones(monkeypatch):
+    """The randomised Sobol' points (Matousek's linear scramble and a digital shift of SciPy's
+    direction numbers): unscrambled, the generator gives SciPy's own Sobol' points; scrambled, the
+    first 2^m points keep the net property (each coordinate has one point in every interval of
+    width 2^-m, and the first two coordinates one point in every elementary box of area 2^-m:
+    Sobol's first two coordinates form a (0, m, 2)-net, Niederreiter 1992); and the compiled
+    kernel's normal scores and weights are the NumPy route's."""
+    from scipy.stats import qmc
+
+    import xlfuncs.core.risk as rmod
+
+    m, dims = 10, 5
+    v = rmod._sobol_directions(dims, m)
+    u = rmod._sobol_uniforms(v, np.zeros(dims, dtype=np.uint64), 2 ** m)
+    ref = qmc.Sobol(dims, scramble=False).random(2 ** m)
+    assert np.array_equal(np.floor(u * 2 ** 30), np.floor(ref * 2 ** 30))
+
+    vs, shift = rmod._scrambled_directions(dims, m, np.random.default_rng(11))
+    u = rmod._sobol_uniforms(vs, shift, 2 ** m)
+    assert not np.array_equal(np.floor(u * 2 ** 30), np.floor(ref * 2 ** 30))
+    for j in range(dims):
+        assert np.array_equal(np.sort(np.floor(u[:, j] * 2 ** m)), np.arange(2 ** m))
+    for a in range(m + 1):
+        box = np.floor(u[:, 0] * 2 ** a) * 2 ** (m - a) + np.floor(u[:, 1] * 2 ** (m - a))
+        assert np.array_equal(np.sort(box), np.arange(2 ** m))
+
+    a = rmod._Scores(22, 3000, 5, 0.01)
+    monkeypatch.setenv("VOLCAST_NO_JIT", "1")
+    b = rmod._Scores(22, 3000, 5, 0.01)
+    assert_allclose(a.y, b.y, rtol=1e-13, atol=1e-13)
+    assert_allclose(a.logw, b.logw, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("k", [2, 5, 20, 63])
+def test_radius_interpolant_is_scipy_chi_quantile(k):
+    """The radius of the scores across the sum direction (its own quasi-random coordinate): the chi
+    law's quantile with k degrees of freedom at the normal score's probability, against SciPy's
+    chi.ppf / chi.isf, over the scores' whole range (|g| <= 8.13)."""
+    from xlfuncs.core.risk import _radius_table
+
+    g = np.linspace(-8.13, 8.13, 100_001)
+    exact = np.where(g <= 0, stats.chi.ppf(special.ndtr(g), k), stats.chi.isf(special.ndtr(-g), k))
+    assert np.max(np.abs(_radius_table(k)(g) / exact - 1)) < 1e-7
