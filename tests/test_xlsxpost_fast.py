@@ -14,7 +14,7 @@ import zipfile
 
 import openpyxl
 import pytest
-from hypothesis import HealthCheck, given, settings, strategies as st
+from hypothesis import HealthCheck, example, given, settings, strategies as st
 
 from xlfuncs.headless import xlsxpost
 from xlfuncs.headless.xlsxpost import ExcelError, store_values
@@ -32,6 +32,7 @@ def _sheet_xml(path, part="xl/worksheets/sheet1.xml"):
 @given(cells=st.lists(st.tuples(st.integers(1, 40), st.integers(1, 30), st.booleans(), st.sampled_from([None, "0.00", "@"]),
                                 st.booleans(), _VALUES), min_size=1, max_size=30),
        stored_before=st.booleans())
+@example(cells=[(1, 1, True, None, True, None), (1, 1, False, None, False, None)], stored_before=False)  # CI's find
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 def test_plain_formula_cells_are_edited_as_the_general_route_edits_them(tmp_path_factory, monkeypatch, cells,
                                                                          stored_before):
@@ -43,6 +44,7 @@ def test_plain_formula_cells_are_edited_as_the_general_route_edits_them(tmp_path
         c = ws.cell(row, col, f"=ROW()*{row}+{col}" if formula else 1.5)
         if fmt:
             c.number_format = fmt
+        chosen.pop(("Sheet", c.coordinate), None)  # a later tuple may rewrite the same cell as a plain value
         if formula and store:
             chosen[("Sheet", c.coordinate)] = value
     src = tmp / "src.xlsx"
