@@ -100,6 +100,9 @@ def test_levels_are_positive_and_strongly_autocorrelated():
     assert not looks_like_levels(noise + 10)  # all positive, but no autocorrelation
     assert not looks_like_levels(np.cumsum(noise))  # wanders, but crosses zero: not price levels
     assert not looks_like_levels(np.full(50, 1.0))  # constant: no autocorrelation defined
+    for v in (1.757812, 0.1, 3.3):  # constants whose mean rounds off v (a generated test's find: rho was (n-1)/n)
+        for n in (3, 6, 7, 40):
+            assert np.isnan(lag1_autocorrelation(np.full(n, v))) and not looks_like_levels(np.full(n, v))
     assert 0.5 < LEVELS_AUTOCORRELATION < 1
 
 

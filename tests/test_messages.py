@@ -209,7 +209,8 @@ def test_semicolon_and_tab_files_read_as_comma_files(tmp_path, values, sep):
     rows = [("date", "return")] + [(f"2020-01-{1 + i % 28:02d}", f"{v:.6f}") for i, v in enumerate(values)]
     comma.write_text("".join(",".join(r) + "\n" for r in rows))
     other.write_text("".join(sep.join(r) + "\n" for r in rows))
-    assert read_returns_csv(str(other)) == read_returns_csv(str(comma)) == pytest.approx(values, abs=1e-6)
+    # the column named: generated values may look like price levels, which a default column refuses
+    assert read_returns_csv(str(other), "return") == read_returns_csv(str(comma), "return") == pytest.approx(values, abs=1e-6)
 
 
 @given(values=st.lists(st.floats(-20, 20, allow_nan=False).map(lambda x: round(x, 6)), min_size=3, max_size=40),
@@ -224,7 +225,7 @@ def test_decimal_comma_files_read_as_their_point_twins(tmp_path, values, sep):
     rows = [(f"2020-01-{1 + i % 28:02d}", f"{v:.6f}") for i, v in enumerate(values)]
     point.write_text("date,return\n" + "".join(",".join(r) + "\n" for r in rows))
     comma.write_text(f"date{sep}return\n" + "".join(f"{d}{sep}{v.replace('.', ',')}\n" for d, v in rows))
-    assert read_returns_csv(str(comma)) == read_returns_csv(str(point)) == pytest.approx(values, abs=1e-6)
+    assert read_returns_csv(str(comma), "return") == read_returns_csv(str(point), "return") == pytest.approx(values, abs=1e-6)
     assert read_csv_records(comma).note == "numbers written with decimal commas read as decimal points"
     assert read_csv_records(point).note == ""
 

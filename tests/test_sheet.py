@@ -555,6 +555,9 @@ BAD_FITS = [
     ("number", 5.0, r"fit is not a fit table"),
     ("blank", None, r"fit is not a fit table"),
     ("numbers", [[1.0, 2.0], [3.0, 4.0]], r"fit is not a fit table"),
+    # a plain reference to the anchor of a spilled VOLFIT passes its one cell (Excel's dynamic-array rule)
+    ("anchor_only", "parameter", r"fit is only the top-left cell of a fit table; pass the whole table \(A1# where"),
+    ("anchor_only_range", [["parameter"]], r"fit is only the top-left cell of a fit table"),
     ("no_model_row", _ARCH_ROWS[1:], r"fit has no model row"),
     ("lacks_parameter", _ARCH_ROWS[:3], r"fit lacks the parameter alpha\[1\] that ARCH\(1\) with normal shocks needs"),
     ("lacks_two", _ARCH_ROWS[:2], r"fit lacks the parameters omega, alpha\[1\]"),

@@ -311,7 +311,7 @@ def lag1_autocorrelation(values) -> float:
     values; NaN when there are fewer than three or they are all equal."""
     x = np.asarray(values, dtype=float)
     x = x[np.isfinite(x)]
-    if x.size < 3:
+    if x.size < 3 or x.min() == x.max():  # all equal: the mean's rounding would leave a spurious (n-1)/n
         return math.nan
     d = x - x.mean()
     den = float(d @ d)

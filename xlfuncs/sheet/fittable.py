@@ -159,6 +159,11 @@ def decode(value, arg: str = "fit") -> TableFit:
             status[name] = _STATUS_OF_TEXT[se.strip().lower()]
     if "model" not in fields or is_blank(fields.get("model")):
         if not params:
+            cells = [c for row in rows for c in row if not is_blank(c)]
+            if len(cells) == 1 and isinstance(cells[0], str) and cells[0].strip().lower() == "parameter":
+                raise SheetError(  # the anchor cell alone, as a plain reference to a spilled table gives
+                    f"{arg} is only the top-left cell of a fit table; pass the whole table (A1# where VOLFIT "
+                    f"spills from A1, or a range such as A1:E20)")
             raise SheetError(
                 f"{arg} is not a fit table; pass the range VOLFIT returns, or a table with rows model, dist and the parameters"
             )
