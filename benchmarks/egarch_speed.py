@@ -53,7 +53,9 @@ def cpu(fn) -> float:
 
 def child(code: str, env: dict | None = None) -> str:
     """Run ``code`` in a fresh interpreter with this checkout first on the path; its stdout."""
-    full = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""), **(env or {}))
+    from _installed import child_env  # the bytecode, as an installed copy loads it
+
+    full = child_env(PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""), **(env or {}))
     out = subprocess.run([sys.executable, "-c", code], env=full, capture_output=True, text=True, check=True)
     return out.stdout.strip()
 
@@ -135,7 +137,9 @@ def main(argv=None) -> int:
 
     if not args.no_demo:
         with tempfile.TemporaryDirectory() as tmp:
-            env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+            from _installed import child_env
+
+            env = child_env(PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
             t0 = time.perf_counter()
             subprocess.run([sys.executable, "-m", "xlfuncs.cli", "demo", "--out", tmp], env=env, check=True,
                            capture_output=True)

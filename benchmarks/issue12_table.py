@@ -173,8 +173,10 @@ def lre_rows():
 def child_cpu(cmd):
     import resource
 
+    from _installed import child_env  # the bytecode, as an installed copy loads it
+
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
-    subprocess.run(cmd, check=True, capture_output=True, timeout=1800)
+    subprocess.run(cmd, check=True, capture_output=True, timeout=1800, env=child_env())
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
     return (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
 

@@ -37,6 +37,9 @@ os.environ.setdefault("OMP_NUM_THREADS", "1")
 
 import numpy as np  # noqa: E402
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from _installed import child_env  # noqa: E402  (children load the bytecode, as an installed copy does)
+
 N, K = 2500, 20
 RETURN_FORMULA = '=IF(OR({c}{r}="",{c}{p}=""),"",LN({c}{r}/{c}{p})*100)'
 
@@ -108,9 +111,10 @@ print(time.process_time() - t1)
 
 
 def _child_cpu(cmd, tree=None) -> tuple:
-    env = None
     if tree is not None:  # another source tree (the baseline) first on the path
-        env = dict(os.environ, PYTHONPATH=str(tree))
+        env = child_env(tree, PYTHONPATH=str(tree))
+    else:
+        env = child_env()
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
     # run outside any source tree, so that the path (not the working directory) says which code runs
     out = subprocess.run(cmd, check=True, capture_output=True, text=True, timeout=1200, env=env,

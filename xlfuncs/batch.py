@@ -28,7 +28,7 @@ from pathlib import Path
 import numpy as np
 
 from .core.errors import excerpt, typed_number
-from .csvtext import MAX_FIELD_CHARS, PanelError, check_row_widths, decimal_comma_hint, read_csv_records
+from .csvtext import LEVELS_AUTOCORRELATION, MAX_FIELD_CHARS, PanelError, check_row_widths, decimal_comma_hint, read_csv_records
 
 __all__ = ["read_panel", "load_panel", "Panel", "PanelError", "run_one", "run_batch", "write_tidy", "check_output",
            "check_arguments", "lag1_autocorrelation", "looks_like_levels", "level_like_series", "levels_to_returns",
@@ -37,12 +37,6 @@ __all__ = ["read_panel", "load_panel", "Panel", "PanelError", "run_one", "run_ba
 COLUMNS = ["id", "kind", "name", "value", "std_error", "message"]
 OUTPUT_SUFFIXES = (".csv", ".parquet", ".pq")
 
-# Our own rule of thumb for telling price levels from returns (common practice, not a formal test):
-# returns have a lag-1 autocorrelation near zero, while a level series wanders like a random walk and
-# has one near one.  A column of positive numbers whose lag-1 autocorrelation exceeds 0.8 is taken to
-# be levels.  0.8 rather than 0.9 because short random walks fall below 0.9 often (in simulation about
-# half of 60-point walks do), while returns this autocorrelated would be most unusual.
-LEVELS_AUTOCORRELATION = 0.8
 
 
 def _number(cell) -> float | None:

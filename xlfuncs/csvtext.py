@@ -17,11 +17,20 @@ from pathlib import Path
 
 from .core.errors import excerpt
 
-__all__ = ["PanelError", "Records", "read_csv_records", "check_row_widths", "decimal_comma_hint", "MAX_FIELD_CHARS"]
+__all__ = ["PanelError", "Records", "read_csv_records", "check_row_widths", "decimal_comma_hint", "MAX_FIELD_CHARS",
+           "LEVELS_AUTOCORRELATION"]
 
 #: the longest CSV field read (Python's csv module stops at 128 KiB unless told otherwise); a longer
 #: field is refused: no number or name is that long, so the file is not a CSV of returns
 MAX_FIELD_CHARS = 1 << 20
+
+# Our own rule of thumb for telling price levels from returns (common practice, not a formal test):
+# returns have a lag-1 autocorrelation near zero, while a level series wanders like a random walk and
+# has one near one.  A column of positive numbers whose lag-1 autocorrelation exceeds 0.8 is taken to
+# be levels.  0.8 rather than 0.9 because short random walks fall below 0.9 often (in simulation about
+# half of 60-point walks do), while returns this autocorrelated would be most unusual.
+LEVELS_AUTOCORRELATION = 0.8  # here, not in batch: the help text reads it
+
 
 class PanelError(ValueError):
     """A file or argument the run cannot use at all; the message is one line for the terminal."""
