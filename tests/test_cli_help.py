@@ -101,3 +101,21 @@ def test_examples_copies_the_files_and_refuses_to_write_over_them(tmp_path, caps
     assert main(["examples", str(tmp_path / "ex"), "--force"]) == 0
     (tmp_path / "afile").write_text("x")
     assert main(["examples", str(tmp_path / "afile")]) == 2
+
+
+def test_the_help_imports_no_numerical_library():
+    """`volcast --help` (and the parser every command builds) stays light: no NumPy, no batch module
+    with its process pools, no package metadata; each command imports what it runs.  The measured
+    cost is in benchmarks/issue12_table.py (start-up row), not here."""
+    code = ("import sys; from xlfuncs.cli import build_parser; build_parser().format_help(); "
+            "print(','.join(m for m in ('numpy', 'scipy', 'pandas', 'xlfuncs.batch', 'importlib.metadata') "
+            "if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.strip()
+    assert out == ""
+
+
+def test_version_is_the_installed_distributions():
+    from importlib.metadata import version
+
+    done = subprocess.run([sys.executable, "-m", "xlfuncs.cli", "--version"], capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0 and done.stdout.strip() == f"volcast {version('volcast')}"
