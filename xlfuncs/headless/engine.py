@@ -13,7 +13,10 @@ headless recalculation computes exactly what Excel with the add-in computes.
 
 from __future__ import annotations
 
+import importlib
 import re
+import sys
+import types
 from dataclasses import dataclass
 
 import numpy as np
@@ -44,6 +47,53 @@ def _engine():
 
 _REGISTERED = False
 
+#: the SciPy subpackages the engine's statistics module imports when its function table is built
+#: (``from scipy import stats, linalg``; ``from scipy.interpolate import interp1d``): about 1.0-1.4 s
+#: CPU here, paid by every recalculation with a formula for the engine, though only its statistical
+#: distribution functions, regressions and forecasts use them, and only when called
+_DEFERRED = ("scipy.stats", "scipy.linalg", "scipy.interpolate")
+
+
+class _Deferred(types.ModuleType):
+    """Stands in sys.modules for a SciPy subpackage while the engine's function table is built.
+
+    A module bound to it (``from scipy import stats``) reaches the real subpackage at its first
+    attribute read after the build, importing it then; a name taken from it during the build
+    (``from scipy.interpolate import interp1d``) is a function that does the same when called.  Once
+    the table is built the stand-ins leave sys.modules, so every other import gets the real
+    subpackage."""
+
+    def __init__(self, name):
+        super().__init__(name)
+        self.__dict__["_building"] = True
+
+    def __getattr__(self, attr):
+        if attr.startswith("__"):  # no __path__, __spec__...: the import system sees a plain module
+            raise AttributeError(attr)
+        name = self.__name__
+        if self.__dict__.get("_building"):
+            def later(*args, **kwargs):
+                return getattr(importlib.import_module(name), attr)(*args, **kwargs)
+
+            later.__name__ = attr
+            return later
+        return getattr(importlib.import_module(name), attr)
+
+
+def _function_table():
+    """The engine's table of functions, its SciPy subpackages imported only when first used."""
+    standing = {}
+    for name in _DEFERRED:
+        if name not in sys.modules:
+            standing[name] = sys.modules[name] = _Deferred(name)
+    try:
+        return _engine().get_functions()
+    finally:
+        for name, mod in standing.items():
+            mod.__dict__["_building"] = False
+            if sys.modules.get(name) is mod:
+                del sys.modules[name]
+
 
 _OUR_NAMES: tuple = ()
 
@@ -65,7 +115,7 @@ def _register_ours():
         return
     from .. import sheet
 
-    funcs = _engine().get_functions()
+    funcs = _function_table()
     for name in sheet.__all__:
         fn = getattr(sheet, name)
         wrapped = _wrap_ours(fn)
