@@ -28,11 +28,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from ._lazy import lazy_module
-
-stats = lazy_module("scipy.stats")
 
 from .errors import InputError, value_words
+from .tails import t_sf
 
 __all__ = ["DieboldMariano", "diebold_mariano", "default_lags", "max_lags", "MIN_PAIRS"]
 
@@ -98,5 +96,5 @@ def diebold_mariano(a, b, lags=None) -> DieboldMariano:
     dm = dbar / math.sqrt(f / n)
     h = L + 1
     stat = dm * math.sqrt((n + 1 - 2 * h + h * (h - 1) / n) / n)
-    p = float(2.0 * stats.t.sf(abs(stat), n - 1))
+    p = float(2.0 * t_sf(abs(stat), n - 1))
     return DieboldMariano(dbar, float(stat), p, L, n, float(dm), f)

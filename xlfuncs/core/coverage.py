@@ -16,11 +16,12 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+
 from ._lazy import lazy_module
 
-stats = lazy_module("scipy.stats")
-
+stats = lazy_module("scipy.stats")  # the binomial distribution function (zone)
 from .errors import InputError, value_words
+from .tails import chi2_sf
 
 __all__ = ["Coverage", "coverage", "kupiec", "christoffersen", "zone", "news_impact"]
 
@@ -36,7 +37,7 @@ def kupiec(n: int, x: int, p: float):
     phat = x / n
     lr = -2.0 * (_xlogy(n - x, 1 - p) + _xlogy(x, p)) + 2.0 * (_xlogy(n - x, 1 - phat) + _xlogy(x, phat))
     lr = lr if lr > 0 else 0.0  # rounding can leave -0.0
-    return lr, float(stats.chi2.sf(lr, 1))
+    return lr, float(chi2_sf(lr, 1))
 
 
 def christoffersen(hits):
@@ -57,7 +58,7 @@ def christoffersen(hits):
     l1 = _xlogy(n00, 1 - pi01) + _xlogy(n01, pi01) + _xlogy(n10, 1 - pi11) + _xlogy(n11, pi11)
     lr = -2.0 * (l0 - l1)
     lr = lr if lr > 0 else 0.0
-    return lr, float(stats.chi2.sf(lr, 1))
+    return lr, float(chi2_sf(lr, 1))
 
 
 def zone(n: int, x: int, p: float) -> str:
@@ -99,7 +100,7 @@ def coverage(returns, var, level: float) -> Coverage:
     lr_uc, p_uc = kupiec(n, x, p)
     lr_ind, p_ind = christoffersen(hits)
     lr_cc = lr_uc + lr_ind
-    p_cc = float(stats.chi2.sf(lr_cc, 2)) if math.isfinite(lr_cc) else math.nan
+    p_cc = float(chi2_sf(lr_cc, 2)) if math.isfinite(lr_cc) else math.nan
     return Coverage(n, x, x / n, p, lr_uc, p_uc, lr_ind, p_ind, lr_cc, p_cc, zone(n, x, p))
 
 

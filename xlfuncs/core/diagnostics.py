@@ -33,11 +33,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from ._lazy import lazy_module
-
-stats = lazy_module("scipy.stats")
 
 from .errors import InputError, describe_value, value_words
+from .tails import chi2_sf, t_sf
 
 __all__ = [
     "LABELS",
@@ -131,7 +129,7 @@ def _lags(value, n: int) -> int:
 # ----------------------------------------------------------------------------------------
 # shared maths
 def _chi2_p(stat: float, df: float) -> float:
-    return float(stats.chi2.sf(stat, df)) if math.isfinite(stat) else math.nan
+    return float(chi2_sf(stat, df)) if math.isfinite(stat) else math.nan
 
 
 def _ols(y: np.ndarray, X: np.ndarray):
@@ -242,7 +240,7 @@ def sign_bias(z):
             out.append((math.nan, df_t, math.nan))
             continue
         t = float(res[0][1] / res[1][1])
-        out.append((t, df_t, float(2.0 * stats.t.sf(abs(t), df_t))))
+        out.append((t, df_t, float(2.0 * t_sf(abs(t), df_t))))
     res = _ols(y, np.column_stack([ones, *regressors]))
     if res is None:
         out.append((math.nan, 3.0, math.nan))

@@ -28,11 +28,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from ._lazy import lazy_module
-
-stats = lazy_module("scipy.stats")
 
 from .errors import InputError, value_words
+from .tails import norm_pdf, norm_ppf
 
 __all__ = ["ESTests", "BOOTSTRAP", "SIMULATIONS", "SEED", "exceedance_residuals", "mcneil_frey", "z2_statistic",
            "z2_pvalue", "es_tests"]
@@ -174,8 +172,8 @@ def _bernoulli_positions(rng, cells: int, p: float) -> np.ndarray:
 def _matched_normal(var, es, level):
     """Mean and sd of the normal whose VaR and ES at ``level`` are exactly ``var`` and ``es``."""
     alpha = 1.0 - level
-    q = float(stats.norm.ppf(alpha))
-    es_z = float(stats.norm.pdf(q)) / alpha
+    q = float(norm_ppf(alpha))
+    es_z = float(norm_pdf(q)) / alpha
     sd = (es - var) / (es_z + q)
     return -var - sd * q, sd
 
@@ -200,7 +198,7 @@ def es_tests(returns, var, es, level, *, mean=None, sd=None, dist=None, eta=None
             raise InputError(f"ES row {i + 1} equals the VaR; the ES tests need ES above the VaR")
 
         def ppf(u, cols):
-            return stats.norm.ppf(u)
+            return norm_ppf(u)
 
         null = "normal matched to each row's VaR and ES"
     else:
