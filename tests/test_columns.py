@@ -195,3 +195,48 @@ def test_shape_groups_are_the_shape_key_groups(texts, sheets):
             else:
                 assert arr is not None and arr.tolist() == runs
             assert digit_runs([text_of[k] for k in members], pattern, n + 1) is None
+
+
+@given(shape=st.sampled_from(_SHAPES), horizon=st.integers(12, 40), extra=st.integers(0, 8), lag=st.integers(0, 1),
+       other_sheet=st.booleans(), chained=st.booleans(), blocked=st.booleans())
+@settings(max_examples=int(__import__("os").environ.get("VOLCAST_COLUMN_EXAMPLES", "60")) // 2, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+def test_columns_over_a_spill_equal_cell_by_cell_evaluation(tmp_path, shape, horizon, extra, lag, other_sheet, chained,
+                                                            blocked):
+    """Columns that read a spilled result (=IF(ISNUMBER(B2),B2*SQRT(12),"") beside a spilled
+    series, as the templates' Volatility and Forecast sheets do) are batched once every spill is
+    evaluated; each cell, including rows below the spill (empty cells), a column that reads that
+    column (chained) and a spill blocked by a typed cell (#SPILL!), equals the engine's cell-by-cell
+    value (reference: the engine on each cell alone, every batch switched off)."""
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Calc"
+    src = wb.create_sheet("Fore cast") if other_sheet else ws
+    rng = np.random.default_rng(horizon * 10 + extra)
+    for i, v in enumerate(rng.standard_normal(60)):  # returns in column A, a typed ARCH(1) in C1:D4
+        ws.cell(i + 1, 1, float(v))
+    for i, (k, v) in enumerate((("model", "ARCH(1)"), ("mu", 0.05), ("omega", 0.4), ("alpha1", 0.3))):
+        ws.cell(i + 1, 3, k)
+        ws.cell(i + 1, 4, v)
+    # the spill: E2 down ``horizon`` rows (in the other sheet, column B)
+    col = 2 if other_sheet else 5
+    letter = "B" if other_sheet else "E"
+    src.cell(2, col, "=VOLFORECAST(Calc!A1:A60,Calc!C1:D4,%d,\"vol\")" % horizon)
+    if blocked:
+        src.cell(5, col, 7.5)  # a typed cell in the spill's way
+    prefix = "'Fore cast'!" if other_sheet else ""
+    for r in range(3, horizon + 3 + extra):
+        a, b = f"{prefix}{letter}{r}", f"{prefix}{letter}{r - 1 - lag}"
+        ws.cell(r, 7, shape.format(a=a, b=b))
+        if chained:
+            ws.cell(r, 8, f'=IF(ISNUMBER(G{r}),G{r}*2,"")')
+    path = tmp_path / "spill.xlsx"
+    wb.save(path)
+    fast = Workbook(path)
+    fast.evaluate_all()
+    single = Workbook(path)
+    single._batch_elementwise = lambda *a, **k: None  # every cell through the engine on its own
+    single.evaluate_all()
+    assert fast.values.keys() == single.values.keys()
+    for key, v in single.values.items():
+        assert _same(fast.values[key], v), (key, shape, fast.values[key], v)

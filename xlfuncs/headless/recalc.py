@@ -18,6 +18,7 @@ import datetime as _dt
 import os
 import re
 import tempfile
+from collections import ChainMap
 from itertools import compress, repeat
 from operator import add, is_, itemgetter, not_
 from dataclasses import dataclass, field
@@ -193,6 +194,7 @@ class Workbook:
         self._reported: set = set()  # addresses already in report.error_cells
         self.reads: list = []  # (formula key, sheet, r1, c1, r2, c2) read by formulas of ours
         self._column_rest: set = set()  # cells of a NumPy column left to the engine (blanks, texts, errors)
+        self._source = self.inputs  # what the batches read: the constants (and computed values once settled)
 
     @property
     def book(self):
@@ -211,6 +213,13 @@ class Workbook:
     def evaluate_all(self):
         self._batch_elementwise()
         values = self.values
+        if (self._anchors or self.arrays) and len(self.formulas) - len(values) >= 16:
+            # the spills and array formulas first, then one more batch: the columns that read
+            # their results (=IF(ISNUMBER(B2),B2*SQRT(12),"") beside a spilled series) are
+            # evaluated as columns too, not cell by cell (every spill's extent is known by then)
+            for key in sorted(k for k in (*self._anchors, *self.arrays) if k not in values):
+                self.value(key)
+            self._batch_elementwise(settled=True)
         # in the order of (sheet, row, column), those the batches left (value() of a computed cell
         # returns at once, so skipping them here changes nothing)
         for key in sorted([k for k in self.formulas if k not in values]):
@@ -488,15 +497,19 @@ class Workbook:
             out.append(row)
         return out
 
-    def _batch_elementwise(self, min_size: int = 16, vector: bool = True):
+    def _batch_elementwise(self, min_size: int = 16, vector: bool = True, settled: bool = False):
         """Evaluate a column of same-shape element-wise formulas over constants in one call.
 
         =LN(A3/A2)*100 down 5,000 rows is one engine call on two columns rather than 5,000 calls.
         Only formulas made of element-wise functions and operators, reading single cells that
-        hold constants, are batched; everything else is evaluated cell by cell.
+        hold constants, are batched; everything else is evaluated cell by cell.  With
+        ``settled`` (every spill and array formula evaluated), a cell whose value is already
+        computed counts as a constant too, and an empty cell is empty whatever its sheet.
         """
         from .engine import function_names
 
+        # settled: the values computed so far (a live view: a column batched here may be read by the next)
+        self._source = ChainMap(self.values, self.inputs) if settled else self.inputs
         if vector:
             self._batch_vector(min_size)
         spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
@@ -549,12 +562,13 @@ class Workbook:
                             ok = False
                             break
                     cell = (target, *_parse_cell(ref.replace("$", "")))
-                    # only constants: a formula, or an empty cell that a spill may fill, is
-                    # evaluated cell by cell
-                    if cell in self.formulas or (cell not in self.inputs and target in spilling):
+                    # only constants: a formula (unless computed), or an empty cell that a spill
+                    # may fill (unless the spills are settled), is evaluated cell by cell
+                    if cell in self.formulas and cell not in self.values or (
+                            not settled and cell not in self.inputs and target in spilling):
                         ok = False
                         break
-                    columns[slot].append([self.inputs.get(cell)])
+                    columns[slot].append([self._source.get(cell)])
                 if not ok:
                     break
             if not ok:
@@ -628,7 +642,7 @@ class Workbook:
         a whole number within the doubles' exact range."""
         hit = cache.get((title, col))
         if hit is None:
-            got = list(map(self.inputs.get, [(title, r, col) for r in range(self.max_row.get(title, 0) + 1)]))
+            got = list(map(self._source.get, [(title, r, col) for r in range(self.max_row.get(title, 0) + 1)]))
             hit = cache[(title, col)] = _typed_column(got)
         return hit
 
@@ -637,7 +651,7 @@ class Workbook:
 
         from .columns import Unsupported
 
-        inputs = self.inputs  # constants only: a formula cell is never among them
+        inputs = self._source  # constants only (and, once settled, computed values): no formula cell to compute
         cache = {} if cache is None else cache
         n = len(keys)
         ok = np.ones(n, dtype=bool)
