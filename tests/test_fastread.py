@@ -105,6 +105,29 @@ def test_generated_workbooks_read_as_openpyxl_reads_them(tmp_path, values, seed)
     _same_read(path)
 
 
+@given(values=st.lists(_CONSTANTS, min_size=1, max_size=40), arrays=st.lists(st.tuples(st.integers(1, 14), st.integers(1, 6)),
+       min_size=1, max_size=3, unique=True), seed=st.integers(0, 10**6))
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+def test_sheets_of_plain_cells_with_a_few_array_formulas_read_as_openpyxl_reads_them(tmp_path, values, arrays, seed):
+    """A sheet mostly of plain cells with array formulas among them (the quick route for the first,
+    the general loop for the rest) reads as the whole sheet does through openpyxl."""
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Mixed"
+    taken = set()
+    for r, c in arrays:
+        ws.cell(r, c).value = ArrayFormula(ws.cell(r, c).coordinate, f"=SUM(A1:A{r})")
+        taken.add((r, c))
+    for i, v in enumerate(values):
+        at = (1 + (seed + 7 * i) % 15, 1 + (seed + i) % 6)
+        if at not in taken:
+            ws.cell(*at, v)
+    ws.cell(16, 2, "=A1*2")  # a plain formula after them
+    path = tmp_path / "mixed.xlsx"
+    wb.save(path)
+    _same_read(path)
+
+
 @pytest.mark.parametrize("name", ["monthly_variance.xlsx", "daily_variance.xlsx"])
 def test_shipped_templates_read_as_openpyxl_reads_them(name):
     from xlfuncs.demo import template_file

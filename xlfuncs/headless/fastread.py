@@ -211,6 +211,41 @@ def _read_sheet(title, xml: str, strings, dates, deltas):
     quick = _quick_cells(body, strings, dates, deltas)
     if quick is not None:
         return quick
+    mixed = _mixed_cells(title, body, strings, dates, deltas)
+    if mixed is not None:
+        return mixed
+    cells, arrays, max_row, max_col, marked, n = _general_cells(title, body, strings, dates, deltas)
+    if n != len(_CELL_START_RE.findall(body)):
+        raise NotPlain(f"{title}: cells not understood")
+    return cells, arrays, max(max_row, 1), max(max_col, 1), marked
+
+
+def _mixed_cells(title, body: str, strings, dates, deltas):
+    """A sheet whose cells are mostly in the quick form, with a few others (an array formula, a
+    spill's cell metadata): the quick route for the first, the general loop for the rest; None
+    where the quick route declines its part."""
+    plain, rest, last = [], [], 0
+    for m in _QUICK_RE.finditer(body):
+        if m.start() > last:
+            rest.append(body[last:m.start()])
+        plain.append(m.group(0))
+        last = m.end()
+    rest.append(body[last:])
+    plain, rest = "".join(plain), "".join(rest)
+    quick = _quick_cells(plain, strings, dates, deltas)
+    if quick is None:
+        return None
+    cells, _, q_row, q_col, _ = quick
+    other, arrays, max_row, max_col, marked, n = _general_cells(title, rest, strings, dates, deltas)
+    if n != len(_CELL_START_RE.findall(rest)):
+        raise NotPlain(f"{title}: cells not understood")
+    cells.update(other)
+    return cells, arrays, max(max_row, q_row, 1), max(max_col, q_col, 1), marked
+
+
+def _general_cells(title, body: str, strings, dates, deltas):
+    """(cells, arrays, max_row, max_col, marked, cells read) of ``body`` by the general loop:
+    every cell's attributes parsed, any formula, value or inline string."""
     cells, arrays, marked = {}, {}, []
     max_row = max_col = 0
     n = 0
@@ -301,9 +336,7 @@ def _read_sheet(title, xml: str, strings, dates, deltas):
         if value is None:
             continue
         cells[(row, col)] = value  # as openpyxl holds it; the caller tells formulas from constants
-    if n != len(_CELL_START_RE.findall(body)):
-        raise NotPlain(f"{title}: cells not understood")
-    return cells, arrays, max(max_row, 1), max(max_col, 1), marked
+    return cells, arrays, max_row, max_col, marked, n
 
 
 # the cells as openpyxl and Excel write them: attributes r, s, t in this order, an ordinary
