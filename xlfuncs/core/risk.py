@@ -81,7 +81,7 @@ import numpy as np
 from scipy import integrate, special
 
 from .distributions import hermite
-from .families._compiled import kernel
+from .families._compiled import hermite_cell, kernel
 from .errors import InputError, value_words
 from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
@@ -514,43 +514,53 @@ def _sobol_uniforms(vs, shift, n: int) -> np.ndarray:
 
 def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v, vw, cvd, r0, inv_cstep, ccells,
                      tv, td, t0, inv_tstep, rv, rd, rhalf, inv_rstep, Y, logw):
-    """The normal scores of :class:`_Scores` for paths i0..i0+n-1, one path at a time (a numba kernel):
-    the path's Sobol' point (Gray-code order: point k is point k-1 XOR the direction of the lowest set
-    bit of k), each coordinate's uniform (the centre of its cell of width 2^-52) turned into a normal
-    score by the interpolants of :class:`_NormalTable`; with ``radial``, the scores across the sum
-    direction made from a radius (coordinate 1, through the chi law's interpolant rv, rd) times the
-    direction of the normal scores of coordinates 2..d; then the proposal's move and widening of
-    the first ``d`` scores, their log likelihood ratio, and the reflection onto the sum direction
-    (``v``, with ``vw`` = 2 v / v.v).  Y holds a row per step, a column per path."""
+    """The normal scores of :class:`_Scores` for paths i0..i0+n-1 (a numba kernel), in two passes.
+
+    First a coordinate at a time over the paths: the coordinate of each path's Sobol' point (Gray-code
+    order: point k is point k-1 XOR the direction of the lowest set bit of k), its uniform (the centre
+    of its cell of width 2^-52) turned into a normal score by the interpolants of :class:`_NormalTable`,
+    written into the step's row of Y (with ``radial``, coordinate 1, the radius's, into a row of its
+    own and coordinates 2.. into rows 1..).  Then a step at a time over the paths, loops the compiler
+    vectorises: with ``radial``, the scores across the sum direction made from the radius (the chi
+    law's interpolant rv, rd) times the direction of the normal scores of rows 1..d-1; the
+    proposal's move and widening of the first ``d`` scores, their log likelihood ratio, and the
+    reflection onto the sum direction (``v``, with ``vw`` = 2 v / v.v).  Each path's sums run over
+    the steps in order, as a path at a time would.  Y holds a row per step, a column per path."""
     steps, n = Y.shape
     dims = vs.shape[0]
     m = vs.shape[1]
-    q = shift.copy()
-    gray = i0 ^ (i0 >> 1)  # point i0: the XOR of the directions of the set bits of its Gray code
-    b = 0
-    while gray > 0:
-        if gray & 1:
-            for j in range(dims):
-                q[j] ^= vs[j, b]
-        gray >>= 1
-        b += 1
-    g = np.empty(dims)
-    x = np.empty(steps)
+    low_bit = np.zeros(n, dtype=np.int64)  # the direction that point i0 + i flips (i >= 1)
+    for i in range(1, n):
+        k = i0 + i
+        b = 0
+        while (k & 1) == 0:
+            k >>= 1
+            b += 1
+        low_bit[i] = b
+    rad = np.empty(n)
     top = tv.shape[0] - 2
-    rtop = rv.shape[0] - 2
     twelve = np.uint64(12)
-    for i in range(n):
-        if i > 0:
-            k = i0 + i
-            b = 0
-            while (k & 1) == 0:
-                k >>= 1
-                b += 1
-            if b < m:
-                for j in range(dims):
-                    q[j] ^= vs[j, b]
-        for j in range(dims):
-            u = float(np.int64(q[j] >> twelve)) * 2.0 ** -52 + 2.0 ** -53
+    for j in range(dims):
+        if radial and j == 1:
+            row = rad
+        elif radial and j > 1:
+            row = Y[j - 1]
+        else:
+            row = Y[j]
+        q = shift[j]
+        gray = i0 ^ (i0 >> 1)  # point i0: the XOR of the directions of the set bits of its Gray code
+        b = 0
+        while gray > 0:
+            if gray & 1:
+                q ^= vs[j, b]
+            gray >>= 1
+            b += 1
+        for i in range(n):
+            if i > 0:
+                b = low_bit[i]
+                if b < m:
+                    q ^= vs[j, b]
+            u = float(np.int64(q >> twelve)) * 2.0 ** -52 + 2.0 ** -53
             low = u < 0.5
             r = u if low else 1.0 - u
             if r >= r0:
@@ -558,64 +568,69 @@ def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v,
                 c = int(s)
                 if c > ccells - 1:
                     c = ccells - 1
-                t = s - c
-                t1 = 1.0 - t
                 c2 = 2 * c  # cvd interleaves the nodes' values and slopes: one cache line a cell
-                a = (t1 * t1 * ((1.0 + 2.0 * t) * cvd[c2] + t * cvd[c2 + 1])
-                     + t * t * ((3.0 - 2.0 * t) * cvd[c2 + 2] - t1 * cvd[c2 + 3]))
+                a = hermite_cell(s - c, cvd[c2], cvd[c2 + 1], cvd[c2 + 2], cvd[c2 + 3])
             else:
                 s = (math.sqrt(-2.0 * math.log(r)) - t0) * inv_tstep
                 c = int(s)
                 if c > top:
                     c = top
-                t = s - c
-                t1 = 1.0 - t
-                a = t1 * t1 * ((1.0 + 2.0 * t) * tv[c] + t * td[c]) + t * t * ((3.0 - 2.0 * t) * tv[c + 1] - t1 * td[c + 1])
-            g[j] = -a if low else a
-        if radial:  # x[1..d-1]: the radius times the direction of g[2..d]; later steps from g[d+1..]
-            s = (g[1] + rhalf) * inv_rstep
+                a = hermite_cell(s - c, tv[c], td[c], tv[c + 1], td[c + 1])
+            row[i] = -a if low else a
+    before = np.zeros(n)
+    if radial:  # rows 1..d-1: the radius times the direction of the scores there
+        rtop = rv.shape[0] - 2
+        nn = np.zeros(n)
+        for j in range(1, d):
+            y = Y[j]
+            for i in range(n):
+                nn[i] += y[i] * y[i]
+        y0 = Y[0]
+        for i in range(n):
+            s = (rad[i] + rhalf) * inv_rstep
             c = int(s)
             if c < 0:
                 c = 0
             elif c > rtop:
                 c = rtop
-            t = s - c
-            t1 = 1.0 - t
-            rho = t1 * t1 * ((1.0 + 2.0 * t) * rv[c] + t * rd[c]) + t * t * ((3.0 - 2.0 * t) * rv[c + 1] - t1 * rd[c + 1])
-            nn = 0.0
-            for j in range(2, d + 1):
-                nn += g[j] * g[j]
-            f = rho / math.sqrt(nn)
-            x[0] = g[0]
-            for j in range(1, d):
-                x[j] = g[j + 1] * f
-            for j in range(d, steps):
-                x[j] = g[j + 1]
-            before = g[0] * g[0] + rho * rho
-        else:
-            for j in range(steps):
-                x[j] = g[j]
-            before = 0.0
+            rho = hermite_cell(s - c, rv[c], rd[c], rv[c + 1], rd[c + 1])
+            nn[i] = rho / math.sqrt(nn[i])
+            before[i] = y0[i] * y0[i] + rho * rho
+        for j in range(1, d):
+            y = Y[j]
+            for i in range(n):
+                y[i] = y[i] * nn[i]
+    else:
+        for j in range(d):
+            y = Y[j]
+            for i in range(n):
+                before[i] += y[i] * y[i]
+    if d >= 1:
+        after = np.zeros(n)
+        y = Y[0]
+        for i in range(n):
+            y[i] = y[i] - first_shift
+            after[i] += y[i] * y[i]
+        for j in range(1, d):
+            y = Y[j]
+            for i in range(n):
+                y[i] = y[i] * scale
+                after[i] += y[i] * y[i]
+        for i in range(n):
+            logw[i] = 0.5 * (before[i] - after[i]) + log_scale
+        if d > 1:
+            c2 = np.zeros(n)
             for j in range(d):
-                before += x[j] * x[j]
-        if d >= 1:
-            x[0] = x[0] - first_shift
-            for j in range(1, d):
-                x[j] = x[j] * scale
-            after = 0.0
+                y = Y[j]
+                for i in range(n):
+                    c2[i] += y[i] * vw[j]
             for j in range(d):
-                after += x[j] * x[j]
-            logw[i] = 0.5 * (before - after) + log_scale
-            if d > 1:
-                c2 = 0.0
-                for j in range(d):
-                    c2 += x[j] * vw[j]
-                for j in range(d):
-                    x[j] = x[j] - c2 * v[j]
-        else:
+                y = Y[j]
+                for i in range(n):
+                    y[i] = y[i] - c2[i] * v[j]
+    else:
+        for i in range(n):
             logw[i] = 0.0
-        for j in range(steps):
-            Y[j, i] = x[j]
 
 
 _score_kernel = kernel(_score_kernel_py)

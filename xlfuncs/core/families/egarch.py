@@ -1081,7 +1081,7 @@ class Egarch(VarianceFamily):
 
 # ------------------------------------------------------------------ the risk figures' paths, compiled
 from ..distributions import score_map_arrays  # noqa: E402
-from ._compiled import jit_enabled  # noqa: E402  (the section's own)
+from ._compiled import hermite_row, jit_enabled  # noqa: E402  (the section's own)
 
 
 @kernel
@@ -1094,30 +1094,53 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
     ``ident``: the scores are the shocks).  The return is mu + e; ``cum`` gets the sum of the
     returns, ``a_last`` the sum up to the last step plus its mean and ``s_last`` its volatility.
     Returns 1, or 0 at once if a score lies beyond the map's nodes (the caller then takes the
-    NumPy route, which maps those exactly)."""
+    NumPy route, which maps those exactly).  A step at a time over all paths: first the step's
+    shocks (``hermite_row``), then the recursion; EGARCH(1,1) keeps its lags in one row each,
+    more lags sit in ring buffers."""
     h, n = Y.shape
     p = alpha.shape[0]
     q = beta.shape[0]
     G = np.empty((max(p, 1), n))
-    Z = np.empty((max(p, 1), n))
+    Zl = np.empty((max(p, 1), n))
     L = np.empty((max(q, 1), n))
+    Z = np.empty(n)
     for k in range(1, p + 1):
         pos = (p - k) % p
         for i in range(n):
             G[pos, i] = g0[p - k]
-            Z[pos, i] = z0[p - k]
+            Zl[pos, i] = z0[p - k]
     for k in range(1, q + 1):
         pos = (q - k) % q
         for i in range(n):
             L[pos, i] = lv0[q - k]
-    last = gt.shape[0] - 2
-    inv_step = 1.0 / step
-    top = last + 1.0
     pa = np.empty(max(p, 1), dtype=np.int64)
     pb = np.empty(max(q, 1), dtype=np.int64)
+    one = p == 1 and q == 1
     for i in range(n):
         cum[i] = 0.0
     for t in range(h):
+        if ident:
+            for i in range(n):
+                Z[i] = Y[t, i]
+        elif not hermite_row(Y[t], gt, dt, half, step, Z):
+            return 0
+        if one and t < h - 1:  # the sums in the order of the step-by-step route's
+            a1, g1, b1 = alpha[0], gamma[0], beta[0]
+            lg, lz, ll = G[0], Zl[0], L[0]
+            for i in range(n):
+                v = omega + a1 * lg[i]
+                v += g1 * lz[i]
+                v += b1 * ll[i]
+                if v > 700.0:
+                    v = 700.0
+                elif v < -700.0:
+                    v = -700.0
+                z = Z[i]
+                cum[i] += mu + math.sqrt(math.exp(v)) * z
+                lg[i] = abs(z) - kappa
+                lz[i] = z
+                ll[i] = v
+            continue
         for k in range(1, p + 1):  # the ring positions of the lags at this step
             pa[k - 1] = (t - k) % p
         for k in range(1, q + 1):
@@ -1125,27 +1148,15 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
         for i in range(n):
             v = omega
             for k in range(p):
-                v += alpha[k] * G[pa[k], i]  # in the order of the step-by-step route's sums
-                v += gamma[k] * Z[pa[k], i]
+                v += alpha[k] * G[pa[k], i]
+                v += gamma[k] * Zl[pa[k], i]
             for k in range(q):
                 v += beta[k] * L[pb[k], i]
             if v > 700.0:
                 v = 700.0
             elif v < -700.0:
                 v = -700.0
-            y = Y[t, i]
-            if ident:
-                z = y
-            else:
-                u = (y + half) * inv_step
-                if not (0.0 <= u <= top):
-                    return 0
-                j = int(u)
-                if j > last:
-                    j = last
-                x = u - j
-                x1 = 1.0 - x
-                z = x1 * x1 * ((1.0 + 2.0 * x) * gt[j] + x * dt[j]) + x * x * ((3.0 - 2.0 * x) * gt[j + 1] - x1 * dt[j + 1])
+            z = Z[i]
             sig = math.sqrt(math.exp(v))
             e = sig * z
             ret = mu + e
@@ -1156,7 +1167,7 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
             if p:
                 pos = t % p
                 G[pos, i] = abs(z) - kappa
-                Z[pos, i] = z
+                Zl[pos, i] = z
             if q:
                 L[t % q, i] = v
     return 1
