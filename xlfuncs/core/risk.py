@@ -176,12 +176,14 @@ def _weighted_quantile(x, w, alpha: float) -> float:
     """The smallest x[i] at which the weighted distribution function sum(w 1(x <= x[i])) / n reaches alpha."""
     n = len(x)
     m = min(n, max(64, int(8 * alpha * n)))
-    if m < n and np.all(w >= 0):  # sort only the lowest m; enough when their weights pass alpha n
-        low = np.argpartition(x, m - 1)[:m]
-        order = low[np.argsort(x[low], kind="stable")]
-        cw = np.cumsum(w[order]) / n
-        if cw[-1] >= alpha:
-            return float(x[order[int(np.searchsorted(cw, alpha))]])
+    if np.all(w >= 0):  # sort only the lowest m; enough when their weights pass alpha n, else 4 m
+        while m < n:
+            low = np.argpartition(x, m - 1)[:m]
+            order = low[np.argsort(x[low], kind="stable")]
+            cw = np.cumsum(w[order]) / n
+            if cw[-1] >= alpha:
+                return float(x[order[int(np.searchsorted(cw, alpha))]])
+            m = min(n, 4 * m)
     order = np.argsort(x, kind="stable")
     cw = np.cumsum(w[order]) / len(x)
     i = min(int(np.searchsorted(cw, alpha)), len(x) - 1)
@@ -273,6 +275,7 @@ class _LastLaw:
         self.F, self.dF = F, f * h
         self.f, self.df = f, df * h
         self.M, self.dM = M, k * f * h
+        self._tables = None  # (values, slopes) of F, f and M, for the compiled pass
 
     def _exact(self, k):
         d, eta = self.dist, self.eta
@@ -292,7 +295,35 @@ class _LastLaw:
         return i, t, out
 
     def values(self, k, what):
-        """A tuple of the functions named in ``what`` ('F', 'f', 'M', 'df') at the points ``k``."""
+        """A tuple of the functions named in ``what`` ('F', 'f', 'M', 'df') at the points ``k``
+        (in one compiled pass, :func:`_last_law_kernel_py`, where numba is already loaded)."""
+        from .families._compiled import compiled_loaded  # not at import: the module stays light
+
+        if compiled_loaded() and k.ndim == 1:
+            if self._tables is None:
+                self._tables = (np.ascontiguousarray([self.F, self.f, self.M]),
+                                np.ascontiguousarray([self.dF, self.df, self.dM]))
+            V, D = self._tables
+            codes = np.array(["FfM".index(w) if w != "df" else 3 for w in what], dtype=np.int64)
+            res = np.empty((len(what), len(k)))
+            flag = np.empty(len(k), dtype=np.bool_)
+            nout = _last_law_kernel(np.ascontiguousarray(k, dtype=float), self.lo, 1.0 / self.STEP, self.n,
+                                    self.mode, self.near, V, D, codes, res, flag)
+            res = tuple(res)
+            out = flag if nout else None
+        else:
+            res, out = self._numpy_values(k, what)
+            if not np.any(out):
+                out = None
+        if out is not None:
+            ko = k[out]
+            f, F, M, df = self._exact(ko)
+            exact = {"F": F, "f": f, "M": M, "df": df}
+            for v, w in zip(res, what):
+                v[out] = exact[w]
+        return tuple(res)
+
+    def _numpy_values(self, k, what):
         i, t, out = self._cell(k)
         res = []
         for w in what:
@@ -304,13 +335,39 @@ class _LastLaw:
             else:
                 v = hermite(getattr(self, w), getattr(self, "d" + w), i, t)
             res.append(v)
-        if np.any(out):
-            ko = k[out]
-            f, F, M, df = self._exact(ko)
-            exact = {"F": F, "f": f, "M": M, "df": df}
-            for v, w in zip(res, what):
-                v[out] = exact[w]
-        return tuple(res)
+        return res, out
+
+
+def _last_law_kernel_py(k, lo, inv_step, nodes, mode, near, V, D, codes, res, flag):
+    """:meth:`_LastLaw.values` at the points ``k`` in one pass (a numba kernel), the same arithmetic
+    as its NumPy form: row c of ``res`` gets the interpolant of function ``codes[c]`` (0: F, 1: f,
+    2: M, rows of the nodes' values V and slopes per step D; 3: the slope of f's interpolant);
+    ``flag`` marks the points beyond the grid or within ``near`` of the mode, which the caller
+    gives the exact functions.  Returns how many are flagged."""
+    top = float(nodes - 2)
+    nflag = 0
+    for p in range(k.shape[0]):
+        u = (k[p] - lo) * inv_step
+        bad = not (u >= 0.0 and u < nodes - 1)
+        if near > 0 and abs(k[p] - mode) < near:
+            bad = True
+        flag[p] = bad
+        if bad:
+            nflag += 1
+        i = int(min(max(u, 0.0), top))
+        t = u - i
+        for c in range(codes.shape[0]):
+            w = codes[c]
+            if w == 3:
+                t2 = t * t
+                res[c, p] = ((6.0 * t2 - 6.0 * t) * (V[1, i] - V[1, i + 1]) + (3.0 * t2 - 4.0 * t + 1.0) * D[1, i]
+                             + (3.0 * t2 - 2.0 * t) * D[1, i + 1]) * inv_step
+            else:
+                res[c, p] = hermite_cell(t, V[w, i], D[w, i], V[w, i + 1], D[w, i + 1])
+    return nflag
+
+
+_last_law_kernel = kernel(_last_law_kernel_py)
 
 
 def _tail_solve(law, a, s, w, alpha: float, start: float):
