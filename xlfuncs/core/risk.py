@@ -580,12 +580,13 @@ def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v,
     order: point k is point k-1 XOR the direction of the lowest set bit of k), its uniform (the centre
     of its cell of width 2^-52) turned into a normal score by the interpolants of :class:`_NormalTable`,
     written into the step's row of Y (with ``radial``, coordinate 1, the radius's, into a row of its
-    own and coordinates 2.. into rows 1..).  Then a step at a time over the paths, loops the compiler
-    vectorises: with ``radial``, the scores across the sum direction made from the radius (the chi
-    law's interpolant rv, rd) times the direction of the normal scores of rows 1..d-1; the
-    proposal's move and widening of the first ``d`` scores, their log likelihood ratio, and the
-    reflection onto the sum direction (``v``, with ``vw`` = 2 v / v.v).  Each path's sums run over
-    the steps in order, as a path at a time would.  Y holds a row per step, a column per path."""
+    own and coordinates 2.. into rows 1..), and the sums of squares the weights need gathered on
+    the way.  Then a step at a time over the paths, one pass a row: with ``radial``, the scores
+    across the sum direction made from the radius (the chi law's interpolant rv, rd) times the
+    direction of the normal scores of rows 1..d-1; the proposal's move and widening of the first
+    ``d`` scores, their log likelihood ratio, and the reflection onto the sum direction (``v``,
+    with ``vw`` = 2 v / v.v).  Each path's sums run over the steps in order, as a path at a time
+    would, so the numbers are those of that order.  Y holds a row per step, a column per path."""
     steps, n = Y.shape
     dims = vs.shape[0]
     m = vs.shape[1]
@@ -598,6 +599,8 @@ def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v,
             b += 1
         low_bit[i] = b
     rad = np.empty(n)
+    before = np.zeros(n)  # the squared length of the scores before the move
+    nn = np.zeros(n)  # radial: the squared length of the scores of coordinates 2..d
     top = tv.shape[0] - 2
     twelve = np.uint64(12)
     for j in range(dims):
@@ -637,14 +640,14 @@ def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v,
                     c = top
                 a = hermite_cell(s - c, tv[c], td[c], tv[c + 1], td[c + 1])
             row[i] = -a if low else a
-    before = np.zeros(n)
-    if radial:  # rows 1..d-1: the radius times the direction of the scores there
-        rtop = rv.shape[0] - 2
-        nn = np.zeros(n)
-        for j in range(1, d):
-            y = Y[j]
+        if radial and 2 <= j <= d:
             for i in range(n):
-                nn[i] += y[i] * y[i]
+                nn[i] += row[i] * row[i]
+        elif not radial and j < d:
+            for i in range(n):
+                before[i] += row[i] * row[i]
+    if radial:  # rows 1..d-1 become the radius times the direction of their scores: nn the factor
+        rtop = rv.shape[0] - 2
         y0 = Y[0]
         for i in range(n):
             s = (rad[i] + rhalf) * inv_rstep
@@ -656,38 +659,38 @@ def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v,
             rho = hermite_cell(s - c, rv[c], rd[c], rv[c + 1], rd[c + 1])
             nn[i] = rho / math.sqrt(nn[i])
             before[i] = y0[i] * y0[i] + rho * rho
-        for j in range(1, d):
-            y = Y[j]
-            for i in range(n):
-                y[i] = y[i] * nn[i]
-    else:
-        for j in range(d):
-            y = Y[j]
-            for i in range(n):
-                before[i] += y[i] * y[i]
     if d >= 1:
         after = np.zeros(n)
+        c2 = np.zeros(n)
         y = Y[0]
         for i in range(n):
             y[i] = y[i] - first_shift
             after[i] += y[i] * y[i]
-        for j in range(1, d):
+            c2[i] += y[i] * vw[0]
+        for j in range(1, d):  # the radius (radial), the widening, and their sums, in one pass a row
             y = Y[j]
-            for i in range(n):
-                y[i] = y[i] * scale
-                after[i] += y[i] * y[i]
+            vj = vw[j]
+            if radial:
+                for i in range(n):
+                    x = y[i] * nn[i]
+                    x = x * scale
+                    y[i] = x
+                    after[i] += x * x
+                    c2[i] += x * vj
+            else:
+                for i in range(n):
+                    x = y[i] * scale
+                    y[i] = x
+                    after[i] += x * x
+                    c2[i] += x * vj
         for i in range(n):
             logw[i] = 0.5 * (before[i] - after[i]) + log_scale
         if d > 1:
-            c2 = np.zeros(n)
             for j in range(d):
                 y = Y[j]
+                vj = v[j]
                 for i in range(n):
-                    c2[i] += y[i] * vw[j]
-            for j in range(d):
-                y = Y[j]
-                for i in range(n):
-                    y[i] = y[i] - c2[i] * v[j]
+                    y[i] = y[i] - c2[i] * vj
     else:
         for i in range(n):
             logw[i] = 0.0

@@ -850,7 +850,7 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
     takes the NumPy route, which maps those exactly).
 
     A step at a time over all paths: first the step's shocks (``hermite_row``), then the
-    recursion, a loop without branches or indirect indices that the compiler vectorises; one lag
+    recursion, a loop without branches or indirect indices that the compiler can vectorise; one lag
     of each kind (GARCH(1,1), GJR-GARCH(1,1)) keeps its lags in one row each, more in ring buffers."""
     h, n = Y.shape
     p = alpha.shape[0]
