@@ -422,6 +422,7 @@ def test_default_paths_stay_within_the_worksheet_draws_bound():
     from xlfuncs.sheet.bounds import SIM_DRAWS
 
     assert risk_paths(22) == RISK_PATHS and risk_paths(RISK_LONG + 1) == RISK_PATHS // 2
+    assert risk_paths(2 * RISK_LONG) == RISK_PATHS // 2 and risk_paths(2 * RISK_LONG + 1) == RISK_PATHS // 4
     assert all(risk_paths(h) * h <= SIM_DRAWS for h in range(2, MAX_HORIZON + 1))
     assert risk_paths(252) * 252 <= SIM_DRAWS and risk_paths(600) * 600 <= SIM_DRAWS
 

@@ -13,8 +13,9 @@ horizon        how
                volatility forecast s and z from the fitted distribution, so
                VaR = -(m + s ppf(1 - level)) and ES = -m + s ES_z(level)
 2 and more     seeded simulation of ``paths`` future paths (default
-               :func:`risk_paths`: 2^16, 2^15 beyond 300 periods) that continue the
-               fitted recursions from the end of the sample (:func:`forward_steps`),
+               :func:`risk_paths`: 2^17, 2^16 beyond 150 periods, 2^15 beyond
+               300) that continue the fitted recursions from the end of the sample
+               (:func:`forward_steps`),
                with four variance reductions: scrambled Sobol' points (randomised
                quasi-Monte Carlo: a random linear scramble and digital shift of the
                sequence's direction numbers, :func:`_scrambled_directions`, and the
@@ -87,23 +88,31 @@ from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
 from .spec import RETURN_DEFINITIONS
 
-__all__ = ["Risk", "risk", "risk_paths", "DEFAULT_PATHS", "RISK_PATHS", "RISK_LONG", "MIN_PATHS", "MAX_PATHS", "RETURN_DEFINITIONS"]
+__all__ = ["Risk", "risk", "risk_paths", "DEFAULT_PATHS", "RISK_PATHS", "RISK_LONG", "RISK_DRAWS", "MIN_PATHS", "MAX_PATHS",
+           "RETURN_DEFINITIONS"]
 
 #: the simulated paths behind the risk figures beyond one period when the fit's options do not
 #: say, up to RISK_LONG periods (a power of two: the balanced point sets of the Sobol' sequence)
-RISK_PATHS = 2 ** 16
-#: beyond this many periods the default paths are halved (2^15), so that the draws, paths x
-#: periods, stay at most 2^16 x 300 = 19.7 million up to 600 periods, within the worksheet's
-#: bound on draws (xlfuncs/sheet/bounds.py)
-RISK_LONG = 300
+RISK_PATHS = 2 ** 17
+#: the most draws, paths x periods, that the default paths make: 2^16 x 300 = 19.7 million,
+#: within the worksheet's bound on draws (xlfuncs/sheet/bounds.py)
+RISK_DRAWS = 2 ** 16 * 300
+#: beyond this many periods the default paths are halved (2^16), and halved again beyond twice as
+#: many (2^15 beyond 300 periods, up to the longest horizon, 600), so that the draws stay at most
+#: RISK_DRAWS
+RISK_LONG = RISK_DRAWS // RISK_PATHS
 MIN_PATHS = 1000
 MAX_PATHS = 1_000_000
 _MAX_SEED = 2**31 - 1
 
 
 def risk_paths(horizon: int) -> int:
-    """The default simulated paths of the risk figures over ``horizon`` periods (beyond one)."""
-    return RISK_PATHS if horizon <= RISK_LONG else RISK_PATHS // 2
+    """The default simulated paths of the risk figures over ``horizon`` periods (beyond one):
+    RISK_PATHS, halved until the draws, paths x periods, are at most RISK_DRAWS."""
+    paths = RISK_PATHS
+    while paths * horizon > RISK_DRAWS and paths > 1:
+        paths //= 2
+    return paths
 
 
 @dataclass
@@ -896,7 +905,8 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     ``fit`` is a :class:`~xlfuncs.core.estimate.FitResult` and ``r`` the returns it describes
     (most recent last).  ``level`` is the confidence, 0.5 <= level < 1.  At horizon 1 the
     figures are exact under the fitted distribution; beyond, they come from ``paths``
-    simulated paths (default :func:`risk_paths`: :data:`RISK_PATHS`, half beyond :data:`RISK_LONG` periods) drawn with ``seed`` (default
+    simulated paths (default :func:`risk_paths`: :data:`RISK_PATHS`, halved beyond :data:`RISK_LONG` periods and again
+    beyond twice as many) drawn with ``seed`` (default
     :data:`~xlfuncs.core.forecast.DEFAULT_SEED`), so the same inputs give the same numbers.
     ``mean`` and ``sd`` are always the analytic forecast's (exact for every family with a
     closed-form variance forecast, EGARCH's included).
