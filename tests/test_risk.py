@@ -482,8 +482,8 @@ def test_last_step_interpolants_match_scipy(dist, eta):
       "beta[1]": 0.95, "nu": 6.0}),
 ])
 def test_compiled_paths_are_the_step_by_step_paths(series, model, dist, params, monkeypatch):
-    """Beyond one period, a constant-mean GARCH-type or EGARCH fit's paths run in one compiled pass
-    of the family's kernel (risk_sums); with VOLCAST_NO_JIT=1 they are simulated step by step
+    """Beyond one period, a constant-mean GARCH-type or EGARCH fit's paths run in the family's
+    compiled kernels (risk_sums); with VOLCAST_NO_JIT=1 they are simulated step by step
     (forward_steps, whose paths the tests above check against closed forms and SciPy).  The two
     routes give the same VaR and ES from the same scores (internal consistency)."""
     import xlfuncs.core.risk as rmod
@@ -615,12 +615,15 @@ def test_kernels_with_shared_cells_compiled_and_as_python(series):
                                        np.array([0.3]), np.array([0.0]), np.array([1.1]))),
              (_linear._risk_sum_loop, (0.02, 0.05, np.array([0.05, 0.04]), np.zeros(2), np.array([0.5, 0.35]),
                                        np.array([0.3, 0.2]), np.zeros(2), np.array([1.1, 0.9]))),
-             (egarch._risk_sum_loop, (0.02, 0.01, np.array([0.15]), np.array([-0.06]), np.array([0.96]), 0.8,
-                                      np.array([0.1]), np.array([-0.4]), np.array([0.2])))]
+             (egarch._risk_log_variance_loop, (0.01, np.array([0.15]), np.array([-0.06]), np.array([0.96]), 0.8,
+                                               np.array([0.1]), np.array([-0.4]), np.array([0.2]))),
+             (egarch._risk_log_variance_loop, (0.01, np.array([0.1, 0.05]), np.array([-0.06, 0.02]), np.array([0.95]),
+                                               0.8, np.array([0.1, -0.3]), np.array([-0.4, 0.5]), np.array([0.2])))]
     for kern, args in cases:
         res = []
         for fn in (kern, kern.py):
-            out = np.empty(700), np.empty(700), np.empty(700)
+            out = (np.empty(700), np.empty(700), np.empty(700)) if kern is _linear._risk_sum_loop else \
+                (np.empty(Y.shape), np.empty(Y.shape))
             assert fn(Y, g, dd, half, step, False, *args, *out) == 1
             res.append(out)
         for a, b in zip(*res):

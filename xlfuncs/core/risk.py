@@ -34,9 +34,9 @@ horizon        how
                a F(k) + s M(k), M the partial first moment of z, over the weighted
                mean of F(k), k = (x - a)/s; :func:`_tail_solve`, with F, its density
                and partial first moment from interpolants, :class:`_LastLaw`).  For a
-               constant-mean GARCH-type or EGARCH fit the paths run in one compiled pass
-               of the family's kernel (:func:`_compiled_sums`), the same numbers as the
-               step-by-step route
+               constant-mean GARCH-type or EGARCH fit the paths run in the family's
+               compiled kernels, a block of paths at a time (:func:`_compiled_sums`),
+               the same numbers as the step-by-step route
 =============  ====================================================================
 
 The ``mean`` and ``sd`` reported with them are those of R from the analytic forecast (the
@@ -863,8 +863,8 @@ def _conditional_es(dist, eta, a, s, w, cut: float) -> float:
 
 
 def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
-    """(cum, a_last, s_last) of the simulated paths in one compiled pass of the variance family's
-    own kernel (the family's ``sim_sums``: ``risk_sums`` in :mod:`~xlfuncs.core.families._linear`
+    """(cum, a_last, s_last) of the simulated paths from the variance family's own compiled
+    kernels, a block of paths at a time (the family's ``sim_sums``: ``risk_sums`` in :mod:`~xlfuncs.core.families._linear`
     and :mod:`~xlfuncs.core.families.egarch`): the sum of the returns, the sum before the last step
     plus its mean, and the last step's volatility, the numbers the step-by-step route
     (:func:`~xlfuncs.core.simulate.forward_steps`) gives from the same scores.  For a constant (or
