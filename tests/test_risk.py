@@ -422,6 +422,7 @@ def test_default_paths_stay_within_the_worksheet_draws_bound():
     from xlfuncs.sheet.bounds import SIM_DRAWS
 
     assert risk_paths(22) == RISK_PATHS and risk_paths(RISK_LONG + 1) == RISK_PATHS // 2
+    assert risk_paths(2 * RISK_LONG) == RISK_PATHS // 2 and risk_paths(2 * RISK_LONG + 1) == RISK_PATHS // 4
     assert all(risk_paths(h) * h <= SIM_DRAWS for h in range(2, MAX_HORIZON + 1))
     assert risk_paths(252) * 252 <= SIM_DRAWS and risk_paths(600) * 600 <= SIM_DRAWS
 
@@ -481,8 +482,8 @@ def test_last_step_interpolants_match_scipy(dist, eta):
       "beta[1]": 0.95, "nu": 6.0}),
 ])
 def test_compiled_paths_are_the_step_by_step_paths(series, model, dist, params, monkeypatch):
-    """Beyond one period, a constant-mean GARCH-type or EGARCH fit's paths run in one compiled pass
-    of the family's kernel (risk_sums); with VOLCAST_NO_JIT=1 they are simulated step by step
+    """Beyond one period, a constant-mean GARCH-type or EGARCH fit's paths run in the family's
+    compiled kernels (risk_sums); with VOLCAST_NO_JIT=1 they are simulated step by step
     (forward_steps, whose paths the tests above check against closed forms and SciPy).  The two
     routes give the same VaR and ES from the same scores (internal consistency)."""
     import xlfuncs.core.risk as rmod
@@ -597,3 +598,69 @@ def test_radius_interpolant_is_scipy_chi_quantile(k):
     g = np.linspace(-8.13, 8.13, 100_001)
     exact = np.where(g <= 0, stats.chi.ppf(special.ndtr(g), k), stats.chi.isf(special.ndtr(-g), k))
     assert np.max(np.abs(_radius_table(k)(g) / exact - 1)) < 1e-7
+
+
+@pytest.mark.parametrize("dist,eta", [("t", (5.0,)), ("skewt", (6.0, -0.3)), ("ged", (1.3,))])
+def test_shared_hermite_row_is_the_score_map(dist, eta):
+    """The device function the compiled path kernels share (hermite_row, through hermite_cell) maps
+    normal scores to the law's shocks as the score map's NumPy form does, to the last bit, both as
+    plain Python and compiled; beyond the map's nodes it reports False (the caller then maps those
+    exactly).  The map itself is checked against SciPy's quantiles in tests/test_distributions.py;
+    here: the kernels' copy of it (internal consistency)."""
+    from xlfuncs.core.distributions import score_map_arrays
+    from xlfuncs.core.families._compiled import _load_numba, hermite_row
+
+    smap = get_distribution(dist).normal_scores(np.array(eta, dtype=float))
+    ident, g, d, half, step = score_map_arrays(smap)
+    assert not ident
+    y = np.random.default_rng(5).uniform(-half, half, 1000)  # under 1,024 points: the NumPy form
+    y[:3] = [-half, half, 0.0]
+    expect = smap(y)
+    for fn in ([hermite_row.py, hermite_row.jit] if _load_numba() else [hermite_row.py]):
+        out = np.empty(len(y))
+        assert fn(y, g, d, half, step, out)
+        assert np.array_equal(out, expect)
+        assert not fn(np.array([0.5, half + 0.01]), g, d, half, step, np.empty(2))
+
+
+def test_kernels_with_shared_cells_compiled_and_as_python(series):
+    """The path kernels and the score kernel, which call the shared device functions, give the same
+    numbers compiled and as plain Python (VOLCAST_NO_JIT's form of the same function): the device
+    functions reach the compiled kernels compiled and stay plain Python functions in their module."""
+    import xlfuncs.core.risk as rmod
+    from xlfuncs.core.distributions import score_map_arrays
+    from xlfuncs.core.families import _compiled, _linear, egarch
+
+    if not _compiled._load_numba():
+        pytest.skip("numba is not importable")
+    assert isinstance(_linear.hermite_row, _compiled.Device) and isinstance(rmod.hermite_cell, _compiled.Device)
+    s = rmod._Scores(22, 1500, 3, 0.01)
+    vs, shift, d, first_shift, scale, log_scale, v, vw = s._args
+    t, rt = rmod._normal_table(), s._radius
+    outs = []
+    for fn in (rmod._score_kernel, rmod._score_kernel.py):
+        Y, logw = np.empty((22, 700)), np.empty(700)
+        fn(800, vs, shift, d, True, first_shift, scale, log_scale, v, vw, t.cvd, rmod._R0, 1.0 / t.cstep, t.CCELLS,
+           t.tv, t.td, t.t0, 1.0 / t.TSTEP, rt.v, rt.d, rt.HALF, 1.0 / rt.STEP, Y, logw)
+        outs.append((Y, logw))
+    assert np.array_equal(outs[0][0], outs[1][0]) and np.array_equal(outs[0][1], outs[1][1])
+    Y = outs[0][0]
+    smap = get_distribution("t").normal_scores(np.array([5.0]))
+    _, g, dd, half, step = score_map_arrays(smap)
+    cases = [(_linear._risk_sum_loop, (0.02, 0.05, np.array([0.1]), np.array([0.05]), np.array([0.85]),
+                                       np.array([0.3]), np.array([0.0]), np.array([1.1]))),
+             (_linear._risk_sum_loop, (0.02, 0.05, np.array([0.05, 0.04]), np.zeros(2), np.array([0.5, 0.35]),
+                                       np.array([0.3, 0.2]), np.zeros(2), np.array([1.1, 0.9]))),
+             (egarch._risk_log_variance_loop, (0.01, np.array([0.15]), np.array([-0.06]), np.array([0.96]), 0.8,
+                                               np.array([0.1]), np.array([-0.4]), np.array([0.2]))),
+             (egarch._risk_log_variance_loop, (0.01, np.array([0.1, 0.05]), np.array([-0.06, 0.02]), np.array([0.95]),
+                                               0.8, np.array([0.1, -0.3]), np.array([-0.4, 0.5]), np.array([0.2])))]
+    for kern, args in cases:
+        res = []
+        for fn in (kern, kern.py):
+            out = (np.empty(700), np.empty(700), np.empty(700)) if kern is _linear._risk_sum_loop else \
+                (np.empty(Y.shape), np.empty(Y.shape))
+            assert fn(Y, g, dd, half, step, False, *args, *out) == 1
+            res.append(out)
+        for a, b in zip(*res):
+            assert np.array_equal(a, b)

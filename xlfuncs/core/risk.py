@@ -13,8 +13,9 @@ horizon        how
                volatility forecast s and z from the fitted distribution, so
                VaR = -(m + s ppf(1 - level)) and ES = -m + s ES_z(level)
 2 and more     seeded simulation of ``paths`` future paths (default
-               :func:`risk_paths`: 2^16, 2^15 beyond 300 periods) that continue the
-               fitted recursions from the end of the sample (:func:`forward_steps`),
+               :func:`risk_paths`: 2^17, 2^16 beyond 150 periods, 2^15 beyond
+               300) that continue the fitted recursions from the end of the sample
+               (:func:`forward_steps`),
                with four variance reductions: scrambled Sobol' points (randomised
                quasi-Monte Carlo: a random linear scramble and digital shift of the
                sequence's direction numbers, :func:`_scrambled_directions`, and the
@@ -33,9 +34,9 @@ horizon        how
                a F(k) + s M(k), M the partial first moment of z, over the weighted
                mean of F(k), k = (x - a)/s; :func:`_tail_solve`, with F, its density
                and partial first moment from interpolants, :class:`_LastLaw`).  For a
-               constant-mean GARCH-type or EGARCH fit the paths run in one compiled pass
-               of the family's kernel (:func:`_compiled_sums`), the same numbers as the
-               step-by-step route
+               constant-mean GARCH-type or EGARCH fit the paths run in the family's
+               compiled kernels, a block of paths at a time (:func:`_compiled_sums`),
+               the same numbers as the step-by-step route
 =============  ====================================================================
 
 The ``mean`` and ``sd`` reported with them are those of R from the analytic forecast (the
@@ -81,29 +82,37 @@ import numpy as np
 from scipy import integrate, special
 
 from .distributions import hermite
-from .families._compiled import kernel
+from .families._compiled import hermite_cell, kernel
 from .errors import InputError, value_words
 from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
 from .spec import RETURN_DEFINITIONS
 
-__all__ = ["Risk", "risk", "risk_paths", "DEFAULT_PATHS", "RISK_PATHS", "RISK_LONG", "MIN_PATHS", "MAX_PATHS", "RETURN_DEFINITIONS"]
+__all__ = ["Risk", "risk", "risk_paths", "DEFAULT_PATHS", "RISK_PATHS", "RISK_LONG", "RISK_DRAWS", "MIN_PATHS", "MAX_PATHS",
+           "RETURN_DEFINITIONS"]
 
 #: the simulated paths behind the risk figures beyond one period when the fit's options do not
 #: say, up to RISK_LONG periods (a power of two: the balanced point sets of the Sobol' sequence)
-RISK_PATHS = 2 ** 16
-#: beyond this many periods the default paths are halved (2^15), so that the draws, paths x
-#: periods, stay at most 2^16 x 300 = 19.7 million up to 600 periods, within the worksheet's
-#: bound on draws (xlfuncs/sheet/bounds.py)
-RISK_LONG = 300
+RISK_PATHS = 2 ** 17
+#: the most draws, paths x periods, that the default paths make: 2^16 x 300 = 19.7 million,
+#: within the worksheet's bound on draws (xlfuncs/sheet/bounds.py)
+RISK_DRAWS = 2 ** 16 * 300
+#: beyond this many periods the default paths are halved (2^16), and halved again beyond twice as
+#: many (2^15 beyond 300 periods, up to the longest horizon, 600), so that the draws stay at most
+#: RISK_DRAWS
+RISK_LONG = RISK_DRAWS // RISK_PATHS
 MIN_PATHS = 1000
 MAX_PATHS = 1_000_000
 _MAX_SEED = 2**31 - 1
 
 
 def risk_paths(horizon: int) -> int:
-    """The default simulated paths of the risk figures over ``horizon`` periods (beyond one)."""
-    return RISK_PATHS if horizon <= RISK_LONG else RISK_PATHS // 2
+    """The default simulated paths of the risk figures over ``horizon`` periods (beyond one):
+    RISK_PATHS, halved until the draws, paths x periods, are at most RISK_DRAWS."""
+    paths = RISK_PATHS
+    while paths * horizon > RISK_DRAWS and paths > 1:
+        paths //= 2
+    return paths
 
 
 @dataclass
@@ -176,12 +185,17 @@ def _weighted_quantile(x, w, alpha: float) -> float:
     """The smallest x[i] at which the weighted distribution function sum(w 1(x <= x[i])) / n reaches alpha."""
     n = len(x)
     m = min(n, max(64, int(8 * alpha * n)))
-    if m < n and np.all(w >= 0):  # sort only the lowest m; enough when their weights pass alpha n
-        low = np.argpartition(x, m - 1)[:m]
-        order = low[np.argsort(x[low], kind="stable")]
-        cw = np.cumsum(w[order]) / n
-        if cw[-1] >= alpha:
-            return float(x[order[int(np.searchsorted(cw, alpha))]])
+    if np.all(w >= 0):  # sort only the lowest m, once their weights pass alpha n
+        while m < n:
+            low = np.argpartition(x, m - 1)[:m]
+            wm = float(np.sum(w[low]))
+            if wm >= alpha * n:
+                order = low[np.argsort(x[low], kind="stable")]
+                cw = np.cumsum(w[order]) / n
+                if cw[-1] >= alpha:
+                    return float(x[order[int(np.searchsorted(cw, alpha))]])
+            # else take more: as many as the weight so far says, and a quarter more
+            m = min(n, max(m + 1, int(1.25 * m * alpha * n / wm) + 1 if wm > 0 else n))
     order = np.argsort(x, kind="stable")
     cw = np.cumsum(w[order]) / len(x)
     i = min(int(np.searchsorted(cw, alpha)), len(x) - 1)
@@ -273,6 +287,7 @@ class _LastLaw:
         self.F, self.dF = F, f * h
         self.f, self.df = f, df * h
         self.M, self.dM = M, k * f * h
+        self._tables = None  # (values, slopes) of F, f and M, for the compiled pass
 
     def _exact(self, k):
         d, eta = self.dist, self.eta
@@ -292,7 +307,35 @@ class _LastLaw:
         return i, t, out
 
     def values(self, k, what):
-        """A tuple of the functions named in ``what`` ('F', 'f', 'M', 'df') at the points ``k``."""
+        """A tuple of the functions named in ``what`` ('F', 'f', 'M', 'df') at the points ``k``
+        (in one compiled pass, :func:`_last_law_kernel_py`, where numba is already loaded)."""
+        from .families._compiled import compiled_loaded  # not at import: the module stays light
+
+        if compiled_loaded() and k.ndim == 1:
+            if self._tables is None:
+                self._tables = (np.ascontiguousarray([self.F, self.f, self.M]),
+                                np.ascontiguousarray([self.dF, self.df, self.dM]))
+            V, D = self._tables
+            codes = np.array(["FfM".index(w) if w != "df" else 3 for w in what], dtype=np.int64)
+            res = np.empty((len(what), len(k)))
+            flag = np.empty(len(k), dtype=np.bool_)
+            nout = _last_law_kernel(np.ascontiguousarray(k, dtype=float), self.lo, 1.0 / self.STEP, self.n,
+                                    self.mode, self.near, V, D, codes, res, flag)
+            res = tuple(res)
+            out = flag if nout else None
+        else:
+            res, out = self._numpy_values(k, what)
+            if not np.any(out):
+                out = None
+        if out is not None:
+            ko = k[out]
+            f, F, M, df = self._exact(ko)
+            exact = {"F": F, "f": f, "M": M, "df": df}
+            for v, w in zip(res, what):
+                v[out] = exact[w]
+        return tuple(res)
+
+    def _numpy_values(self, k, what):
         i, t, out = self._cell(k)
         res = []
         for w in what:
@@ -304,13 +347,39 @@ class _LastLaw:
             else:
                 v = hermite(getattr(self, w), getattr(self, "d" + w), i, t)
             res.append(v)
-        if np.any(out):
-            ko = k[out]
-            f, F, M, df = self._exact(ko)
-            exact = {"F": F, "f": f, "M": M, "df": df}
-            for v, w in zip(res, what):
-                v[out] = exact[w]
-        return tuple(res)
+        return res, out
+
+
+def _last_law_kernel_py(k, lo, inv_step, nodes, mode, near, V, D, codes, res, flag):
+    """:meth:`_LastLaw.values` at the points ``k`` in one pass (a numba kernel), the same arithmetic
+    as its NumPy form: row c of ``res`` gets the interpolant of function ``codes[c]`` (0: F, 1: f,
+    2: M, rows of the nodes' values V and slopes per step D; 3: the slope of f's interpolant);
+    ``flag`` marks the points beyond the grid or within ``near`` of the mode, which the caller
+    gives the exact functions.  Returns how many are flagged."""
+    top = float(nodes - 2)
+    nflag = 0
+    for p in range(k.shape[0]):
+        u = (k[p] - lo) * inv_step
+        bad = not (u >= 0.0 and u < nodes - 1)
+        if near > 0 and abs(k[p] - mode) < near:
+            bad = True
+        flag[p] = bad
+        if bad:
+            nflag += 1
+        i = int(min(max(u, 0.0), top))
+        t = u - i
+        for c in range(codes.shape[0]):
+            w = codes[c]
+            if w == 3:
+                t2 = t * t
+                res[c, p] = ((6.0 * t2 - 6.0 * t) * (V[1, i] - V[1, i + 1]) + (3.0 * t2 - 4.0 * t + 1.0) * D[1, i]
+                             + (3.0 * t2 - 2.0 * t) * D[1, i + 1]) * inv_step
+            else:
+                res[c, p] = hermite_cell(t, V[w, i], D[w, i], V[w, i + 1], D[w, i + 1])
+    return nflag
+
+
+_last_law_kernel = kernel(_last_law_kernel_py)
 
 
 def _tail_solve(law, a, s, w, alpha: float, start: float):
@@ -563,43 +632,56 @@ def _sobol_uniforms(vs, shift, n: int) -> np.ndarray:
 
 def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v, vw, cvd, r0, inv_cstep, ccells,
                      tv, td, t0, inv_tstep, rv, rd, rhalf, inv_rstep, Y, logw):
-    """The normal scores of :class:`_Scores` for paths i0..i0+n-1, one path at a time (a numba kernel):
-    the path's Sobol' point (Gray-code order: point k is point k-1 XOR the direction of the lowest set
-    bit of k), each coordinate's uniform (the centre of its cell of width 2^-52) turned into a normal
-    score by the interpolants of :class:`_NormalTable`; with ``radial``, the scores across the sum
-    direction made from a radius (coordinate 1, through the chi law's interpolant rv, rd) times the
-    direction of the normal scores of coordinates 2..d; then the proposal's move and widening of
-    the first ``d`` scores, their log likelihood ratio, and the reflection onto the sum direction
-    (``v``, with ``vw`` = 2 v / v.v).  Y holds a row per step, a column per path."""
+    """The normal scores of :class:`_Scores` for paths i0..i0+n-1 (a numba kernel), in two passes.
+
+    First a coordinate at a time over the paths: the coordinate of each path's Sobol' point (Gray-code
+    order: point k is point k-1 XOR the direction of the lowest set bit of k), its uniform (the centre
+    of its cell of width 2^-52) turned into a normal score by the interpolants of :class:`_NormalTable`,
+    written into the step's row of Y (with ``radial``, coordinate 1, the radius's, into a row of its
+    own and coordinates 2.. into rows 1..), and the sums of squares the weights need gathered on
+    the way.  Then a step at a time over the paths, one pass a row: with ``radial``, the scores
+    across the sum direction made from the radius (the chi law's interpolant rv, rd) times the
+    direction of the normal scores of rows 1..d-1; the proposal's move and widening of the first
+    ``d`` scores, their log likelihood ratio, and the reflection onto the sum direction (``v``,
+    with ``vw`` = 2 v / v.v).  Each path's sums run over the steps in order, as a path at a time
+    would, so the numbers are those of that order.  Y holds a row per step, a column per path."""
     steps, n = Y.shape
     dims = vs.shape[0]
     m = vs.shape[1]
-    q = shift.copy()
-    gray = i0 ^ (i0 >> 1)  # point i0: the XOR of the directions of the set bits of its Gray code
-    b = 0
-    while gray > 0:
-        if gray & 1:
-            for j in range(dims):
-                q[j] ^= vs[j, b]
-        gray >>= 1
-        b += 1
-    g = np.empty(dims)
-    x = np.empty(steps)
+    low_bit = np.zeros(n, dtype=np.int64)  # the direction that point i0 + i flips (i >= 1)
+    for i in range(1, n):
+        k = i0 + i
+        b = 0
+        while (k & 1) == 0:
+            k >>= 1
+            b += 1
+        low_bit[i] = b
+    rad = np.empty(n)
+    before = np.zeros(n)  # the squared length of the scores before the move
+    nn = np.zeros(n)  # radial: the squared length of the scores of coordinates 2..d
     top = tv.shape[0] - 2
-    rtop = rv.shape[0] - 2
     twelve = np.uint64(12)
-    for i in range(n):
-        if i > 0:
-            k = i0 + i
-            b = 0
-            while (k & 1) == 0:
-                k >>= 1
-                b += 1
-            if b < m:
-                for j in range(dims):
-                    q[j] ^= vs[j, b]
-        for j in range(dims):
-            u = float(np.int64(q[j] >> twelve)) * 2.0 ** -52 + 2.0 ** -53
+    for j in range(dims):
+        if radial and j == 1:
+            row = rad
+        elif radial and j > 1:
+            row = Y[j - 1]
+        else:
+            row = Y[j]
+        q = shift[j]
+        gray = i0 ^ (i0 >> 1)  # point i0: the XOR of the directions of the set bits of its Gray code
+        b = 0
+        while gray > 0:
+            if gray & 1:
+                q ^= vs[j, b]
+            gray >>= 1
+            b += 1
+        for i in range(n):
+            if i > 0:
+                b = low_bit[i]
+                if b < m:
+                    q ^= vs[j, b]
+            u = float(np.int64(q >> twelve)) * 2.0 ** -52 + 2.0 ** -53
             low = u < 0.5
             r = u if low else 1.0 - u
             if r >= r0:
@@ -607,64 +689,69 @@ def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v,
                 c = int(s)
                 if c > ccells - 1:
                     c = ccells - 1
-                t = s - c
-                t1 = 1.0 - t
                 c2 = 2 * c  # cvd interleaves the nodes' values and slopes: one cache line a cell
-                a = (t1 * t1 * ((1.0 + 2.0 * t) * cvd[c2] + t * cvd[c2 + 1])
-                     + t * t * ((3.0 - 2.0 * t) * cvd[c2 + 2] - t1 * cvd[c2 + 3]))
+                a = hermite_cell(s - c, cvd[c2], cvd[c2 + 1], cvd[c2 + 2], cvd[c2 + 3])
             else:
                 s = (math.sqrt(-2.0 * math.log(r)) - t0) * inv_tstep
                 c = int(s)
                 if c > top:
                     c = top
-                t = s - c
-                t1 = 1.0 - t
-                a = t1 * t1 * ((1.0 + 2.0 * t) * tv[c] + t * td[c]) + t * t * ((3.0 - 2.0 * t) * tv[c + 1] - t1 * td[c + 1])
-            g[j] = -a if low else a
-        if radial:  # x[1..d-1]: the radius times the direction of g[2..d]; later steps from g[d+1..]
-            s = (g[1] + rhalf) * inv_rstep
+                a = hermite_cell(s - c, tv[c], td[c], tv[c + 1], td[c + 1])
+            row[i] = -a if low else a
+        if radial and 2 <= j <= d:
+            for i in range(n):
+                nn[i] += row[i] * row[i]
+        elif not radial and j < d:
+            for i in range(n):
+                before[i] += row[i] * row[i]
+    if radial:  # rows 1..d-1 become the radius times the direction of their scores: nn the factor
+        rtop = rv.shape[0] - 2
+        y0 = Y[0]
+        for i in range(n):
+            s = (rad[i] + rhalf) * inv_rstep
             c = int(s)
             if c < 0:
                 c = 0
             elif c > rtop:
                 c = rtop
-            t = s - c
-            t1 = 1.0 - t
-            rho = t1 * t1 * ((1.0 + 2.0 * t) * rv[c] + t * rd[c]) + t * t * ((3.0 - 2.0 * t) * rv[c + 1] - t1 * rd[c + 1])
-            nn = 0.0
-            for j in range(2, d + 1):
-                nn += g[j] * g[j]
-            f = rho / math.sqrt(nn)
-            x[0] = g[0]
-            for j in range(1, d):
-                x[j] = g[j + 1] * f
-            for j in range(d, steps):
-                x[j] = g[j + 1]
-            before = g[0] * g[0] + rho * rho
-        else:
-            for j in range(steps):
-                x[j] = g[j]
-            before = 0.0
+            rho = hermite_cell(s - c, rv[c], rd[c], rv[c + 1], rd[c + 1])
+            nn[i] = rho / math.sqrt(nn[i])
+            before[i] = y0[i] * y0[i] + rho * rho
+    if d >= 1:
+        after = np.zeros(n)
+        c2 = np.zeros(n)
+        y = Y[0]
+        for i in range(n):
+            y[i] = y[i] - first_shift
+            after[i] += y[i] * y[i]
+            c2[i] += y[i] * vw[0]
+        for j in range(1, d):  # the radius (radial), the widening, and their sums, in one pass a row
+            y = Y[j]
+            vj = vw[j]
+            if radial:
+                for i in range(n):
+                    x = y[i] * nn[i]
+                    x = x * scale
+                    y[i] = x
+                    after[i] += x * x
+                    c2[i] += x * vj
+            else:
+                for i in range(n):
+                    x = y[i] * scale
+                    y[i] = x
+                    after[i] += x * x
+                    c2[i] += x * vj
+        for i in range(n):
+            logw[i] = 0.5 * (before[i] - after[i]) + log_scale
+        if d > 1:
             for j in range(d):
-                before += x[j] * x[j]
-        if d >= 1:
-            x[0] = x[0] - first_shift
-            for j in range(1, d):
-                x[j] = x[j] * scale
-            after = 0.0
-            for j in range(d):
-                after += x[j] * x[j]
-            logw[i] = 0.5 * (before - after) + log_scale
-            if d > 1:
-                c2 = 0.0
-                for j in range(d):
-                    c2 += x[j] * vw[j]
-                for j in range(d):
-                    x[j] = x[j] - c2 * v[j]
-        else:
+                y = Y[j]
+                vj = v[j]
+                for i in range(n):
+                    y[i] = y[i] - c2[i] * vj
+    else:
+        for i in range(n):
             logw[i] = 0.0
-        for j in range(steps):
-            Y[j, i] = x[j]
 
 
 _score_kernel = kernel(_score_kernel_py)
@@ -685,6 +772,10 @@ RADIAL = True
 #: the paths whose scores one pass of the compiled kernels makes before the family's kernel takes
 #: them (22 x 4,096 scores, 0.7 MB: in the cache between the two)
 BLOCK = 4096
+#: the paths whose weighted empirical quantile starts the solvers of the VaR (:func:`_tail_solve`):
+#: the first 2^13 points of the scrambled sequence, a net of their own; a start within a few tenths
+#: of a percent of the root is enough for the quadratic step and the Newton step that follow
+START_PATHS = 8192
 #: the steps that take quasi-random scores; later steps of a long horizon take pseudo-random ones
 #: (padding, common practice), so the points held stay paths x QMC_STEPS
 QMC_STEPS = 64
@@ -821,8 +912,8 @@ def _conditional_es(dist, eta, a, s, w, cut: float) -> float:
 
 
 def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
-    """(cum, a_last, s_last) of the simulated paths in one compiled pass of the variance family's
-    own kernel (the family's ``sim_sums``: ``risk_sums`` in :mod:`~xlfuncs.core.families._linear`
+    """(cum, a_last, s_last) of the simulated paths from the variance family's own compiled
+    kernels, a block of paths at a time (the family's ``sim_sums``: ``risk_sums`` in :mod:`~xlfuncs.core.families._linear`
     and :mod:`~xlfuncs.core.families.egarch`): the sum of the returns, the sum before the last step
     plus its mean, and the last step's volatility, the numbers the step-by-step route
     (:func:`~xlfuncs.core.simulate.forward_steps`) gives from the same scores.  For a constant (or
@@ -863,7 +954,8 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     ``fit`` is a :class:`~xlfuncs.core.estimate.FitResult` and ``r`` the returns it describes
     (most recent last).  ``level`` is the confidence, 0.5 <= level < 1.  At horizon 1 the
     figures are exact under the fitted distribution; beyond, they come from ``paths``
-    simulated paths (default :func:`risk_paths`: :data:`RISK_PATHS`, half beyond :data:`RISK_LONG` periods) drawn with ``seed`` (default
+    simulated paths (default :func:`risk_paths`: :data:`RISK_PATHS`, halved beyond :data:`RISK_LONG` periods and again
+    beyond twice as many) drawn with ``seed`` (default
     :data:`~xlfuncs.core.forecast.DEFAULT_SEED`), so the same inputs give the same numbers.
     ``mean`` and ``sd`` are always the analytic forecast's (exact for every family with a
     closed-form variance forecast, EGARCH's included).
@@ -945,17 +1037,21 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
                     log_factor += np.log1p(np.maximum(c * ret, -1.0))  # a factor below 0 is the value gone
         w = np.exp(scores.logw)
         del scores
-        cut = _weighted_quantile(cum, w, alpha)
-        fast = _tail_solve(_LastLaw(fit.dist, eta), a_last, s_last, w, alpha, cut)
+        # the solvers' start: the weighted quantile of the first START_PATHS paths (a scrambled net
+        # of their own); the root they reach does not depend on it beyond their tolerance
+        start = _weighted_quantile(cum[:START_PATHS], w[:START_PATHS], alpha)
+        fast = _tail_solve(_LastLaw(fit.dist, eta), a_last, s_last, w, alpha, start)
         if fast is not None:
             var, es = fast
             cut = -var
         else:
-            var = _conditional_var(fit.dist, eta, a_last, s_last, w, alpha, cut)
+            var = _conditional_var(fit.dist, eta, a_last, s_last, w, alpha, start)
             es = None
-            if var is not None:  # else the paths left the finite numbers: the weighted empirical quantile
+            if var is not None:
                 cut = -var
                 es = _conditional_es(fit.dist, eta, a_last, s_last, w, cut)
+            else:  # the paths left the finite numbers: the weighted empirical quantile of them all
+                cut = _weighted_quantile(cum, w, alpha)
         tail = cum <= cut
         es_paths = -_weighted_tail_mean(cum, w, tail)
         if es is None or not math.isfinite(es):

@@ -836,7 +836,7 @@ class LinearFamily(VarianceFamily):
 
 # ------------------------------------------------------------------ the risk figures' paths, compiled
 from ..distributions import score_map_arrays  # noqa: E402
-from ._compiled import jit_enabled, kernel  # noqa: E402  (the section's own; no numba until first call)
+from ._compiled import hermite_row, jit_enabled, kernel  # noqa: E402  (the section's own; no numba until first call)
 
 
 @kernel
@@ -847,13 +847,18 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
     [-half, half]; ``ident``: the scores are the shocks).  The return is mu + e; ``cum`` gets the
     sum of the returns, ``a_last`` the sum up to the last step plus its mean and ``s_last`` its
     volatility.  Returns 1, or 0 at once if a score lies beyond the map's nodes (the caller then
-    takes the NumPy route, which maps those exactly)."""
+    takes the NumPy route, which maps those exactly).
+
+    A step at a time over all paths: first the step's shocks (``hermite_row``), then the
+    recursion, a loop without branches or indirect indices that the compiler can vectorise; one lag
+    of each kind (GARCH(1,1), GJR-GARCH(1,1)) keeps its lags in one row each, more in ring buffers."""
     h, n = Y.shape
     p = alpha.shape[0]
     q = beta.shape[0]
     E2 = np.empty((max(p, 1), n))
     N2 = np.empty((max(p, 1), n))
     S2 = np.empty((max(q, 1), n))
+    Z = np.empty(n)
     for k in range(1, p + 1):  # lag k sits at ring position (-k) mod p at step 0
         pos = (p - k) % p
         for i in range(n):
@@ -863,14 +868,30 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
         pos = (q - k) % q
         for i in range(n):
             S2[pos, i] = s2[q - k]
-    last = gt.shape[0] - 2
-    inv_step = 1.0 / step
-    top = last + 1.0
     pa = np.empty(max(p, 1), dtype=np.int64)
     pb = np.empty(max(q, 1), dtype=np.int64)
+    one = p == 1 and q == 1
     for i in range(n):
         cum[i] = 0.0
     for t in range(h):
+        if ident:
+            for i in range(n):
+                Z[i] = Y[t, i]
+        elif not hermite_row(Y[t], gt, dt, half, step, Z):
+            return 0
+        if one and t < h - 1:  # the sums in the order of the step-by-step route's
+            a1, g1, b1 = alpha[0], gamma[0], beta[0]
+            le2, ln2, ls2 = E2[0], N2[0], S2[0]
+            for i in range(n):
+                v = omega + a1 * le2[i]
+                v += g1 * ln2[i]
+                v += b1 * ls2[i]
+                e = math.sqrt(v) * Z[i]
+                cum[i] += mu + e
+                le2[i] = e * e
+                ln2[i] = e * e if e < 0 else 0.0
+                ls2[i] = v
+            continue
         for k in range(1, p + 1):  # the ring positions of the lags at this step
             pa[k - 1] = (t - k) % p
         for k in range(1, q + 1):
@@ -878,23 +899,11 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
         for i in range(n):
             v = omega
             for k in range(p):
-                v += alpha[k] * E2[pa[k], i]  # in the order of the step-by-step route's sums
+                v += alpha[k] * E2[pa[k], i]
                 v += gamma[k] * N2[pa[k], i]
             for k in range(q):
                 v += beta[k] * S2[pb[k], i]
-            y = Y[t, i]
-            if ident:
-                z = y
-            else:
-                u = (y + half) * inv_step
-                if not (0.0 <= u <= top):
-                    return 0
-                j = int(u)
-                if j > last:
-                    j = last
-                x = u - j
-                x1 = 1.0 - x
-                z = x1 * x1 * ((1.0 + 2.0 * x) * gt[j] + x * dt[j]) + x * x * ((3.0 - 2.0 * x) * gt[j + 1] - x1 * dt[j + 1])
+            z = Z[i]
             sig = math.sqrt(v)
             e = sig * z
             ret = mu + e

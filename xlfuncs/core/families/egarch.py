@@ -1081,93 +1081,97 @@ class Egarch(VarianceFamily):
 
 # ------------------------------------------------------------------ the risk figures' paths, compiled
 from ..distributions import score_map_arrays  # noqa: E402
-from ._compiled import jit_enabled  # noqa: E402  (the section's own)
+from ._compiled import hermite_row, jit_enabled  # noqa: E402  (the section's own)
 
 
 @kernel
-def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, kappa, g0, z0, lv0,
-                   cum, a_last, s_last):
-    """Paths of ln sigma2 = omega + sum alpha_i (|z| - kappa) + gamma_i z + sum beta_j ln sigma2 (clipped
-    to [-700, 700], as the simulation's steps) that start from the news g0, shocks z0 and
-    log-variances lv0 (newest last) and take the normal scores Y (a row per step) through the cubic
-    Hermite map of the law's quantiles (nodes gt, slopes dt per step, over [-half, half];
-    ``ident``: the scores are the shocks).  The return is mu + e; ``cum`` gets the sum of the
-    returns, ``a_last`` the sum up to the last step plus its mean and ``s_last`` its volatility.
-    Returns 1, or 0 at once if a score lies beyond the map's nodes (the caller then takes the
-    NumPy route, which maps those exactly)."""
+def _risk_log_variance_loop(Y, gt, dt, half, step, ident, omega, alpha, gamma, beta, kappa, g0, z0, lv0, Z, V):
+    """The shocks Z and log-variances V (a row per step, a column per path) of paths of
+    ln sigma2 = omega + sum alpha_i (|z| - kappa) + gamma_i z + sum beta_j ln sigma2 (clipped to
+    [-700, 700], as the simulation's steps) that start from the news g0, shocks z0 and log-variances
+    lv0 (newest last) and take the normal scores Y through the cubic Hermite map of the law's
+    quantiles (nodes gt, slopes dt per step, over [-half, half]; ``ident``: the scores are the
+    shocks).  The log-variances feed on the shocks alone, so the variances' exponentials can follow
+    in one pass over them all.  Returns 1, or 0 at once if a score lies beyond the map's nodes (the
+    caller then takes the NumPy route, which maps those exactly).  A step at a time over all paths:
+    first the step's shocks (``hermite_row``), then the log-variances, the sums in the order of the
+    step-by-step route's."""
     h, n = Y.shape
     p = alpha.shape[0]
     q = beta.shape[0]
-    G = np.empty((max(p, 1), n))
-    Z = np.empty((max(p, 1), n))
-    L = np.empty((max(q, 1), n))
-    for k in range(1, p + 1):
-        pos = (p - k) % p
-        for i in range(n):
-            G[pos, i] = g0[p - k]
-            Z[pos, i] = z0[p - k]
-    for k in range(1, q + 1):
-        pos = (q - k) % q
-        for i in range(n):
-            L[pos, i] = lv0[q - k]
-    last = gt.shape[0] - 2
-    inv_step = 1.0 / step
-    top = last + 1.0
-    pa = np.empty(max(p, 1), dtype=np.int64)
-    pb = np.empty(max(q, 1), dtype=np.int64)
-    for i in range(n):
-        cum[i] = 0.0
+    one = p == 1 and q == 1
     for t in range(h):
-        for k in range(1, p + 1):  # the ring positions of the lags at this step
-            pa[k - 1] = (t - k) % p
-        for k in range(1, q + 1):
-            pb[k - 1] = (t - k) % q
+        zt = Z[t]
+        if ident:
+            for i in range(n):
+                zt[i] = Y[t, i]
+        elif not hermite_row(Y[t], gt, dt, half, step, zt):
+            return 0
+        vt = V[t]
+        if one and t > 0:
+            a1, g1, b1 = alpha[0], gamma[0], beta[0]
+            zp, vp = Z[t - 1], V[t - 1]
+            for i in range(n):
+                v = omega + a1 * (abs(zp[i]) - kappa)
+                v += g1 * zp[i]
+                v += b1 * vp[i]
+                if v > 700.0:
+                    v = 700.0
+                elif v < -700.0:
+                    v = -700.0
+                vt[i] = v
+            continue
         for i in range(n):
             v = omega
-            for k in range(p):
-                v += alpha[k] * G[pa[k], i]  # in the order of the step-by-step route's sums
-                v += gamma[k] * Z[pa[k], i]
-            for k in range(q):
-                v += beta[k] * L[pb[k], i]
+            for k in range(1, p + 1):  # lag k: a step of these paths, or the sample's end (newest last)
+                if t >= k:
+                    z = Z[t - k, i]
+                    v += alpha[k - 1] * (abs(z) - kappa)
+                    v += gamma[k - 1] * z
+                else:
+                    v += alpha[k - 1] * g0[p + t - k]
+                    v += gamma[k - 1] * z0[p + t - k]
+            for k in range(1, q + 1):
+                v += beta[k - 1] * (V[t - k, i] if t >= k else lv0[q + t - k])
             if v > 700.0:
                 v = 700.0
             elif v < -700.0:
                 v = -700.0
-            y = Y[t, i]
-            if ident:
-                z = y
-            else:
-                u = (y + half) * inv_step
-                if not (0.0 <= u <= top):
-                    return 0
-                j = int(u)
-                if j > last:
-                    j = last
-                x = u - j
-                x1 = 1.0 - x
-                z = x1 * x1 * ((1.0 + 2.0 * x) * gt[j] + x * dt[j]) + x * x * ((3.0 - 2.0 * x) * gt[j + 1] - x1 * dt[j + 1])
-            sig = math.sqrt(math.exp(v))
-            e = sig * z
-            ret = mu + e
-            if t == h - 1:
-                a_last[i] = cum[i] + (ret - sig * z)  # as the step-by-step route rounds it
+            vt[i] = v
+    return 1
+
+
+@kernel
+def _risk_sum_loop(Z, S, mu, cum, a_last, s_last):
+    """The paths' returns mu + S z summed: ``cum`` gets the sum of the returns, ``a_last`` the sum up
+    to the last step plus its mean and ``s_last`` its volatility (Z the shocks, S the volatilities,
+    a row per step), rounded as the step-by-step route rounds them."""
+    h, n = Z.shape
+    for i in range(n):
+        cum[i] = 0.0
+    for t in range(h):
+        zt, st = Z[t], S[t]
+        if t < h - 1:
+            for i in range(n):
+                cum[i] += mu + st[i] * zt[i]
+        else:
+            for i in range(n):
+                sig, z = st[i], zt[i]
+                ret = mu + sig * z
+                a_last[i] = cum[i] + (ret - sig * z)
                 s_last[i] = sig
-            cum[i] += ret
-            if p:
-                pos = t % p
-                G[pos, i] = abs(z) - kappa
-                Z[pos, i] = z
-            if q:
-                L[t % q, i] = v
+                cum[i] += ret
     return 1
 
 
 def risk_sums(family, state, vp, Y, score_map, mu):
     """(cum, a_last, s_last) of the paths that continue ``state`` (from ``sim_continue``) with the
     normal scores ``Y`` (a row per step) mapped to shocks by ``score_map`` (``Distribution.normal_scores``)
-    and the constant mean ``mu``, in one compiled pass: the NumPy route's numbers (``sim_step``).
-    None where the kernels run as plain Python or a score lies beyond the map's nodes: the caller
-    then simulates step by step."""
+    and the constant mean ``mu``: the NumPy route's numbers (``sim_step``).  Two compiled passes
+    with NumPy's exponential and square root between them, the functions that route calls (and
+    several times faster over a block than the C library's exp a value at a time).  None where the
+    kernels run as plain Python or a score lies beyond the map's nodes: the caller then simulates
+    step by step."""
     if not (jit_enabled() and isinstance(family, Egarch) and state.clip):
         return None
     omega, alpha, gamma, beta = family._split(family._vp(vp))
@@ -1175,9 +1179,15 @@ def risk_sums(family, state, vp, Y, score_map, mu):
     z0 = np.array([float(x) for x in state.z], dtype=float)
     lv0 = np.array([float(x) for x in state.lv], dtype=float)
     ident, gt, dt, half, step = score_map_arrays(score_map)
+    Y = np.ascontiguousarray(Y, dtype=float)
+    Z, V = np.empty(Y.shape), np.empty(Y.shape)
+    if not _risk_log_variance_loop(Y, gt, dt, half, step, ident, float(omega), np.asarray(alpha, dtype=float),
+                                   np.asarray(gamma, dtype=float), np.asarray(beta, dtype=float),
+                                   float(state.kappa), g0, z0, lv0, Z, V):
+        return None
+    S = np.exp(V, out=V)
+    np.sqrt(S, out=S)
     n = Y.shape[1]
     cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
-    ok = _risk_sum_loop(np.ascontiguousarray(Y, dtype=float), gt, dt, half, step, ident, float(mu), float(omega),
-                        np.asarray(alpha, dtype=float), np.asarray(gamma, dtype=float), np.asarray(beta, dtype=float),
-                        float(state.kappa), g0, z0, lv0, cum, a_last, s_last)
-    return (cum, a_last, s_last) if ok else None
+    _risk_sum_loop(Z, S, float(mu), cum, a_last, s_last)
+    return cum, a_last, s_last
