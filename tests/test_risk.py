@@ -310,7 +310,10 @@ def test_risk_is_reproducible_and_uses_the_seeded_paths(series):
     a = risk(f, series, 0.99, 10)
     b = risk(f, series, 0.99, 10)
     assert a == b
-    assert a.method == f"simulation ({RISK_PATHS} paths, seed {DEFAULT_SEED}; scrambled Sobol points, importance sampling, last step exact)"
+    # an AR(1) mean: the step-by-step route, half the default paths of a constant mean (risk_paths)
+    assert a.method == f"simulation ({RISK_PATHS // 2} paths, seed {DEFAULT_SEED}; scrambled Sobol points, importance sampling, last step exact)"
+    g = _fit(*CASES[0][:3], series)  # a constant mean: the compiled route, every default path
+    assert risk(g, series, 0.99, 10).method.startswith(f"simulation ({RISK_PATHS} paths, ")
     c = risk(f, series, 0.99, 10, paths=5000, seed=3)
     assert c.var != a.var and c.method == "simulation (5000 paths, seed 3; scrambled Sobol points, importance sampling, last step exact)"
     # (the accuracy of the estimator against long plain simulations: tests/test_risk_accuracy.py)

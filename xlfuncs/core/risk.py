@@ -14,7 +14,8 @@ horizon        how
                VaR = -(m + s ppf(1 - level)) and ES = -m + s ES_z(level)
 2 and more     seeded simulation of ``paths`` future paths (default
                :func:`risk_paths`: 2^17, 2^16 beyond 150 periods, 2^15 beyond
-               300) that continue the fitted recursions from the end of the sample
+               300; half that where the mean is not constant) that continue the
+               fitted recursions from the end of the sample
                (:func:`forward_steps`),
                with four variance reductions: scrambled Sobol' points (randomised
                quasi-Monte Carlo: a random linear scramble and digital shift of the
@@ -106,10 +107,13 @@ MAX_PATHS = 1_000_000
 _MAX_SEED = 2**31 - 1
 
 
-def risk_paths(horizon: int) -> int:
+def risk_paths(horizon: int, compiled: bool = True) -> int:
     """The default simulated paths of the risk figures over ``horizon`` periods (beyond one):
-    RISK_PATHS, halved until the draws, paths x periods, are at most RISK_DRAWS."""
-    paths = RISK_PATHS
+    RISK_PATHS where the paths run in the variance family's compiled kernels (``compiled``, see
+    :func:`compiled_route`), half that on the step-by-step route (an ARMA mean, regressors, an
+    in-mean term), where a path costs about twice as much; halved until the draws, paths x
+    periods, are at most RISK_DRAWS."""
+    paths = RISK_PATHS if compiled else RISK_PATHS // 2
     while paths * horizon > RISK_DRAWS and paths > 1:
         paths //= 2
     return paths
@@ -911,6 +915,17 @@ def _conditional_es(dist, eta, a, s, w, cut: float) -> float:
     return -float((p @ a + np.sum(m)) / np.sum(p))
 
 
+def compiled_route(spec, horizon: int) -> bool:
+    """Whether the risk figures' paths over ``horizon`` periods run in the variance family's
+    compiled kernels (:func:`_compiled_sums`): a constant (or zero) mean without regressors or
+    in-mean term, every step's scores quasi-random (:data:`QMC_STEPS`), a family with such kernels,
+    and the kernels compiled."""
+    from .families._compiled import jit_enabled
+
+    return not (spec.ar or spec.ma or spec.in_mean or spec.n_regressors) and horizon <= QMC_STEPS \
+        and bool(spec.family.compiled_paths) and jit_enabled()
+
+
 def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
     """(cum, a_last, s_last) of the simulated paths from the variance family's own compiled
     kernels, a block of paths at a time (the family's ``sim_sums``: ``risk_sums`` in :mod:`~xlfuncs.core.families._linear`
@@ -922,11 +937,9 @@ def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
     None otherwise, or where the family has no such kernel or numba does not run them.
     """
     spec = fit.spec
-    if spec.ar or spec.ma or spec.in_mean or spec.n_regressors or horizon > QMC_STEPS or scores.d != horizon - 1:
+    if not compiled_route(spec, horizon) or scores.d != horizon - 1:
         return None
     fam = spec.family
-    if not fam.compiled_paths:
-        return None
     from .families import History
     from .forecast import in_sample
 
@@ -971,7 +984,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     level = _check_level(level)
     horizon = _whole(horizon, "horizon", 1, MAX_HORIZON)
     fc_paths = None if paths is None else _whole(paths, "paths", MIN_PATHS, MAX_PATHS)
-    paths = risk_paths(horizon) if fc_paths is None else fc_paths
+    paths = risk_paths(horizon, compiled_route(fit.spec, horizon)) if fc_paths is None else fc_paths
     seed = DEFAULT_SEED if seed is None else _whole(seed, "seed", 0, _MAX_SEED)
     if returns is None:
         returns = getattr(getattr(fit, "options", None), "returns", None)
