@@ -80,14 +80,18 @@ import numbers
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import integrate, special
+from scipy import special
 
 from .distributions import hermite
 from .families._compiled import hermite_cell, kernel
+from ._lazy import lazy_module
 from .errors import InputError, value_words
 from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
 from .spec import RETURN_DEFINITIONS
+
+#: scipy.integrate (with scipy.optimize, ~0.3 s CPU to import) only for one period's value loss
+integrate = lazy_module("scipy.integrate")
 
 __all__ = ["Risk", "risk", "risk_paths", "DEFAULT_PATHS", "RISK_PATHS", "RISK_LONG", "RISK_DRAWS", "MIN_PATHS", "MAX_PATHS",
            "RETURN_DEFINITIONS"]
