@@ -113,3 +113,20 @@ def test_forecast_what_options(dmbp, cells):
     assert tab[0] == ["step", "mean", "variance", "vol", "cumvar"]
     assert [r[0] for r in tab[1:]] == [1, 2, 3, 4, 5]
     assert_allclose([r[2] for r in tab[1:]], var, rtol=1e-14)
+
+
+def test_kept_ged_factors_are_the_quadratures_and_cannot_be_altered():
+    """EGARCH's GED forecast factors are kept between forecasts of one fit: a kept answer is the
+    quadrature's own (reference: the same function with its store emptied), and altering a returned
+    array leaves the kept one as it was."""
+    from xlfuncs.core.families import egarch as E
+
+    cs = np.array([0.1, -0.3, 0.25, 0.0])
+    E._ged_log_half_kept.cache_clear()
+    first = E._ged_log_half(cs, 1.4)
+    first[:] = 99.0  # a caller that writes into its result
+    again = E._ged_log_half(cs, 1.4)
+    E._ged_log_half_kept.cache_clear()
+    fresh = E._ged_log_half(cs, 1.4)
+    assert np.array_equal(again, fresh) and not np.any(again == 99.0)
+    assert fresh[3] == 0.0 or abs(fresh[3]) < 1e-13  # c = 0: the density integrates to one

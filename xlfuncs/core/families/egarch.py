@@ -20,6 +20,7 @@ for every c > 0, so E[sigma2_{T+h}] does not exist beyond one step (:meth:`Egarc
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 
 import numpy as np
 from .._lazy import special
@@ -626,10 +627,18 @@ def _ged_log_half(cs, nu: float) -> np.ndarray:
     """log of (nu / Gamma(1/nu)) int_0^inf exp(c x - x^nu) dx for each c in ``cs`` (= 1 at c = 0).
 
     Each integrand is scaled by its maximum exp(M) (at x* = (c/nu)^(1/(nu-1)) for c > 0 and
-    nu > 1) so that none overflows, and integrated up to where every one is below exp(-700)."""
+    nu > 1) so that none overflows, and integrated up to where every one is below exp(-700).
+    The same factors recur in every forecast of one fit (each VOLRISK horizon, VOLFORECAST), so
+    the last few are kept (a copy is returned: the same numbers, without the quadrature again)."""
+    cs = np.ascontiguousarray(cs, dtype=float)
+    return _ged_log_half_kept(cs.tobytes(), float(nu)).copy()
+
+
+@lru_cache(maxsize=32)
+def _ged_log_half_kept(key: bytes, nu: float) -> np.ndarray:
     from scipy import integrate
 
-    cs = np.asarray(cs, dtype=float)
+    cs = np.frombuffer(key, dtype=float)
     M = np.zeros(len(cs))
     if nu > 1.0:
         pos = cs > 0
