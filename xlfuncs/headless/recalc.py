@@ -195,6 +195,7 @@ class Workbook:
         self.reads: list = []  # (formula key, sheet, r1, c1, r2, c2) read by formulas of ours
         self._column_rest: set = set()  # cells of a NumPy column left to the engine (blanks, texts, errors)
         self._source = self.inputs  # what the batches read: the constants (and computed values once settled)
+        self._batch_parsed: dict = {}  # formula key -> (template, tokens) of the element-wise batch, or None
 
     @property
     def book(self):
@@ -514,15 +515,20 @@ class Workbook:
             self._batch_vector(min_size)
         spilling = {a[0] for a in self._anchors} | {a[0] for a in self.arrays}
         groups: dict = {}
+        parsed = self._batch_parsed  # each formula's (template, tokens), or None, read once for both passes
         for key, text in self.formulas.items():
             if key in self.arrays or key in self._anchors or key in self.values:
                 continue
-            if not function_names(text) <= _ELEMENTWISE | _LOGICAL:
-                continue
-            tokens = _ref_tokens(text)
-            if not tokens or any(":" in t or t.endswith("#") for _, _, t in tokens):
-                continue
-            groups.setdefault(_template(text, tokens, key[1], key[2]), []).append((key, text, tokens))
+            hit = parsed.get(key, _MISSING)
+            if hit is _MISSING:
+                hit = None
+                if function_names(text) <= _ELEMENTWISE | _LOGICAL:
+                    tokens = _ref_tokens(text)
+                    if tokens and not any(":" in t or t.endswith("#") for _, _, t in tokens):
+                        hit = (_template(text, tokens, key[1], key[2]), tokens)
+                parsed[key] = hit
+            if hit is not None:
+                groups.setdefault(hit[0], []).append((key, text, hit[1]))
         rest = self._column_rest
         for members in groups.values():
             # a group this small is batched only as what the NumPy columns left of a larger one
