@@ -310,10 +310,14 @@ def test_risk_is_reproducible_and_uses_the_seeded_paths(series):
     a = risk(f, series, 0.99, 10)
     b = risk(f, series, 0.99, 10)
     assert a == b
-    # an AR(1) mean: the step-by-step route, half the default paths of a constant mean (risk_paths)
-    assert a.method == f"simulation ({RISK_PATHS // 2} paths, seed {DEFAULT_SEED}; scrambled Sobol points, importance sampling, last step exact)"
+    # an AR(1) mean: the compiled route, every default path, as a constant mean's (risk_paths)
+    assert a.method == f"simulation ({RISK_PATHS} paths, seed {DEFAULT_SEED}; scrambled Sobol points, importance sampling, last step exact)"
     g = _fit(*CASES[0][:3], series)  # a constant mean: the compiled route, every default path
     assert risk(g, series, 0.99, 10).method.startswith(f"simulation ({RISK_PATHS} paths, ")
+    # an in-mean term: the step-by-step route, where a path costs about twice as much: half the paths
+    m = _fit("GARCH(1,1)-M", "normal", {"mu": 0.01, "lambda_m": 0.05, **{k: v for k, v in GARCH.items() if k != "mu"}},
+             series)
+    assert risk(m, series, 0.99, 10).method.startswith(f"simulation ({RISK_PATHS // 2} paths, ")
     c = risk(f, series, 0.99, 10, paths=5000, seed=3)
     assert c.var != a.var and c.method == "simulation (5000 paths, seed 3; scrambled Sobol points, importance sampling, last step exact)"
     # (the accuracy of the estimator against long plain simulations: tests/test_risk_accuracy.py)
@@ -473,6 +477,67 @@ def test_last_step_interpolants_match_scipy(dist, eta):
         assert abs(MM - quad(lambda z: z * pdf(z), kk)) < 5e-9, kk
 
 
+#: ARMA means over the variance families with compiled paths (risk_sums)
+ARMA_CASES = [
+    ("AR(1)-GARCH(1,1)", "t",
+     {"mu": 0.02, "phi[1]": 0.3, "omega": 0.05, "alpha[1]": 0.1, "beta[1]": 0.88, "nu": 5.0}),
+    ("MA(1)-GJR-GARCH(1,1)", "skewt", {"mu": 0.02, "theta[1]": -0.25, "omega": 0.05, "alpha[1]": 0.03,
+                                       "gamma[1]": 0.15, "beta[1]": 0.85, "nu": 8.0, "lambda": -0.3}),
+    ("ARMA(1,1)-EGARCH(1,1)", "ged", {"mu": 0.02, "phi[1]": 0.5, "theta[1]": -0.2, "omega": 0.01, "alpha[1]": 0.15,
+                                      "gamma[1]": -0.06, "beta[1]": 0.96, "nu": 1.3}),
+    ("AR(1)-EGARCH(1,1)", "normal", {"mu": 0.01, "phi[1]": -0.3, "omega": 0.01, "alpha[1]": 0.15,
+                                     "gamma[1]": -0.06, "beta[1]": 0.96}),
+    ("ARMA(1,1)-GJR-GARCH(1,1)", "normal", {"mu": 0.0, "phi[1]": 0.5, "theta[1]": -0.2, "omega": 0.05,
+                                            "alpha[1]": 0.05, "gamma[1]": 0.1, "beta[1]": 0.85}),
+    ("ARMA(2,2)-GARCH(2,1)", "t", {"mu": 0.02, "phi[1]": 0.3, "phi[2]": -0.1, "theta[1]": -0.1, "theta[2]": 0.05,
+                                   "omega": 0.05, "alpha[1]": 0.05, "alpha[2]": 0.04, "beta[1]": 0.85, "nu": 7.0}),
+    ("ARMA(2,1)-EGARCH(2,1)", "t",
+     {"mu": 0.02, "phi[1]": 0.3, "phi[2]": -0.1, "theta[1]": -0.1, "omega": 0.01, "alpha[1]": 0.1, "alpha[2]": 0.05,
+      "gamma[1]": -0.06, "gamma[2]": 0.02, "beta[1]": 0.95, "nu": 6.0}),
+]
+
+
+@pytest.mark.parametrize("model,dist,params", ARMA_CASES, ids=[c[0] + "-" + c[1] for c in ARMA_CASES])
+def test_compiled_arma_paths_are_the_step_by_step_paths_bit_for_bit(series, model, dist, params):
+    """An ARMA mean's paths in the family's compiled kernels (_compiled_sums: the AR and MA lags
+    starting from the sample's last returns and residuals, the terms added in the step-by-step
+    route's order) against the step-by-step route (forward_steps, whose paths the tests above check
+    against the analytic forecast) from the same scores: the sums (cum), the sum before the last step
+    plus its mean (a_last) and the last volatility (s_last) are the same numbers to the last bit
+    (internal consistency), and so are the paths' weights."""
+    import xlfuncs.core.risk as rmod
+    from xlfuncs.core.families import _compiled
+    from xlfuncs.core.simulate import forward_steps
+
+    if not _compiled._load_numba():
+        pytest.skip("numba is not importable")
+    f = _fit(model, dist, params, series)
+    assert rmod.compiled_route(f.spec, 22)
+    to_shock = f.dist.normal_scores(_eta(f))
+    h, n = 22, rmod.BLOCK + 900  # two blocks of scores, the second a short one
+    compiled = rmod._Scores(h, n, 7, 0.01)
+    out = rmod._compiled_sums(f, series, h, compiled, to_shock)
+    assert out is not None
+    steps = rmod._Scores(h, n, 7, 0.01)
+    last = []
+
+    def draw(k):
+        z = to_shock(steps.step(k))
+        if k == h - 1:
+            last.append(z)
+        return z
+
+    cum = np.zeros(n)
+    for k, (ret, s2) in enumerate(forward_steps(f, series, h, n, None, draw=draw)):
+        if k == h - 1:
+            s_last = np.sqrt(s2)
+            a_last = cum + (ret - s_last * last[0])
+        cum += ret
+    for got, want in zip(out, (cum, a_last, s_last)):
+        assert np.array_equal(got, want)
+    assert np.array_equal(compiled.logw, steps.logw)
+
+
 @pytest.mark.parametrize("model,dist,params", [
     ("GARCH(1,1)", "t", {"mu": 0.02, "omega": 0.05, "alpha[1]": 0.1, "beta[1]": 0.88, "nu": 5.0}),
     ("GJR-GARCH(1,1)", "skewt",
@@ -483,10 +548,10 @@ def test_last_step_interpolants_match_scipy(dist, eta):
     ("EGARCH(2,1)", "t",
      {"mu": 0.02, "omega": 0.01, "alpha[1]": 0.1, "alpha[2]": 0.05, "gamma[1]": -0.06, "gamma[2]": 0.02,
       "beta[1]": 0.95, "nu": 6.0}),
-])
+] + ARMA_CASES)
 def test_compiled_paths_are_the_step_by_step_paths(series, model, dist, params, monkeypatch):
-    """Beyond one period, a constant-mean GARCH-type or EGARCH fit's paths run in the family's
-    compiled kernels (risk_sums); with VOLCAST_NO_JIT=1 they are simulated step by step
+    """Beyond one period, a GARCH-type or EGARCH fit's paths with a constant or ARMA mean run in the
+    family's compiled kernels (risk_sums); with VOLCAST_NO_JIT=1 they are simulated step by step
     (forward_steps, whose paths the tests above check against closed forms and SciPy).  The two
     routes give the same VaR and ES from the same scores (internal consistency)."""
     import xlfuncs.core.risk as rmod
@@ -650,10 +715,17 @@ def test_kernels_with_shared_cells_compiled_and_as_python(series):
     Y = outs[0][0]
     smap = get_distribution("t").normal_scores(np.array([5.0]))
     _, g, dd, half, step = score_map_arrays(smap)
+    none = (np.zeros(0),) * 4  # a constant mean: no AR or MA terms
     cases = [(_linear._risk_sum_loop, (0.02, 0.05, np.array([0.1]), np.array([0.05]), np.array([0.85]),
-                                       np.array([0.3]), np.array([0.0]), np.array([1.1]))),
+                                       np.array([0.3]), np.array([0.0]), np.array([1.1])) + none),
              (_linear._risk_sum_loop, (0.02, 0.05, np.array([0.05, 0.04]), np.zeros(2), np.array([0.5, 0.35]),
-                                       np.array([0.3, 0.2]), np.zeros(2), np.array([1.1, 0.9]))),
+                                       np.array([0.3, 0.2]), np.zeros(2), np.array([1.1, 0.9])) + none),
+             (_linear._risk_sum_loop, (0.02, 0.05, np.array([0.1]), np.array([0.05]), np.array([0.85]),
+                                       np.array([0.3]), np.array([0.0]), np.array([1.1]), np.array([0.4]),
+                                       np.array([-0.2]), np.array([0.7]), np.array([-0.5]))),
+             (_linear._risk_sum_loop, (0.02, 0.05, np.array([0.05, 0.04]), np.zeros(2), np.array([0.5, 0.35]),
+                                       np.array([0.3, 0.2]), np.zeros(2), np.array([1.1, 0.9]), np.array([0.3, -0.1]),
+                                       np.zeros(0), np.array([0.2, 0.7]), np.zeros(0))),
              (egarch._risk_log_variance_loop, (0.01, np.array([0.15]), np.array([-0.06]), np.array([0.96]), 0.8,
                                                np.array([0.1]), np.array([-0.4]), np.array([0.2]))),
              (egarch._risk_log_variance_loop, (0.01, np.array([0.1, 0.05]), np.array([-0.06, 0.02]), np.array([0.95]),
@@ -664,6 +736,16 @@ def test_kernels_with_shared_cells_compiled_and_as_python(series):
             out = (np.empty(700), np.empty(700), np.empty(700)) if kern is _linear._risk_sum_loop else \
                 (np.empty(Y.shape), np.empty(Y.shape))
             assert fn(Y, g, dd, half, step, False, *args, *out) == 1
+            res.append(out)
+        for a, b in zip(*res):
+            assert np.array_equal(a, b)
+    Z, S = Y[:, :300], 1.0 + np.abs(Y[:, 300:600])  # shocks and volatilities for the sums of EGARCH's paths
+    for args in (none, (np.array([0.4]), np.array([-0.2]), np.array([0.7]), np.array([-0.5])),
+                 (np.array([0.3, -0.1]), np.array([0.1]), np.array([0.2, 0.7]), np.array([-0.5]))):
+        res = []
+        for fn in (egarch._risk_sum_loop, egarch._risk_sum_loop.py):
+            out = (np.empty(300), np.empty(300), np.empty(300))
+            assert fn(np.ascontiguousarray(Z), np.ascontiguousarray(S), 0.02, *args, *out) == 1
             res.append(out)
         for a, b in zip(*res):
             assert np.array_equal(a, b)

@@ -14,7 +14,7 @@ horizon        how
                VaR = -(m + s ppf(1 - level)) and ES = -m + s ES_z(level)
 2 and more     seeded simulation of ``paths`` future paths (default
                :func:`risk_paths`: 2^17, 2^16 beyond 150 periods, 2^15 beyond
-               300; half that where the mean is not constant) that continue the
+               300; half that with regressors or an in-mean term) that continue the
                fitted recursions from the end of the sample
                (:func:`forward_steps`),
                with four variance reductions: scrambled Sobol' points (randomised
@@ -35,8 +35,8 @@ horizon        how
                a F(k) + s M(k), M the partial first moment of z, over the weighted
                mean of F(k), k = (x - a)/s; :func:`_tail_solve`, with F, its density
                and partial first moment from interpolants, :class:`_LastLaw`).  For a
-               constant-mean GARCH-type or EGARCH fit the paths run in the family's
-               compiled kernels, a block of paths at a time (:func:`_compiled_sums`),
+               GARCH-type or EGARCH fit with a constant or ARMA mean the paths run in the
+               family's compiled kernels, a block of paths at a time (:func:`_compiled_sums`),
                the same numbers as the step-by-step route
 =============  ====================================================================
 
@@ -114,8 +114,8 @@ _MAX_SEED = 2**31 - 1
 def risk_paths(horizon: int, compiled: bool = True) -> int:
     """The default simulated paths of the risk figures over ``horizon`` periods (beyond one):
     RISK_PATHS where the paths run in the variance family's compiled kernels (``compiled``, see
-    :func:`compiled_route`), half that on the step-by-step route (an ARMA mean, regressors, an
-    in-mean term), where a path costs about twice as much; halved until the draws, paths x
+    :func:`compiled_route`), half that on the step-by-step route (regressors, an in-mean term),
+    where a path costs about twice as much; halved until the draws, paths x
     periods, are at most RISK_DRAWS."""
     paths = RISK_PATHS if compiled else RISK_PATHS // 2
     while paths * horizon > RISK_DRAWS and paths > 1:
@@ -921,12 +921,12 @@ def _conditional_es(dist, eta, a, s, w, cut: float) -> float:
 
 def compiled_route(spec, horizon: int) -> bool:
     """Whether the risk figures' paths over ``horizon`` periods run in the variance family's
-    compiled kernels (:func:`_compiled_sums`): a constant (or zero) mean without regressors or
-    in-mean term, every step's scores quasi-random (:data:`QMC_STEPS`), a family with such kernels,
+    compiled kernels (:func:`_compiled_sums`): a constant (or zero) or ARMA mean without regressors
+    or in-mean term, every step's scores quasi-random (:data:`QMC_STEPS`), a family with such kernels,
     and the kernels compiled."""
     from .families._compiled import jit_enabled
 
-    return not (spec.ar or spec.ma or spec.in_mean or spec.n_regressors) and horizon <= QMC_STEPS \
+    return not (spec.in_mean or spec.n_regressors) and horizon <= QMC_STEPS \
         and bool(spec.family.compiled_paths) and jit_enabled()
 
 
@@ -935,8 +935,9 @@ def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
     kernels, a block of paths at a time (the family's ``sim_sums``: ``risk_sums`` in :mod:`~xlfuncs.core.families._linear`
     and :mod:`~xlfuncs.core.families.egarch`): the sum of the returns, the sum before the last step
     plus its mean, and the last step's volatility, the numbers the step-by-step route
-    (:func:`~xlfuncs.core.simulate.forward_steps`) gives from the same scores.  For a constant (or
-    zero) mean without regressors or in-mean term, when every step's scores are quasi-random
+    (:func:`~xlfuncs.core.simulate.forward_steps`) gives from the same scores, the ARMA terms'
+    lags starting, as there, from the sample's last returns and residuals.  For a constant (or
+    zero) or ARMA mean without regressors or in-mean term, when every step's scores are quasi-random
     (:data:`QMC_STEPS`), so that they and the paths' weights are known before the first step;
     None otherwise, or where the family has no such kernel or numba does not run them.
     """
@@ -949,15 +950,19 @@ def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
 
     resid, var, lik = in_sample(fit, r, X)
     theta = np.asarray(fit.params, dtype=float)
-    mu, _, _, vp, eta = lik.split(theta)
+    mu, phi, tht, vp, eta = lik.split(theta)
     mu = float(mu) if spec.has_mu else 0.0
+    r = np.asarray(r, dtype=float)
+    arma = (np.asarray(phi, dtype=float)[:spec.ar], np.asarray(tht, dtype=float)[:spec.ma],
+            r[len(r) - spec.ar:] if spec.ar else None,
+            np.nan_to_num(resid)[len(resid) - spec.ma:] if spec.ma else None)  # as forward_steps starts them
     state = fam.sim_continue(vp, eta, fit.dist, History(resid[lik.a:], var[lik.a + lik.s0:], lik.s0))
     if not scores.compiled or scores._y is not None:
-        return fam.sim_sums(state, vp, scores.y[:horizon], to_shock, mu)
+        return fam.sim_sums(state, vp, scores.y[:horizon], to_shock, mu, *arma)
     n = scores.paths
     cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
     for i0, Y in scores.blocks():  # scores made a block at a time, while they are in the cache
-        out = fam.sim_sums(state, vp, Y[:horizon], to_shock, mu)
+        out = fam.sim_sums(state, vp, Y[:horizon], to_shock, mu, *arma)
         if out is None:
             return None
         k = Y.shape[1]

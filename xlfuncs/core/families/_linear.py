@@ -746,8 +746,8 @@ class LinearFamily(VarianceFamily):
         if self.q:
             state.s2 = state.s2[1:] + [s2]
 
-    def sim_sums(self, state, vp, Y, score_map, mu):
-        return risk_sums(self, state, vp, Y, score_map, mu)
+    def sim_sums(self, state, vp, Y, score_map, mu, phi=None, theta=None, r_lags=None, e_lags=None):
+        return risk_sums(self, state, vp, Y, score_map, mu, phi, theta, r_lags, e_lags)
 
     # ------------------------------------------------------------------ one observation at a time
     def _bad_shift(self, vp, shift):
@@ -837,27 +837,37 @@ class LinearFamily(VarianceFamily):
 # ------------------------------------------------------------------ the risk figures' paths, compiled
 from ..distributions import score_map_arrays  # noqa: E402
 from ._compiled import hermite_row, jit_enabled, kernel  # noqa: E402  (the section's own; no numba until first call)
+from .base import arma_lags  # noqa: E402
 
 
 @kernel
-def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, e2, n2, s2, cum, a_last, s_last):
+def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, e2, n2, s2, phi, theta, r0, u0,
+                   cum, a_last, s_last):
     """Paths of sigma2 = omega + sum (alpha_i + gamma_i 1(e < 0)) e^2 + sum beta_j sigma2 that start
     from the lags e2, n2 (negative parts), s2 (newest last) and take the normal scores Y (a row per
     step) through the cubic Hermite map of the law's quantiles (nodes gt, slopes dt per step, over
-    [-half, half]; ``ident``: the scores are the shocks).  The return is mu + e; ``cum`` gets the
-    sum of the returns, ``a_last`` the sum up to the last step plus its mean and ``s_last`` its
-    volatility.  Returns 1, or 0 at once if a score lies beyond the map's nodes (the caller then
-    takes the NumPy route, which maps those exactly).
+    [-half, half]; ``ident``: the scores are the shocks).  The return is
+    mu + sum phi_i r[t-i] + sum theta_j e[t-j] + e, the terms added in that order (as the
+    step-by-step route adds them), its lags starting from the returns r0 and the shocks u0 (newest
+    last; ``phi`` and ``theta`` empty for a constant mean); ``cum`` gets the sum of the returns,
+    ``a_last`` the sum up to the last step plus its mean and ``s_last`` its volatility.  Returns 1,
+    or 0 at once if a score lies beyond the map's nodes (the caller then takes the NumPy route,
+    which maps those exactly).
 
     A step at a time over all paths: first the step's shocks (``hermite_row``), then the
     recursion, a loop without branches or indirect indices that the compiler can vectorise; one lag
-    of each kind (GARCH(1,1), GJR-GARCH(1,1)) keeps its lags in one row each, more in ring buffers."""
+    of each kind (GARCH(1,1), GJR-GARCH(1,1), at most one AR and one MA term) keeps its lags in one
+    row each, more in ring buffers."""
     h, n = Y.shape
     p = alpha.shape[0]
     q = beta.shape[0]
+    pr = phi.shape[0]
+    qu = theta.shape[0]
     E2 = np.empty((max(p, 1), n))
     N2 = np.empty((max(p, 1), n))
     S2 = np.empty((max(q, 1), n))
+    R = np.empty((max(pr, 1), n))
+    U = np.empty((max(qu, 1), n))
     Z = np.empty(n)
     for k in range(1, p + 1):  # lag k sits at ring position (-k) mod p at step 0
         pos = (p - k) % p
@@ -868,9 +878,21 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
         pos = (q - k) % q
         for i in range(n):
             S2[pos, i] = s2[q - k]
+    for k in range(1, pr + 1):
+        pos = (pr - k) % pr
+        for i in range(n):
+            R[pos, i] = r0[pr - k]
+    for k in range(1, qu + 1):
+        pos = (qu - k) % qu
+        for i in range(n):
+            U[pos, i] = u0[qu - k]
     pa = np.empty(max(p, 1), dtype=np.int64)
     pb = np.empty(max(q, 1), dtype=np.int64)
-    one = p == 1 and q == 1
+    pc = np.empty(max(pr, 1), dtype=np.int64)
+    pd = np.empty(max(qu, 1), dtype=np.int64)
+    one = p == 1 and q == 1 and pr <= 1 and qu <= 1
+    ph = phi[0] if pr else 0.0
+    th = theta[0] if qu else 0.0
     for i in range(n):
         cum[i] = 0.0
     for t in range(h):
@@ -881,21 +903,44 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
             return 0
         if one and t < h - 1:  # the sums in the order of the step-by-step route's
             a1, g1, b1 = alpha[0], gamma[0], beta[0]
-            le2, ln2, ls2 = E2[0], N2[0], S2[0]
-            for i in range(n):
-                v = omega + a1 * le2[i]
-                v += g1 * ln2[i]
-                v += b1 * ls2[i]
-                e = math.sqrt(v) * Z[i]
-                cum[i] += mu + e
-                le2[i] = e * e
-                ln2[i] = e * e if e < 0 else 0.0
-                ls2[i] = v
+            le2, ln2, ls2, lr, lu = E2[0], N2[0], S2[0], R[0], U[0]
+            if pr == 0 and qu == 0:
+                for i in range(n):
+                    v = omega + a1 * le2[i]
+                    v += g1 * ln2[i]
+                    v += b1 * ls2[i]
+                    e = math.sqrt(v) * Z[i]
+                    cum[i] += mu + e
+                    le2[i] = e * e
+                    ln2[i] = e * e if e < 0 else 0.0
+                    ls2[i] = v
+            else:
+                for i in range(n):
+                    v = omega + a1 * le2[i]
+                    v += g1 * ln2[i]
+                    v += b1 * ls2[i]
+                    e = math.sqrt(v) * Z[i]
+                    ret = mu
+                    if pr:
+                        ret += ph * lr[i]
+                    if qu:
+                        ret += th * lu[i]
+                    ret += e
+                    cum[i] += ret
+                    le2[i] = e * e
+                    ln2[i] = e * e if e < 0 else 0.0
+                    ls2[i] = v
+                    lr[i] = ret
+                    lu[i] = e
             continue
         for k in range(1, p + 1):  # the ring positions of the lags at this step
             pa[k - 1] = (t - k) % p
         for k in range(1, q + 1):
             pb[k - 1] = (t - k) % q
+        for k in range(1, pr + 1):
+            pc[k - 1] = (t - k) % pr
+        for k in range(1, qu + 1):
+            pd[k - 1] = (t - k) % qu
         for i in range(n):
             v = omega
             for k in range(p):
@@ -906,7 +951,12 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
             z = Z[i]
             sig = math.sqrt(v)
             e = sig * z
-            ret = mu + e
+            ret = mu
+            for k in range(pr):
+                ret += phi[k] * R[pc[k], i]
+            for k in range(qu):
+                ret += theta[k] * U[pd[k], i]
+            ret += e
             if t == h - 1:
                 a_last[i] = cum[i] + (ret - sig * z)  # as the step-by-step route rounds it
                 s_last[i] = sig
@@ -917,22 +967,28 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
                 N2[pos, i] = e * e if e < 0 else 0.0
             if q:
                 S2[t % q, i] = v
+            if pr:
+                R[t % pr, i] = ret
+            if qu:
+                U[t % qu, i] = e
     return 1
 
 
-def risk_sums(family, state, vp, Y, score_map, mu):
+def risk_sums(family, state, vp, Y, score_map, mu, phi=None, theta=None, r_lags=None, e_lags=None):
     """(cum, a_last, s_last) of the paths that continue ``state`` (from ``sim_continue``) with the
     normal scores ``Y`` (a row per step) mapped to shocks by ``score_map`` (``Distribution.normal_scores``)
-    and the constant mean ``mu``: the sum of the returns, the sum before the last step plus the last
-    step's mean, and the last step's volatility, as the NumPy route of the simulation gives them
-    (``sim_step``), in one compiled pass.  None where the family keeps its own simulation steps, the
-    kernels run as plain Python, or a score lies beyond the map's nodes: the caller then simulates
-    step by step."""
+    and the mean mu + sum phi_i r[t-i] + sum theta_j e[t-j] (lags from ``r_lags`` and ``e_lags``,
+    newest last; none for a constant mean): the sum of the returns, the sum before the last step plus
+    the last step's mean, and the last step's volatility, as the NumPy route of the simulation gives
+    them (``sim_step``), in one compiled pass.  None where the family keeps its own simulation
+    steps, the kernels run as plain Python, or a score lies beyond the map's nodes: the caller then
+    simulates step by step."""
     if not (jit_enabled() and isinstance(family, LinearFamily)
             and type(family)._sim_variance is LinearFamily._sim_variance
             and type(family)._sim_push is LinearFamily._sim_push
             and type(family)._sim_continue is LinearFamily._sim_continue):
         return None
+    phi, theta, r0, u0 = arma_lags(phi, theta, r_lags, e_lags)
     omega, alpha, gamma, beta = family._coefficients(family._vp(vp))
     alpha = np.asarray(alpha, dtype=float)
     gamma = np.asarray(gamma, dtype=float) if family.asymmetric else np.zeros(len(alpha))
@@ -944,5 +1000,5 @@ def risk_sums(family, state, vp, Y, score_map, mu):
     n = Y.shape[1]
     cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
     ok = _risk_sum_loop(np.ascontiguousarray(Y, dtype=float), gt, dt, half, step, ident, float(mu), float(omega),
-                        alpha, gamma, beta, e2, n2, s2, cum, a_last, s_last)
+                        alpha, gamma, beta, e2, n2, s2, phi, theta, r0, u0, cum, a_last, s_last)
     return (cum, a_last, s_last) if ok else None

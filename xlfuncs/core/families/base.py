@@ -534,14 +534,17 @@ class VarianceFamily:
     #: the family can run whole simulated paths in one compiled pass (:meth:`sim_sums`)
     compiled_paths = False
 
-    def sim_sums(self, state, vp, Y, score_map, mu):
+    def sim_sums(self, state, vp, Y, score_map, mu, phi=None, theta=None, r_lags=None, e_lags=None):
         """(cum, a_last, s_last) of the paths that continue ``state`` (from :meth:`sim_continue`)
         with the normal scores ``Y`` (a row per step) mapped to shocks by ``score_map``
-        (``Distribution.normal_scores``) and the constant mean ``mu``: the sum of the returns, the
-        sum before the last step plus the last step's mean, and the last step's volatility, as
-        :meth:`sim_step` step by step gives them, in one compiled pass of the family's own kernel
-        (``compiled_paths`` families).  None where there is no such pass: the caller then
-        simulates step by step."""
+        (``Distribution.normal_scores``) and the mean r = mu + sum phi_i r[t-i] + sum theta_j e[t-j]
+        + e, the terms added in that order: ``phi`` and ``theta`` the AR and MA coefficients (None
+        or empty for a constant mean), ``r_lags`` the last len(phi) returns of the sample and
+        ``e_lags`` its last len(theta) residuals (newest last; :func:`arma_lags`).  The sum of the
+        returns, the sum before the last step plus the last step's mean, and the last step's
+        volatility, as :meth:`sim_step` step by step gives them, in one compiled pass of the
+        family's own kernel (``compiled_paths`` families).  None where there is no such pass: the
+        caller then simulates step by step."""
         return None
 
     def sim_start(self, vp, eta, dist, paths: int):
@@ -661,3 +664,15 @@ class VarianceFamily:
 
     def _hold(self, vp, total, eta, dist):  # pragma: no cover - families with a nonlinear rule only
         raise NotImplementedError
+
+
+def arma_lags(phi, theta, r_lags, e_lags):
+    """(phi, theta, r0, u0) as the path kernels take them: float arrays, the lags newest last, empty
+    for a constant mean (one entry per coefficient)."""
+    def arr(x):
+        return np.ascontiguousarray(np.zeros(0) if x is None else np.asarray(x, dtype=float).reshape(-1))
+
+    phi, theta, r0, u0 = arr(phi), arr(theta), arr(r_lags), arr(e_lags)
+    if len(r0) != len(phi) or len(u0) != len(theta):
+        raise ValueError("the mean's lags must match its coefficients")
+    return phi, theta, r0, u0

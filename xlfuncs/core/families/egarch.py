@@ -1010,8 +1010,8 @@ class Egarch(VarianceFamily):
         if self.q:
             state.lv = state.lv[1:] + [state.v]
 
-    def sim_sums(self, state, vp, Y, score_map, mu):
-        return risk_sums(self, state, vp, Y, score_map, mu)
+    def sim_sums(self, state, vp, Y, score_map, mu, phi=None, theta=None, r_lags=None, e_lags=None):
+        return risk_sums(self, state, vp, Y, score_map, mu, phi, theta, r_lags, e_lags)
 
     # ------------------------------------------------------------------ one observation at a time
     def _filter_start(self, vp, eta, dist, u, e_lags, presample):
@@ -1091,6 +1091,7 @@ class Egarch(VarianceFamily):
 # ------------------------------------------------------------------ the risk figures' paths, compiled
 from ..distributions import score_map_arrays  # noqa: E402
 from ._compiled import hermite_row, jit_enabled  # noqa: E402  (the section's own)
+from .base import arma_lags  # noqa: E402
 
 
 @kernel
@@ -1151,38 +1152,81 @@ def _risk_log_variance_loop(Y, gt, dt, half, step, ident, omega, alpha, gamma, b
 
 
 @kernel
-def _risk_sum_loop(Z, S, mu, cum, a_last, s_last):
-    """The paths' returns mu + S z summed: ``cum`` gets the sum of the returns, ``a_last`` the sum up
-    to the last step plus its mean and ``s_last`` its volatility (Z the shocks, S the volatilities,
-    a row per step), rounded as the step-by-step route rounds them."""
+def _risk_sum_loop(Z, S, mu, phi, theta, r0, u0, cum, a_last, s_last):
+    """The paths' returns mu + sum phi_i r[t-i] + sum theta_j e[t-j] + S z summed, the terms added
+    in that order (as the step-by-step route adds them), the mean's lags starting from the returns
+    r0 and the shocks u0 (newest last; ``phi`` and ``theta`` empty for a constant mean): ``cum``
+    gets the sum of the returns, ``a_last`` the sum up to the last step plus its mean and ``s_last``
+    its volatility (Z the shocks, S the volatilities, a row per step), rounded as the step-by-step
+    route rounds them."""
     h, n = Z.shape
+    pr = phi.shape[0]
+    qu = theta.shape[0]
+    R = np.empty((max(pr, 1), n))
+    U = np.empty((max(qu, 1), n))
+    for k in range(1, pr + 1):  # lag k sits at ring position (-k) mod pr at step 0
+        pos = (pr - k) % pr
+        for i in range(n):
+            R[pos, i] = r0[pr - k]
+    for k in range(1, qu + 1):
+        pos = (qu - k) % qu
+        for i in range(n):
+            U[pos, i] = u0[qu - k]
+    pc = np.empty(max(pr, 1), dtype=np.int64)
+    pd = np.empty(max(qu, 1), dtype=np.int64)
     for i in range(n):
         cum[i] = 0.0
     for t in range(h):
         zt, st = Z[t], S[t]
-        if t < h - 1:
-            for i in range(n):
-                cum[i] += mu + st[i] * zt[i]
-        else:
-            for i in range(n):
-                sig, z = st[i], zt[i]
-                ret = mu + sig * z
+        if pr == 0 and qu == 0:
+            if t < h - 1:
+                for i in range(n):
+                    cum[i] += mu + st[i] * zt[i]
+            else:
+                for i in range(n):
+                    sig, z = st[i], zt[i]
+                    ret = mu + sig * z
+                    a_last[i] = cum[i] + (ret - sig * z)
+                    s_last[i] = sig
+                    cum[i] += ret
+            continue
+        for k in range(1, pr + 1):  # the ring positions of the lags at this step
+            pc[k - 1] = (t - k) % pr
+        for k in range(1, qu + 1):
+            pd[k - 1] = (t - k) % qu
+        last = t == h - 1
+        for i in range(n):
+            sig, z = st[i], zt[i]
+            e = sig * z
+            ret = mu
+            for k in range(pr):
+                ret += phi[k] * R[pc[k], i]
+            for k in range(qu):
+                ret += theta[k] * U[pd[k], i]
+            ret += e
+            if last:
                 a_last[i] = cum[i] + (ret - sig * z)
                 s_last[i] = sig
-                cum[i] += ret
+            cum[i] += ret
+            if pr:
+                R[t % pr, i] = ret
+            if qu:
+                U[t % qu, i] = e
     return 1
 
 
-def risk_sums(family, state, vp, Y, score_map, mu):
+def risk_sums(family, state, vp, Y, score_map, mu, phi=None, theta=None, r_lags=None, e_lags=None):
     """(cum, a_last, s_last) of the paths that continue ``state`` (from ``sim_continue``) with the
     normal scores ``Y`` (a row per step) mapped to shocks by ``score_map`` (``Distribution.normal_scores``)
-    and the constant mean ``mu``: the NumPy route's numbers (``sim_step``).  Two compiled passes
-    with NumPy's exponential and square root between them, the functions that route calls (and
-    several times faster over a block than the C library's exp a value at a time).  None where the
-    kernels run as plain Python or a score lies beyond the map's nodes: the caller then simulates
-    step by step."""
+    and the mean mu + sum phi_i r[t-i] + sum theta_j e[t-j] (lags from ``r_lags`` and ``e_lags``,
+    newest last; none for a constant mean): the NumPy route's numbers (``sim_step``).  Two compiled
+    passes with NumPy's exponential and square root between them, the functions that route calls
+    (and several times faster over a block than the C library's exp a value at a time).  None where
+    the kernels run as plain Python or a score lies beyond the map's nodes: the caller then
+    simulates step by step."""
     if not (jit_enabled() and isinstance(family, Egarch) and state.clip):
         return None
+    phi, theta, r0, u0 = arma_lags(phi, theta, r_lags, e_lags)
     omega, alpha, gamma, beta = family._split(family._vp(vp))
     g0 = np.array([float(x) for x in state.g], dtype=float)
     z0 = np.array([float(x) for x in state.z], dtype=float)
@@ -1198,5 +1242,5 @@ def risk_sums(family, state, vp, Y, score_map, mu):
     np.sqrt(S, out=S)
     n = Y.shape[1]
     cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
-    _risk_sum_loop(Z, S, float(mu), cum, a_last, s_last)
+    _risk_sum_loop(Z, S, float(mu), phi, theta, r0, u0, cum, a_last, s_last)
     return cum, a_last, s_last
