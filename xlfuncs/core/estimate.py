@@ -700,12 +700,13 @@ def _polish(problem: _Problem, u, scales, sbounds, max_steps=8):
     return u, H, dec, active, taken
 
 
-def _held_step(solve, M, g, u, lo, hi, eps):
+def _held_step(solve, M, g, u, on_lo_below, on_hi_above):
     """(step, held): the step M^-1 g of the parameters not held at a bound, by ``solve``; held are
-    those on a bound (``lo``, ``hi``, within ``eps``) with the gradient ``g`` pushing outwards, and
+    those on a bound (at or below ``on_lo_below``, at or above ``on_hi_above``: the bounds with a
+    closeness) with the gradient ``g`` pushing outwards, and
     those on one that the step would cross (a metric that is not diagonal can point a parameter
     outwards against its own gradient).  Without bounds reached, ``solve(M, g)`` itself."""
-    on_lo, on_hi = u - lo <= eps, hi - u <= eps
+    on_lo, on_hi = u <= on_lo_below, u >= on_hi_above
     m = len(u)
     if not (on_lo.any() or on_hi.any()):  # no bound reached: the plain step
         return solve(M, g), np.zeros(m, dtype=bool)
@@ -765,6 +766,7 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     clo, chi = np.where(kept, lo, -np.inf), np.where(kept, hi, np.inf)  # where a step stops
     slo, shi = np.where(kept, -np.inf, lo), np.where(kept, np.inf, hi)  # strict bounds
     eps = 1e-9 * scales  # a parameter this close to a kept bound is on it
+    on_lo, on_hi = clo + eps, chi - eps
 
     def inside(u):  # in the box (closed where bounds are kept) and admissible
         return bool((u >= lo).all() and (u <= hi).all() and (u > slo).all() and (u < shi).all()) \
@@ -796,14 +798,14 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     u = np.array(u0, dtype=float)
     if not inside(u):
         return None
-    start_on = (u - clo <= eps) | (chi - u <= eps)  # the bounds the start is on
+    start_on = (u <= on_lo) | (u >= on_hi)  # the bounds the start is on
     f, g, B = local(u)
     if not math.isfinite(f):
         return None
     it = 0
     for it in range(1, max_iter + 1):
         try:
-            step, held = _held_step(_solve, B, g, u, clo, chi, eps)
+            step, held = _held_step(_solve, B, g, u, on_lo, on_hi)
         except np.linalg.LinAlgError:
             return None
         dec = float(g @ step)
@@ -836,7 +838,7 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
         u, f, g, B = cand, fc, gc, Bc
     else:
         return None
-    out = _newton(problem, u, f, g, inside, value_grad, box=(clo, chi, eps))
+    out = _newton(problem, u, f, g, inside, value_grad, box=(clo, chi, on_lo, on_hi))
     if out is None:
         return None
     u, H, dec, taken, held = out
@@ -856,7 +858,7 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
 def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80, box=None):
     """Newton steps from u (log-likelihood f, gradient g) to the maximum, with step control;
     returns (u, H, Newton decrement, steps taken, held), or None where it gives up.  ``box``:
-    (lower, upper, closeness) bounds kept by projection (a step that crosses one stops on it); ``held``
+    (lower, upper, and the two with a closeness: on a bound within it) bounds kept by projection (a step that crosses one stops on it); ``held``
     marks the parameters on a bound with the gradient pushing outwards (the active set, renewed
     at every step), whose Newton steps are zero and which the decrement leaves out.
 
@@ -904,7 +906,7 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80, box=Non
             if box is None:
                 plain = _pd_solve(M, g)
             else:  # the active set, renewed at every step
-                plain, held = _held_step(_pd_solve, M, g, u, box[0], box[1], box[2])
+                plain, held = _held_step(_pd_solve, M, g, u, box[2], box[3])
                 fr = ~held if held.any() else None
             dec = float(g @ plain)
         except np.linalg.LinAlgError:
@@ -950,7 +952,7 @@ def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80, box=Non
                 if box is None:
                     step = _pd_solve(M + damp * np.diag(scale), g)
                 else:
-                    step, held = _held_step(_pd_solve, M + damp * np.diag(scale), g, u, box[0], box[1], box[2])
+                    step, held = _held_step(_pd_solve, M + damp * np.diag(scale), g, u, box[2], box[3])
                     fr = ~held if held.any() else None
             except np.linalg.LinAlgError:
                 damp = max(10.0 * damp, 1e-4)
