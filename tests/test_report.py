@@ -312,6 +312,38 @@ def test_report_reproducibility_block(workbook_report, book_inputs):
     assert repro["simulation seed (VaR/ES beyond one period)"] == "20240531"
 
 
+def test_report_states_the_paths_volrisk_simulated(workbook_report, book_inputs):
+    """The paths the report says its VaR/ES beyond one period come from are the ones each VOLRISK
+    call states in its method row (a stale default once stood there: 20,000 against 131,072)."""
+    _, text = workbook_report
+    b = book_inputs
+    c = cells(b["r"])
+    fit = VOLFIT(c, b["model"], b["dist"], b["options"])
+    used = set()
+    for row in tables(text)["term"][1:]:
+        h = int(row[1])
+        if h > 1:
+            method = measures(VOLRISK(c, fit, b["level"], h))["method"]
+            used.add(int(re.search(r"\((\d+) paths", method).group(1)))
+    repro = dict((r[0], r[1]) for r in tables(text)["repro"][1:])
+    stated = repro["simulated paths (VaR/ES beyond one period)"]
+    assert {int(x.replace(",", "")) for x in re.findall(r"([\d,]+) simulated paths", stated)} == used
+    assert f"from {stated} (seed" in text
+
+
+def test_paths_in_words_name_each_count_with_its_horizons():
+    from xlfuncs.report import _paths_words
+
+    steps = [21 * k for k in range(1, 13)]  # a daily series' months
+    assert _paths_words({h: 131072 for h in steps}, steps, "month") == "131,072 simulated paths"
+    mixed = {h: (131072 if h <= 63 else 65536) for h in steps}
+    assert _paths_words(mixed, steps, "month") == \
+        "131,072 simulated paths at months 1-3, 65,536 simulated paths at months 4-12"
+    one = {h: (131072 if h <= 231 else 65536) for h in steps}
+    assert _paths_words(one, steps, "month").endswith("65,536 simulated paths at month 12")
+    assert _paths_words({2: 131072}, [1, 2], "period") == "131,072 simulated paths"  # one period is exact
+
+
 def test_csv_report_with_levels_and_dates(tmp_path, capsys):
     out = tmp_path / "r.html"
     # 2,000 simulated paths instead of 20,000 keep the test short; the figures are checked against

@@ -299,7 +299,7 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
     from .core.comparison import diebold_mariano
     from .core.distributions import get_distribution
     from .core.estimate import fit as core_fit
-    from .core.forecast import DEFAULT_PATHS, DEFAULT_SEED
+    from .core.forecast import DEFAULT_SEED
     from .core.spec import parse_model, parse_options
     from .sheet.fittable import encode
     from .sheet.functions import fit_from_cells
@@ -445,8 +445,13 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
     steps = [max(1, round(k * per_month)) for k in range(1, 13)] if per_month else list(range(1, 13))
     out["horizons"] = steps
     out["horizon_unit"] = "month" if per_month else "period"
-    with clock.step(f"forecast term structure and VaR/ES at {len(steps)} horizons ({DEFAULT_PATHS if not opts.paths else opts.paths:,} "
-                    "simulated paths beyond one period)"):
+    # the paths VOLRISK simulates at each horizon beyond one period, as the core chooses them
+    from .core.risk import compiled_route, risk_paths
+
+    paths_at = {h: opts.paths or risk_paths(h, compiled_route(spec, h)) for h in steps if h > 1}
+    out["paths_words"] = _paths_words(paths_at, steps, out["horizon_unit"])
+    with clock.step(f"forecast term structure and VaR/ES at {len(steps)} horizons ({out['paths_words']} "
+                    "beyond one period)"):
         H = max(steps)
         fc = _check_cells(sheet.VOLFORECAST(cells, fit_table, H, "table"), "VOLFORECAST")
         out["forecast_table"] = fc
@@ -458,8 +463,24 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
                          "risk": rk})
     out["term"] = term
     out["seed"] = opts.seed if opts.seed is not None else DEFAULT_SEED
-    out["paths_n"] = opts.paths or DEFAULT_PATHS
     return out
+
+
+def _paths_words(paths_at: dict, steps: list, unit: str) -> str:
+    """The simulated paths of the risk figures in words: "131,072 simulated paths", or where they
+    differ between horizons (fewer over long ones) each count with its horizons, numbered as the
+    term structure numbers them (the k-th month or period)."""
+    groups: list = []  # [paths, [k, ...]]
+    for k, h in enumerate(steps, start=1):
+        if h in paths_at:
+            if groups and groups[-1][0] == paths_at[h]:
+                groups[-1][1].append(k)
+            else:
+                groups.append([paths_at[h], [k]])
+    if len(groups) == 1:
+        return f"{groups[0][0]:,} simulated paths"
+    return ", ".join(f"{n:,} simulated paths at {unit}s {ks[0]}-{ks[-1]}" if len(ks) > 1 else
+                     f"{n:,} simulated paths at {unit} {ks[0]}" for n, ks in groups)
 
 
 def _soft(make):
@@ -902,7 +923,7 @@ def _rest(add, src, res, figs, fit, opts, now, command):
     add(f"<p>Volatility of the cumulative return over the next 1..12 {unit}s (the square root of "
         "<code>VOLFORECAST</code>'s cumvar), and VaR and ES at "
         f"{res['level']:.1%} of that cumulative return as <code>VOLRISK</code> gives them: exact for one period, "
-        f"from {res['paths_n']:,} simulated paths (seed {res['seed']}) beyond. <b>VaR and ES (log-return units)</b> "
+        f"from {res['paths_words']} (seed {res['seed']}) beyond. <b>VaR and ES (log-return units)</b> "
         "are losses of the cumulative return in the units of the returns"
         + (" (percent log returns): a VaR of 10 means a log return of -10%, not a loss of 10% of the value" if opts.returns == "log100" else "")
         + ". " + ("<b>VaR and ES in % of value</b> are the loss as a percentage of the position's value, from the "
@@ -952,7 +973,7 @@ def _rest(add, src, res, figs, fit, opts, now, command):
             ["EWMA baseline", f"EWMA, {res['ewma_options']}, normal shocks"],
             ["candidates", ", ".join(res["compare_models"]) + " x " + ", ".join(res["compare_dists"])],
             ["simulation seed (VaR/ES beyond one period)", res["seed"]],
-            ["simulated paths", res["paths_n"]],
+            ["simulated paths (VaR/ES beyond one period)", res["paths_words"]],
             ["ES test seed (bootstrap 10,000, Z2 2,000 samples)", 20240531],
             ["Python", platform.python_version()], ["NumPy", np.__version__], ["SciPy", scipy.__version__],
             ["Matplotlib", matplotlib.__version__], ["platform", platform.platform()]]
