@@ -310,6 +310,9 @@ def test_report_reproducibility_block(workbook_report, book_inputs):
     assert repro["model"] == book_inputs["model"] and repro["dist"] == book_inputs["dist"]
     assert repro["SciPy"] == scipy.__version__ and repro["NumPy"] == np.__version__
     assert repro["simulation seed (VaR/ES beyond one period)"] == "20240531"
+    from xlfuncs.core.esbacktest import BOOTSTRAP, SEED, SIMULATIONS  # what the ES tests ran with
+
+    assert repro[f"ES test seed (bootstrap {BOOTSTRAP:,}, Z2 {SIMULATIONS:,} samples)"] == str(SEED)
 
 
 def test_report_states_the_paths_volrisk_simulated(workbook_report, book_inputs):

@@ -960,6 +960,8 @@ def _rest(add, src, res, figs, fit, opts, now, command):
         "relying on it.</li></ul></div></section>")
 
     # 10 reproducibility
+    from .core import esbacktest as es_tests
+
     add('<section id="s10"><h2>10. Reproducibility</h2>')
     rows = [["Volcast version", __version__], ["made at", now], ["input file", Path(src.path).name],
             ["SHA-256 of the input file", src.file_sha256],
@@ -974,7 +976,7 @@ def _rest(add, src, res, figs, fit, opts, now, command):
             ["candidates", ", ".join(res["compare_models"]) + " x " + ", ".join(res["compare_dists"])],
             ["simulation seed (VaR/ES beyond one period)", res["seed"]],
             ["simulated paths (VaR/ES beyond one period)", res["paths_words"]],
-            ["ES test seed (bootstrap 10,000, Z2 2,000 samples)", 20240531],
+            [f"ES test seed (bootstrap {es_tests.BOOTSTRAP:,}, Z2 {es_tests.SIMULATIONS:,} samples)", es_tests.SEED],
             ["Python", platform.python_version()], ["NumPy", np.__version__], ["SciPy", scipy.__version__],
             ["Matplotlib", matplotlib.__version__], ["platform", platform.platform()]]
     if command:
