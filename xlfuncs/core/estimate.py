@@ -701,14 +701,14 @@ def _polish(problem: _Problem, u, scales, sbounds, max_steps=8):
 
 
 def _held_step(solve, M, g, u, on_lo_below, on_hi_above):
-    """(step, held): the step M^-1 g of the parameters not held at a bound, by ``solve``; held are
-    those on a bound (at or below ``on_lo_below``, at or above ``on_hi_above``: the bounds with a
-    closeness) with the gradient ``g`` pushing outwards, and
-    those on one that the step would cross (a metric that is not diagonal can point a parameter
-    outwards against its own gradient).  Without bounds reached, ``solve(M, g)`` itself."""
+    """(step, held): the step M^-1 g of the parameters not held at a bound, by ``solve``.  Held
+    are those on a bound (at or below ``on_lo_below``, at or above ``on_hi_above``: the bounds
+    with a closeness) with the gradient ``g`` pushing outwards, and those on one that the step
+    would cross (a metric that is not diagonal can point a parameter outwards against its own
+    gradient).  Without a bound reached, ``solve(M, g)`` itself."""
     on_lo, on_hi = u <= on_lo_below, u >= on_hi_above
     m = len(u)
-    if not (on_lo.any() or on_hi.any()):  # no bound reached: the plain step
+    if not (on_lo | on_hi).any():  # no bound reached: the plain step
         return solve(M, g), np.zeros(m, dtype=bool)
     held = (on_lo & (g < 0.0)) | (on_hi & (g > 0.0))
     for _ in range(m + 1):
@@ -730,7 +730,7 @@ def _held_step(solve, M, g, u, on_lo_below, on_hi_above):
 def _reach(u, step, lo, hi) -> float:
     """The largest t (at most 1) for which u + t step stays within [lo, hi]."""
     end = u + step
-    if (end >= lo).all() and (end <= hi).all():
+    if ((end >= lo) & (end <= hi)).all():
         return 1.0
     with np.errstate(divide="ignore", invalid="ignore"):
         room = np.where(step < 0.0, (lo - u) / step, np.where(step > 0.0, (hi - u) / step, np.inf))
@@ -762,15 +762,20 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
     # the variance and shape parameters' bounds are kept by projection (a maximum may lie on
     # them); the mean's (an AR or MA coefficient's +-0.9999) only fence off the non-stationary or
     # non-invertible region, and a point stays strictly inside them
-    kept = np.array([i >= problem.lik.n_mean for i in problem.free], dtype=bool)
+    kept = problem.free >= problem.lik.n_mean
     clo, chi = np.where(kept, lo, -np.inf), np.where(kept, hi, np.inf)  # where a step stops
     slo, shi = np.where(kept, -np.inf, lo), np.where(kept, np.inf, hi)  # strict bounds
     eps = 1e-9 * scales  # a parameter this close to a kept bound is on it
     on_lo, on_hi = clo + eps, chi - eps
 
+    strict = bool(np.isfinite(slo).any() or np.isfinite(shi).any())  # an AR or MA part
+
     def inside(u):  # in the box (closed where bounds are kept) and admissible
-        return bool((u >= lo).all() and (u <= hi).all() and (u > slo).all() and (u < shi).all()) \
-            and problem.admissible(problem.full(u))
+        if not ((u >= lo) & (u <= hi)).all():
+            return False
+        if strict and not ((u > slo) & (u < shi)).all():
+            return False
+        return problem.admissible(problem.full(u))
 
     def value_grad(u):  # log-likelihood and its gradient
         f, g = problem.fun_grad(u)
@@ -858,9 +863,10 @@ def _bhhh(problem: _Problem, u0, scales, bounds, max_iter=60):
 def _newton(problem: _Problem, u, f, g, inside, value_grad, max_iter=80, box=None):
     """Newton steps from u (log-likelihood f, gradient g) to the maximum, with step control;
     returns (u, H, Newton decrement, steps taken, held), or None where it gives up.  ``box``:
-    (lower, upper, and the two with a closeness: on a bound within it) bounds kept by projection (a step that crosses one stops on it); ``held``
-    marks the parameters on a bound with the gradient pushing outwards (the active set, renewed
-    at every step), whose Newton steps are zero and which the decrement leaves out.
+    (lower, upper, lower + closeness, upper - closeness) of the bounds kept as an active set (a
+    step that would cross one stops where it reaches it); ``held`` marks the parameters on a
+    bound with the gradient, or the step, pushing outwards (renewed at every step), whose Newton
+    steps are zero and which the decrement leaves out.
 
     The Hessian is the closed form at every step where the likelihood has it (:attr:`_Problem.
     exact_hessian`: one pass gives value, scores and Hessian, and the last one serves the
