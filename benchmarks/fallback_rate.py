@@ -55,7 +55,7 @@ CASES = [
 
 class Counter:
     def __init__(self):
-        self.grad = self.hess = self.fallback = 0
+        self.grad = self.hess = self.fallback = self.lbfgsb = 0
 
     def install(self):
         P = estimate._Problem
@@ -84,7 +84,13 @@ class Counter:
                 counter.fallback += 1
             return out
 
-        P.fun_grad, P.hessian, estimate._bhhh = fun_grad, hessian, bhhh
+        orig_o = estimate._optimise
+
+        def optimise(*a, **k):  # an L-BFGS-B run (a start the fast path gave up on)
+            counter.lbfgsb += 1
+            return orig_o(*a, **k)
+
+        P.fun_grad, P.hessian, estimate._bhhh, estimate._optimise = fun_grad, hessian, bhhh, optimise
 
 
 def main(argv=None):
@@ -120,19 +126,21 @@ def main(argv=None):
 
 def _windows_report(c, label, jobs):
     """Run (returns, model, dist, starts-from-the-previous-fit) jobs; print the fallback count."""
-    left = pressed = 0
+    left = pressed = runs = 0
     t0 = time.process_time()
     prev = {}
     for r, model, dist, warm in jobs:
-        c.fallback = 0
+        c.fallback = c.lbfgsb = 0
         starts = prev.get((model, dist), ()) if warm else ()
         f = estimate.fit(r, model, dist, starts=starts)
         prev[(model, dist)] = (f.params,)
         if c.fallback:
             left += 1
             pressed += "held at the stationarity bound" in f.message
+        runs += bool(c.lbfgsb)
     cpu = time.process_time() - t0
     print(f"{label}: {left} of {len(jobs)} fits left the fast path ({pressed} of them ended held on the stationarity bound); "
+          f"{runs} ran L-BFGS-B; "
           f"{cpu:.2f} s CPU, {1e3 * cpu / len(jobs):.1f} ms a fit")
 
 
