@@ -27,8 +27,8 @@ from __future__ import annotations
 import os
 import types
 
-__all__ = ["kernel", "Kernel", "device", "Device", "hermite_cell", "hermite_row", "jit_enabled", "jit_state",
-           "compiled_loaded"]
+__all__ = ["kernel", "Kernel", "device", "Device", "ring_start", "hermite_cell", "hermite_row", "jit_enabled",
+           "jit_state", "compiled_loaded"]
 
 _ENV = "VOLCAST_NO_JIT"
 _numba = None  # the numba module once imported; False when it cannot be
@@ -143,6 +143,18 @@ def device(fn) -> Device:
 def kernel(fn) -> Kernel:
     """Decorator: ``fn`` runs compiled by numba from its first call, plain Python without it."""
     return Kernel(fn)
+
+
+@device
+def ring_start(out, last, m):
+    """The ring of ``m`` lags that a path kernel steps through, at step 0 and the same in every
+    path (a column of ``out`` each): lag k, the k-th value from the end of ``last``, at ring
+    position (-k) mod m."""
+    for k in range(1, m + 1):
+        pos = (m - k) % m
+        v = last[m - k]
+        for i in range(out.shape[1]):
+            out[pos, i] = v
 
 
 @device

@@ -836,7 +836,7 @@ class LinearFamily(VarianceFamily):
 
 # ------------------------------------------------------------------ the risk figures' paths, compiled
 from ..distributions import score_map_arrays  # noqa: E402
-from ._compiled import hermite_row, jit_enabled, kernel  # noqa: E402  (the section's own; no numba until first call)
+from ._compiled import hermite_row, jit_enabled, kernel, ring_start  # noqa: E402  (the section's own; no numba until first call)
 from .base import arma_lags  # noqa: E402
 
 
@@ -869,23 +869,11 @@ def _risk_sum_loop(Y, gt, dt, half, step, ident, mu, omega, alpha, gamma, beta, 
     R = np.empty((max(pr, 1), n))
     U = np.empty((max(qu, 1), n))
     Z = np.empty(n)
-    for k in range(1, p + 1):  # lag k sits at ring position (-k) mod p at step 0
-        pos = (p - k) % p
-        for i in range(n):
-            E2[pos, i] = e2[p - k]
-            N2[pos, i] = n2[p - k]
-    for k in range(1, q + 1):
-        pos = (q - k) % q
-        for i in range(n):
-            S2[pos, i] = s2[q - k]
-    for k in range(1, pr + 1):
-        pos = (pr - k) % pr
-        for i in range(n):
-            R[pos, i] = r0[pr - k]
-    for k in range(1, qu + 1):
-        pos = (qu - k) % qu
-        for i in range(n):
-            U[pos, i] = u0[qu - k]
+    ring_start(E2, e2, p)  # lag k sits at ring position (-k) mod p at step 0
+    ring_start(N2, n2, p)
+    ring_start(S2, s2, q)
+    ring_start(R, r0, pr)
+    ring_start(U, u0, qu)
     pa = np.empty(max(p, 1), dtype=np.int64)
     pb = np.empty(max(q, 1), dtype=np.int64)
     pc = np.empty(max(pr, 1), dtype=np.int64)

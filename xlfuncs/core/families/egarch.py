@@ -1090,7 +1090,7 @@ class Egarch(VarianceFamily):
 
 # ------------------------------------------------------------------ the risk figures' paths, compiled
 from ..distributions import score_map_arrays  # noqa: E402
-from ._compiled import hermite_row, jit_enabled  # noqa: E402  (the section's own)
+from ._compiled import hermite_row, jit_enabled, ring_start  # noqa: E402  (the section's own)
 from .base import arma_lags  # noqa: E402
 
 
@@ -1164,14 +1164,8 @@ def _risk_sum_loop(Z, S, mu, phi, theta, r0, u0, cum, a_last, s_last):
     qu = theta.shape[0]
     R = np.empty((max(pr, 1), n))
     U = np.empty((max(qu, 1), n))
-    for k in range(1, pr + 1):  # lag k sits at ring position (-k) mod pr at step 0
-        pos = (pr - k) % pr
-        for i in range(n):
-            R[pos, i] = r0[pr - k]
-    for k in range(1, qu + 1):
-        pos = (qu - k) % qu
-        for i in range(n):
-            U[pos, i] = u0[qu - k]
+    ring_start(R, r0, pr)  # lag k sits at ring position (-k) mod pr at step 0
+    ring_start(U, u0, qu)
     pc = np.empty(max(pr, 1), dtype=np.int64)
     pd = np.empty(max(qu, 1), dtype=np.int64)
     for i in range(n):
