@@ -12,6 +12,7 @@ for an optimiser and every number is reproducible.
 """
 
 import math
+import os
 
 import numpy as np
 import pytest
@@ -28,6 +29,11 @@ from xlfuncs.core.risk import DEFAULT_PATHS, RISK_PATHS, Risk, risk
 from xlfuncs.core.simulate import simulate_forward
 
 Z_TOL = 4.5  # Monte Carlo tolerance, in standard errors
+
+
+# tests that compare the compiled route with the step-by-step one, or ask which served
+needs_jit = pytest.mark.skipif(os.environ.get("VOLCAST_NO_JIT", "") not in ("", "0"),
+                               reason="VOLCAST_NO_JIT=1 turns the compiled route off")
 
 
 def _fit(model, dist, params, r, options=None):
@@ -305,6 +311,7 @@ def test_first_simulated_step_is_the_one_step_forecast(series, model, dist, para
     assert np.all(np.isfinite(x)) and np.all(s2 > 0)
 
 
+@needs_jit
 def test_risk_is_reproducible_and_uses_the_seeded_paths(series):
     f = _fit(*CASES[1][:3], series)
     a = risk(f, series, 0.99, 10)
@@ -497,6 +504,7 @@ ARMA_CASES = [
 ]
 
 
+@needs_jit
 @pytest.mark.parametrize("model,dist,params", ARMA_CASES, ids=[c[0] + "-" + c[1] for c in ARMA_CASES])
 def test_compiled_arma_paths_are_the_step_by_step_paths_bit_for_bit(series, model, dist, params):
     """An ARMA mean's paths in the family's compiled kernels (_compiled_sums: the AR and MA lags
@@ -538,6 +546,7 @@ def test_compiled_arma_paths_are_the_step_by_step_paths_bit_for_bit(series, mode
     assert np.array_equal(compiled.logw, steps.logw)
 
 
+@needs_jit
 @pytest.mark.parametrize("model,dist,params", [
     ("GARCH(1,1)", "t", {"mu": 0.02, "omega": 0.05, "alpha[1]": 0.1, "beta[1]": 0.88, "nu": 5.0}),
     ("GJR-GARCH(1,1)", "skewt",
