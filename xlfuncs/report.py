@@ -446,9 +446,9 @@ def compute(src: Source, clock=None, estimations: int = ESTIMATIONS) -> dict:
     out["horizons"] = steps
     out["horizon_unit"] = "month" if per_month else "period"
     # the paths VOLRISK simulates at each horizon beyond one period, as the core chooses them
-    from .core.risk import compiled_route, risk_paths
+    from .core.risk import default_paths
 
-    paths_at = {h: opts.paths or risk_paths(h, compiled_route(spec, h)) for h in steps if h > 1}
+    paths_at = {h: opts.paths or default_paths(spec, h) for h in steps if h > 1}
     out["paths_words"] = _paths_words(paths_at, steps, out["horizon_unit"])
     with clock.step(f"forecast term structure and VaR/ES at {len(steps)} horizons ({out['paths_words']} "
                     "beyond one period)"):

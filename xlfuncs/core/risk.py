@@ -93,7 +93,7 @@ from .spec import RETURN_DEFINITIONS
 #: scipy.integrate (with scipy.optimize, ~0.3 s CPU to import) only for one period's value loss
 integrate = lazy_module("scipy.integrate")
 
-__all__ = ["Risk", "risk", "risk_paths", "DEFAULT_PATHS", "RISK_PATHS", "RISK_LONG", "RISK_DRAWS", "MIN_PATHS", "MAX_PATHS",
+__all__ = ["Risk", "risk", "risk_paths", "default_paths", "DEFAULT_PATHS", "RISK_PATHS", "RISK_LONG", "RISK_DRAWS", "MIN_PATHS", "MAX_PATHS",
            "RETURN_DEFINITIONS"]
 
 #: the simulated paths behind the risk figures beyond one period when the fit's options do not
@@ -930,6 +930,12 @@ def compiled_route(spec, horizon: int) -> bool:
         and bool(spec.family.compiled_paths) and jit_enabled()
 
 
+def default_paths(spec, horizon: int) -> int:
+    """The paths the risk figures of a model ``spec`` simulate over ``horizon`` periods when none
+    are asked for: :func:`risk_paths` on the route its paths take (:func:`compiled_route`)."""
+    return risk_paths(horizon, compiled_route(spec, horizon))
+
+
 def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
     """(cum, a_last, s_last) of the simulated paths from the variance family's own compiled
     kernels, a block of paths at a time (the family's ``sim_sums``: ``risk_sums`` in :mod:`~xlfuncs.core.families._linear`
@@ -993,7 +999,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     level = _check_level(level)
     horizon = _whole(horizon, "horizon", 1, MAX_HORIZON)
     fc_paths = None if paths is None else _whole(paths, "paths", MIN_PATHS, MAX_PATHS)
-    paths = risk_paths(horizon, compiled_route(fit.spec, horizon)) if fc_paths is None else fc_paths
+    paths = default_paths(fit.spec, horizon) if fc_paths is None else fc_paths
     seed = DEFAULT_SEED if seed is None else _whole(seed, "seed", 0, _MAX_SEED)
     if returns is None:
         returns = getattr(getattr(fit, "options", None), "returns", None)
