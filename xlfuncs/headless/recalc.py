@@ -99,7 +99,11 @@ class RecalcReport:
 class Workbook:
     """The cells of a workbook, evaluated on demand."""
 
-    def __init__(self, path, dynamic_hint=(), fast: bool = True):
+    def __init__(self, path, dynamic_hint=(), fast: bool = True, book=None):
+        """``book``: the workbook ``path`` holds, already loaded by openpyxl and perhaps edited
+        in memory since (a refresh's new rows), read instead of loading ``path`` again; the
+        cells are then read from it, and ``path`` serves for what openpyxl does not keep (the
+        spill marking, the application that saved it)."""
         from .xlsxpost import check_package, dynamic_anchors
 
         self.path = Path(path)
@@ -107,9 +111,9 @@ class Workbook:
             check_package(self.path)
         except ValueError as exc:
             raise RecalcError(str(exc)) from None
-        self._book = None
+        self._book = book
         data = None
-        if fast and not os.environ.get("VOLCAST_OPENPYXL_READ"):
+        if fast and book is None and not os.environ.get("VOLCAST_OPENPYXL_READ"):
             from .fastread import NotPlain, read_cells
 
             try:  # the cells read straight from the package's XML; openpyxl where that reader declines
@@ -1145,12 +1149,14 @@ def _top_left(result):
 
 
 # ---------------------------------------------------------------------- writing
-def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_write=None) -> tuple:
+def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_write=None, book=None) -> tuple:
     """Recalculate ``src`` and write ``dst`` (default BOOK.recalc.xlsx beside it); never the input.
 
     Returns (output path, report).  Writes to a temporary file and renames it into place.
     ``before_write(workbook)``, if given, runs once every value is computed and may set constant
-    cells of ``workbook.book`` (the estimate history does).
+    cells of ``workbook.book`` (the estimate history does).  ``book``: ``src`` as openpyxl loaded
+    it, perhaps edited in memory (a refresh's new rows): recalculated and written as it stands,
+    without saving and loading it again (see :class:`Workbook`); the openpyxl route writes it.
     """
     src = Path(src)
     if not src.exists():
@@ -1164,12 +1170,13 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
         raise RecalcError(f"{dst}: refusing to write over the input; choose another output with -o")
 
     # the openpyxl route writes through the book openpyxl loads: read with it then
-    wb = Workbook(src, dynamic_hint, fast=before_write is None and not values_only).evaluate_all()
+    wb = Workbook(src, dynamic_hint, fast=before_write is None and not values_only and book is None,
+                  book=book).evaluate_all()
     report = wb.collect_errors()
     wb.check_unread()
     if before_write is not None:
         before_write(wb)
-    elif not values_only and wb.fast_read and not os.environ.get("VOLCAST_OPENPYXL_WRITE"):
+    elif not values_only and wb.fast_read and book is None and not os.environ.get("VOLCAST_OPENPYXL_WRITE"):
         if _write_patched(wb, src, dst, report):
             return dst, report
     from openpyxl.worksheet.formula import ArrayFormula

@@ -26,9 +26,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-import os
 import re
-import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -464,18 +462,8 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
         tables = [(k[0],) + v for k, v in calc.spills.items()]
         format_results(calc.book, tables, calc.values)
 
-    try:
-        out.parent.mkdir(parents=True, exist_ok=True)
-        fd, staged = tempfile.mkstemp(suffix=".xlsx", dir=out.parent, prefix=".volcast-refresh-")
-    except OSError as exc:
-        raise RecalcError(f"{out}: cannot write there ({exc.strerror or exc})") from None
-    os.close(fd)
-    try:
-        wb.save(staged)
-        _, report = recalc(staged, out, dynamic_hint=spills, before_write=before_write)
-    finally:
-        if os.path.exists(staged):
-            os.remove(staged)
+    # the workbook as edited here is recalculated as it stands (not saved and loaded again)
+    _, report = recalc(book, out, dynamic_hint=spills, before_write=before_write, book=wb)
     result.report = report
     if values_copy:
         result.values_copy = write_values_copy(out, values_copy_path(out))
