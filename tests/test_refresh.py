@@ -474,12 +474,91 @@ def test_charts_over_the_data_grow_with_it_and_end_at_the_last_observation(month
     assert not any(isinstance(c.value, str) and c.value.startswith("=") for ws in vals for row in ws.iter_rows()
                    for c in row)
     a, b = figures_from_file(copy), figures_from_file(res.out)
-    assert a.keys() == b.keys()
-    for k in a:  # the copy's writer keeps 16 significant digits
-        if isinstance(b[k], float):
-            assert_allclose(a[k], b[k], rtol=1e-15)
+    assert a == b  # the package edited, each stored value kept to its last digit
+
+
+def _sheet_parts(path):
+    import zipfile
+
+    with zipfile.ZipFile(path) as z:
+        return {n: z.read(n) for n in z.namelist()}
+
+
+def _styled_cells(path):
+    """{(sheet, coordinate): (value, number format, font, fill, border, alignment)} of every cell
+    with a value or a style (styles as text: openpyxl's style proxies compare by identity)."""
+    wb = openpyxl.load_workbook(path)
+    return {(ws.title, c.coordinate): (c.value, c.number_format, str(c.font), str(c.fill), str(c.border), str(c.alignment))
+            for ws in wb for row in ws.iter_rows() for c in row if c.value is not None or c.has_style}
+
+
+def test_the_values_copy_is_the_workbook_with_its_formulas_taken_out(monthly, tmp_path, monkeypatch):
+    """The values copy (layout.write_values_copy) edits the package: no formula left, every part
+    but the sheets and the workbook part byte for byte the workbook's, each cell's value exactly
+    the value the workbook stores with its formula, and the same formats as the copy openpyxl
+    writes (which loads the stored values with data_only=True and saves them; its numbers keep 16
+    significant digits, so they agree with the stored ones to 1e-15)."""
+    from xlfuncs.headless.layout import write_values_copy
+
+    d, dates, levels, res = monthly
+    book, copy = _sheet_parts(res.out), _sheet_parts(res.values_copy)
+    assert book.keys() == copy.keys()
+    for name, data in copy.items():
+        if name.startswith("xl/worksheets/"):
+            assert b"<f>" not in data and b"<f " not in data, name
+        elif name != "xl/workbook.xml":
+            assert data == book[name], name
+    stored = openpyxl.load_workbook(res.out, data_only=True)
+    cells = _styled_cells(res.values_copy)
+    n_numbers = 0
+    for (sheet, coord), (value, *_) in cells.items():
+        want = stored[sheet][coord].value
+        assert value == want and type(value) is type(want), (sheet, coord, value, want)
+        n_numbers += isinstance(value, float)
+    assert n_numbers > 300  # the returns at least
+    monkeypatch.setenv("VOLCAST_OPENPYXL_WRITE", "1")
+    other = _styled_cells(write_values_copy(res.out, tmp_path / "openpyxl-values.xlsx"))
+    assert other.keys() == cells.keys()
+    for key, (value, *formats) in cells.items():
+        assert other[key][1:] == tuple(formats), key
+        if isinstance(value, float):
+            assert math.isclose(other[key][0], value, rel_tol=1e-15, abs_tol=1e-300), key
         else:
-            assert a[k] == b[k], k
+            assert other[key][0] == value, key
+
+
+def test_a_boolean_not_yet_shown_as_such_takes_the_openpyxl_route(monthly, tmp_path):
+    """A TRUE/FALSE cell in a format that does not show it as TRUE/FALSE (LibreOffice shows 1):
+    the package editor declines and openpyxl writes the copy, in the TRUE/FALSE format; the
+    copy is readable by others (not the private mode of a temporary file)."""
+    import os
+    import stat
+
+    from xlfuncs.headless.layout import BOOL_FORMAT, write_values_copy
+    from xlfuncs.headless.xlsxpost import strip_formulas
+
+    d, dates, levels, res = monthly
+    wb = openpyxl.load_workbook(res.out)
+    ws = wb["About"]
+    cell = ws.cell(ws.max_row + 2, 1, True)
+    wb.save(tmp_path / "with_bool.xlsx")
+    with pytest.raises(ValueError, match="boolean"):
+        strip_formulas(tmp_path / "with_bool.xlsx", tmp_path / "x.xlsx", BOOL_FORMAT)
+    assert not (tmp_path / "x.xlsx").exists()
+    out = write_values_copy(tmp_path / "with_bool.xlsx", tmp_path / "copy.xlsx")
+    c = openpyxl.load_workbook(out)["About"][cell.coordinate]
+    assert c.value is True and c.number_format == BOOL_FORMAT
+    mask = os.umask(0o022)
+    os.umask(mask)
+    assert stat.S_IMODE(os.stat(out).st_mode) == 0o666 & ~mask
+
+
+def test_the_history_shows_converged_as_true_or_false(monthly):
+    d, dates, levels, res = monthly
+    ws = openpyxl.load_workbook(res.out)["History"]
+    col = [c.value for c in ws[1]].index("converged") + 1
+    cells = [ws.cell(r, col) for r in range(2, ws.max_row + 1) if ws.cell(r, col).value is not None]
+    assert cells and all(isinstance(c.value, bool) and c.number_format == '"TRUE";"TRUE";"FALSE"' for c in cells)
 
 
 def test_the_terminal_says_which_file_to_open_where(monthly, tmp_path, capsys):

@@ -107,11 +107,28 @@ def values_copy_path(out) -> Path:
 def write_values_copy(book_path, dst=None) -> Path:
     """The values copy of the recalculated workbook ``book_path`` (formulas replaced by the values
     stored with them; formats, charts, names and print setup kept), written to ``dst``
-    (default NAME-values.xlsx beside it) through a temporary file."""
-    import openpyxl
+    (default NAME-values.xlsx beside it) through a temporary file.
 
+    The package is edited (:func:`~xlfuncs.headless.xlsxpost.strip_formulas`): the formulas
+    taken out of their cells, every other part copied byte for byte, each stored value exactly
+    as the workbook holds it.  Where that would need a part rewritten (a TRUE/FALSE cell not yet
+    in the TRUE/FALSE format, a calculation chain), or ``VOLCAST_OPENPYXL_WRITE`` is set,
+    openpyxl loads the stored values and saves the copy (four to seven times the time on the daily
+    template; its numbers keep 16 significant digits, the last of 17 sometimes lost)."""
     book_path = Path(book_path)
     dst = Path(dst) if dst else values_copy_path(book_path)
+    if not os.environ.get("VOLCAST_OPENPYXL_WRITE"):
+        from .xlsxpost import strip_formulas
+
+        try:  # the package edited: the formulas taken out, every other part copied as it is
+            strip_formulas(book_path, dst, BOOL_FORMAT)
+            return dst
+        except ValueError:
+            pass  # a part it would have to edit (see strip_formulas): openpyxl writes the copy
+    import openpyxl
+
+    from .xlsxpost import _umask
+
     wb = openpyxl.load_workbook(book_path, data_only=True)
     for ws in wb.worksheets:
         for row in ws.iter_rows():
@@ -123,6 +140,7 @@ def write_values_copy(book_path, dst=None) -> Path:
     os.close(fd)
     try:
         wb.save(tmp)
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes the file private; give it the usual mode
         os.replace(tmp, dst)
     finally:
         if os.path.exists(tmp):

@@ -32,7 +32,7 @@ from pathlib import Path
 
 from ..core.errors import value_words
 from .contract import FIGURES, HISTORY_HEADER, missing_names, name_range
-from .layout import fit_to_data, format_results, values_copy_path, write_values_copy
+from .layout import BOOL_FORMAT, fit_to_data, format_results, values_copy_path, write_values_copy
 from .recalc import RecalcError, cell_name, recalc
 from .xlsxpost import ExcelError, check_package, dynamic_anchors
 
@@ -450,6 +450,10 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
                 c.number_format = "yyyy-mm-dd hh:mm"
             elif h in ("nobs",):
                 c.number_format = "0"
+            elif h == "converged":  # TRUE/FALSE in LibreOffice too, in this row and the earlier ones
+                for earlier in range(2, r + 1):
+                    if isinstance(hist.cell(earlier, j).value, bool):
+                        hist.cell(earlier, j).number_format = BOOL_FORMAT
             elif h in ("loglik", "vol_1m", "vol_12m", "var_1m", "es_1m"):
                 c.number_format = "0.00"
             elif h not in ("model", "dist", "converged", "moved"):

@@ -1162,3 +1162,125 @@ def place_values(src: str | Path, dst: str | Path, cells: dict, calc_id: int | N
     them, text as an inline string.  Every other part is copied unchanged.  Raises ValueError for
     a value that cannot be stored or a part that cannot be edited; nothing is written then."""
     store_values(src, dst, {}, constants=cells, calc_id=calc_id)
+
+
+# ----------------------------------------------------------------------------- the values copy
+_STYLES_REL = _REL_DOC + "/styles"
+_CALC_CHAIN_REL = _REL_DOC + "/calcChain"
+_CELL_CM_RE = re.compile(r"""\s+cm\s*=\s*(["'])[^"']*\1""")
+_BOOL_CELL_RE = re.compile(r"""<c(?=\s)([^>]*?\st\s*=\s*["']b["'][^>]*?)/?>""")
+_S_ATTR_RE = re.compile(r"""\ss\s*=\s*["'](\d+)["']""")
+# the built-in number formats whose code a package need not list (ECMA-376 Part 1, 18.8.30): none
+# of them shows a boolean as TRUE/FALSE, so a boolean in one of them needs the openpyxl route
+
+
+def _number_formats(pkg: _Package, wb_part: str) -> list:
+    """The number-format code of each cell format (``cellXfs``, by the index a cell's ``s`` names),
+    None for a built-in format; [] for a package without a styles part."""
+    rel = next((r for r in _relationships(pkg, wb_part) if r.get("Type") == _STYLES_REL
+                and r.get("TargetMode") != "External"), None)
+    if rel is None:
+        return []
+    part = _resolve(wb_part, rel.get("Target", ""))
+    if part not in pkg:
+        return []
+    root = _parse_xml(part, pkg[part])
+    m = f"{{{_MAIN}}}"
+    codes = {nf.get("numFmtId"): nf.get("formatCode") for nf in root.iter(f"{m}numFmt")}
+    xfs = root.find(f"{m}cellXfs")
+    return [] if xfs is None else [codes.get(xf.get("numFmtId", "0")) for xf in xfs.findall(f"{m}xf")]
+
+
+def strip_formulas(src: str | Path, dst: str | Path, bool_format: str) -> None:
+    """Copy the package ``src`` to ``dst`` with every formula taken out of its cell and the value
+    stored with it kept (a values copy): a formula's text result becomes an inline string, a
+    spill's cell metadata (``cm``) goes with its formula, and ``fullCalcOnLoad`` is dropped.
+    Every other part (styles, charts, names, print setup) is copied unchanged, byte for byte.
+
+    It gives the cells the values and formats that loading ``src`` with openpyxl's
+    ``data_only=True`` and saving it gives, with every boolean shown in ``bool_format``; where
+    that needs a part edited here (a boolean cell whose number format is not ``bool_format``, a
+    calculation chain that would name cells without formulas, a sheet not in the unprefixed form
+    openpyxl writes) it raises ValueError and writes nothing, and the caller takes the openpyxl
+    route."""
+    src, dst = Path(src), Path(dst)
+    if dst.resolve() == src.resolve() or (dst.exists() and os.path.samefile(src, dst)):
+        raise ValueError(f"{dst}: refusing to write over the input; choose another output path")
+    try:
+        z = zipfile.ZipFile(src)
+    except zipfile.BadZipFile:
+        raise ValueError(f"{src.name} is not an .xlsx package (not a zip archive)") from None
+    with z:
+        _check_infos(src.name, z.infolist(), None)
+        pkg = _Package(z, src.name)
+        wb_part = _workbook_part(pkg)
+        if any(r.get("Type") == _CALC_CHAIN_REL for r in _relationships(pkg, wb_part)):
+            raise ValueError(f"{src.name} has a calculation chain")
+        parts = _sheet_parts(pkg, wb_part)
+        for title, part in parts.items():
+            if part not in pkg:
+                raise ValueError(f"sheet {title!r} names the part {part}, which the package lacks")
+        formats = _number_formats(pkg, wb_part)
+        bool_styles: set = set()
+        changed: dict = {}
+        wb_xml = pkg[wb_part].decode("utf-8")
+        calc = _drop_full_calc(wb_xml)
+        if calc != wb_xml:
+            changed[wb_part] = calc.encode("utf-8")
+
+        def cell(m: re.Match) -> str:
+            attrs, inner = m.group(1), m.group(2)
+            if inner is None or "<f" not in inner:
+                return m.group(0)
+            attrs = _CELL_CM_RE.sub("", attrs)
+            inner = _F_RE.sub("", inner)
+            kind = _attrs(attrs).get("t")
+            if kind == "str":  # a formula's text: an inline string once the formula is gone
+                v = _V_RE.search(inner)
+                text = None
+                if v is not None:
+                    vm = re.fullmatch(r"<v(?:\s[^>]*)?>(.*)</v>", v.group(0), re.S)
+                    text = vm.group(1) if vm else None
+                attrs = re.sub(r"""\st\s*=\s*["']str["']""", "", attrs)
+                if text:
+                    attrs = _attrs_text(_with_type(_attrs(attrs), "inlineStr"))
+                    return f'<c{attrs}><is><t xml:space="preserve">{text}</t></is></c>'
+                return f"<c{attrs}/>"
+            if not inner.strip():
+                if kind is not None:  # a type without a value says nothing
+                    attrs = re.sub(r"""\st\s*=\s*["'][a-zA-Z]*["']""", "", attrs)
+                return f"<c{attrs}/>"
+            return f"<c{attrs}>{inner}</c>"
+
+        def edit_sheet(title):
+            def edit(blocks):
+                part = parts[title]
+                texts = _texts(blocks)
+                head, m = _sheet_head(texts)
+                if not _ROOT_RE.search(head if m is None else head[:m.start()]):
+                    raise ValueError(f"sheet {title!r} ({part}) is not SpreadsheetML in the unprefixed form")
+                if m is None or m.group(1):
+                    yield head.encode("utf-8")
+                    for text in texts:
+                        yield text.encode("utf-8")
+                    return
+                yield head[:m.end()].encode("utf-8")
+                for block, last in _row_blocks(head[m.end():], texts, title, part):
+                    if not last:
+                        if 't="b"' in block or "t='b'" in block:
+                            for b in _BOOL_CELL_RE.finditer(block):
+                                sm = _S_ATTR_RE.search(b.group(1))
+                                bool_styles.add(int(sm.group(1)) if sm else 0)
+                        if "<f" in block:
+                            block = _CELL_RE.sub(cell, block)
+                    yield block.encode("utf-8")
+                for text in texts:
+                    yield text.encode("utf-8")
+            return edit
+
+        def finish():
+            off = sorted(s for s in bool_styles if s >= len(formats) or formats[s] != bool_format)
+            if off:
+                raise ValueError(f"boolean cells in the cell format(s) {off[:5]}, which do not show TRUE/FALSE")
+
+        _write_zip(pkg, dst, changed, {part: edit_sheet(title) for title, part in parts.items()}, finish)
