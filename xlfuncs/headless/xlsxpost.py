@@ -68,8 +68,8 @@ import tempfile
 import zipfile
 import zlib
 import xml.etree.ElementTree as ET
-from itertools import compress, repeat
-from operator import eq, itemgetter
+from itertools import chain, compress, repeat
+from operator import eq, is_, itemgetter
 from pathlib import Path
 
 __all__ = ["ERROR_LITERALS", "ExcelError", "check_package", "dynamic_anchors", "place_values", "store_values"]
@@ -601,25 +601,25 @@ def _edit_sheet(title: str, part: str, texts, values: dict, dynamic: dict, absen
         # pieces that splitting the block at such cells gives (the text between them, then each
         # cell's reference, style, type, formula and value element): no call per cell
         pieces = _PLAIN_F_CELL_RE.split(block)
-        cells = (len(pieces) - 1) // 6
-        if cells != block.count("<f"):
+        if (len(pieces) - 1) // 6 != block.count("<f"):
             return None
-        get = values.get
-        for i in range(1, len(pieces), 6):
-            ref, style, kind, f_xml, v_xml = pieces[i:i + 5]
-            style = "" if style is None else f' s="{style}"'
-            enc = get(ref)
+        refs = pieces[1::6]
+        encs = list(map(values.get, refs))
+        done.update(compress(refs, encs))  # an encoded pair is never empty
+        cells = []
+        add = cells.append
+        for ref, style, kind, f_xml, v_xml, enc in zip(refs, pieces[2::6], pieces[3::6], pieces[4::6],
+                                                       pieces[5::6], encs):
+            style = "" if style is None else ' s="' + style + '"'
             if enc is None:  # not to be stored: the cell as it was
-                kind = "" if kind is None else f' t="{kind}"'
-                pieces[i] = f'<c r="{ref}"{style}{kind}>{f_xml}{v_xml or ""}</c>'
+                kind = "" if kind is None else ' t="' + kind + '"'
+                add(f'<c r="{ref}"{style}{kind}>{f_xml}{v_xml or ""}</c>')
             else:
-                done.add(ref)
-                kind, text = enc
-                kind = "" if kind is None else f' t="{kind}"'
-                v_xml = "" if text is None else f"<v>{text}</v>"
-                pieces[i] = f'<c r="{ref}"{style}{kind}>{f_xml}{v_xml}</c>'
-            pieces[i + 1] = pieces[i + 2] = pieces[i + 3] = pieces[i + 4] = ""
-        return "".join(pieces)
+                kind = "" if enc[0] is None else ' t="' + enc[0] + '"'
+                add(f'<c r="{ref}"{style}{kind}>{f_xml}</c>' if enc[1] is None else
+                    f'<c r="{ref}"{style}{kind}>{f_xml}<v>{enc[1]}</v></c>')
+        cells.append("")
+        return "".join(chain.from_iterable(zip(pieces[0::6], cells)))
 
     def edit_rows(block: str) -> str:
         if "<f" not in block:  # only formula cells change
@@ -874,6 +874,23 @@ def _write_zip(pkg: _Package, dst: Path, changed: dict, edited: dict, finish) ->
 
 
 # ----------------------------------------------------------------------------- public functions
+def _encode_values(values: dict) -> dict:
+    """{key: _encode_value(value)}: the finite floats (most values of a recalculation: a column of
+    returns) encoded with maps rather than a call per value, the rest one by one."""
+    keys, vals = list(values), list(values.values())
+    floats = list(map(is_, map(type, vals), repeat(float)))
+    fk, fv = list(compress(keys, floats)), list(compress(vals, floats))
+    if all(map(math.isfinite, fv)):
+        out = dict(zip(fk, zip(repeat(None), map(float.__repr__, fv))))
+        rest = [(k, v) for k, v, f in zip(keys, vals, floats) if not f] if len(fk) < len(keys) else []
+    else:
+        out, rest = {}, list(values.items())
+    for key, v in rest:
+        where = f"value for {key[0]}!{key[1]}" if isinstance(key, tuple) and len(key) == 2 else f"value for {key!r}"
+        out[key] = _encode_value(where, v)
+    return out
+
+
 def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict | None = None, *,
                  constants: dict | None = None, calc_id: int | None = None) -> None:
     """Copy the package ``src`` to ``dst`` with each formula's value stored beside it.
@@ -901,10 +918,7 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
     if dst.resolve() == src.resolve() or (dst.exists() and os.path.samefile(src, dst)):
         raise ValueError(f"{dst}: refusing to write over the input; choose another output path")
     dynamic = dynamic or {}
-    encoded = {key: (None, float.__repr__(v)) if type(v) is float and math.isfinite(v) else  # the common case
-               _encode_value(f"value for {key[0]}!{key[1]}" if isinstance(key, tuple) and len(key) == 2
-                             else f"value for {key!r}", v)
-               for key, v in values.items()}
+    encoded = _encode_values(values)
     try:
         z = zipfile.ZipFile(src)
     except zipfile.BadZipFile:
