@@ -472,3 +472,37 @@ def test_direct_calls_of_ours_equal_the_engine_route(tmp_path, monkeypatch):
     assert direct.spills == engine.spills
     assert direct.collect_errors().error_cells == engine.collect_errors().error_cells
     assert direct.reads == engine.reads
+
+
+# Excel's results for powers (from memory; the engine's own POWER function gives the same):
+# a negative number to a power that is not whole, 0^0 and an overflow are #NUM!, zero to a
+# negative power #DIV/0!
+_POWERS = [("=A1^1.5", "#NUM!"), ("=(-8)^(1/3)", "#NUM!"), ("=POWER(A1,0.5)", "#NUM!"), ("=0^0", "#NUM!"),
+           ("=0^-1", "#DIV/0!"), ("=10^400", "#NUM!"), ("=(-2)^3", -8.0), ("=2^0.5", math.sqrt(2.0)),
+           ("=B2+1", "#NUM!")]
+
+
+def test_powers_give_excels_errors_cell_by_cell_in_columns_and_in_the_file(tmp_path, capsys):
+    """A negative number to a fractional power once came back from the engine as a complex
+    number, and `volcast recalc` stopped with an internal error when writing it; 0^0 gave 1."""
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws["A1"] = -1
+    for j, (text, _) in enumerate(_POWERS, start=1):
+        ws.cell(2, j, text)
+    for r in range(4, 40):  # a column of one shape: the NumPy route, then the engine for the rest
+        ws.cell(r, 1, [-1.0, 0.0, 2.5, -3.0][r % 4])
+        ws.cell(r, 2, [1.5, 0.0, -1.0, 2.0][r % 4])
+        ws.cell(r, 3, f"=A{r}^B{r}")
+    path = tmp_path / "powers.xlsx"
+    wb.save(path)
+    assert main(["recalc", str(path), "-o", str(tmp_path / "out.xlsx")]) == 0
+    err = capsys.readouterr().err
+    assert "internal error" not in err and "Warning" not in err
+    got = openpyxl.load_workbook(tmp_path / "out.xlsx", data_only=True).active
+    for j, (text, want) in enumerate(_POWERS, start=1):
+        assert got.cell(2, j).value == want, text
+    rule = {(-1.0, 1.5): "#NUM!", (0.0, 0.0): "#NUM!", (2.5, -1.0): 0.4, (-3.0, 2.0): 9.0}
+    for r in range(4, 40):
+        want = rule[(ws.cell(r, 1).value, ws.cell(r, 2).value)]
+        assert got.cell(r, 3).value == want, r

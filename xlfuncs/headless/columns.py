@@ -410,6 +410,9 @@ class ColumnShape:
         out = np.empty(self._n)
         bad = bad.copy()
         for i, (a, b) in enumerate(zip(xs, ys)):
+            if a == 0 and b == 0:  # Excel's #NUM!: the engine decides
+                out[i] = float("nan")
+                continue
             try:
                 v = a ** b
             except (ZeroDivisionError, OverflowError):

@@ -116,6 +116,7 @@ def _register_ours():
     from .. import sheet
 
     funcs = _function_table()
+    _excel_power()
     for name in sheet.__all__:
         fn = getattr(sheet, name)
         wrapped = _wrap_ours(fn)
@@ -123,6 +124,32 @@ def _register_ours():
         for prefix in _PREFIXES:
             funcs[f"{prefix}{name}"] = wrapped
     _REGISTERED = True
+
+
+def _excel_power():
+    """The engine's ^ operator made Excel's, as the engine's own POWER already is: 0^0 is #NUM!,
+    zero to a negative power #DIV/0!, a negative number to a power that is not whole #NUM!
+    (Excel's rules, from memory), and an overflow #NUM!.  The library's operator is Python's
+    ``**``, which gives 1.0, raises, or returns a complex number there, and a complex number
+    then stopped the recalculation when it was written."""
+    from formulas.functions import Error, wrap_ufunc
+    from formulas.functions.operators import OPERATORS
+
+    def power(x, y):
+        if x == 0:
+            if y == 0:
+                return Error.errors["#NUM!"]
+            if y < 0:
+                return Error.errors["#DIV/0!"]
+        try:  # as Python floats: an overflow raises (NumPy's scalars would warn and give inf)
+            v = float(x) ** float(y)
+        except OverflowError:
+            return Error.errors["#NUM!"]
+        if isinstance(v, complex):
+            return Error.errors["#NUM!"]
+        return v
+
+    OPERATORS["^"] = wrap_ufunc(power)
 
 
 def _wrap_ours(fn):
@@ -244,7 +271,10 @@ class Compiled:
 
     def __call__(self, *values):
         try:
-            return from_engine(self._fn(*[to_engine(v) for v in values]))
+            # NumPy's overflow and invalid-value warnings are the engine's to turn into errors
+            # (10^400 is #NUM!), not lines on the terminal
+            with np.errstate(all="ignore"):
+                return from_engine(self._fn(*[to_engine(v) for v in values]))
         except Exception:  # noqa: BLE001 - the engine's own failures become #VALUE!
             return ExcelError("#VALUE!")
 
@@ -278,7 +308,8 @@ def compile_formula(text: str) -> Compiled:
     if unknown:
         raise FormulaError(f"function {', '.join(unknown)} is not supported by the headless engine")
     try:
-        fn = eng.Parser().ast(text)[1].compile()
+        with np.errstate(all="ignore"):  # constants are folded here: 10^400 is the engine's #NUM!
+            fn = eng.Parser().ast(text)[1].compile()
     except Exception as exc:  # noqa: BLE001
         raise FormulaError(f"formula {text} cannot be read ({type(exc).__name__}: {exc})") from None
     out = Compiled(text=text, inputs=tuple(fn.inputs), _fn=fn)

@@ -584,6 +584,8 @@ class Workbook:
             if not ok:
                 continue
             result = compiled(*columns)
+            if len(members) == 1 and type(result) in _SHARED:  # a column of one row gives its value
+                result = [[result]]
             if not (isinstance(result, list) and len(result) == len(members)):
                 continue
             for (key, _, _), row in zip(members, result):
@@ -681,6 +683,10 @@ class Workbook:
             values, floats, numbers = hit
             ok &= floats if idx in shape.raw else numbers
             columns.append(values)
+        # rows reading a blank, a text...: computed once for each distinct reading (not left to
+        # the engine's batch)
+        shared = [] if ok.all() else self._same_readings(keys, shape, targets, runs, np.flatnonzero(~ok).tolist(),
+                                                         spilling)
         if ok.sum() < 1:
             return
         try:
@@ -704,7 +710,51 @@ class Workbook:
             for i in rows.tolist():
                 values[keys[i]] = _cell_value(out[i])
         if len(rows) < n:
-            self._column_rest.update(keys[i] for i in np.flatnonzero(~ok).tolist())
+            done = set(shared)
+            self._column_rest.update(keys[i] for i in np.flatnonzero(~ok).tolist() if i not in done)
+
+    def _same_readings(self, keys, shape, targets, runs, left, spilling) -> list:
+        """The rows ``left`` of a column (indices into ``keys``) that read the same values as
+        another of them, each distinct reading evaluated once by the general route and its value
+        given to every row that reads it; returns the indices so computed.
+
+        A column shape is a function of the values its references read and of nothing else (only
+        references, literals, operators and element-wise functions: :class:`columns.ColumnShape`),
+        so rows reading equal values (of equal types: 1 and 1.0 and TRUE apart) have equal
+        results.  This serves the rows a template holds beyond the data, which read blanks or
+        the texts "" of the rows above: thousands of cells, one engine call.  A row reading a
+        formula not yet computed, or an empty cell a spill may still fill, is left as it is."""
+        settled = self._source is not self.inputs
+        source, formulas = self._source, self.formulas
+        groups: dict = {}
+        refs = [(title, col, run) for (title, col), (_, _, run) in zip(targets, shape.refs)]
+        for i in left:
+            reading = []
+            for title, col, run in refs:
+                cell = (title, int(runs[i, run]), col)
+                v = source.get(cell, _MISSING)
+                if v is _MISSING:
+                    if cell in formulas or (not settled and title in spilling):
+                        break
+                    v = None
+                reading.append((type(v), v))
+            else:
+                groups.setdefault(tuple(reading), []).append(i)
+        done = []
+        for rows in groups.values():
+            if len(rows) < 2:
+                continue
+            try:
+                value = self.value(keys[rows[0]])
+            except RecalcError:
+                continue  # the cell by cell route says why, in its turn
+            if type(value) not in _SHARED:
+                continue
+            values = self.values
+            for i in rows[1:]:
+                values[keys[i]] = value
+            done.extend(rows)
+        return done
 
     def _engine_agrees(self, keys, out, rows) -> bool:
         try:
@@ -892,7 +942,8 @@ def _typed_column(got):
             whole[i] = True
             values[i] = float(got[i])
     return values, floats, floats | whole
-_PLAIN = frozenset((float, int, str, bool, type(None)))  # cell values passed to our functions as they are
+_PLAIN = frozenset((float, int, str, bool, type(None)))
+_SHARED = frozenset((float, int, str, bool, type(None), ExcelError))  # values several cells may hold as one object  # cell values passed to our functions as they are
 
 _ELEMENTWISE = {"LN", "LOG", "LOG10", "EXP", "SQRT", "ABS", "IF", "IFERROR", "ROUND", "ISNUMBER", "ISBLANK", "SIGN", "POWER"}
 _LOGICAL = {"OR", "AND"}
