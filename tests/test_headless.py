@@ -506,3 +506,23 @@ def test_powers_give_excels_errors_cell_by_cell_in_columns_and_in_the_file(tmp_p
     for r in range(4, 40):
         want = rule[(ws.cell(r, 1).value, ws.cell(r, 2).value)]
         assert got.cell(r, 3).value == want, r
+
+
+def test_a_formula_reading_an_empty_cell_shows_zero(tmp_path):
+    """=A5 with A5 empty shows 0 in Excel (from memory), not an empty cell, and a formula reading
+    that cell sees the 0; in a column of such formulas too (the batches' routes)."""
+    from xlfuncs.headless.recalc import Workbook
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for i, text in enumerate(["=A100", "=IF(TRUE,A100)", "=INDEX(A100:A101,2)", '=A100=""', "=C1=0", '=C1=""'], start=1):
+        ws.cell(i, 3, text)
+    for r in range(10, 60):  # a column of =A{r} over numbers and blanks
+        if r % 3:
+            ws.cell(r, 1, r + 0.5)
+        ws.cell(r, 4, f"=A{r}")
+    wb.save(tmp_path / "e.xlsx")
+    got = Workbook(tmp_path / "e.xlsx").evaluate_all().values
+    assert [got[("Sheet", i, 3)] for i in range(1, 7)] == [0, 0, 0, True, True, False]
+    for r in range(10, 60):
+        assert got[("Sheet", r, 4)] == (r + 0.5 if r % 3 else 0), r

@@ -309,7 +309,7 @@ class Workbook:
         elif key in self._anchors:
             self._spill(key, result)
         else:
-            self.values[key] = _top_left(result)
+            self.values[key] = _shown(_top_left(result))
         return self.values[key]
 
     def _direct_call(self, sheet, text: str):
@@ -589,7 +589,7 @@ class Workbook:
             if not (isinstance(result, list) and len(result) == len(members)):
                 continue
             for (key, _, _), row in zip(members, result):
-                self.values[key] = _cell_value(row[0])
+                self.values[key] = _shown(_cell_value(row[0]))
 
     def _batch_vector(self, min_size: int = 16):
         """Columns of one formula shape over floats, evaluated as NumPy arrays (``columns.py``).
@@ -1189,6 +1189,12 @@ def _cell_value(v):
     if isinstance(v, float) and v != v:
         return ExcelError("#NUM!")
     return v
+
+
+def _shown(v):
+    """What a formula cell shows for its result: an empty cell's value (=A5 with A5 empty, an
+    INDEX of an empty cell) shows as 0 in Excel (from memory), never as an empty cell."""
+    return 0 if v is None else v
 
 
 def _top_left(result):
