@@ -526,3 +526,25 @@ def test_a_formula_reading_an_empty_cell_shows_zero(tmp_path):
     assert [got[("Sheet", i, 3)] for i in range(1, 7)] == [0, 0, 0, True, True, False]
     for r in range(10, 60):
         assert got[("Sheet", r, 4)] == (r + 0.5 if r % 3 else 0), r
+
+
+# Excel's ROUND examples (its function reference's examples, from memory: 2.15 -> 2.2, 2.149 -> 2.1,
+# -1.475 -> -1.48, 21.5 to -1 digits -> 20) and the ties a binary double sits just below
+_ROUNDS = [("=ROUND(2.15,1)", 2.2), ("=ROUND(2.149,1)", 2.1), ("=ROUND(-1.475,2)", -1.48), ("=ROUND(21.5,-1)", 20.0),
+           ("=ROUND(1.005,2)", 1.01), ("=ROUND(2.675,2)", 2.68), ("=ROUNDUP(3.2,0)", 4.0), ("=ROUNDDOWN(-3.14159,1)", -3.1),
+           ("=ROUND(1.5,30)", 1.5), ('=ROUND("x",1)', "#VALUE!")]
+
+
+@pytest.mark.parametrize("text, want", _ROUNDS)
+def test_round_as_excel_rounds(tmp_path, text, want):
+    from xlfuncs.headless.recalc import Workbook
+
+    wb = openpyxl.Workbook()
+    wb.active["A1"] = text
+    for r in range(2, 30):  # and in a column (the engine's batch)
+        wb.active.cell(r, 1, text)
+    wb.save(tmp_path / "r.xlsx")
+    got = Workbook(tmp_path / "r.xlsx").evaluate_all().values
+    for r in range(1, 30):
+        v = got[("Sheet", r, 1)]
+        assert (v.code if hasattr(v, "code") else v) == want

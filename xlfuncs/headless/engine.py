@@ -14,6 +14,7 @@ headless recalculation computes exactly what Excel with the add-in computes.
 from __future__ import annotations
 
 import importlib
+import math
 import re
 import sys
 import types
@@ -117,6 +118,7 @@ def _register_ours():
 
     funcs = _function_table()
     _excel_power()
+    _excel_rounding(funcs)
     for name in sheet.__all__:
         fn = getattr(sheet, name)
         wrapped = _wrap_ours(fn)
@@ -150,6 +152,34 @@ def _excel_power():
         return v
 
     OPERATORS["^"] = wrap_ufunc(power)
+
+
+def _excel_rounding(funcs):
+    """ROUND, ROUNDUP and ROUNDDOWN as Excel computes them: on the number as Excel holds it, to 15
+    significant digits, so that ROUND(1.005, 2) is 1.01 and ROUND(2.675, 2) is 2.68 (from memory;
+    half away from zero).  The engine's own rounded the binary double (1.00499999999999989...),
+    giving 1 and 2.67."""
+    from decimal import ROUND_DOWN, ROUND_HALF_UP, ROUND_UP, Context, Decimal, InvalidOperation
+
+    from formulas.functions import wrap_ufunc
+
+    context = Context(prec=400)
+
+    def rounding(mode):
+        def fn(x, digits):
+            x, digits = float(x), int(digits)  # Excel truncates the digits towards zero
+            if not math.isfinite(x):
+                return x
+            held = Decimal(format(x, ".15g"))
+            try:
+                return float(held.quantize(Decimal(1).scaleb(-digits), rounding=mode, context=context))
+            except InvalidOperation:  # more digits than the number holds: as it is
+                return float(held)
+        return fn
+
+    funcs["ROUND"] = wrap_ufunc(rounding(ROUND_HALF_UP))
+    funcs["ROUNDUP"] = wrap_ufunc(rounding(ROUND_UP))
+    funcs["ROUNDDOWN"] = wrap_ufunc(rounding(ROUND_DOWN))
 
 
 def _wrap_ours(fn):
