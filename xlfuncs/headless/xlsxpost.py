@@ -874,6 +874,24 @@ def _write_zip(pkg: _Package, dst: Path, changed: dict, edited: dict, finish) ->
 
 
 # ----------------------------------------------------------------------------- public functions
+def _open_source(src: Path, dst: Path) -> zipfile.ZipFile:
+    """The package ``src`` opened for copying to ``dst`` (never itself), its packing checked; no
+    limit on the total unpacked size: sheets are streamed, and the parts read whole are bounded
+    one by one.  ValueError for the same file, or a file that is not a zip archive."""
+    if dst.resolve() == src.resolve() or (dst.exists() and os.path.samefile(src, dst)):
+        raise ValueError(f"{dst}: refusing to write over the input; choose another output path")
+    try:
+        z = zipfile.ZipFile(src)
+    except zipfile.BadZipFile:
+        raise ValueError(f"{src.name} is not an .xlsx package (not a zip archive)") from None
+    try:
+        _check_infos(src.name, z.infolist(), None)
+    except BaseException:
+        z.close()
+        raise
+    return z
+
+
 def _encode_values(values: dict) -> dict:
     """{key: _encode_value(value)}: the finite floats (most values of a recalculation: a column of
     returns) encoded with maps rather than a call per value, the rest one by one."""
@@ -915,17 +933,9 @@ def store_values(src: str | Path, dst: str | Path, values: dict, dynamic: dict |
     Parts are streamed: memory stays at a few MiB whatever the size of the sheets.
     """
     src, dst = Path(src), Path(dst)
-    if dst.resolve() == src.resolve() or (dst.exists() and os.path.samefile(src, dst)):
-        raise ValueError(f"{dst}: refusing to write over the input; choose another output path")
     dynamic = dynamic or {}
     encoded = _encode_values(values)
-    try:
-        z = zipfile.ZipFile(src)
-    except zipfile.BadZipFile:
-        raise ValueError(f"{src.name} is not an .xlsx package (not a zip archive)") from None
-    with z:
-        # no limit on the total: sheets are streamed, and the parts read whole are bounded one by one
-        _check_infos(src.name, z.infolist(), None)
+    with _open_source(src, dst) as z:
         pkg = _Package(z, src.name)
         wb_part = _workbook_part(pkg)
         parts = _sheet_parts(pkg, wb_part)
@@ -1218,14 +1228,7 @@ def strip_formulas(src: str | Path, dst: str | Path, bool_format: str) -> None:
     openpyxl writes) it raises ValueError and writes nothing, and the caller takes the openpyxl
     route."""
     src, dst = Path(src), Path(dst)
-    if dst.resolve() == src.resolve() or (dst.exists() and os.path.samefile(src, dst)):
-        raise ValueError(f"{dst}: refusing to write over the input; choose another output path")
-    try:
-        z = zipfile.ZipFile(src)
-    except zipfile.BadZipFile:
-        raise ValueError(f"{src.name} is not an .xlsx package (not a zip archive)") from None
-    with z:
-        _check_infos(src.name, z.infolist(), None)
+    with _open_source(src, dst) as z:
         pkg = _Package(z, src.name)
         wb_part = _workbook_part(pkg)
         if any(r.get("Type") == _CALC_CHAIN_REL for r in _relationships(pkg, wb_part)):
