@@ -49,3 +49,30 @@ def test_engine_functions_import_scipy_only_when_called():
     assert abs(out["normsinv"] - normsinv) <= 1e-12 * abs(normsinv)
     assert out["real"] == ["module"] * 3 and out["has_norm"]
     assert out["interp"][0] == out["interp"][1] == 20.0
+
+
+_FITS = r"""
+import json, sys
+import numpy as np
+from xlfuncs import VOLCOMPARE, VOLFIT
+from xlfuncs.core import get_distribution, parse_model
+from xlfuncs.core.simulate import simulate
+r = simulate(parse_model("EGARCH(1,1)"), get_distribution("t"), np.array([0.02, 0.01, 0.1, -0.05, 0.95, 7.0]), 500,
+             rng=np.random.default_rng(4))
+cells = [[float(x)] for x in np.ravel(r)]
+fit = VOLFIT(cells, "EGARCH(1,1)", "t")
+VOLCOMPARE(cells, "EWMA, GARCH(1,1), GJR-GARCH(1,1), EGARCH(1,1)", "t")
+print(json.dumps({"loaded": sorted(m for m in ("scipy.stats", "scipy.signal") if m in sys.modules),
+                  "uncond": [row[1] for row in fit if row[0] == "uncond_variance"]}))
+"""
+
+
+def test_the_templates_candidate_fits_load_neither_scipy_stats_nor_scipy_signal():
+    """An EGARCH fit's unconditional variance once imported scipy.signal (and with it scipy.stats:
+    about 1 s CPU at the first EGARCH fit of every recalculation) for one linear filter; the
+    templates' fits and comparison now load neither subpackage."""
+    done = subprocess.run([sys.executable, "-c", _FITS], capture_output=True, text=True, timeout=600)
+    assert done.returncode == 0, done.stderr[-2000:]
+    out = json.loads(done.stdout.strip().splitlines()[-1])
+    assert out["loaded"] == []
+    assert len(out["uncond"]) == 1  # the row the filter serves is there (blank with t shocks)
