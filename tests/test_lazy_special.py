@@ -103,3 +103,50 @@ print("ok")
 """
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.strip() == "ok"
+
+
+_QUAD_CASES = [(-np.inf, -2.3), (-np.inf, np.inf), (0.4, np.inf), (-1.5, 2.0), (3.0, 3.0)]
+
+
+@pytest.mark.parametrize("a, b", _QUAD_CASES)
+def test_quad_is_scipys_quad_bit_for_bit(a, b):
+    """_lazy.quad against scipy.integrate.quad (the reference) on a fat-tailed integrand like the
+    one-period value loss's, at the risk module's tolerances and at quad's defaults."""
+    import math
+
+    from scipy import integrate
+
+    def g(z):  # the value loss's shape on a lower tail; bounded and decaying where the interval reaches +inf
+        if math.isinf(b):
+            return math.cos(z) * (1.0 + z * z / 5.0) ** -3.0
+        return -math.expm1(0.01 * (0.1 + 2.0 * z)) * (1.0 + z * z / 5.0) ** -3.0
+
+    for opts in ({"epsabs": 0.0, "epsrel": 1e-12, "limit": 200}, {}):
+        assert _lazy.quad(g, a, b, **opts) == tuple(integrate.quad(g, a, b, **opts)[:2])
+
+
+_RISK = r"""
+import json, sys
+import numpy as np
+from xlfuncs.core import fit
+from xlfuncs.core.risk import risk
+r = np.random.default_rng(1).standard_t(5, size=400)
+f = fit(r, "GARCH(1,1)", "t")
+out = risk(f, r, 0.99, 1, returns="log100")
+loaded = sorted(m for m in ("scipy.integrate", "scipy.optimize") if m in sys.modules)
+import scipy.integrate
+again = risk(f, r, 0.99, 1, returns="log100")
+print(json.dumps({"loaded": loaded, "es": [out.es_value, again.es_value], "var": [out.var_value, again.var_value]}))
+"""
+
+
+def test_one_period_value_loss_without_scipy_integrate():
+    """The one-period ES in % of value (its tail integral) in a fresh process imports neither
+    scipy.integrate nor scipy.optimize, and equals the figure computed with them imported."""
+    import json
+
+    done = subprocess.run([sys.executable, "-c", _RISK], capture_output=True, text=True, timeout=600)
+    assert done.returncode == 0, done.stderr[-2000:]
+    out = json.loads(done.stdout.strip().splitlines()[-1])
+    assert out["loaded"] == []
+    assert out["es"][0] == out["es"][1] and out["var"][0] == out["var"][1] and out["es"][0] > out["var"][0] > 0

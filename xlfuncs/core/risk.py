@@ -84,14 +84,14 @@ from scipy import special
 
 from .distributions import hermite
 from .families._compiled import hermite_cell, kernel
-from ._lazy import lazy_module
+from ._lazy import quad
 from .errors import InputError, value_words
 from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
 from .spec import RETURN_DEFINITIONS
 
-#: scipy.integrate (with scipy.optimize, ~0.3 s CPU to import) only for one period's value loss
-integrate = lazy_module("scipy.integrate")
+# one period's value loss integrates with QUADPACK's routines loaded alone (_lazy.quad): importing
+# scipy.integrate brings scipy.optimize, about 0.3 s CPU
 
 __all__ = ["Risk", "risk", "risk_paths", "default_paths", "DEFAULT_PATHS", "RISK_PATHS", "RISK_LONG", "RISK_DRAWS", "MIN_PATHS", "MAX_PATHS",
            "RETURN_DEFINITIONS"]
@@ -185,7 +185,7 @@ def _log_tail_value_loss(dist, eta, m: float, s: float, c: float, zq: float, a: 
     def integrand(z: float) -> float:
         return -math.expm1(c * (m + s * z)) * math.exp(float(dist.logpdf(np.array(z), eta)))
 
-    val, _ = integrate.quad(integrand, -math.inf, zq, epsabs=0.0, epsrel=1e-12, limit=200)
+    val, _ = quad(integrand, -math.inf, zq, epsabs=0.0, epsrel=1e-12, limit=200)
     return val / a
 
 
