@@ -942,8 +942,8 @@ def _typed_column(got):
             whole[i] = True
             values[i] = float(got[i])
     return values, floats, floats | whole
-_PLAIN = frozenset((float, int, str, bool, type(None)))
-_SHARED = frozenset((float, int, str, bool, type(None), ExcelError))  # values several cells may hold as one object  # cell values passed to our functions as they are
+_PLAIN = frozenset((float, int, str, bool, type(None)))  # cell values passed to our functions as they are
+_SHARED = frozenset((float, int, str, bool, type(None), ExcelError))  # values several cells may hold as one object
 
 _ELEMENTWISE = {"LN", "LOG", "LOG10", "EXP", "SQRT", "ABS", "IF", "IFERROR", "ROUND", "ISNUMBER", "ISBLANK", "SIGN", "POWER"}
 _LOGICAL = {"OR", "AND"}
