@@ -218,7 +218,9 @@ def build(path: Path, cfg: dict) -> Path:
     summ.cell(last, 1).alignment = Alignment(wrap_text=True, vertical="top")
     summ.merge_cells(start_row=last, start_column=1, end_row=last, end_column=3)
     summ.row_dimensions[last].height = 48
-    _widths(summ, {"A": 42, "B": 24, "C": 88})
+    # column A as wide as its longest label (the daily template's "one-month (21 trading days)
+    # expected shortfall, % of value"), so that no label is cut off by the value beside it
+    _widths(summ, {"A": max(42, max(len(row[1]) for row in rows) + 2), "B": 24, "C": 88})
     _page(summ, f"A1:C{last}")
 
     # ------------------------------------------------------------------ About
