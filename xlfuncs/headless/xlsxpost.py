@@ -1194,13 +1194,12 @@ _CALC_CHAIN_REL = _REL_DOC + "/calcChain"
 _CELL_CM_RE = re.compile(r"""\s+cm\s*=\s*(["'])[^"']*\1""")
 _BOOL_CELL_RE = re.compile(r"""<c(?=\s)([^>]*?\st\s*=\s*["']b["'][^>]*?)/?>""")
 _S_ATTR_RE = re.compile(r"""\ss\s*=\s*["'](\d+)["']""")
-# the built-in number formats whose code a package need not list (ECMA-376 Part 1, 18.8.30): none
-# of them shows a boolean as TRUE/FALSE, so a boolean in one of them needs the openpyxl route
 
 
 def _number_formats(pkg: _Package, wb_part: str) -> list:
     """The number-format code of each cell format (``cellXfs``, by the index a cell's ``s`` names),
-    None for a built-in format; [] for a package without a styles part."""
+    None for a built-in format (ECMA-376 Part 1, 18.8.30: a package need not list them, and none
+    shows a boolean as TRUE/FALSE); [] for a package without a styles part."""
     rel = next((r for r in _relationships(pkg, wb_part) if r.get("Type") == _STYLES_REL
                 and r.get("TargetMode") != "External"), None)
     if rel is None:
