@@ -289,3 +289,30 @@ def test_cli_backtest_on_too_short_a_series(tmp_path, capsys, n):
     assert rc == 2
     line, = err.splitlines()
     assert f"{n} number{'s are' if n != 1 else ' is'} too few for a backtest of GARCH(1,1); it needs at least 20" in line
+
+
+def test_a_call_with_too_many_or_too_few_arguments_says_how_many_it_takes(tmp_path, capsys):
+    """A cell with one argument too many (possible in a file, and read as written by a headless
+    recalculation) answered "hit an internal problem (TypeError...)"; it now names the function's
+    arguments, optional ones in brackets, and how many it got."""
+    import openpyxl
+
+    from xlfuncs import sheet
+
+    for name in sheet.__all__:
+        fn = getattr(sheet, name)
+        out = fn(*([1.0] * 12))
+        text = out[0][0]
+        assert re.fullmatch(rf"ERROR: {name}\(.*\) takes \d+( to \d+)? arguments?, got 12", text), text
+        assert "internal problem" not in text
+    assert VOLFIT()[0][0].endswith("takes 1 to 5 arguments, got 0")
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for i in range(1, 61):
+        ws.cell(i, 1, 0.01 * ((i * 37) % 11 - 5))
+    ws["C1"] = '=VOLRISK(A1:A60, 0.99, 10, 1, 2, 3, "log100")'
+    wb.save(tmp_path / "b.xlsx")
+    assert main(["recalc", str(tmp_path / "b.xlsx"), "-o", str(tmp_path / "o.xlsx")]) == 0
+    got = openpyxl.load_workbook(tmp_path / "o.xlsx", data_only=True).active["C1"].value
+    assert got.startswith("ERROR: VOLRISK(returns, fit, [level], [horizon]") and got.endswith("got 7")
+    capsys.readouterr()

@@ -10,6 +10,7 @@ a traceback).
 from __future__ import annotations
 
 import functools
+import inspect
 import math
 import operator
 import warnings
@@ -77,9 +78,16 @@ def is_error_text(value) -> bool:
 
 def sheet_function(func):
     """Wrap a worksheet function so that it never raises into the spreadsheet."""
+    sig = inspect.signature(func)
+    usage = f"{func.__name__}(" + ", ".join(
+        name if p.default is p.empty else f"[{name}]" for name, p in sig.parameters.items()) + ")"
 
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
+        try:  # a call with too many arguments (a headless recalculation reads what the cell says)
+            sig.bind(*args, **kwargs)
+        except TypeError:
+            return error_cell(f"{usage} takes {_count_words(sig)}, got {len(args) + len(kwargs)}")
         try:
             with np.errstate(all="ignore"), warnings.catch_warnings():
                 warnings.simplefilter("ignore")
@@ -95,6 +103,13 @@ def sheet_function(func):
             )
 
     return wrapper
+
+
+def _count_words(sig) -> str:
+    """How many arguments a signature takes, in words: "2 to 7 arguments"."""
+    params = list(sig.parameters.values())
+    need = sum(p.default is p.empty for p in params)
+    return f"{need} argument{'s' if need != 1 else ''}" if need == len(params) else f"{need} to {len(params)} arguments"
 
 
 def is_blank(v) -> bool:
