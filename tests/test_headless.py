@@ -548,3 +548,31 @@ def test_round_as_excel_rounds(tmp_path, text, want):
     for r in range(1, 30):
         v = got[("Sheet", r, 1)]
         assert (v.code if hasattr(v, "code") else v) == want
+
+
+@pytest.mark.parametrize("values_only", [False, True])
+def test_spilled_numbers_are_stored_to_the_last_digit_on_the_openpyxl_route(tmp_path, values_only):
+    """A workbook whose formulas read a spill (A1#) is written through openpyxl, which keeps 16
+    significant digits; the fit table's numbers in the file now equal a direct VOLFIT call's to the
+    last bit (they differed in the 17th digit), with --values-only too."""
+    r = simulate(parse_model("GARCH(1,1)"), get_distribution("t"), np.array([0.03, 0.02, 0.08, 0.9, 6.0]), 600,
+                 rng=np.random.default_rng(7)).ravel()
+    r = np.round(r, 10)  # numbers openpyxl writes exactly (16 significant digits), so both fits read the same
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for i, x in enumerate(r, start=1):
+        ws.cell(i, 1, float(x))
+    ws["C1"] = '=VOLFIT(A1:A600, "GJR-GARCH(1,1)", "t")'
+    ws["J1"] = "=INDEX(C1#, 5, 2)*2"  # a spill reference: the openpyxl route writes the book
+    wb.save(tmp_path / "b.xlsx")
+    args = ["recalc", str(tmp_path / "b.xlsx"), "-o", str(tmp_path / "o.xlsx")] + (["--values-only"] if values_only else [])
+    assert main(args) == 0
+    got = openpyxl.load_workbook(tmp_path / "o.xlsx", data_only=True).active
+    direct = VOLFIT([[float(x)] for x in r], "GJR-GARCH(1,1)", "t")
+    numbers = 0
+    for i, row in enumerate(direct, start=1):
+        for j, v in enumerate(row, start=3):
+            if isinstance(v, float):
+                assert got.cell(i, j).value == v, (i, j)
+                numbers += 1
+    assert numbers > 20 and got["J1"].value == direct[4][1] * 2

@@ -15,6 +15,7 @@ results, where Excel 365 would spill them too, are reduced to their top-left val
 from __future__ import annotations
 
 import datetime as _dt
+import math
 import os
 import re
 import tempfile
@@ -1238,7 +1239,7 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
             return dst, report
     from openpyxl.worksheet.formula import ArrayFormula
 
-    from .xlsxpost import store_values
+    from .xlsxpost import place_values, store_values
 
     book = wb.book
     book.calculation.fullCalcOnLoad = False
@@ -1248,6 +1249,7 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
     book.calculation.calcId = max(int(book.calculation.calcId or 0), 191029)
     formula_values = {}
     dynamic = {}
+    exact = {}  # (sheet, "B3") -> each computed number openpyxl writes (spilled values; all with values_only)
 
     def plain(v, where=None):
         if isinstance(v, ExcelError):
@@ -1266,7 +1268,9 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
         raw = wb.values.get((sheet, row, col))
         v = raw if isinstance(raw, ExcelError) else plain(raw, f"{sheet}!{cell_name(row, col)}")
         if values_only:
-            ws.cell(row=row, column=col).value = plain(v)
+            ws.cell(row=row, column=col).value = v = plain(v)
+            if type(v) is float and math.isfinite(v):
+                exact[(sheet, cell_name(row, col))] = v
             continue
         if (sheet, row, col) in wb.arrays:
             r1, c1, r2, c2 = wb.arrays[(sheet, row, col)]
@@ -1282,16 +1286,21 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
         sheet, row, col = cell
         if not values_only and anchor in wb.arrays and cell in wb.formulas:
             continue
-        book[sheet].cell(row=row, column=col).value = plain(wb.values.get(cell), f"{sheet}!{cell_name(row, col)}")
+        v = plain(wb.values.get(cell), f"{sheet}!{cell_name(row, col)}")
+        book[sheet].cell(row=row, column=col).value = v
+        if type(v) is float and math.isfinite(v):
+            exact[(sheet, cell_name(row, col))] = v
 
     tmp1, tmp2 = _temp_pair(dst)
     try:
         book.save(tmp1)
+        # openpyxl writes a number with 16 significant digits: the package editor stores the
+        # computed numbers it wrote again, to the last digit (as the formulas' values are)
         if values_only:
-            os.replace(tmp1, dst)
+            place_values(tmp1, tmp2, exact)
         else:
-            store_values(tmp1, tmp2, formula_values, dynamic)
-            os.replace(tmp2, dst)
+            store_values(tmp1, tmp2, formula_values, dynamic, constants=exact)
+        os.replace(tmp2, dst)
     finally:
         for t in (tmp1, tmp2):
             if os.path.exists(t):
