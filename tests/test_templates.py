@@ -89,3 +89,42 @@ def test_libreoffice_opens_the_values_only_output(filled, tmp_path):
                     assert_allclose(float(c), v, rtol=1e-9, atol=1e-12)
                     checked += 1
         assert checked > 20
+
+
+def test_each_risk_block_method_is_readable_in_full(filled):
+    """Each VaR block's method row (path count, seed, variance reduction: what a validator asks
+    to reproduce a simulated figure) is shown in full somewhere on the Forecast sheet: a cell (or
+    merged range) wide and tall enough for the whole text at about one character per unit of
+    column width and 12.5 points a line (common practice for a 9-10 point font)."""
+    import math
+
+    from openpyxl.utils import get_column_letter
+
+    _, out, _ = filled
+    forms = openpyxl.load_workbook(out)["Forecast"]
+    ws = openpyxl.load_workbook(out, data_only=True)["Forecast"]
+    text = [(c, getattr(c.value, "text", c.value)) for row in forms.iter_rows() for c in row]  # spills: array formulas
+    anchors = [c for c, t in text if isinstance(t, str) and t.upper().startswith("=VOLRISK(")]
+    assert len(anchors) == 3
+    merged = {m.min_row * 10_000 + m.min_col: m for m in ws.merged_cells.ranges}
+    for a in anchors:
+        r = a.row
+        while ws.cell(r, a.column).value != "method":
+            r += 1
+            assert r < a.row + 20, "no method row under the VOLRISK block"
+        method = ws.cell(r, a.column + 1).value
+        assert isinstance(method, str) and len(method) > 5
+        # any cell ending with the text but the blocks' own method cells (their left neighbour
+        # the label): two blocks may share a method
+        shown = [c for row in ws.iter_rows() for c in row
+                 if isinstance(c.value, str) and c.value.endswith(method)
+                 and not (c.column > 1 and ws.cell(c.row, c.column - 1).value == "method")]
+        assert shown, f"the method of the block at {a.coordinate} is not shown in full"
+        c = shown[0]
+        m = merged.get(c.row * 10_000 + c.column)
+        cols = range(c.column, (m.max_col if m else c.column) + 1)
+        width = sum(ws.column_dimensions[get_column_letter(k)].width or 8.43 for k in cols)
+        lines = math.ceil(len(c.value) / width)
+        assert c.alignment.wrap_text or lines == 1
+        height = ws.row_dimensions[c.row].height or 15
+        assert height >= 12.5 * lines, (c.coordinate, c.value, width, height)

@@ -365,6 +365,8 @@ def build(path: Path, cfg: dict) -> Path:
     fc["I1"].font = TITLE
     fc["I14"] = "rows VaR, ES: loss in log-return %; VaR_value, ES_value: loss in % of value"
     fc["I14"].font = NOTE
+    fc["I15"] = "how each block was computed (VOLRISK's method row, in full):"
+    fc["I15"].font = NOTE
     for j, (months, steps) in enumerate(zip((1, 3, 12), (month, 3 * month, year))):
         col = 9 + 3 * j
         label = f"{months} month{'s' if months > 1 else ''}" + (f" ({steps} {unit}s)" if steps != months else "")
@@ -372,18 +374,25 @@ def build(path: Path, cfg: dict) -> Path:
         fc.cell(3, col, f"=VOLRISK(returns, {FIT}, Inputs!$B$7, {steps})")
         for r in range(4, 16):
             fc.cell(r, col + 1).number_format = "0.00"
-        # the method row (VOLRISK's 10th) holds a longer text
-        fc.cell(12, col + 1).alignment = Alignment(wrap_text=True, vertical="top")
-    fc.row_dimensions[12].height = 26
+        # the method row (VOLRISK's 10th) holds a longer text than its column shows (seed, path
+        # count, variance reduction): each block's in full on a wide row of its own below
+        row = 16 + j
+        short = label.split(" (")[0]
+        block = spill(f"${get_column_letter(col)}$3")
+        m = fc.cell(row, 9, f'="{short}: "&VLOOKUP("method", {block}, 2, FALSE)')
+        m.font = NOTE
+        m.alignment = Alignment(wrap_text=True, vertical="top")
+        fc.merge_cells(start_row=row, start_column=9, end_row=row, end_column=16)
+        fc.row_dimensions[row].height = 26
     fc.cell(2, 18, f"cumulative variance (%^2), {unit}s 1..{year}").font = Font(bold=True)
     fc.cell(2, 18).alignment = Alignment(wrap_text=True, vertical="bottom")
     fc.row_dimensions[2].height = 45
     fc.cell(3, 18, f'=VOLFORECAST(returns, {FIT}, {year}, "cumvar")')
     _fmt(fc, f"R3:R{3 + year}", "0.00")
-    fc.cell(16, 9, CAUTION).font = NOTE
-    fc.cell(16, 9).alignment = Alignment(wrap_text=True, vertical="top")
-    fc.merge_cells("I16:P18")  # not R: the cumulative variance spills down R
-    for r in (16, 17, 18):
+    fc.cell(20, 9, CAUTION).font = NOTE
+    fc.cell(20, 9).alignment = Alignment(wrap_text=True, vertical="top")
+    fc.merge_cells("I20:P22")  # not R: the cumulative variance spills down R
+    for r in (20, 21, 22):
         fc.row_dimensions[r].height = 20
     _widths(fc, {"A": 6, "B": 9, "C": 9, "D": 8, "E": 9, "F": 11, "G": 11, "H": 2, "I": 11, "J": 14, "K": 2,
                  "L": 11, "M": 14, "N": 2, "O": 11, "P": 14, "Q": 2, "R": 18})
@@ -396,13 +405,13 @@ def build(path: Path, cfg: dict) -> Path:
     term.set_categories(Reference(fc, min_col=1, min_row=4, max_row=3 + cfg["horizon"]))
     term.y_axis.number_format = "0.0"
     term.width, term.height = 17, 7.5
-    fc.add_chart(term, "I20")
+    fc.add_chart(term, "I24")
     # the printout: the first 60 steps at most (the daily template's year is 252 rows on screen)
     shown = min(cfg["horizon"], 60)
     if shown < cfg["horizon"]:
         fc["A2"] = f"the printout shows {unit}s 1 to {shown}; all {cfg['horizon']} are on screen"
         fc["A2"].font = NOTE
-    _page(fc, f"A1:R{max(3 + shown, 36)}", tall=0)
+    _page(fc, f"A1:R{max(3 + shown, 40)}", tall=0)  # the chart ends near row 39
 
     # ------------------------------------------------------------------ Volatility
     vol = wb.create_sheet("Volatility")
