@@ -99,3 +99,39 @@ def test_canonical_keys_take_the_common_case():
     assert xlsxpost._canonical_keys(mapping, {"S": "x"}) is not None
     for bad in (("S", "A0"), ("S", "a1"), ("S", "$A$1"), ("S", "XFD1"), ("S", "A1048576"), ("T", "A1")):
         assert xlsxpost._canonical_keys({**mapping, bad: 1.0}, {"S": "x"}) is None, bad
+
+
+def _attrs_general(text):
+    """The general attribute loop (both quote styles), the reference for the quick split."""
+    out = {}
+    for m in xlsxpost._ATTR_RE.finditer(text):
+        raw = m.group(2) if m.group(2) is not None else m.group(3)
+        out[m.group(1)] = raw.replace('"', "&quot;")
+    return out
+
+
+_ATTR_NAMES = st.sampled_from(["r", "s", "t", "cm", "x:y", "_a.b-c", "vm"])
+_ATTR_VALUES = st.text(alphabet="A1$ '\"&;x", max_size=5)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.tuples(_ATTR_NAMES, _ATTR_VALUES, st.sampled_from(['"', "'"]), st.sampled_from([" ", "  ", "\n"]),
+                          st.sampled_from(["=", " = "])), max_size=5))
+@example([("r", "A1", '"', " ", "="), ("r", "B2", '"', " ", "=")])
+def test_attributes_split_as_the_general_loop_splits_them(parts):
+    """_attrs' quick split (every value double-quoted) gives the general loop's dict, order and
+    repeated names included; a value that could not be written in its quotes is left out."""
+    text = "".join(f"{sp}{name}{eq}{q}{v}{q}" for name, v, q, sp, eq in parts if q not in v)
+    got = xlsxpost._attrs(text)
+    assert got == _attrs_general(text)
+    assert list(got) == list(_attrs_general(text))
+
+
+@pytest.mark.parametrize("head", [' r="$C7" s="4"', " r='C7' s='4'", ' s="4" r="C7"', ' r="c7" s="4"'])
+def test_merge_row_reads_a_reference_in_any_form(head):
+    """A cell whose reference is not in the quick form (a $, single quotes, not first, lower case)
+    is still placed by its column: the value set in C7 replaces it and keeps its style."""
+    out = xlsxpost._merge_row("S", 7, ' r="7"', f'<c r="A7"/><c{head}><v>1</v></c><c r="E7"/>', {3: (None, "2.5")})
+    assert out == '<row r="7"><c r="A7"/><c r="C7" s="4"><v>2.5</v></c><c r="E7"/></row>'
+    with pytest.raises(ValueError, match="outside the sheet"):
+        xlsxpost._merge_row("S", 7, ' r="7"', '<c r="ZZZ7"/>', {3: (None, "2.5")})

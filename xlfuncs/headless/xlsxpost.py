@@ -490,8 +490,15 @@ _PLAIN_F_CELL_RE = re.compile(r'<c r="([A-Z]{1,3}[0-9]{1,7})"(?: s="([0-9]+)")?(
                               r'(<f>[^<]*</f>)(<v>[^<]*</v>|<v\s*/>)?</c>')
 
 
+_DQ_ATTR_RE = re.compile(r'([A-Za-z_][\w.:-]*)\s*=\s*"([^"]*)"')
+
+
 def _attrs(text: str) -> dict[str, str]:
     """Attributes in document order, values as written (still escaped)."""
+    if "'" not in text:
+        # every value double-quoted (as every writer we meet writes them): the pairs in one C-level
+        # pass, the same dict as the loop below (a repeated name keeps its first place, last value)
+        return dict(_DQ_ATTR_RE.findall(text))
     out = {}
     for m in _ATTR_RE.finditer(text):
         raw = m.group(2) if m.group(2) is not None else m.group(3)
@@ -1057,6 +1064,24 @@ def _cell_xml(ref: str, style: str | None, encoded) -> str:
     return f'<c r="{ref}"{s} t="{kind}"><v>{text}</v></c>'
 
 
+# a cell's attributes that open with its reference, double-quoted, in canonical form (upper case,
+# no $, no leading zero): its column letters
+_LEAD_REF_RE = re.compile(r'\s+r="([A-Z]{1,3})[1-9][0-9]{0,6}"(?=\s|$)')
+_COLUMNS: dict = {}
+
+
+def _column_number(letters: str) -> int:
+    """The column number of upper-case ``letters`` (A = 1), remembered."""
+    col = _COLUMNS.get(letters)
+    if col is None:
+        col = 0
+        for ch in letters:
+            col = col * 26 + ord(ch) - 64
+        if len(_COLUMNS) < 20_000:
+            _COLUMNS[letters] = col
+    return col
+
+
 def _merge_row(title: str, row: int, attrs: str, inner: str | None, cells: dict) -> str:
     """A row element with ``cells`` ({col: encoded}) set: an existing cell keeps its style."""
     parts = []
@@ -1065,13 +1090,16 @@ def _merge_row(title: str, row: int, attrs: str, inner: str | None, cells: dict)
     for m in _CELL_RE.finditer(inner):
         if inner[pos:m.start()].strip():
             raise ValueError(f"sheet {title!r}: row {row} holds more than cells")
-        a = _attrs(m.group(1))
-        ref = a.get("r")
-        if not ref:
-            raise ValueError(f"sheet {title!r}: a cell of row {row} has no reference")
-        col = _parse_ref(ref)[1]
+        head = m.group(1)
+        fast = _LEAD_REF_RE.match(head)  # r first, as writers put it: the column without the full parse
+        col = _column_number(fast.group(1)) if fast is not None else 0
+        if not 0 < col <= _MAX_COL:  # no such reference, or beyond XFD: the full parse words it
+            ref = _attrs(head).get("r")
+            if not ref:
+                raise ValueError(f"sheet {title!r}: a cell of row {row} has no reference")
+            col = _parse_ref(ref)[1]
         if col in cells:
-            parts.append((col, _cell_xml(_ref_name(row, col), a.get("s"), cells[col])))
+            parts.append((col, _cell_xml(_ref_name(row, col), _attrs(head).get("s"), cells[col])))
         else:
             parts.append((col, m.group(0)))
         pos = m.end()
