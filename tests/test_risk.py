@@ -505,14 +505,17 @@ ARMA_CASES = [
 
 
 @needs_jit
+@pytest.mark.parametrize("h", [22, 80], ids=["h22", "h80-padded"])
 @pytest.mark.parametrize("model,dist,params", ARMA_CASES, ids=[c[0] + "-" + c[1] for c in ARMA_CASES])
-def test_compiled_arma_paths_are_the_step_by_step_paths_bit_for_bit(series, model, dist, params):
+def test_compiled_arma_paths_are_the_step_by_step_paths_bit_for_bit(series, model, dist, params, h):
     """An ARMA mean's paths in the family's compiled kernels (_compiled_sums: the AR and MA lags
     starting from the sample's last returns and residuals, the terms added in the step-by-step
     route's order) against the step-by-step route (forward_steps, whose paths the tests above check
     against the analytic forecast) from the same scores: the sums (cum), the sum before the last step
     plus its mean (a_last) and the last volatility (s_last) are the same numbers to the last bit
-    (internal consistency), and so are the paths' weights."""
+    (internal consistency), and so are the paths' weights.  At 80 periods the 16 steps beyond
+    QMC_STEPS take pseudo-random scores, drawn a block at a time in the compiled route and a step
+    at a time in the other: the same numbers."""
     import xlfuncs.core.risk as rmod
     from xlfuncs.core.families import _compiled
     from xlfuncs.core.simulate import forward_steps
@@ -520,9 +523,10 @@ def test_compiled_arma_paths_are_the_step_by_step_paths_bit_for_bit(series, mode
     if not _compiled._load_numba():
         pytest.skip("numba is not importable")
     f = _fit(model, dist, params, series)
-    assert rmod.compiled_route(f.spec, 22)
+    assert rmod.compiled_route(f.spec, h)
     to_shock = f.dist.normal_scores(_eta(f))
-    h, n = 22, rmod.BLOCK + 900  # two blocks of scores, the second a short one
+    n = rmod.BLOCK + 900  # two blocks of scores, the second a short one
+    assert (h > rmod.QMC_STEPS) == (h == 80)
     compiled = rmod._Scores(h, n, 7, 0.01)
     out = rmod._compiled_sums(f, series, h, compiled, to_shock)
     assert out is not None
@@ -569,13 +573,15 @@ def test_compiled_paths_are_the_step_by_step_paths(series, model, dist, params, 
     used = []
     fast = rmod._compiled_sums
     monkeypatch.setattr(rmod, "_compiled_sums", lambda *a: used.append(fast(*a)) or used[-1])
-    a = risk(f, series, 0.99, 22, paths=4096, seed=7)
-    assert used and used[-1] is not None  # the compiled route served
-    monkeypatch.setenv("VOLCAST_NO_JIT", "1")
-    b = risk(f, series, 0.99, 22, paths=4096, seed=7)
-    assert used[-1] is None
-    assert_allclose([a.var, a.es], [b.var, b.es], rtol=1e-12)
-    assert a.method == b.method
+    for h in (22, 70):  # 70: six steps beyond QMC_STEPS, pseudo-random
+        monkeypatch.delenv("VOLCAST_NO_JIT", raising=False)
+        a = risk(f, series, 0.99, h, paths=4096 + 1000, seed=7)
+        assert used and used[-1] is not None  # the compiled route served
+        monkeypatch.setenv("VOLCAST_NO_JIT", "1")
+        b = risk(f, series, 0.99, h, paths=4096 + 1000, seed=7)
+        assert used[-1] is None
+        assert_allclose([a.var, a.es], [b.var, b.es], rtol=1e-12)
+        assert a.method == b.method
 
 
 def test_normal_scores_interpolant_is_scipy_ndtri():

@@ -765,6 +765,23 @@ def _score_kernel_py(i0, vs, shift, d, radial, first_shift, scale, log_scale, v,
 _score_kernel = kernel(_score_kernel_py)
 
 
+@kernel
+def _pad_move(Y, moved, scale, theta, log_scale, logw):
+    """The proposal's move of the padding steps' scores (rows of Y, a column per path): the first
+    ``moved`` rows widened and moved, x = scale y - theta, each path's log likelihood ratio
+    gathering (y^2 - x^2) / 2 + ln scale a row at a time, in the order and with the arithmetic of
+    :meth:`_Scores.step` (so the two routes give the same numbers); the rows after (the last
+    step's) left as drawn."""
+    n = Y.shape[1]
+    for j in range(moved):
+        y = Y[j]
+        for i in range(n):
+            yi = y[i]
+            x = scale * yi - theta
+            y[i] = x
+            logw[i] += 0.5 * (yi * yi - x * x) + log_scale
+
+
 #: the share of the normal-theory shift of the sum's quantile that the normal scores of steps
 #: 1..h-1 are moved by (along their sum), and the factor the scores' spread across the other
 #: directions is widened by at 22 periods (measured in benchmarks/risk_accuracy.py: the widening
@@ -778,14 +795,15 @@ SCALE = 1.2
 #: net) times a direction (the normal scores of the next coordinates, normalised)
 RADIAL = True
 #: the paths whose scores one pass of the compiled kernels makes before the family's kernel takes
-#: them (22 x 4,096 scores, 0.7 MB: in the cache between the two)
+#: them (22 x 4,096 scores, 0.7 MB: in the cache between the two); also the blocks of paths whose
+#: padding steps (beyond QMC_STEPS) come from one generator each
 BLOCK = 4096
 #: the paths whose weighted empirical quantile starts the solvers of the VaR (:func:`_tail_solve`):
 #: the first 2^13 points of the scrambled sequence, a net of their own; a start within a few tenths
 #: of a percent of the root is enough for the quadratic step and the Newton step that follow
 START_PATHS = 8192
 #: the steps that take quasi-random scores; later steps of a long horizon take pseudo-random ones
-#: (padding, common practice), so the points held stay paths x QMC_STEPS
+#: (padding, common practice), so the Sobol' points made stay paths x QMC_STEPS
 QMC_STEPS = 64
 
 
@@ -795,7 +813,8 @@ class _Scores:
     Randomised quasi-Monte Carlo: the points of a Sobol' sequence in min(h, QMC_STEPS)
     dimensions, scrambled with the seed (:func:`_scrambled_directions`: the estimator stays
     unbiased), turned into standard-normal scores g by :class:`_NormalTable`; steps beyond take
-    pseudo-random scores from the same seeded generator.  Where numba runs, one compiled pass
+    pseudo-random scores, each block of :data:`BLOCK` paths from a generator of its own (a child
+    of the seed's ``SeedSequence``), so that a block's every step is known before its first.  Where numba runs, one compiled pass
     (:func:`_score_kernel_py`) makes a path's point, scores, move, weight and rotation at once, a
     block of paths at a time for the family's kernel (:meth:`blocks`), or all of them when the
     step-by-step route asks for ``y``; elsewhere NumPy makes them with the same arithmetic.
@@ -818,8 +837,9 @@ class _Scores:
     alpha-quantile spread over the steps, common practice); the other coordinates widened by s
     (SCALE).  A path's log likelihood ratio, the standard normal density over the proposal's, is
     the sum over the moved coordinates of (g^2 - x^2) / 2 + ln s (ln s only for widened ones).
-    Pseudo-random steps beyond QMC_STEPS are moved and widened one by one, x = s y - theta.  The
-    last step's scores are left as fitted (they are integrated out exactly).
+    Pseudo-random steps beyond QMC_STEPS are moved and widened one by one, x = s y - theta (in
+    :meth:`step`, or :func:`_pad_move` over a block's rows: the same arithmetic).  The last step's
+    scores are left as fitted (they are integrated out exactly).
     """
 
     def __init__(self, horizon: int, paths: int, seed: int, alpha: float):
@@ -832,6 +852,13 @@ class _Scores:
         self.theta = TILT * -float(special.ndtri(alpha)) / math.sqrt(horizon)
         self.scale = 1.0 + (SCALE - 1.0) * min(1.0, math.sqrt(21.0 / max(horizon - 1, 1)))
         self.d = d = min(horizon - 1, dims)
+        # the pseudo-random steps beyond QMC_STEPS: drawn a block of BLOCK paths at a time, each
+        # block from a generator of its own (children of the seed's sequence), so that a block's
+        # steps are known before its first step (the compiled route makes them with its scores)
+        # and the step-by-step route, a step for every block in turn, draws the same numbers
+        self.pad = horizon - dims
+        self._pad_rngs = [np.random.default_rng(c) for c in np.random.SeedSequence(seed).spawn(-(-paths // BLOCK))] \
+            if self.pad else []
         v = np.full(max(d, 1), -1.0 / math.sqrt(max(d, 1)))
         v[0] += 1.0
         vw = v * (2.0 / float(v @ v)) if d > 1 else np.zeros(len(v))
@@ -887,18 +914,29 @@ class _Scores:
     def blocks(self, size: int = BLOCK):
         """(i0, Y) for the paths i0..i0+len-1 in blocks of ``size`` (compiled route), the weights
         written into ``logw`` on the way: a block's scores stay in the cache for the family's kernel."""
-        Y = np.empty((self.dims, min(size, self.paths)))
+        if self.pad and size != BLOCK:
+            raise ValueError("the padding steps are drawn a block of BLOCK paths at a time")
+        rows = self.dims + self.pad
+        Y = np.empty((rows, min(size, self.paths)))
         for i0 in range(0, self.paths, size):
             n = min(size, self.paths - i0)
             if n < Y.shape[1]:
-                Y = np.empty((self.dims, n))
-            self._kernel(i0, Y, self.logw[i0:i0 + n])
+                Y = np.empty((rows, n))
+            logw = self.logw[i0:i0 + n]
+            self._kernel(i0, Y, logw)
+            if self.pad:
+                self._pad_rngs[i0 // BLOCK].standard_normal(out=Y[self.dims:])
+                _pad_move(Y[self.dims:], self.pad - 1, self.scale, self.theta, math.log(self.scale), logw)
             yield i0, Y
 
     def step(self, h: int) -> np.ndarray:
         if h < self.d:
             return self.y[h]
-        y = self.y[h] if h < self.dims else self.rng.standard_normal(self.paths)
+        if h < self.dims:
+            y = self.y[h]
+        else:  # a padding step: each block's next row (the steps come in order)
+            y = np.concatenate([g.standard_normal(min(BLOCK, self.paths - b * BLOCK))
+                                for b, g in enumerate(self._pad_rngs)])
         if h == self.horizon - 1:
             return y
         x = self.scale * y - self.theta
@@ -922,12 +960,10 @@ def _conditional_es(dist, eta, a, s, w, cut: float) -> float:
 def compiled_route(spec, horizon: int) -> bool:
     """Whether the risk figures' paths over ``horizon`` periods run in the variance family's
     compiled kernels (:func:`_compiled_sums`): a constant (or zero) or ARMA mean without regressors
-    or in-mean term, every step's scores quasi-random (:data:`QMC_STEPS`), a family with such kernels,
-    and the kernels compiled."""
+    or in-mean term, a family with such kernels, and the kernels compiled."""
     from .families._compiled import jit_enabled
 
-    return not (spec.in_mean or spec.n_regressors) and horizon <= QMC_STEPS \
-        and bool(spec.family.compiled_paths) and jit_enabled()
+    return not (spec.in_mean or spec.n_regressors) and bool(spec.family.compiled_paths) and jit_enabled()
 
 
 def default_paths(spec, horizon: int) -> int:
@@ -943,12 +979,12 @@ def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
     plus its mean, and the last step's volatility, the numbers the step-by-step route
     (:func:`~xlfuncs.core.simulate.forward_steps`) gives from the same scores, the ARMA terms'
     lags starting, as there, from the sample's last returns and residuals.  For a constant (or
-    zero) or ARMA mean without regressors or in-mean term, when every step's scores are quasi-random
-    (:data:`QMC_STEPS`), so that they and the paths' weights are known before the first step;
+    zero) or ARMA mean without regressors or in-mean term (every step's scores and the paths'
+    weights are known before the first step: quasi-random, then the padding a block at a time);
     None otherwise, or where the family has no such kernel or numba does not run them.
     """
     spec = fit.spec
-    if not compiled_route(spec, horizon) or scores.d != horizon - 1:
+    if not compiled_route(spec, horizon) or scores.horizon != horizon:
         return None
     fam = spec.family
     from .families import History
@@ -964,6 +1000,8 @@ def _compiled_sums(fit, r, horizon: int, scores: "_Scores", to_shock, X=None):
             np.nan_to_num(resid)[len(resid) - spec.ma:] if spec.ma else None)  # as forward_steps starts them
     state = fam.sim_continue(vp, eta, fit.dist, History(resid[lik.a:], var[lik.a + lik.s0:], lik.s0))
     if not scores.compiled or scores._y is not None:
+        if scores.pad:  # scores made by NumPy (numba absent): the padding steps a block at a time
+            return None
         return fam.sim_sums(state, vp, scores.y[:horizon], to_shock, mu, *arma)
     n = scores.paths
     cum, a_last, s_last = np.empty(n), np.empty(n), np.empty(n)
