@@ -11,6 +11,7 @@ import csv
 import datetime as dt
 import hashlib
 import math
+import re
 import shutil
 import subprocess
 
@@ -274,6 +275,10 @@ def _bad(small, tmp_path, rows, *flags):
     (lambda L, D: [(dt.date(1980, 1, 31), "100")], "older than the workbook's last date"),
     (lambda L, D: [(dt.date(2010, 2, 28), "100"), (dt.date(2010, 1, 31), "100")], "not after the previous new date"),
     (lambda L, D: [("31/01/2010", "100")], "cannot read a date"),
+    # a run before the month's end: half a month taken as a whole month's return
+    (lambda L, D: [(dt.date(2010, 1, 15), f"{L[-1]:.4f}")], "comes only 15 day(s) after"),
+    # daily rows among month ends
+    (lambda L, D: [(dt.date(2010, 1, 4), f"{L[-1]:.4f}"), (dt.date(2010, 1, 5), f"{L[-1]:.4f}")], "comes only 4 day(s)"),
 ])
 def test_suspicious_or_bad_rows_stop_the_run(small, tmp_path, capsys, rows, pattern):
     book, dates, levels = small
@@ -321,6 +326,10 @@ def test_accept_flags_take_what_was_checked(small, tmp_path, capsys):
     code, out = _bad(small, tmp_path, [(dt.date(2010, 6, 30), f"{levels[-1]:.4f}")], "--accept-gaps")
     assert code == 0 and out.exists()
     assert "accepted" in capsys.readouterr().err
+    out.unlink()
+    code, out = _bad(small, tmp_path, [(dt.date(2010, 1, 15), f"{levels[-1]:.4f}")], "--accept-gaps")
+    assert code == 0 and out.exists()
+    assert "comes only 15 day(s)" in capsys.readouterr().err
     code, out = _bad(small, tmp_path, [(dt.date(2010, 1, 31), f"{levels[-1] * 1.8:.4f}")], "--accept-jumps")
     assert code == 0
 
@@ -580,3 +589,67 @@ def test_a_values_copy_that_would_overwrite_the_input_is_refused(monthly, tmp_pa
     assert main(["refresh", str(book), "--data", str(data), "-o", str(tmp_path / "book.xlsx")]) == 2
     assert "would write over the input" in capsys.readouterr().err
     assert not (tmp_path / "book.xlsx").exists()
+
+
+# --------------------------------------------------------------------------- data against the template's horizons
+@pytest.mark.parametrize("kind,dates", [
+    ("daily", _month_ends(60, 2000)),  # month ends into the daily template: a "month" of 21 months
+    ("monthly", _business_days(400)),  # trading days into the monthly template: a "year" of 12 days
+], ids=["monthly-data-daily-template", "daily-data-monthly-template"])
+def test_data_of_another_frequency_is_refused(tmp_path, capsys, kind, dates):
+    """The templates' horizons are periods: 21 and 252 in the daily one, 1 and 12 in the monthly
+    one (common practice: 21 trading days a month).  Data of the other spacing would give figures
+    for the wrong horizons under the same labels; the refresh refuses, names both spacings, and
+    writes nothing."""
+    levels = _levels("GJR-GARCH(1,1)", [0.03, 0.02, 0.05, 0.08, 0.88, 7.0], len(dates), seed=3)
+    assert main(["template", kind, "-o", str(tmp_path / "empty.xlsx")]) == 0
+    out = tmp_path / "book.xlsx"
+    code = main(["refresh", str(tmp_path / "empty.xlsx"), "--data", str(_csv(tmp_path / "d.csv", dates, levels)),
+                 "-o", str(out)])
+    err = capsys.readouterr().err
+    assert code == 2 and "wrong horizon" in err and "Traceback" not in err and err.count("\n") == 1, err
+    assert ("usually 31 days apart" in err) == (kind == "daily")
+    assert not out.exists() and not out.with_name("book-values.xlsx").exists()
+
+
+def _inputs_row(ws, label):
+    """The row of the Inputs sheet whose label (column A) starts with ``label``."""
+    return next(r for r in range(1, ws.max_row + 1) if str(ws.cell(r, 1).value or "").startswith(label))
+
+
+def test_periods_unlike_the_template_year_are_refused(small, tmp_path, capsys):
+    """A monthly book whose Inputs say 52 periods a year: its one-month figures would be one week's
+    and its 'annualised' ones scaled by 52 under labels that say months; refused."""
+    book, dates, levels = small
+    wb = openpyxl.load_workbook(book)
+    ws = wb["Inputs"]
+    ws.cell(_inputs_row(ws, "periods per year"), 2).value = 52
+    edited = tmp_path / "weekly.xlsx"
+    wb.save(edited)
+    path = _csv(tmp_path / "n.csv", [dt.date(2010, 1, 31)], [levels[-1] * 1.01])
+    code = main(["refresh", str(edited), "--data", str(path), "-o", str(tmp_path / "x.xlsx")])
+    err = capsys.readouterr().err
+    assert code == 2 and "periods=52" in err and "would not be months" in err and "Traceback" not in err, err
+    assert not (tmp_path / "x.xlsx").exists()
+
+
+def test_a_fit_that_cannot_run_gives_its_own_reason(tmp_path, capsys):
+    """Three levels into the monthly template: the fit's own message (too few returns for the
+    model), not the #REF! of the figures that read it."""
+    out = tmp_path / "book.xlsx"
+    path = _csv(tmp_path / "h.csv", _month_ends(3, 2000), [100.0, 101.0, 99.5])
+    code = main(["refresh", str(template_file()), "--data", str(path), "-o", str(out)])
+    err = capsys.readouterr().err
+    assert code == 2 and "needs at least" in err and "#REF!" not in err and "Traceback" not in err, err
+    assert not out.exists()
+
+
+def test_a_known_date_with_another_level_shows_where_they_differ(small, tmp_path, capsys):
+    """The book's level and the file's, printed to the digit where they part (both read 10775.9
+    at six digits)."""
+    book, dates, levels = small
+    code, out = _bad(small, tmp_path, [(dates[-1], f"{levels[-1] * (1 + 3e-7):.10f}")])
+    err = capsys.readouterr().err
+    assert code == 2 and "already in the workbook" in err
+    shown = re.findall(r"level ([0-9.e+-]+), but the file says ([0-9.e+-]+);", err)
+    assert shown and shown[0][0] != shown[0][1], err

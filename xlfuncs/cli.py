@@ -710,8 +710,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="take new returns beyond the outlier bound (default: off, such a return stops the run: a "
                         "misplaced decimal point?)")
     p.add_argument("--accept-gaps", action="store_true",
-                   help="take calendar gaps much longer than the series' usual spacing (default: off, such a gap "
-                        "stops the run: missing rows?)")
+                   help="take calendar gaps much longer or much shorter than the series' usual spacing (default: "
+                        "off, such a gap stops the run: missing rows, or a date before the period's end?)")
     p.set_defaults(func=_cmd_refresh)
     p = sub.add_parser("template", help="write an empty shipped template, to load a history into with refresh",
                        description="Writes an empty shipped template; load a history of dates and levels into it "

@@ -9,7 +9,11 @@ A refresh is true or refuses; it never records a stale or wrong number.
   from BOOK, a date out of order or an unreadable row is refused with the line named.
 * Suspicious new data stops the run unless accepted: a return beyond a robust bound of the
   series (``JUMP_BOUND`` robust standard deviations from the median; a misplaced decimal point),
-  a calendar gap much longer than the series' usual spacing (rows missing).
+  a calendar gap much longer than the series' usual spacing (rows missing) or much shorter
+  (``SHORT_GAP``: a date before the period's end, daily rows among month ends).
+* Data whose spacing does not match the fit's ``periods`` a year, or ``periods`` that do not match
+  the template's year (the periods its 12-month figures add up), are refused
+  (:func:`frequency_problem`): every figure would be for the wrong horizon under its label.
 * The return formulas and every range that ends with them grow with the data, so no row is left
   out of the fit; a recalculation that still finds numbers below a range a formula of ours reads
   is refused.
@@ -44,6 +48,13 @@ _TOL = 1e-9
 # misplaced decimal point is always caught and genuine crash days of ordinary series are rare
 # enough to confirm by hand (--accept-jumps)
 JUMP_BOUND = 10.0
+# a new date closer than this share of the series' usual spacing to the one before is refused
+# (our own rule, see suspicious)
+SHORT_GAP = 0.6
+# the dates' usual spacing, over the spacing the fit's periods a year imply, must lie within
+# these bounds (our own rule: daily trading data at 252 a year are 0.69, calendar-daily at 365
+# 1.0, month ends at 12 a year about 1.0; monthly data under a daily setting are 21)
+SPACING_RATIO = (0.4, 2.5)
 _MAX_CSV_BYTES = 64 * 1024 * 1024
 
 
@@ -135,13 +146,78 @@ def suspicious(dates, levels, first_new: int, where) -> tuple:
         # our own rule: one and a half usual spacings plus three days, at least six days, so
         # long weekends and holidays of daily data pass and a missing month or week does not
         bound = max(1.5 * usual + 3, 6)
+        # and below SHORT_GAP of the usual spacing: a date mid-month (a run before the month's
+        # end) or a day among months, whose return would count as a whole period's; month ends
+        # (27 to 33 days apart) and holiday-shifted weeks (6 or 8 days) pass, daily data never stop
+        low = SHORT_GAP * usual
         for i in range(max(first_new, 1), n):
             if spans[i - 1] > bound:
                 gaps.append(
                     f"{where(i)}: {dates[i]} comes {spans[i - 1]} days after {dates[i - 1]}, while the series is usually "
                     f"{usual:g} days apart; the gap would be taken as one return (rows missing?); add the missing "
                     "dates or pass --accept-gaps to take it")
+            elif spans[i - 1] < low:
+                gaps.append(
+                    f"{where(i)}: {dates[i]} comes only {spans[i - 1]} day(s) after {dates[i - 1]}, while the series is "
+                    f"usually {usual:g} days apart; its return would be taken as a whole period's (a date before the "
+                    "period's end, or data of another frequency?); remove the row, or pass --accept-gaps to take it")
     return jumps, gaps
+
+
+def _digits(x: float, other: float) -> str:
+    """``x`` with the fewest significant digits (at least 6) that tell it from ``other``."""
+    for k in range(6, 18):
+        if f"{x:.{k}g}" != f"{other:.{k}g}":
+            return f"{x:.{k}g}"
+    return repr(x)
+
+
+def _option(options: str, key: str):
+    """The value of ``key=`` in a fit table's options text, or None."""
+    m = re.search(rf"(?:^|;)\s*{key}\s*=\s*([^;]*)", options or "", flags=re.IGNORECASE)
+    return m.group(1).strip() if m else None
+
+
+_INDEX_STEP_RE = re.compile(r"INDEX\(.*,\s*(\d+)\s*\)\s*\)\s*$", re.IGNORECASE | re.S)
+
+
+def _template_steps(wb, name: str):
+    """The number of periods a template's headline formula ``name`` reads from the cumulative
+    variance (=SQRT(INDEX(cum, N)): 21 for the daily template's vol_1m, 252 for its vol_12m), or
+    None where the formula has another shape (a user's own layout)."""
+    ref = name_range(wb, name)
+    if ref is None:
+        return None
+    v = wb[ref[0]].cell(ref[1], ref[2]).value
+    v = getattr(v, "text", v)
+    m = _INDEX_STEP_RE.search(v) if isinstance(v, str) and v.upper().startswith("=SQRT(") else None
+    return int(m.group(1)) if m else None
+
+
+def frequency_problem(dates, periods, month_steps=None, year_steps=None):
+    """A message where the data's dates, the fit's ``periods`` a year and the template's horizons
+    (``month_steps``, ``year_steps``: the periods its one- and twelve-month figures add up) do not
+    agree, else None: the figures would be for the wrong horizons."""
+    if year_steps and periods and abs(periods / year_steps - 1.0) > 0.1:
+        return (f"the fit's options say periods={periods:g} a year, but the workbook's 12-month figures add up "
+                f"{year_steps} periods and its 1-month figures {month_steps or year_steps / 12:g} (its template's "
+                f"year is {year_steps} periods): those figures would not be months; set periods back to {year_steps} "
+                "on the Inputs sheet, or start from the template of your data's frequency")
+    spans = [(dates[i] - dates[i - 1]).days for i in range(1, len(dates))]
+    if not periods or len(spans) < 3:
+        return None
+    usual = _median(spans)
+    expected = 365.25 / periods
+    if not SPACING_RATIO[0] <= usual / expected <= SPACING_RATIO[1]:
+        kind = "daily" if usual <= 4 else "weekly" if usual <= 10 else "monthly" if usual <= 45 else "quarterly" \
+            if usual <= 120 else "yearly"
+        where = f" ({month_steps} of them make its 'month')" if month_steps and month_steps > 1 else ""
+        fix = (f"start from the {kind} template (volcast template {kind} -o BOOK.xlsx)" if kind in ("daily", "monthly")
+               else "the shipped templates are for daily and monthly data")
+        return (f"the dates are usually {usual:g} day{'s' if usual != 1 else ''} apart ({kind} data), but the fit's options say periods={periods:g} "
+                f"a year, one every {expected:.1f} days{where}: every figure would be for the wrong horizon; load data "
+                f"of that spacing into this workbook, or {fix}")
+    return None
 
 
 def _median(xs):
@@ -236,15 +312,15 @@ def _grow(wb, sheet: str, col: int, first: int, end: int, new_end: int) -> None:
 
 
 def _fit_rows(rows) -> tuple:
-    """{name: (estimate, std_error)} and {model, dist, loglik, converged, message} from the
-    computed fit table (a list of rows)."""
+    """{name: (estimate, std_error)} and {model, dist, options, loglik, converged, message} from
+    the computed fit table (a list of rows)."""
     params, info = {}, {}
     in_params = False
     for row in rows:
         name = row[0] if row else None
         if not isinstance(name, str):
             continue
-        if name in ("model", "dist", "loglik", "nobs", "converged"):
+        if name in ("model", "dist", "options", "loglik", "nobs", "converged"):
             info[name] = row[1]
             if name == "converged":
                 info["message"] = row[2] if len(row) > 2 else None
@@ -332,8 +408,8 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
     for lineno, d, v in _read_new(data):
         if d in have:
             if abs(have[d] - v) > _TOL * max(1.0, abs(v)):
-                raise RecalcError(f"{data} line {lineno}: {d} is already in the workbook with level {have[d]:g}, "
-                                  f"but the file says {v:g}; nothing was written")
+                raise RecalcError(f"{data} line {lineno}: {d} is already in the workbook with level {_digits(have[d], v)}, "
+                                  f"but the file says {_digits(v, have[d])}; nothing was written")
             continue
         if last is not None and d < last:
             raise RecalcError(f"{data} line {lineno}: {d} is older than the workbook's last date {last} and not in it; "
@@ -364,10 +440,28 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
 
     result = RefreshResult(out=out, added=len(new), last_date=last_date, history=None, report=None, warnings=warnings)
 
+    month_steps, year_steps = _template_steps(wb, "vol_1m"), _template_steps(wb, "vol_12m")
+
     def add_history(calc):
         """Runs inside the recalculation, with every value computed: one evaluation in all."""
         if calc.report.unread:
             raise RecalcError(calc.report.unread[0] + "; nothing was written")
+        fs, fr, fc, _, _ = name_range(calc.book, "fit")
+        anchor = (fs, fr, fc)
+        fitted = calc.value(anchor)
+        if isinstance(fitted, str) and fitted.upper().startswith("ERROR"):
+            # the fit's own reason, not the #REF! of every figure that reads it
+            raise RecalcError(f"the fit ({fs}!{cell_name(fr, fc)}) says {fitted[:300]}; nothing was written")
+        r1_, c1_, r2_, c2_ = calc.spills.get(anchor, (fr, fc, fr, fc))
+        table = [[calc.value((fs, r, c)) for c in range(c1_, c2_ + 1)] for r in range(r1_, r2_ + 1)]
+        params, info = _fit_rows(table)
+        try:
+            periods = float(_option(info.get("options"), "periods"))
+        except (TypeError, ValueError):
+            periods = None
+        problem = frequency_problem(dates, periods, month_steps, year_steps)
+        if problem:
+            raise RecalcError(problem + "; nothing was written")
         figures = {}
         for n in FIGURES + ("data_check",):
             ref = name_range(calc.book, n)
@@ -393,12 +487,6 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
         result.figures = figures
         if not new:
             return
-        fs, fr, fc, _, _ = name_range(calc.book, "fit")
-        anchor = (fs, fr, fc)
-        calc.value(anchor)
-        r1_, c1_, r2_, c2_ = calc.spills.get(anchor, (fr, fc, fr, fc))
-        table = [[calc.value((fs, r, c)) for c in range(c1_, c2_ + 1)] for r in range(r1_, r2_ + 1)]
-        params, info = _fit_rows(table)
         hist = calc.book["History"] if "History" in calc.book.sheetnames else calc.book.create_sheet("History")
         header = [c.value for c in hist[1]] if hist.max_row >= 1 else []
         header = [h for h in header if h is not None]
