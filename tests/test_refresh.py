@@ -653,3 +653,31 @@ def test_a_known_date_with_another_level_shows_where_they_differ(small, tmp_path
     assert code == 2 and "already in the workbook" in err
     shown = re.findall(r"level ([0-9.e+-]+), but the file says ([0-9.e+-]+);", err)
     assert shown and shown[0][0] != shown[0][1], err
+
+
+@pytest.mark.parametrize("date_cell", [None, "2010-01-31"], ids=["blank", "text"])
+def test_a_level_without_a_date_is_flagged_by_the_data_check(small, tmp_path, capsys, date_cell):
+    """A level pasted in Excel below the data with its date left blank or typed as text: its
+    return enters the fit but the as-of date (the largest date) stays last month's.  The
+    workbook's visible data check (the name data_check) says so, and `volcast recalc` repeats it
+    on standard error (a refresh refuses such rows before)."""
+    book, dates, levels = small
+    wb = openpyxl.load_workbook(book)
+    sheet, r1, rcol, r2, _ = name_range(wb, "returns")
+    ws = wb[sheet]
+    last = max(r for r in range(r1, r2 + 1) if isinstance(ws.cell(r, rcol - 1).value, (int, float)))
+    ws.cell(last + 1, rcol - 2).value = date_cell
+    ws.cell(last + 1, rcol - 1).value = levels[-1] * 1.01
+    edited = tmp_path / "pasted.xlsx"
+    wb.save(edited)
+    out = tmp_path / "out.xlsx"
+    assert main(["recalc", str(edited), "-o", str(out)]) == 0
+    err = capsys.readouterr().err
+    assert "have no date" in err and "WARNING" in err, err
+    check = figures_from_file(out)
+    nobs = check["nobs"]
+    assert nobs == len(dates)  # the pasted return is in the fit ...
+    assert check["last_date"].date() == dates[-1]  # ... while the as-of date stays the month before
+    cwb = openpyxl.load_workbook(out, data_only=True)
+    s, r, c, _, _ = name_range(cwb, "data_check")
+    assert str(cwb[s].cell(r, c).value).startswith("WARNING: 1 level(s) on the Data sheet have no date")

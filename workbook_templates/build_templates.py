@@ -172,9 +172,12 @@ def build(path: Path, cfg: dict) -> Path:
         "vol_1m_ann": f"=vol_1m*SQRT(Inputs!$B$8/{month})",
         "vol_12m": f"=SQRT(INDEX({cum}, {year}))",
         "data_check": (
-            f'=IF(COUNT(Data!$B:$B)-1>COUNT(returns),"WARNING: "&(COUNT(Data!$B:$B)-1-COUNT(returns))'
+            f'=IF(COUNT(Data!$A:$A)<COUNT(Data!$B:$B),"WARNING: "&(COUNT(Data!$B:$B)-COUNT(Data!$A:$A))'
+            f'&" level(s) on the Data sheet have no date (a blank, or a date typed as text): the as-of date '
+            f'would be stale; give each level its date",'
+            f'IF(COUNT(Data!$B:$B)-1>COUNT(returns),"WARNING: "&(COUNT(Data!$B:$B)-1-COUNT(returns))'
             f'&" level(s) on the Data sheet have no return in the fit: copy the return formula of column C down '
-            f'and extend the name returns (volcast refresh does both)","OK: all "&COUNT(returns)&" returns are in the fit")'
+            f'and extend the name returns (volcast refresh does both)","OK: all "&COUNT(returns)&" returns are in the fit"))'
         ),
     }
     for i, (name, label, formula, fmt, note) in enumerate(rows, start=4):

@@ -258,6 +258,8 @@ def _cmd_recalc(args) -> int:
     print(f"recalculated {report.formulas} formulas ({report.spills} spilled results) into {out}")
     for line in report.unread:
         print(f"volcast: WARNING: data left out: {line}", file=sys.stderr)
+    for where, text in report.warnings:
+        print(f"volcast: {where}: {_one_line(text, 400)}", file=sys.stderr)
     for where, what in report.altered[:10]:
         print(f"volcast: {where}: the result does not fit in a cell as it is: {what}", file=sys.stderr)
     if report.error_cells:

@@ -95,6 +95,8 @@ class RecalcReport:
     unread: list = field(default_factory=list)  # one sentence each
     # results a cell cannot hold as they are (too long, control characters), stored cut or cleaned
     altered: list = field(default_factory=list)  # (address, what was done)
+    # the workbook's own data check (the templates' name data_check) where it reads WARNING
+    warnings: list = field(default_factory=list)  # (address, its text)
 
 
 class Workbook:
@@ -893,6 +895,20 @@ class Workbook:
             self._reported.add(where)
             self.report.error_cells.append((where, shown))
 
+    def data_checks(self) -> list:
+        """[(address, text)] of the cell the workbook-scope name ``data_check`` (the templates'
+        visible data check) points at, where it reads WARNING; [] without such a name."""
+        text = self.names.get((None, "DATA_CHECK")) if self.names else None
+        m = _ONE_CELL_NAME_RE.fullmatch(text.strip().lstrip("=")) if isinstance(text, str) else None
+        title = self.sheets.get((m.group(1) or m.group(2)).replace("''", "'").upper()) if m else None
+        if title is None:
+            return []
+        key = (title, int(m.group(4)), _col_index(m.group(3)))
+        v = self.value(key)
+        if isinstance(v, str) and v.strip().upper().startswith("WARNING"):
+            return [(f"{title}!{cell_name(key[1], key[2])}", v.strip())]
+        return []
+
     def collect_errors(self):
         """Every cell that shows an error, once each (linear in the cells computed)."""
         items = list(self.values.items())
@@ -909,6 +925,9 @@ class Workbook:
                 self._error(f"{key[0]}!{cell_name(key[1], key[2])}", shown)
         return self.report
 
+
+# a defined name that is one cell: 'Sheet name'!$B$3 or Sheet!B3
+_ONE_CELL_NAME_RE = re.compile(r"(?:'((?:[^']|'')+)'|([^!'=]+))!\$?([A-Za-z]{1,3})\$?(\d+)")
 
 # the arguments a call of ours is evaluated with directly (Workbook._direct_call): a cell or
 # range reference (a sheet before it, a spill after it), a defined name, whole and decimal numbers
@@ -1232,6 +1251,7 @@ def recalc(src, dst=None, values_only: bool = False, dynamic_hint=(), before_wri
                   book=book).evaluate_all()
     report = wb.collect_errors()
     wb.check_unread()
+    report.warnings = wb.data_checks()
     if before_write is not None:
         before_write(wb)
     elif not values_only and wb.fast_read and book is None and not os.environ.get("VOLCAST_OPENPYXL_WRITE"):
