@@ -681,3 +681,49 @@ def test_a_level_without_a_date_is_flagged_by_the_data_check(small, tmp_path, ca
     cwb = openpyxl.load_workbook(out, data_only=True)
     s, r, c, _, _ = name_range(cwb, "data_check")
     assert str(cwb[s].cell(r, c).value).startswith("WARNING: 1 level(s) on the Data sheet have no date")
+
+
+def _set_input(book, label, value, out):
+    wb = openpyxl.load_workbook(book)
+    ws = wb["Inputs"]
+    ws.cell(_inputs_row(ws, label), 2).value = value
+    wb.save(out)
+    return out
+
+
+def test_returns_said_unlike_the_data_formulas_are_refused(small, tmp_path, capsys):
+    """The Inputs say the returns are simple (in percent) while the Data sheet's formulas compute
+    percent log returns: the VaR in % of value would be converted as if from simple returns
+    (exp(c r) - 1 against c r; common practice); refused, naming both."""
+    book, dates, levels = small
+    edited = _set_input(book, "returns are", "simple100", tmp_path / "simple.xlsx")
+    path = _csv(tmp_path / "n.csv", [dt.date(2010, 1, 31)], [levels[-1] * 1.01])
+    code = main(["refresh", str(edited), "--data", str(path), "-o", str(tmp_path / "x.xlsx")])
+    err = capsys.readouterr().err
+    assert code == 2 and "returns=simple100" in err and "compute log returns in percent" in err, err
+    assert not (tmp_path / "x.xlsx").exists()
+
+
+def test_a_new_var_level_is_noted_in_the_history(small, tmp_path):
+    """The VaR level changed on the Inputs sheet between two refreshes: the History's var_1m and
+    es_1m change basis, and the row's moved column says so; an unchanged level says nothing."""
+    book, dates, levels = small
+    first = refresh(book, _csv(tmp_path / "a.csv", [dt.date(2010, 1, 31)], [levels[-1] * 1.01]), tmp_path / "a.xlsx")
+    assert "VaR level" not in first.history["moved"]
+    edited = _set_input(first.out, "VaR level", 0.95, tmp_path / "a95.xlsx")
+    second = refresh(edited, _csv(tmp_path / "b.csv", [dt.date(2010, 2, 28)], [levels[-1] * 1.02]), tmp_path / "b.xlsx")
+    assert "VaR level 0.99 -> 0.95" in second.history["moved"] and "not comparable" in second.history["moved"]
+    third = refresh(second.out, _csv(tmp_path / "c.csv", [dt.date(2010, 3, 31)], [levels[-1] * 1.0]), tmp_path / "c.xlsx")
+    assert "VaR level" not in third.history["moved"]
+    header, rows = _history(third.out)
+    assert "VaR level 0.99 -> 0.95" in rows[-2]["moved"] and "VaR level" not in (rows[-1]["moved"] or "")
+
+
+def test_the_history_prints_the_run_beside_the_estimates(monthly):
+    """The History sheet prints on two pages wide: the run's time and date repeat on the second,
+    and the estimates' headers added by name look like the template's."""
+    _, _, _, res = monthly
+    ws = openpyxl.load_workbook(res.out)["History"]
+    assert ws.print_title_cols in ("$A:$B", "A:B")
+    added = [c for c in ws[1] if c.value and c.value not in HISTORY_HEADER]
+    assert added and all(c.fill.fgColor.rgb == ws["A1"].fill.fgColor.rgb for c in added)

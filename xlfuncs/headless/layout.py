@@ -20,6 +20,8 @@ import re
 import tempfile
 from pathlib import Path
 
+from .contract import HISTORY_HEADER as HISTORY_COLUMNS
+
 __all__ = ["DATA_PRINT_ROWS", "BOOL_FORMAT", "fit_to_data", "format_results", "values_copy_path",
            "write_values_copy"]
 
@@ -76,6 +78,13 @@ def fit_to_data(wb, data_sheet: str, first_row: int, data_end: int) -> None:
         last = max((r for r in range(1, h.max_row + 1) if h.cell(r, 1).value is not None), default=1)
         width = max((c for c in range(1, h.max_column + 1) if h.cell(1, c).value is not None), default=1)
         h.print_area = f"A1:{get_column_letter(width)}{max(last, 2)}"
+        # the estimates print on pages of their own: each starts with the run's time and date
+        h.print_title_cols = "A:B"
+        for c in range(len(HISTORY_COLUMNS) + 1, width + 1):  # the estimates' columns, added by name
+            letter = get_column_letter(c)
+            text = str(h.cell(1, c).value or "")
+            if not h.column_dimensions[letter].width or h.column_dimensions[letter].width < len(text) + 2:
+                h.column_dimensions[letter].width = max(10, len(text) + 2)
 
 
 def format_results(book, tables, values=None) -> None:

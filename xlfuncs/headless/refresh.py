@@ -31,6 +31,7 @@ from __future__ import annotations
 import datetime as dt
 import math
 import re
+from copy import copy
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -162,6 +163,49 @@ def suspicious(dates, levels, first_new: int, where) -> tuple:
                     f"usually {usual:g} days apart; its return would be taken as a whole period's (a date before the "
                     "period's end, or data of another frequency?); remove the row, or pass --accept-gaps to take it")
     return jumps, gaps
+
+
+_RETURN_WORDS = {"log100": "log returns in percent", "log": "log returns", "simple100": "simple returns in percent",
+                 "simple": "simple returns"}
+_BASIS_NAME = "volcast_risk_basis"  # the basis of the last History row's risk figures
+
+
+def _basis_name(wb):
+    """The risk figures' basis the previous refresh recorded (a text constant), or None."""
+    dn = wb.defined_names.get(_BASIS_NAME)
+    text = getattr(dn, "attr_text", None)
+    if isinstance(text, str) and len(text) >= 2 and text[0] == text[-1] == '"':
+        return text[1:-1].replace('""', '"')
+    return None
+
+
+def _set_basis_name(wb, basis: str) -> None:
+    from openpyxl.workbook.defined_name import DefinedName
+
+    if _BASIS_NAME in wb.defined_names:
+        del wb.defined_names[_BASIS_NAME]
+    wb.defined_names[_BASIS_NAME] = DefinedName(_BASIS_NAME, attr_text='"' + basis.replace('"', '""') + '"')
+
+
+def _return_formula_kind(ws, col: int, r1: int, r2: int):
+    """(definition, cell) of the return formulas in ``col`` (rows r1..r2): log100 for
+    LN(B3/B2)*100, log without the 100, simple100 for (B3/B2-1)*100 or (B3-B2)/B2*100, simple without;
+    (None, None) where the first formula has another shape (a user's own)."""
+    for r in range(r1, min(r2, r1 + 50) + 1):
+        v = ws.cell(r, col).value
+        v = getattr(v, "text", v)
+        if not (isinstance(v, str) and v.startswith("=")):
+            continue
+        f = re.sub(r"\s+", "", v.upper())
+        pct = bool(re.search(r"\*100(?![0-9.])|100\*", f))
+        if re.search(r"\bLN\(", f):
+            kind = "log100" if pct else "log"
+        elif re.search(r"/\$?[A-Z]{1,3}\$?\d+-1\b|\)/\$?[A-Z]{1,3}\$?\d+", f):
+            kind = "simple100" if pct else "simple"
+        else:
+            return None, None
+        return kind, cell_name(r, col)
+    return None, None
 
 
 def _digits(x: float, other: float) -> str:
@@ -441,6 +485,7 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
     result = RefreshResult(out=out, added=len(new), last_date=last_date, history=None, report=None, warnings=warnings)
 
     month_steps, year_steps = _template_steps(wb, "vol_1m"), _template_steps(wb, "vol_12m")
+    formula_kind, formula_cell = _return_formula_kind(ws, rcol, r1, r2)
 
     def add_history(calc):
         """Runs inside the recalculation, with every value computed: one evaluation in all."""
@@ -462,6 +507,13 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
         problem = frequency_problem(dates, periods, month_steps, year_steps)
         if problem:
             raise RecalcError(problem + "; nothing was written")
+        said = (_option(info.get("options"), "returns") or "").lower()
+        if formula_kind and said and said != formula_kind:
+            raise RecalcError(
+                f"the fit's options say returns={said} ({_RETURN_WORDS.get(said, said)}), but the Data sheet's return "
+                f"formulas ({sheet}!{formula_cell}) compute {_RETURN_WORDS[formula_kind]}: the VaR and ES in % of value "
+                f"would be converted from the wrong kind of return; set returns={formula_kind} on the Inputs sheet "
+                "(or change the formulas); nothing was written")
         figures = {}
         for n in FIGURES + ("data_check",):
             ref = name_range(calc.book, n)
@@ -498,6 +550,15 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
         prev_row = max((r for r in range(2, hist.max_row + 1) if hist.cell(r, 1).value is not None), default=None)
         prev = {h: hist.cell(prev_row, j).value for j, h in enumerate(header, start=1)} if prev_row else {}
         moved = []
+        basis = f"VaR level={figures['var_level']:.4g}; returns={said or 'not given'}"
+        before = _basis_name(calc.book)
+        if before is not None and before != basis:
+            was = dict(p.split("=", 1) for p in before.split("; ") if "=" in p)
+            changes = [f"{k} {was.get(k, '?')} -> {v}" for k, v in (p.split("=", 1) for p in basis.split("; "))
+                       if was.get(k) != v]
+            if was and changes:
+                moved.append(f"{', '.join(changes)}: var_1m and es_1m not comparable with the rows above")
+        _set_basis_name(calc.book, basis)
         for name, (est, se) in params.items():
             old = prev.get(name)
             if isinstance(old, (int, float)) and isinstance(est, (int, float)) and se:
@@ -528,7 +589,9 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
             row[name] = est
             row[f"se_{name}"] = se
         for j, h in enumerate(header, start=1):
-            hist.cell(1, j, h)
+            hc = hist.cell(1, j, h)
+            if j > len(HISTORY_HEADER) and hist.cell(1, 1).has_style:  # a column added by name
+                hc._style = copy(hist.cell(1, 1)._style)
         r = (prev_row or 1) + 1
         for j, h in enumerate(header, start=1):
             c = hist.cell(r, j, row.get(h))
@@ -544,6 +607,10 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
                         hist.cell(earlier, j).number_format = BOOL_FORMAT
             elif h in ("loglik", "vol_1m", "vol_12m", "var_1m", "es_1m"):
                 c.number_format = "0.00"
+            elif h == "moved":  # a long note wraps in its column instead of running under the estimates
+                from openpyxl.styles import Alignment
+
+                c.alignment = Alignment(wrap_text=True, vertical="top")
             elif h not in ("model", "dist", "converged", "moved"):
                 c.number_format = "0.0000"
         result.history = row
