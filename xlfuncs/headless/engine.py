@@ -119,6 +119,7 @@ def _register_ours():
     funcs = _function_table()
     _excel_power()
     _excel_rounding(funcs)
+    _excel_number_arguments(funcs)
     for name in sheet.__all__:
         fn = getattr(sheet, name)
         wrapped = _wrap_ours(fn)
@@ -180,6 +181,137 @@ def _excel_rounding(funcs):
     funcs["ROUND"] = wrap_ufunc(rounding(ROUND_HALF_UP))
     funcs["ROUNDUP"] = wrap_ufunc(rounding(ROUND_UP))
     funcs["ROUNDDOWN"] = wrap_ufunc(rounding(ROUND_DOWN))
+
+
+# ---------------------------------------------------------------- numbers in function arguments
+_NUMBER_TEXT_RE = re.compile(r"^\s*([+-]?)(\d+(?:\.\d*)?|\.\d+)([eE][+-]?\d+)?\s*$")
+
+
+def _text_number(text: str):
+    """The number Excel reads in a text (a typed argument "3", " 2.5 ", "1E3"), or None; Python's
+    own float() would also take "nan", "inf" and "1_000", which Excel does not."""
+    m = _NUMBER_TEXT_RE.match(text)
+    if m:
+        return float(m.group(0))
+    from formulas.functions import _text2num  # a date or time text ("2026-01-05") as its serial
+
+    v = _text2num(text)
+    return None if isinstance(v, str) else v
+
+
+def _is_reference(arg) -> bool:
+    """Whether an argument reached the engine as cells: every reference is passed in by
+    :func:`to_engine` as a plain ndarray, while the engine's own arrays (an array constant, an
+    expression over a range) are its ndarray subclass, and typed values are scalars."""
+    return type(arg) is np.ndarray
+
+
+def _number_arguments(args, *, count=False):
+    """The numbers of a SUM-like function's arguments, by Excel's rule (its function reference
+    for SUM, AVERAGE, COUNT, MIN, MAX: "If an argument is an array or reference, only numbers in
+    that array or reference are counted. Empty cells, logical values, or text in the array or
+    reference are ignored"; a value typed as an argument, TRUE or "3", is converted, and a text
+    that is no number is #VALUE!).  An error value anywhere is the result (an XlError is
+    returned).  ``count``: COUNT's rule, errors and unreadable texts not counted, never raised."""
+    from formulas.functions import Error, XlError
+
+    out = []
+    for arg in args:
+        if isinstance(arg, np.ndarray) and (_is_reference(arg) or arg.size != 1):
+            for v in arg.ravel().tolist():
+                if isinstance(v, XlError):
+                    if not count:
+                        return v
+                elif isinstance(v, (int, float)) and not isinstance(v, bool):
+                    out.append(float(v))
+            continue
+        v = arg.ravel()[0] if isinstance(arg, np.ndarray) else arg
+        if isinstance(v, (np.generic,)):
+            v = v.item()
+        if isinstance(v, XlError):
+            if not count:
+                return v
+        elif isinstance(v, bool):
+            out.append(float(v))
+        elif isinstance(v, (int, float)):
+            out.append(float(v))
+        elif isinstance(v, str):
+            x = _text_number(v)
+            if x is not None:
+                out.append(x)
+            elif not count:
+                return Error.errors["#VALUE!"]
+    return out
+
+
+#: the engine's functions over numbers given as any mix of ranges, arrays and typed values; the
+#: engine read a text "3" in a range as the number 3 (SUM 9 where Excel gives 6) or failed on it
+#: (#VALUE! for AVERAGE and MIN, where Excel ignores it)
+_NUMBER_FUNCTIONS = ("SUM", "PRODUCT", "SUMSQ", "AVERAGE", "COUNT", "MIN", "MAX", "MEDIAN",
+                     "STDEV", "STDEV.S", "STDEV.P", "STDEVP", "VAR", "VAR.S", "VAR.P", "VARP",
+                     "DEVSQ", "AVEDEV", "GEOMEAN", "HARMEAN", "KURT", "SKEW", "SKEW.P")
+#: functions whose first argument is such a set of numbers and whose others are typed values
+_FIRST_ARGUMENT_FUNCTIONS = ("PERCENTILE", "PERCENTILE.INC", "PERCENTILE.EXC", "QUARTILE",
+                             "QUARTILE.INC", "QUARTILE.EXC", "LARGE", "SMALL")
+
+
+def _excel_number_arguments(funcs):
+    """The functions above, and SUMPRODUCT and ISNUMBER, given Excel's rule for text and logical
+    values in ranges (:func:`_number_arguments`); each then computes as the engine's own does, on
+    the numbers alone."""
+    import functools
+
+    from formulas.functions import XlError, wrap_ranges_func
+    from formulas.functions.info import FalseArray, iserror
+
+    def numbers_first(fn, count):
+        @functools.wraps(fn)
+        def call(*args):
+            nums = _number_arguments(args, count=count)
+            if isinstance(nums, XlError):
+                return nums
+            return fn(np.array(nums, dtype=float).reshape(1, -1))
+        return call
+
+    def first_argument(fn):
+        @functools.wraps(fn)
+        def call(values, *rest):
+            nums = _number_arguments((values,) if _is_reference(values) or isinstance(values, np.ndarray)
+                                     else (np.asarray([[values]], dtype=object),))
+            if isinstance(nums, XlError):
+                return nums
+            return fn(np.array(nums, dtype=float).reshape(1, -1), *rest)
+        return call
+
+    def sumproduct(fn):
+        # "treats array entries that are not numeric as if they were zeros" (Excel's reference
+        # for SUMPRODUCT): a text "3" in a range is 0, not 3; an error is the result
+        def entry(v):
+            if isinstance(v, XlError) or (isinstance(v, (int, float)) and not isinstance(v, bool)):
+                return v
+            return 0.0
+
+        @functools.wraps(fn)
+        def call(*args):
+            cleaned = []
+            for a in args:
+                arr = np.asarray(a, dtype=object)
+                cleaned.append(np.frompyfunc(entry, 1, 1)(arr).astype(object) if arr.ndim else entry(arr.item()))
+            return fn(*cleaned)
+        return call
+
+    for names, wrap in ((_NUMBER_FUNCTIONS, lambda fn, n: numbers_first(fn, n == "COUNT")),
+                        (_FIRST_ARGUMENT_FUNCTIONS, lambda fn, n: first_argument(fn)),
+                        (("SUMPRODUCT",), lambda fn, n: sumproduct(fn))):
+        for name in names:
+            for key in (name, f"_XLFN.{name}"):
+                if key in funcs:
+                    funcs[key] = wrap(funcs[key], name)
+
+    def is_number(v):  # ISNUMBER("19") is FALSE: "Value arguments are not converted" (Excel's IS functions)
+        return isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_))
+
+    funcs["ISNUMBER"] = wrap_ranges_func(functools.partial(iserror, check=is_number, array=FalseArray))
 
 
 def _wrap_ours(fn):
