@@ -101,3 +101,82 @@ def test_isnumber_and_istext_of_a_text_number(tmp_path):
     # formula ISNUMBER("19"), "19" is not converted from a text value"; LibreOffice: FALSE, TRUE
     got = _recalc(tmp_path, ["=ISNUMBER(A2)", "=ISTEXT(A2)", '=ISNUMBER("19")', "=ISNUMBER(A3)"], TEXT_NUMBER)
     assert got == [False, True, False, True]
+
+
+# Numbers compared as Excel holds them, to 15 significant digits: =0.1+0.2=0.3 is TRUE in Excel
+# (from memory: the classic example of its 15-digit comparison); LibreOffice gives every value
+# below as well (run on the same formulas).
+COMPARISON_CASES = [
+    ("=0.1+0.2=0.3", True),
+    ('=IF(0.1+0.2=0.3,"ok","mismatch")', "ok"),
+    ("=0.1+0.2<>0.3", False),
+    ("=0.1+0.2>0.3", False),
+    ("=0.1+0.2>=0.3", True),
+    ("=0.3<0.1+0.2", False),
+    ("=1+1E-15=1", True),  # a difference past the 15th digit
+    ("=1+1E-14=1", False),  # within 15 digits: still different
+    ("=1E-20=0", False),  # a tiny number is not zero (15 significant digits, not 15 decimals)
+]
+
+
+def test_numbers_compare_on_15_significant_digits(tmp_path):
+    _check(tmp_path, COMPARISON_CASES, {})
+
+
+# A number turned into text shows at most 15 significant digits (Excel's specifications: "Number
+# precision: 15 digits"; the text forms from memory); LibreOffice gives the same texts.
+TEXT_CASES = [
+    ('="x"&(0.1+0.2)', "x0.3"),
+    ('="x"&1/3', "x0.333333333333333"),
+    ('="x"&-1/3', "x-0.333333333333333"),
+    ('="x"&100/3', "x33.3333333333333"),
+    ('="x"&2/3', "x0.666666666666667"),
+    ("=CONCATENATE(1/3)", "0.333333333333333"),
+    ("=LEN(0.1+0.2)", 3),
+    ('="a"&1.10', "a1.1"),
+    ('="x"&123456789012345', "x123456789012345"),
+    ('="x"&1E+100', "x1E+100"),
+]
+
+
+def test_numbers_become_text_with_15_significant_digits(tmp_path):
+    _check(tmp_path, TEXT_CASES, {})
+
+
+def test_number_literals_with_an_unsigned_exponent(tmp_path):
+    # Excel reads 1e3 and 1E3 as 1000 (from memory; LibreOffice gives 1000 too), and a result
+    # past the largest number Excel holds is #NUM! (Excel's specifications: largest number
+    # 9.99999999999999E+307; =1E308*10 is #NUM!, from memory)
+    cases = [("=1e3", 1000), ("=1E3", 1000), ("=2*1e3", 2000), ('=LEN("1e3")', 3),
+             ("=1E308*10", "#NUM!"), ("=2.5e-3", 0.0025)]
+    _check(tmp_path, cases, {})
+
+
+def test_recalc_command_accepts_unsigned_exponents(tmp_path):
+    wb = openpyxl.Workbook()
+    wb.active["A1"], wb.active["A2"] = "=1e3", "=A1*2"
+    src = tmp_path / "sci.xlsx"
+    wb.save(src)
+    assert main(["recalc", str(src), "-o", str(tmp_path / "out.xlsx")]) == 0
+    ws = openpyxl.load_workbook(tmp_path / "out.xlsx", data_only=True).active
+    assert (ws["A1"].value, ws["A2"].value) == (1000, 2000)
+
+
+# Text Excel (en-US) converts in arithmetic and VALUE: a thousands separator and a percent sign
+# (Excel's reference for VALUE: "text can be in any of the constant number, date, or time formats
+# recognized by Microsoft Excel"; the values from memory, and LibreOffice gives the same).
+CONVERSION_CASES = [
+    ('="10,900.50"+0', 10900.5),
+    ('=VALUE("10,900.50")', 10900.5),
+    ('=VALUE("15%")', 0.15),
+    ('="15%"*2', 0.3),
+    ("=A1*1", 1234567),  # A1 holds the text "1,234,567"
+    ('=" 3 "+0', 3),
+    ('="1e3"+0', 1000),
+    ('="nan"+0', "#VALUE!"),  # Python's float() reads it; Excel does not
+    ('="1_000"+0', "#VALUE!"),
+]
+
+
+def test_text_with_thousands_separators_and_percent_converts(tmp_path):
+    _check(tmp_path, CONVERSION_CASES, {"A1": "1,234,567"})
