@@ -180,3 +180,13 @@ CONVERSION_CASES = [
 
 def test_text_with_thousands_separators_and_percent_converts(tmp_path):
     _check(tmp_path, CONVERSION_CASES, {"A1": "1,234,567"})
+
+
+def test_texts_that_are_no_number_or_date_are_errors(tmp_path):
+    # a text Excel would not read as a number stays an error, never a date the library's lenient
+    # date reader found in it ("1,5" was 5 January of the current year); LibreOffice gives an error
+    # for each of these and the same serial numbers for the dates (46027 is 5 January 2026)
+    cases = [('=VALUE("1,5")', "#VALUE!"), ('=VALUE("May")', "#VALUE!"), ('=VALUE("1 2")', "#VALUE!"),
+             ('=VALUE("3.4.5")', "#VALUE!"), ('="nan"+0', "#VALUE!"),
+             ('="2026-01-05"+1', 46028), ('=VALUE("1/5/2026")', 46027), ('=VALUE("5-Jan-2026")', 46027)]
+    _check(tmp_path, cases, {})

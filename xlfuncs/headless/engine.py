@@ -190,16 +190,26 @@ _NUMBER_TEXT_RE = re.compile(
     r"^\s*([+-]?)(\d{1,3}(?:,\d{3})+(?:\.\d*)?|\d+(?:\.\d*)?|\.\d+)([eE][+-]?\d+)?\s*(%?)\s*$")
 
 
+_TIME_TEXT = r"(?:\s+\d{1,2}:\d{2}(?::\d{2})?(?:\s*[AaPp][Mm])?)?"
+# the date texts read as dates: 2026-01-05, 1/5/2026 (month first, en-US), 5-Jan-2026 or
+# 5 January 2026, each perhaps with a time.  The library's date reader takes far more ("May",
+# "1 2", "12,34", "10:30" as today's date and time), numbers Excel would not give: such texts are
+# #VALUE! here, an error rather than a wrong number
+_DATE_TEXT_RE = re.compile(r"^\s*(?:\d{4}-\d{1,2}-\d{1,2}|\d{1,2}/\d{1,2}/\d{4}|\d{1,2}[- ][A-Za-z]{3,9}[- ]\d{4})"
+                           + _TIME_TEXT + r"\s*$")
+
+
 def _text_number(text: str):
     """The number Excel (en-US) reads in a text, or None: "3", " 2.5 ", "1E3", "10,900.50" (the
-    thousands separator), "15%" (0.15), or a date or time ("2026-01-05", as its serial number).
+    thousands separator), "15%" (0.15), or a date in one of the forms of ``_DATE_TEXT_RE``
+    ("2026-01-05", as its serial number).
     Python's float() would also take "nan", "inf" and "1_000", which Excel does not."""
     m = _NUMBER_TEXT_RE.match(text)
     if m:
         sign, digits, exponent, percent = m.groups()
         v = float(sign + digits.replace(",", "") + (exponent or ""))
         return v / 100.0 if percent else v
-    if not text.strip() or text.strip().lower() in ("nan", "inf", "infinity", "-inf", "+inf"):
+    if not _DATE_TEXT_RE.match(text):
         return None
     from formulas.functions.date import _text2datetime, xdate, xtime
 
