@@ -240,3 +240,28 @@ def test_columns_over_a_spill_equal_cell_by_cell_evaluation(tmp_path, shape, hor
     assert fast.values.keys() == single.values.keys()
     for key, v in single.values.items():
         assert _same(fast.values[key], v), (key, shape, fast.values[key], v)
+
+
+def test_column_comparisons_on_15_significant_digits(tmp_path):
+    """A column of comparisons between numbers answered by the NumPy route compares as the
+    engine does, on 15 significant digits (0.1+0.2 = 0.3 is TRUE, Excel from memory; LibreOffice
+    gives TRUE), and the engine cell by cell agrees."""
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    for r in range(1, 21):
+        ws.cell(r, 1, 0.1 * r)
+        ws.cell(r, 2, 0.2 * r)
+        ws.cell(r, 3, float(f"{0.3 * r:.12g}"))
+        ws.cell(r, 5, f"=A{r}+B{r}=C{r}")
+        ws.cell(r, 6, f"=IF(A{r}+B{r}>=C{r},1,0)")
+        ws.cell(r, 7, f"=A{r}+B{r}<C{r}")
+    path = tmp_path / "cmp.xlsx"
+    wb.save(path)
+    answered, fast, single = _evaluate_both(path)
+    assert len(answered) == 60  # the NumPy route took every row
+    for r in range(1, 21):
+        assert answered[("Sheet", r, 5)] is True
+        assert answered[("Sheet", r, 6)] == 1
+        assert answered[("Sheet", r, 7)] is False
+    for key, v in answered.items():
+        assert _same(v, single.values[key]), key

@@ -14,8 +14,9 @@ formula engine (:mod:`xlfuncs.headless.engine`) would:
   as an int) is taken as its float where the formula only computes with it (arithmetic, the
   functions, comparisons: the engine turns it into a float there too) and left to the engine
   where the formula may show it as it is (=A3, =+A3, a branch of IF or IFERROR: ``raw``);
-* the operators ``+ - * / ^ %``, unary minus and plus, the comparisons between numbers (and
-  ``=``/``<>`` of a number with a text literal, FALSE/TRUE whatever the text), and the functions
+* the operators ``+ - * / ^ %``, unary minus and plus, the comparisons between numbers (on 15
+  significant digits, as the engine compares them; and ``=``/``<>`` of a number with a text
+  literal, FALSE/TRUE whatever the text), and the functions
   IF, IFERROR, OR, AND, ISNUMBER, ISBLANK, LN, LOG10, EXP, SQRT, ABS, SIGN, POWER;
 * rows whose evaluation meets no error on the branches it takes (a division by zero, LN of a
   non-positive number, an overflow: every non-finite or complex intermediate marks the row, and a
@@ -286,6 +287,18 @@ def _raw_refs(node) -> set:
     return set()
 
 
+def _held_pair(x, y, n):
+    """Two number columns as the engine compares them, each number rounded to 15 significant
+    digits (Excel's held value: 0.1+0.2 = 0.3 is TRUE).  Rounding keeps the order, so only pairs
+    within a few units of the 15th digit of each other are rounded (one format per such row)."""
+    x, y = np.broadcast_to(x, (n,)).copy(), np.broadcast_to(y, (n,)).copy()
+    with np.errstate(all="ignore"):
+        near = (np.abs(x - y) <= 1e-14 * np.maximum(np.abs(x), np.abs(y))) & (x != y)
+    for i in np.flatnonzero(near).tolist():
+        x[i], y[i] = float(format(x[i], ".15g")), float(format(y[i], ".15g"))
+    return x, y
+
+
 class ColumnShape:
     """One formula shape parsed once: its references and the digit runs that are their rows.
 
@@ -426,7 +439,7 @@ class ColumnShape:
         ka, kb = a[0], b[0]
         numeric = ("num", "int")
         if ka in numeric and kb in numeric:
-            x, y = np.asarray(a[1], dtype=float), np.asarray(b[1], dtype=float)
+            x, y = _held_pair(np.asarray(a[1], dtype=float), np.asarray(b[1], dtype=float), self._n)
             r = {"=": np.equal, "<>": np.not_equal, "<": np.less, ">": np.greater,
                  "<=": np.less_equal, ">=": np.greater_equal}[o](x, y)
             return "bool", np.broadcast_to(r, (self._n,)), a[2] | b[2]

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["ExcelError", "Compiled", "compile_formula", "FormulaError", "our_function_names",
-           "top_level_call", "calls_ours", "ERROR_LITERALS"]
+           "top_level_call", "calls_ours", "ERROR_LITERALS", "number_text"]
 
 from .xlsxpost import ERROR_LITERALS, ExcelError  # one error value for the engine and the writer
 
@@ -119,6 +119,9 @@ def _register_ours():
     funcs = _function_table()
     _excel_power()
     _excel_rounding(funcs)
+    _excel_number_arguments(funcs)
+    _excel_arithmetic(funcs)
+    _excel_comparison_and_text()
     for name in sheet.__all__:
         fn = getattr(sheet, name)
         wrapped = _wrap_ours(fn)
@@ -151,7 +154,7 @@ def _excel_power():
             return Error.errors["#NUM!"]
         return v
 
-    OPERATORS["^"] = wrap_ufunc(power)
+    OPERATORS["^"] = wrap_ufunc(power, input_parser=lambda *a: map(_to_float, a))
 
 
 def _excel_rounding(funcs):
@@ -180,6 +183,242 @@ def _excel_rounding(funcs):
     funcs["ROUND"] = wrap_ufunc(rounding(ROUND_HALF_UP))
     funcs["ROUNDUP"] = wrap_ufunc(rounding(ROUND_UP))
     funcs["ROUNDDOWN"] = wrap_ufunc(rounding(ROUND_DOWN))
+
+
+# ---------------------------------------------------------------- numbers in function arguments
+_NUMBER_TEXT_RE = re.compile(
+    r"^\s*([+-]?)(\d{1,3}(?:,\d{3})+(?:\.\d*)?|\d+(?:\.\d*)?|\.\d+)([eE][+-]?\d+)?\s*(%?)\s*$")
+
+
+_TIME_TEXT = r"(?:\s+\d{1,2}:\d{2}(?::\d{2})?(?:\s*[AaPp][Mm])?)?"
+# the date texts read as dates: 2026-01-05, 1/5/2026 (month first, en-US), 5-Jan-2026 or
+# 5 January 2026, each perhaps with a time.  The library's date reader takes far more ("May",
+# "1 2", "12,34", "10:30" as today's date and time), numbers Excel would not give: such texts are
+# #VALUE! here, an error rather than a wrong number
+_DATE_TEXT_RE = re.compile(r"^\s*(?:\d{4}-\d{1,2}-\d{1,2}|\d{1,2}/\d{1,2}/\d{4}|\d{1,2}[- ][A-Za-z]{3,9}[- ]\d{4})"
+                           + _TIME_TEXT + r"\s*$")
+
+
+def _text_number(text: str):
+    """The number Excel (en-US) reads in a text, or None: "3", " 2.5 ", "1E3", "10,900.50" (the
+    thousands separator), "15%" (0.15), or a date in one of the forms of ``_DATE_TEXT_RE``
+    ("2026-01-05", as its serial number).
+    Python's float() would also take "nan", "inf" and "1_000", which Excel does not."""
+    m = _NUMBER_TEXT_RE.match(text)
+    if m:
+        sign, digits, exponent, percent = m.groups()
+        v = float(sign + digits.replace(",", "") + (exponent or ""))
+        return v / 100.0 if percent else v
+    if not _DATE_TEXT_RE.match(text):
+        return None
+    from formulas.functions.date import _text2datetime, xdate, xtime
+
+    try:
+        parts = _text2datetime(text)
+        return float(xdate(*parts[:3]) + xtime(*parts[3:]))
+    except Exception:  # noqa: BLE001 - no date either
+        return None
+
+
+def _to_float(v) -> float:
+    """An operand of an arithmetic operator as Excel converts it: a text by :func:`_text_number`
+    (ValueError, hence #VALUE!, if it holds no number), TRUE as 1."""
+    if isinstance(v, str):
+        x = _text_number(v)
+        if x is None:
+            raise ValueError(v)
+        return x
+    return float(v)
+
+
+def _is_reference(arg) -> bool:
+    """Whether an argument reached the engine as cells: every reference is passed in by
+    :func:`to_engine` as a plain ndarray, while the engine's own arrays (an array constant, an
+    expression over a range) are its ndarray subclass, and typed values are scalars."""
+    return type(arg) is np.ndarray
+
+
+def _number_arguments(args, *, count=False):
+    """The numbers of a SUM-like function's arguments, by Excel's rule (its function reference
+    for SUM, AVERAGE, COUNT, MIN, MAX: "If an argument is an array or reference, only numbers in
+    that array or reference are counted. Empty cells, logical values, or text in the array or
+    reference are ignored"; a value typed as an argument, TRUE or "3", is converted, and a text
+    that is no number is #VALUE!).  An error value anywhere is the result (an XlError is
+    returned).  ``count``: COUNT's rule, errors and unreadable texts not counted, never raised."""
+    from formulas.functions import Error, XlError
+
+    out = []
+    for arg in args:
+        if isinstance(arg, np.ndarray) and (_is_reference(arg) or arg.size != 1):
+            for v in arg.ravel().tolist():
+                if isinstance(v, XlError):
+                    if not count:
+                        return v
+                elif isinstance(v, (int, float)) and not isinstance(v, bool):
+                    out.append(float(v))
+            continue
+        v = arg.ravel()[0] if isinstance(arg, np.ndarray) else arg
+        if isinstance(v, (np.generic,)):
+            v = v.item()
+        if isinstance(v, XlError):
+            if not count:
+                return v
+        elif isinstance(v, bool):
+            out.append(float(v))
+        elif isinstance(v, (int, float)):
+            out.append(float(v))
+        elif isinstance(v, str):
+            x = _text_number(v)
+            if x is not None:
+                out.append(x)
+            elif not count:
+                return Error.errors["#VALUE!"]
+    return out
+
+
+#: the engine's functions over numbers given as any mix of ranges, arrays and typed values; the
+#: engine read a text "3" in a range as the number 3 (SUM 9 where Excel gives 6) or failed on it
+#: (#VALUE! for AVERAGE and MIN, where Excel ignores it)
+_NUMBER_FUNCTIONS = ("SUM", "PRODUCT", "SUMSQ", "AVERAGE", "COUNT", "MIN", "MAX", "MEDIAN",
+                     "STDEV", "STDEV.S", "STDEV.P", "STDEVP", "VAR", "VAR.S", "VAR.P", "VARP",
+                     "DEVSQ", "AVEDEV", "GEOMEAN", "HARMEAN", "KURT", "SKEW", "SKEW.P")
+#: functions whose first argument is such a set of numbers and whose others are typed values
+_FIRST_ARGUMENT_FUNCTIONS = ("PERCENTILE", "PERCENTILE.INC", "PERCENTILE.EXC", "QUARTILE",
+                             "QUARTILE.INC", "QUARTILE.EXC", "LARGE", "SMALL")
+
+
+def _excel_number_arguments(funcs):
+    """The functions above, and SUMPRODUCT and ISNUMBER, given Excel's rule for text and logical
+    values in ranges (:func:`_number_arguments`); each then computes as the engine's own does, on
+    the numbers alone."""
+    import functools
+
+    from formulas.functions import XlError, wrap_ranges_func
+    from formulas.functions.info import FalseArray, iserror
+
+    def numbers_first(fn, count):
+        @functools.wraps(fn)
+        def call(*args):
+            nums = _number_arguments(args, count=count)
+            if isinstance(nums, XlError):
+                return nums
+            return fn(np.array(nums, dtype=float).reshape(1, -1))
+        return call
+
+    def first_argument(fn):
+        @functools.wraps(fn)
+        def call(values, *rest):
+            nums = _number_arguments((values,) if _is_reference(values) or isinstance(values, np.ndarray)
+                                     else (np.asarray([[values]], dtype=object),))
+            if isinstance(nums, XlError):
+                return nums
+            return fn(np.array(nums, dtype=float).reshape(1, -1), *rest)
+        return call
+
+    def sumproduct(fn):
+        # "treats array entries that are not numeric as if they were zeros" (Excel's reference
+        # for SUMPRODUCT): a text "3" in a range is 0, not 3; an error is the result
+        def entry(v):
+            if isinstance(v, XlError) or (isinstance(v, (int, float)) and not isinstance(v, bool)):
+                return v
+            return 0.0
+
+        @functools.wraps(fn)
+        def call(*args):
+            cleaned = []
+            for a in args:
+                arr = np.asarray(a, dtype=object)
+                cleaned.append(np.frompyfunc(entry, 1, 1)(arr).astype(object) if arr.ndim else entry(arr.item()))
+            return fn(*cleaned)
+        return call
+
+    for names, wrap in ((_NUMBER_FUNCTIONS, lambda fn, n: numbers_first(fn, n == "COUNT")),
+                        (_FIRST_ARGUMENT_FUNCTIONS, lambda fn, n: first_argument(fn)),
+                        (("SUMPRODUCT",), lambda fn, n: sumproduct(fn))):
+        for name in names:
+            for key in (name, f"_XLFN.{name}"):
+                if key in funcs:
+                    funcs[key] = wrap(funcs[key], name)
+
+    def is_number(v):  # ISNUMBER("19") is FALSE: "Value arguments are not converted" (Excel's IS functions)
+        return isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_))
+
+    funcs["ISNUMBER"] = wrap_ranges_func(functools.partial(iserror, check=is_number, array=FalseArray))
+
+
+def _excel_arithmetic(funcs):
+    """The arithmetic operators and VALUE convert a text as Excel (en-US) does (:func:`_to_float`):
+    "10,900.50"+0 is 10900.5 and VALUE("15%") 0.15, where the library's float() gave #VALUE!, and
+    "nan"+0 is #VALUE!, not the library's #NUM!."""
+    from formulas.functions import Error, XlError, wrap_ufunc
+    from formulas.functions.operators import OPERATORS
+
+    ops = {"+": lambda x, y: x + y, "-": lambda x, y: x - y, "*": lambda x, y: x * y,
+           "/": lambda x, y: (x / y) if y else Error.errors["#DIV/0!"],
+           "U-": lambda x: -x, "%": lambda x: x / 100.0}
+    for op, fn in ops.items():
+        OPERATORS[op] = wrap_ufunc(fn, input_parser=lambda *a: map(_to_float, a))
+
+    def value(v):
+        if isinstance(v, XlError):
+            return v
+        if isinstance(v, (bool, np.bool_)):  # VALUE(TRUE) is #VALUE! (from memory)
+            raise ValueError
+        return _to_float(v)
+
+    funcs["VALUE"] = wrap_ufunc(value, input_parser=lambda *a: a)
+
+
+def _held(x):
+    """A number as Excel holds and shows it: rounded to 15 significant digits."""
+    if isinstance(x, (bool, np.bool_)) or not isinstance(x, (int, float, np.integer, np.floating)):
+        return x
+    x = float(x)
+    return float(format(x, ".15g")) if math.isfinite(x) else x
+
+
+def number_text(x: float) -> str:
+    """A number as Excel turns it into text (=\"x\"&A1, CONCATENATE, LEN): at most 15 significant
+    digits, no trailing zeros, "0.3" for 0.1+0.2 and "0.333333333333333" for 1/3 (LibreOffice gives
+    the same); outside 1E-4 <= |x| < 1E15 in the form 1E+15, 1.5E-07 (Excel from
+    memory; LibreOffice writes such numbers out in full)."""
+    x = float(x)
+    if x == 0:
+        return "0"
+    text = format(x, ".15g")
+    if "e" in text:
+        mantissa, exponent = text.split("e")
+        text = f"{mantissa}E{exponent[0]}{exponent[1:].zfill(2)}"
+    return text
+
+
+def _excel_comparison_and_text():
+    """Numbers compared and turned into text as Excel holds them, to 15 significant digits:
+    =0.1+0.2=0.3 is TRUE (Excel, from memory; LibreOffice gives TRUE) and ="x"&(0.1+0.2) is
+    "x0.3"; the library compared the binary doubles and wrote Python's shortest repr
+    ("x0.30000000000000004").  The library's text functions all convert through its ``_str``,
+    which is put in its place here."""
+    from formulas.functions import replace_empty, wrap_ufunc
+    from formulas.functions import text as text_functions
+    from formulas.functions.operators import LOGIC_OPERATORS, OPERATORS, logic_input_parser
+
+    def as_text(v):
+        if isinstance(v, (bool, np.bool_)):
+            return str(bool(v)).upper()
+        if isinstance(v, (int, float, np.integer, np.floating)):
+            return number_text(v)
+        return str(v)
+
+    text_functions._str = as_text
+
+    def held_input(x, y):
+        (tx, x), (ty, y) = logic_input_parser(x, y)
+        return (tx, _held(x)), (ty, _held(y))
+
+    for op, fn in LOGIC_OPERATORS.items():
+        OPERATORS[op] = wrap_ufunc(fn, input_parser=held_input, args_parser=lambda *a: a)
+    OPERATORS["&"] = wrap_ufunc(lambda x, y: x + y, input_parser=lambda *a: map(as_text, a),
+                                args_parser=lambda *a: (replace_empty(v, "") for v in a))
 
 
 def _wrap_ours(fn):
@@ -326,6 +565,26 @@ def _known(name: str, funcs) -> bool:
     return n in funcs or n == "ANCHORARRAY"
 
 
+# a number literal whose exponent has no sign (1e3, 2.5E10): outside texts and quoted sheet names,
+# not part of a name or reference (x1e3) and not followed by one
+_UNSIGNED_EXPONENT_RE = re.compile(r"(?<![A-Za-z0-9_.$:!\\])(\d+(?:\.\d*)?|\.\d+)[eE](\d+)(?![A-Za-z0-9_.(:!$])")
+_QUOTED_RE = re.compile(r'"(?:[^"]|"")*"|\'(?:[^\']|\'\')*\'')
+
+
+def signed_exponents(text: str) -> str:
+    """The formula with every number literal's exponent signed (=1e3 as =1E+3): Excel reads both
+    forms, the library only the signed one ("Not a valid formula" stopped the recalculation)."""
+    if "e" not in text.lower():
+        return text
+    out, pos = [], 0
+    for m in _QUOTED_RE.finditer(text):
+        out.append(_UNSIGNED_EXPONENT_RE.sub(r"\1E+\2", text[pos:m.start()]))
+        out.append(m.group(0))
+        pos = m.end()
+    out.append(_UNSIGNED_EXPONENT_RE.sub(r"\1E+\2", text[pos:]))
+    return "".join(out)
+
+
 def compile_formula(text: str) -> Compiled:
     """Compile a formula ("=...") once; raise FormulaError if it cannot be evaluated here."""
     hit = _CACHE.get(text)
@@ -339,7 +598,7 @@ def compile_formula(text: str) -> Compiled:
         raise FormulaError(f"function {', '.join(unknown)} is not supported by the headless engine")
     try:
         with np.errstate(all="ignore"):  # constants are folded here: 10^400 is the engine's #NUM!
-            fn = eng.Parser().ast(text)[1].compile()
+            fn = eng.Parser().ast(signed_exponents(text))[1].compile()
     except Exception as exc:  # noqa: BLE001
         raise FormulaError(f"formula {text} cannot be read ({type(exc).__name__}: {exc})") from None
     out = Compiled(text=text, inputs=tuple(fn.inputs), _fn=fn)
