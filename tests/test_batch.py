@@ -302,6 +302,51 @@ def test_long_panels_blank_ids_split_series_and_date_order(small, tmp_path, caps
     assert not (tmp_path / "x.csv").exists()
 
 
+def test_dates_not_oldest_first_and_a_missing_header_are_refused(small, tmp_path, capsys):
+    # each series is fitted in row order, the last row the latest (common practice for a time series
+    # file: oldest first, one row per date), so dates the other way round are refused, naming the lines
+    _, df = small
+    dates = pd.date_range("2001-01-31", periods=len(df), freq="ME").strftime("%Y-%m-%d")
+    newest_first = df.assign(date=dates)[["date", "a", "b", "c"]].iloc[::-1]
+    p = tmp_path / "rev.csv"
+    newest_first.to_csv(p, index=False)
+    rc, stdout, err = _run(["batch", p, "-o", tmp_path / "o.csv"], capsys)
+    assert (rc, stdout) == (2, "")
+    assert _one_line(err) == (f'volcast: {p}: column "date" runs newest first (line 2: 2025-12-31, line 3: '
+                              "2025-11-30); sort it oldest first (the last row is read as the latest observation)")
+    newest_first.assign(date=pd.to_datetime(newest_first["date"]).dt.date).to_parquet(tmp_path / "rev.parquet")
+    rc, _, err = _run(["batch", tmp_path / "rev.parquet", "-o", tmp_path / "o.csv"], capsys)
+    assert rc == 2 and "runs newest first (data row 1: 2025-12-31, data row 2: 2025-11-30)" in _one_line(err)
+
+    swapped = df.assign(date=dates)[["date", "a", "b", "c"]]
+    swapped.loc[[10, 11], "date"] = swapped.loc[[11, 10], "date"].to_numpy()
+    p = tmp_path / "swapped.csv"
+    swapped.to_csv(p, index=False)
+    rc, _, err = _run(["batch", p, "-o", tmp_path / "o.csv"], capsys)
+    assert rc == 2 and f'{p} line 13: column "date" is out of order (2001-11-30 after 2001-12-31 on line 12)' \
+        in _one_line(err)
+
+    long = _long(df, "by id")
+    long["date"] = long.groupby("sid")["date"].transform(lambda d: d.iloc[::-1].to_numpy())  # each series reversed
+    p = tmp_path / "long_rev.csv"
+    long.to_csv(p, index=False)
+    rc, _, err = _run(["batch", p, "--id", "sid", "--value", "ret", "-o", tmp_path / "o.csv"], capsys)
+    assert rc == 2 and 'series "a" in column "date" runs newest first (line 2: 2001-10-27, line 3: 2001-10-26)' \
+        in _one_line(err)
+
+    # no header line: the first row would name the series and be lost
+    p = tmp_path / "noheader.csv"
+    p.write_text("\n".join(small[0].read_text().splitlines()[1:]) + "\n")
+    rc, _, err = _run(["batch", p, "-o", tmp_path / "o.csv"], capsys)
+    assert rc == 2 and f"{p} line 1: the first line holds numbers" in _one_line(err)
+    assert not (tmp_path / "o.csv").exists()
+    # series named by whole numbers (numeric codes) are names, not data
+    p = tmp_path / "codes.csv"
+    df.iloc[:150].set_axis(["7203", "6758", "9984"], axis=1).to_csv(p, index=False)
+    rc, stdout, err = _run(["batch", p, "-o", tmp_path / "o.csv", "--workers", "1"], capsys)
+    assert rc == 0 and "fitted 3 of 3 series" in stdout, err
+
+
 @pytest.mark.parametrize("encoding, sep", [("cp1252", ","), ("utf-8-sig", ";"), ("utf-8", "\t"), ("utf-16", ",")])
 def test_encodings_and_separators_give_the_same_numbers(small, tmp_path, capsys, encoding, sep):
     path, df = small

@@ -67,7 +67,7 @@ B = simulated_returns(300, seed=22)
 
 @pytest.fixture
 def returns_csv(tmp_path):
-    dates = [f"2001-{1 + i % 12:02d}-28" for i in range(len(A))]
+    dates = [f"{2001 + i // 12}-{1 + i % 12:02d}-28" for i in range(len(A))]  # one a month, oldest first
     return write_csv(tmp_path / "returns.csv", ["date", "return"], [dates, A])
 
 
@@ -205,6 +205,61 @@ def test_a_good_run_after_a_bad_one(returns_csv, capsys):
     good = run(["fit", returns_csv, "--model", "ARCH(1)"], capsys)
     assert run(["fit", returns_csv, "--model", "FOO"], capsys)[0] == 2
     assert run(["fit", returns_csv, "--model", "ARCH(1)"], capsys) == good
+
+
+# ---------------------------------------------------------------------------------------------
+# dates and the header line of a CSV: the rows are fitted in file order, the last row the latest
+# observation (common practice for a time series file: oldest first, one row per date), so a file
+# sorted the other way, out of order or with a date twice is refused, as is a file whose first line
+# is data (it would be read as the header and its observation lost)
+
+
+MONTH_ENDS = [f"{2001 + i // 12}-{1 + i % 12:02d}-28" for i in range(len(A))]
+
+
+def _dated_csv(tmp_path, name, dates, header="date,return\n"):
+    p = tmp_path / name
+    p.write_text(header + "".join(f"{d},{r!r}\n" for d, r in zip(dates, A)), encoding="utf-8")
+    return str(p)
+
+
+ORDER_BAD = [
+    # (file name, dates, header, pattern of the reason: the file and the lines named)
+    ("reversed.csv", MONTH_ENDS[::-1], "date,return\n",
+     r"reversed\.csv: column \"date\" runs newest first \(line 2: 2025-12-28, line 3: 2025-11-28\); "
+     r"sort it oldest first"),
+    ("swapped.csv", MONTH_ENDS[:40] + [MONTH_ENDS[41], MONTH_ENDS[40]] + MONTH_ENDS[42:], "date,return\n",
+     r"swapped\.csv line 43: column \"date\" is out of order \(2004-05-28 after 2004-06-28 on line 42\); "
+     r"sort the file oldest first"),
+    ("repeated.csv", MONTH_ENDS[:100] + [MONTH_ENDS[99]] + MONTH_ENDS[100:-1], "date,return\n",
+     r"repeated\.csv line 102: column \"date\" repeats the date 2009-04-28 of line 101; one row per date"),
+    ("noheader.csv", MONTH_ENDS, "",
+     r"noheader\.csv line 1: the first line holds numbers \(\"2001-01-28,0\.\d+\"\), not column names; add a "
+     r"header line naming the columns, such as date,return"),
+]
+
+
+@pytest.mark.parametrize("command", [["fit"], ["backtest", "--window", "200"], ["report", "-o", "{d}/r.html"]],
+                         ids=["fit", "backtest", "report"])
+@pytest.mark.parametrize("name, dates, header, pattern", ORDER_BAD, ids=[b[0] for b in ORDER_BAD])
+def test_dates_not_oldest_first_and_a_missing_header_exit_2(tmp_path, capsys, command, name, dates, header, pattern):
+    path = _dated_csv(tmp_path, name, dates, header)
+    argv = [command[0], path] + [a.replace("{d}", str(tmp_path)) for a in command[1:]]
+    rc, out, err = run(argv, capsys)
+    assert rc == 2 and out == ""
+    lines = [x for x in err.splitlines() if not x.startswith("report:")]  # report's progress lines
+    assert len(lines) == 1 and lines[0].startswith("volcast: "), err
+    assert "Traceback" not in err
+    assert re.search(pattern, lines[0]), lines[0]
+    assert not (tmp_path / "r.html").exists()
+    if command == ["fit"]:
+        # the same returns with a header and their dates oldest first: every row one observation
+        rc, out, err = run(["fit", _dated_csv(tmp_path, "ok.csv", MONTH_ENDS), "--model", "ARCH(1)"], capsys)
+        assert rc == 0 and int(table_lines(out)["nobs"].split()[1]) == len(A), err
+        # dates that are not ISO (day/month/year here) cannot be ordered safely and are not checked
+        dm = _dated_csv(tmp_path, "dm.csv", [f"28/{1 + i % 12:02d}/2001" for i in range(len(A))])
+        assert run(["fit", dm, "--model", "ARCH(1)"], capsys)[0] == 0
+
 
 
 # ---------------------------------------------------------------------------------------------

@@ -13,6 +13,7 @@ column names, long panels with blank ids or split series, byte-level mutations o
 random token soups; then every option of the three commands with values it must refuse.
 """
 
+import datetime as dt
 import hashlib
 import math
 import random
@@ -27,6 +28,7 @@ from xlfuncs.cli import main
 
 SEED = 20261203
 N = 120  # rows of the good series: small, so that every fit is quick
+DAYS = [(dt.date(2001, 1, 1) + dt.timedelta(days=i)).isoformat() for i in range(N)]  # oldest first, one a row
 
 
 def _good_returns():
@@ -47,7 +49,7 @@ def _csv(rows, sep=","):
 
 
 def _good_text(sep=","):
-    return _csv([["date", "return"]] + [[f"2001-01-{1 + i % 28:02d}", f"{x:.6f}"] for i, x in enumerate(R)], sep)
+    return _csv([["date", "return"]] + [[DAYS[i], f"{x:.6f}"] for i, x in enumerate(R)], sep)
 
 
 def _corpus(tmp: Path) -> list:
@@ -86,7 +88,8 @@ def _corpus(tmp: Path) -> list:
     put("decimal comma commas", "date,return\n" + "".join(f"d{i},{x:.4f}\n".replace(".", ",") for i, x in enumerate(R)))
     for word in ("nan", "NaN", "inf", "-inf", "Infinity", "1e400", "n/a", "#N/A", "TRUE", "\u2014", "1.2.3"):
         lines = good.splitlines()
-        lines[rng.randrange(5, N)] = f"2001-02-01,{word}"
+        k = rng.randrange(5, N)
+        lines[k] = f"{lines[k].split(',')[0]},{word}"  # the row's own date kept
         put(f"cell {word}", "\n".join(lines) + "\n")
     put("blank inside", good.replace(f"{R[50]:.6f}", "", 1))
     put("field 200 KB", "level\n" + "1" * 200_000 + "\n2\n")
@@ -111,7 +114,7 @@ def _corpus(tmp: Path) -> list:
     put("huge numbers", _csv([["return"]] + [[f"{x * 1e300:.6g}"] for x in R]))
     put("tiny numbers", _csv([["return"]] + [[f"{x * 1e-300:.6g}"] for x in R]))
     put("integers", _csv([["return"]] + [[str(int(round(10 * x)))] for x in R]))
-    put("long panel", _csv([["date", "sid", "ret"]] + [[f"2001-01-{1 + i % 28:02d}", "AB"[i // 60], f"{x:.5f}"]
+    put("long panel", _csv([["date", "sid", "ret"]] + [[DAYS[i % 60], "AB"[i // 60], f"{x:.5f}"]
                                                         for i, x in enumerate(R)]))
     put("long panel blank id", _csv([["date", "sid", "ret"]] + [[f"d{i}", "" if i == 7 else "A", f"{x:.5f}"]
                                                                  for i, x in enumerate(R)]))
@@ -134,7 +137,7 @@ def _corpus(tmp: Path) -> list:
               "\u00e9", "#N/A", "1,5", "date", "return", "\x07", "TRUE", "\ufeff"]
     for k in range(12):  # random token soups
         put(f"soup {k}", "".join(rng.choice(tokens) for _ in range(rng.randrange(1, 600))))
-    wide = pd.DataFrame({"date": [f"2001-01-{1 + i % 28:02d}" for i in range(N)], "a": R, "b": [-x for x in R]})
+    wide = pd.DataFrame({"date": DAYS, "a": R, "b": [-x for x in R]})
     for label, df in (("parquet good", wide),
                       ("parquet text cells", wide.assign(b=["n/a" if i == 9 else f"{x}" for i, x in enumerate(R)])),
                       ("parquet inf", wide.assign(a=[math.inf if i == 9 else x for i, x in enumerate(R)])),

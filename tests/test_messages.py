@@ -206,7 +206,7 @@ def _run(argv, capsys):
 def test_semicolon_and_tab_files_read_as_comma_files(tmp_path, values, sep):
     comma = tmp_path / "comma.csv"
     other = tmp_path / "other.csv"
-    rows = [("date", "return")] + [(f"2020-01-{1 + i % 28:02d}", f"{v:.6f}") for i, v in enumerate(values)]
+    rows = [("date", "return")] + [(f"{dt.date(2020, 1, 1) + dt.timedelta(days=i)}", f"{v:.6f}") for i, v in enumerate(values)]
     comma.write_text("".join(",".join(r) + "\n" for r in rows))
     other.write_text("".join(sep.join(r) + "\n" for r in rows))
     # the column named: generated values may look like price levels, which a default column refuses
@@ -222,7 +222,7 @@ def test_decimal_comma_files_read_as_their_point_twins(tmp_path, values, sep):
     from xlfuncs.csvtext import read_csv_records
 
     point, comma = tmp_path / "point.csv", tmp_path / "comma.csv"
-    rows = [(f"2020-01-{1 + i % 28:02d}", f"{v:.6f}") for i, v in enumerate(values)]
+    rows = [(f"{dt.date(2020, 1, 1) + dt.timedelta(days=i)}", f"{v:.6f}") for i, v in enumerate(values)]
     point.write_text("date,return\n" + "".join(",".join(r) + "\n" for r in rows))
     comma.write_text(f"date{sep}return\n" + "".join(f"{d}{sep}{v.replace('.', ',')}\n" for d, v in rows))
     assert read_returns_csv(str(comma), "return") == read_returns_csv(str(point), "return") == pytest.approx(values, abs=1e-6)
@@ -267,7 +267,7 @@ def test_a_bad_csv_cell_is_exit_2_with_one_short_line(tmp_path, capsys, bad, at)
     f = tmp_path / "bad.csv"
     vals = [f"{v[0]:.6f}" for v in R[:30]]
     vals[at] = '"' + bad.replace('"', '""') + '"'
-    f.write_text("date,return\n" + "".join(f"2020-01-{1 + i % 28:02d},{v}\n" for i, v in enumerate(vals)),
+    f.write_text("date,return\n" + "".join(f"{dt.date(2020, 1, 1) + dt.timedelta(days=i)},{v}\n" for i, v in enumerate(vals)),
                  encoding="utf-8")
     rc, out, err = _run(["fit", str(f), "--model", "ARCH(1)"], capsys)
     if rc == 0:  # the text was a number after all (" 1e3", "+5")

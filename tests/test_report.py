@@ -258,7 +258,8 @@ def test_workbook_report_comparison_news_and_forecasts_equal_the_functions(workb
     curve = VOLNEWS(fit, [[float(r[1])] for r in news])
     assert all(same(r[2], v[0], rel=1e-4) for r, v in zip(news, curve))  # shocks shown to 6 digits
     term = t["term"]
-    assert term[0][3:] == ["VaR (return units)", "ES (return units)", "VaR (% of value)", "ES (% of value)"]
+    assert "returns=log100" in b["options"].replace(" ", "")  # the template's definition: percent log returns
+    assert term[0][3:] == ["VaR (log return, %)", "ES (log return, %)", "VaR (% of value)", "ES (% of value)"]
     H = int(term[-1][1])
     fc = VOLFORECAST(c, fit, H, "table")
     for row in term[1:]:
@@ -379,6 +380,47 @@ def test_csv_report_without_a_returns_definition_shows_no_value_figures(tmp_path
     term = tables(text)["term"]
     assert term[0] == ["horizon (months)", "periods", "cumulative vol", "VaR (return units)", "ES (return units)"]
     assert "% of value" not in " ".join(term[0]) and "returns=log100" in text
+
+
+# The units each returns definition gives (common practice, the usual definitions): a log return is
+# ln(p[t]/p[t-1]), a simple one p[t]/p[t-1] - 1, "100" meaning in percent; a position's value changes
+# by exp(R) - 1 over a cumulative log return R, and over one period by the simple return itself.
+UNIT_CASES = [
+    # (returns=..., the units section 8 states, the VaR column's label, words that must not appear)
+    (None, "VaR and ES (in the units of the returns given)", "VaR (return units)", ["log return", "simple return"]),
+    ("log100", "VaR and ES (log returns in percent)", "VaR (log return, %)", ["simple return"]),
+    ("log", "VaR and ES (log returns)", "VaR (log return)", ["simple return", "in percent"]),
+    ("simple100", "VaR and ES (simple returns in percent)", "VaR (simple return, %)", ["log return", "exp("]),
+    ("simple", "VaR and ES (simple returns)", "VaR (simple return)", ["log return", "exp(", "in percent"]),
+]
+
+
+@pytest.mark.parametrize("returns, said, column, absent", UNIT_CASES, ids=[str(c[0]) for c in UNIT_CASES])
+def test_csv_report_states_the_units_of_the_returns_definition(tmp_path, capsys, returns, said, column, absent):
+    lines = RETURNS.read_text(encoding="utf-8").splitlines()[:151]  # the first 150 returns: a short run
+    if returns in ("log", "simple"):  # the demo's percentages as fractions
+        lines = lines[:1] + [f"{d},{float(r) / 100!r}" for d, r in (x.split(",") for x in lines[1:])]
+    (tmp_path / "r.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    options = "periods=12; paths=1000" + (f"; returns={returns}" if returns else "")
+    rc, _, err = run(["report", str(tmp_path / "r.csv"), "--options", options, "-o", str(tmp_path / "r.html")], capsys)
+    assert rc == 0, err
+    text = (tmp_path / "r.html").read_text(encoding="utf-8")
+    s8 = re.sub(r"<[^>]+>", "", re.search(r'<section id="s8">(.*?)</section>', text, re.S).group(1))
+    s1 = re.sub(r"<[^>]+>", "", re.search(r'<section class="first" id="s1">(.*?)</section>', text, re.S).group(1))
+    assert said in s8 and "log-return units" not in text
+    for words in absent:
+        assert words not in s1 + s8, words
+    term = tables(text)["term"]
+    assert term[0][3] == column and term[0][4] == column.replace("VaR", "ES")
+    if returns is None:
+        assert "% of value" not in s8.replace("no figure is in % of value", "") and len(term[0]) == 5
+        return
+    assert term[0][5:] == ["VaR (% of value)", "ES (% of value)"]
+    # the "% of value" columns are value losses: one period's from its VaR as the definition says
+    var, var_value = float(term[1][3]), float(term[1][5])
+    c = 0.01 if returns.endswith("100") else 1.0
+    expected = 100 * (1 - math.exp(-c * var)) if returns.startswith("log") else 100 * c * var
+    assert math.isclose(var_value, expected, rel_tol=1e-4), (var_value, expected)
 
 
 @pytest.mark.parametrize("make, argv, words", [

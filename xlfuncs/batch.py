@@ -10,7 +10,9 @@ error row the message.
 
 Nothing is lost silently.  A panel that cannot be read as it is meant is refused as a whole
 (:class:`PanelError`, one line): a blank series id, a series split into separate blocks of a long
-panel, two columns of a wide panel with one name, a column with data and no name.  A cell inside a
+panel, two columns of a wide panel with one name, a column with data and no name, a first line of
+numbers instead of names, dates newest first, out of order or repeated (in a wide panel's date
+column, or within a long panel's series).  A cell inside a
 series that is not a number (text, "n/a", "inf", a blank between numbers) gives that series an
 error row naming the data row, as ``VOLFIT`` does for such a cell; ``skip_bad`` leaves such cells
 out instead (and says how many), as ``missing=skip`` does for blank cells only.  Blank cells before
@@ -28,7 +30,8 @@ from pathlib import Path
 import numpy as np
 
 from .core.errors import excerpt, typed_number
-from .csvtext import LEVELS_AUTOCORRELATION, MAX_FIELD_CHARS, PanelError, check_row_widths, decimal_comma_hint, read_csv_records
+from .csvtext import (LEVELS_AUTOCORRELATION, MAX_FIELD_CHARS, PanelError, check_date_order, check_header_names,
+                      check_row_widths, day_number, decimal_comma_hint, read_csv_records)
 
 __all__ = ["read_panel", "load_panel", "Panel", "PanelError", "run_one", "run_batch", "write_tidy", "check_output",
            "check_arguments", "lag1_autocorrelation", "looks_like_levels", "level_like_series", "levels_to_returns",
@@ -160,6 +163,7 @@ def _csv_columns(path: Path) -> tuple:
         raise PanelError(f"{path}: is empty; a panel needs a header row and rows of data")
     (_, header), data = records[0], records[1:]
     width = len(header)
+    check_header_names(path, records, whole_numbers_are_names=True)
     check_row_widths(path, records)
     columns = [[row[j] if j < len(row) else "" for _, row in data] for j in range(width)]
     return header, columns, np.array([lineno for lineno, _ in data], dtype=int), records.note
@@ -213,6 +217,13 @@ def _wide_panel(path, header, columns, lines, date_col) -> Panel:
         raise PanelError(f"{path}: no series found; a wide panel has one column per series "
                          "(a long one needs --id and --value)")
     rows = np.arange(1, len(columns[0]) + 1)
+    date_idx = next((j for j, h in enumerate(header) if h.lower() == date_col), None)
+    if date_idx is not None:  # the rows of every series are fitted in file order, the last as the latest
+        where = (lambda i: f"line {int(lines[i])}") if lines is not None else (lambda i: f"data row {i + 1}")
+        cells = columns[date_idx]
+        days = _parse_dates(cells)
+        check_date_order(path, [(where(i), d, cells[i]) for i, d in enumerate(days) if not np.isnan(d)],
+                         f'column "{excerpt(header[date_idx])}"')
     panel = Panel({}, {h: rows for h in names}, {h: lines for h in names} if lines is not None else {}, {}, path.name)
     for h, cells in zip(header, columns):
         if h in panel.rows:
@@ -255,7 +266,10 @@ def _long_panel(path, header, columns, lines, id_col, value_col, date_col) -> Pa
                                      "pieces?)")
                 seen[x] = j
             if len(starts) == 1 or np.all(np.diff(d) > 0):
-                continue  # one block, or blocks that follow each other in date order
+                # one block, or blocks that follow each other in date order; either way oldest first
+                check_date_order(path, [(line_of(i), x, columns[date_idx][i]) for i, x in zip(idx, d)],
+                                 f'series "{excerpt(k)}" in column "{excerpt(header[date_idx])}"')
+                continue
         if len(starts) > 1:
             shown = " and ".join(line_of(i) for i in starts[:2])
             raise PanelError(f'{path}: series "{excerpt(k)}" comes in {len(starts)} separate blocks (from {shown}); '
@@ -273,19 +287,11 @@ def _long_panel(path, header, columns, lines, id_col, value_col, date_col) -> Pa
 def _parse_dates(cells) -> np.ndarray:
     """Each cell as a day number (ISO text or a date value; a time of day as a fraction), NaN
     where it is not a date."""
-    import datetime as dt
-
     out = np.full(len(cells), np.nan)
     for i, c in enumerate(cells):
-        if isinstance(c, str):
-            try:
-                c = dt.datetime.fromisoformat(c.strip())
-            except ValueError:
-                continue
-        if isinstance(c, dt.datetime):
-            out[i] = c.toordinal() + (c.hour * 3600 + c.minute * 60 + c.second + c.microsecond / 1e6) / 86400.0
-        elif isinstance(c, dt.date):
-            out[i] = float(c.toordinal())
+        d = day_number(c)
+        if d is not None:
+            out[i] = d
     return out
 
 

@@ -115,15 +115,25 @@ def load_returns_csv(path: str, column: str | None = None, skip_blanks: bool = F
 def _csv_rows(path: str) -> tuple:
     """(header, [(line number, cells)] of the data rows) of a CSV file: a header and at least one
     row of data.  Rows with more filled fields than the header are refused (a decimal comma in a
-    comma-separated file would shift the columns)."""
+    comma-separated file would shift the columns), so is a first line of numbers (no header line:
+    its observation would be lost) and, in a column named date, dates that are not oldest first
+    and one to a row (the rows are fitted in file order, the last as the latest)."""
     from .batch import PanelError, check_row_widths, read_csv_records
-    from .csvtext import Records
+    from .csvtext import Records, check_date_order, check_header_names, day_number
 
     if str(path).lower().endswith((".parquet", ".pq")):
         raise CliError(f"{path}: fit and backtest read a CSV file; save the column as CSV (volcast batch reads Parquet)")
     try:
         records = read_csv_records(path)
+        check_header_names(path, records)
         check_row_widths(path, records)
+        if records:
+            low = [h.strip().lower() for h in records[0][1]]
+            if "date" in low:
+                di = low.index("date")
+                cells = [(f"line {lineno}", r[di]) for lineno, r in records[1:] if di < len(r)]
+                check_date_order(path, [(w, d, c) for w, c in cells if (d := day_number(c)) is not None],
+                                 f'column "{excerpt(records[0][1][di])}"')
     except PanelError as exc:
         raise CliError(str(exc)) from None
     if len(records) < 2:

@@ -6,6 +6,11 @@ the separator (comma, semicolon or tab) taken from the header line; what it cann
 whose numbers are written with decimal commas (12,5 or 1.234,5: the usual export where the comma is
 the decimal mark) is read with those numbers as decimal points, and the records say so
 (:attr:`Records.note`); a file that mixes decimal commas and decimal points is refused.
+
+Two checks for the commands that fit a file's rows in order: ``check_header_names`` refuses a first
+line of numbers (a file without its header line would lose its first observation), and
+``check_date_order`` refuses dates newest first, out of order or repeated (the last row is taken as
+the latest observation, so a file sorted the other way would be fitted backwards).
 """
 
 from __future__ import annotations
@@ -17,8 +22,8 @@ from pathlib import Path
 
 from .core.errors import excerpt
 
-__all__ = ["PanelError", "Records", "read_csv_records", "check_row_widths", "decimal_comma_hint", "MAX_FIELD_CHARS",
-           "LEVELS_AUTOCORRELATION"]
+__all__ = ["PanelError", "Records", "read_csv_records", "check_row_widths", "check_header_names", "check_date_order",
+           "day_number", "decimal_comma_hint", "MAX_FIELD_CHARS", "LEVELS_AUTOCORRELATION"]
 
 #: the longest CSV field read (Python's csv module stops at 128 KiB unless told otherwise); a longer
 #: field is refused: no number or name is that long, so the file is not a CSV of returns
@@ -182,3 +187,76 @@ def decimal_comma_hint(cell: str) -> str:
         dotted = cell.strip().replace(".", "").replace(",", ".")
         return f" (a decimal comma? write {excerpt(dotted)})"
     return ""
+
+
+# ---------------------------------------------------------------------------------------------
+# header line and date order
+
+
+_NUMBER_TEXT = re.compile(r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?%?")
+_WHOLE_NUMBER = re.compile(r"\d+")
+
+
+def day_number(cell) -> float | None:
+    """A date cell as a day number (ISO text such as 2026-10-30, or a date value; a time of day as a
+    fraction of the day), None when it is not a date."""
+    import datetime as dt
+
+    if isinstance(cell, str):
+        try:
+            cell = dt.datetime.fromisoformat(cell.strip())
+        except ValueError:
+            return None
+    if isinstance(cell, dt.datetime):
+        return cell.toordinal() + (cell.hour * 3600 + cell.minute * 60 + cell.second + cell.microsecond / 1e6) / 86400.0
+    if isinstance(cell, dt.date):
+        return float(cell.toordinal())
+    return None
+
+
+def check_header_names(path, records, whole_numbers_are_names: bool = False) -> None:
+    """Refuse a header line whose filled cells all read as numbers or dates: the file has no header
+    line, and its first row of data would be taken for column names (and left out).  With
+    ``whole_numbers_are_names`` a header of unsigned whole numbers only is accepted (a wide panel's
+    series may be named by numeric codes such as 7203)."""
+    if not records:
+        return
+    lineno, header = records[0]
+    cells = [c for c in header if c]
+    if not cells:
+        return
+
+    def numeric(c):
+        return bool(_NUMBER_TEXT.fullmatch(c) or _COMMA_NUMBER.fullmatch(c)) or day_number(c) is not None
+
+    if not all(numeric(c) for c in cells):
+        return
+    if whole_numbers_are_names and all(_WHOLE_NUMBER.fullmatch(c) for c in cells):
+        return
+    shown = ",".join(excerpt(c, 20) for c in header[:4]) + ("..." if len(header) > 4 else "")
+    raise PanelError(f'{path} line {lineno}: the first line holds numbers ("{shown}"), not column names; add a header '
+                     "line naming the columns, such as date,return, so the first row is read as data")
+
+
+def check_date_order(path, dated, what='column "date"') -> None:
+    """Refuse dates that are not strictly increasing down the file.
+
+    ``dated`` is [(where, day number, text)] for the rows whose date cell reads as a date, in file
+    order (``where`` as "line 5"); ``what`` names the dates in the message.  Dates mostly newest first
+    are said so; otherwise the first date not after the one before it is named (repeated or out of
+    order).  The commands take the last row as the latest observation, so any of these would fit and
+    forecast the series in the wrong order."""
+    pairs = [(a, b) for a, b in zip(dated, dated[1:]) if not b[1] > a[1]]
+    if not pairs:
+        return
+    falling = [(a, b) for a, b in pairs if b[1] < a[1]]
+    if 2 * len(falling) > len(dated) - 1:
+        a, b = falling[0]
+        raise PanelError(f"{path}: {what} runs newest first ({a[0]}: {excerpt(a[2])}, {b[0]}: {excerpt(b[2])}); "
+                         "sort it oldest first (the last row is read as the latest observation)")
+    a, b = pairs[0]
+    if b[1] == a[1]:
+        raise PanelError(f"{path} {b[0]}: {what} repeats the date {excerpt(b[2])} of {a[0]}; one row per date "
+                         "(a row pasted twice?)")
+    raise PanelError(f"{path} {b[0]}: {what} is out of order ({excerpt(b[2])} after {excerpt(a[2])} on {a[0]}); "
+                     "sort the file oldest first")

@@ -48,6 +48,33 @@ EWMA_DECAY = {"monthly": 0.97, "daily": 0.94}
 #: the candidate variance models of the comparison, beside the model itself
 CANDIDATES = ("GARCH(1,1)", "GJR-GARCH(1,1)", "EGARCH(1,1)", "EWMA")
 
+#: the returns' unit for each definition the fit's options may give (returns=...): (what the returns
+#: are, how prices p give one, the short label of a column or axis, what a VaR means, how the loss
+#: in % of value follows from the returns)
+_COMPOUND = "beyond, the quantile and the tail mean of the compounded value change over the simulated paths"
+_RETURN_UNITS = {
+    "log100": ("log returns in percent", "100 ln(p[t]/p[t-1])", "log return, %",
+               "a VaR of 10 means the log returns add up to -10 (percent), not a loss of 10% of the value",
+               "VaR_value = 100 (1 - exp(-VaR/100)); ES_value is the mean of the value loss over the tail"),
+    "log": ("log returns", "ln(p[t]/p[t-1])", "log return",
+            "a VaR of 0.1 means the log returns add up to -0.1, not a loss of 10% of the value",
+            "VaR_value = 100 (1 - exp(-VaR)); ES_value is the mean of the value loss over the tail"),
+    "simple100": ("simple returns in percent", "100 (p[t]/p[t-1] - 1)", "simple return, %",
+                  "a VaR of 10 means the simple returns add up to -10 (percent): over one period a loss of 10% of the "
+                  "value; over more, the returns compound and the loss in % of value differs",
+                  "over one period they equal VaR and ES; " + _COMPOUND),
+    "simple": ("simple returns", "p[t]/p[t-1] - 1", "simple return",
+               "a VaR of 0.1 means the simple returns add up to -0.1: over one period a loss of 10% of the value; "
+               "over more, the returns compound and the loss in % of value differs",
+               "over one period they are 100 times VaR and ES; " + _COMPOUND),
+}
+
+
+def _short_unit(opts) -> str:
+    """The returns' unit as a column or axis label: "log return, %", or "return units" when the
+    options do not define the returns."""
+    return _RETURN_UNITS[opts.returns][2] if opts.returns in _RETURN_UNITS else "return units"
+
 
 class ReportError(Exception):
     """Bad input for a report: one line for the terminal, exit status 2."""
@@ -531,7 +558,7 @@ def _figures(src: Source, res: dict) -> dict:
     ax.plot(x, res["insample_vol"], color=navy, lw=1.3, label="conditional volatility (in-sample)")
     ax.plot(x, -res["insample_vol"], color=navy, lw=0.8, alpha=0.6)
     ax.set_xlabel(xlabel)
-    ax.set_ylabel("return units")
+    ax.set_ylabel(_short_unit(res["opts"]))
     ax.grid(alpha=0.3)
     ax.legend(loc="upper left", fontsize=8)
     fig.tight_layout()
@@ -586,7 +613,7 @@ def _figures(src: Source, res: dict) -> dict:
     xs = bt.exception
     ax.scatter(np.asarray(bx)[xs], bt.actual[xs], color=red, s=16, zorder=3, label="exceptions")
     ax.set_xlabel(xlabel)
-    ax.set_ylabel("return units")
+    ax.set_ylabel(_short_unit(res["opts"]))
     ax.grid(alpha=0.3)
     ax.legend(loc="lower left", fontsize=7, ncol=3)
     fig.tight_layout()
@@ -596,7 +623,7 @@ def _figures(src: Source, res: dict) -> dict:
     fig, ax = plt.subplots(figsize=(6.5, 3.2))
     ax.plot(shocks, curve, color=navy, lw=1.5)
     ax.axvline(0, color=grey, lw=0.8)
-    ax.set_xlabel("shock e (return units)")
+    ax.set_xlabel(f"shock e ({_short_unit(res['opts'])})")
     ax.set_ylabel("next-period variance")
     ax.grid(alpha=0.3)
     fig.tight_layout()
@@ -605,10 +632,11 @@ def _figures(src: Source, res: dict) -> dict:
     term = res["term"]
     fig, ax = plt.subplots(figsize=(6.5, 3.2))
     ks = [t["k"] for t in term]
-    ax.plot(ks, [t["cumvol"] for t in term], color=navy, marker="o", ms=3, label="volatility of the cumulative return")
+    ax.plot(ks, [t["cumvol"] for t in term], color=navy, marker="o", ms=3,
+            label=f"volatility of the cumulative return ({_short_unit(res['opts'])})")
     var_key = "VaR_value" if "VaR_value" in term[0]["risk"] else "VaR"
     es_key = "ES_value" if "ES_value" in term[0]["risk"] else "ES"
-    unit = "loss in % of value" if var_key == "VaR_value" else "return units"
+    unit = "loss in % of value" if var_key == "VaR_value" else _short_unit(res["opts"])
     ax.plot(ks, [_num(t["risk"].get(var_key)) for t in term], color=red, marker="o", ms=3,
             label=f"VaR {res['level']:.1%} ({unit})")
     ax.plot(ks, [_num(t["risk"].get(es_key)) for t in term], color=red, ls=":", marker="o", ms=3,
@@ -737,8 +765,10 @@ def render(src: Source, res: dict, figs: dict, command: str | None = None) -> st
 
     # 1 data
     add('<section class="first" id="s1"><h2>1. Data</h2>')
-    add(f"<p>{_esc(src.note[:1].upper() + src.note[1:])}. Returns in the units of the input"
-        + (" (log returns in percent, 100 ln(p[t]/p[t-1]))" if opts.returns == "log100" else "")
+    defined = _RETURN_UNITS.get(opts.returns)
+    add(f"<p>{_esc(src.note[:1].upper() + src.note[1:])}. "
+        + (f"Returns: {defined[0]}, {defined[1]} (returns={opts.returns})" if defined
+           else "Returns in the units of the input (the options do not say how they are defined)")
         + (f"; {res['freq']} data, {res['periods']} periods a year" if res["periods"] else "") + ".</p>")
     rows = [["returns", s["n"]]]
     if src.dates:
@@ -919,19 +949,24 @@ def _rest(add, src, res, figs, fit, opts, now, command):
     term = res["term"]
     has_value = "VaR_value" in term[0]["risk"]
     unit = res["horizon_unit"]
+    defined = _RETURN_UNITS.get(opts.returns)
+    if defined is None:
+        units = ("<b>VaR and ES (in the units of the returns given)</b> are losses of the cumulative return (the sum "
+                 "of the returns over the horizon) in those units. The returns' definition is not given, so no figure "
+                 "is in % of value; add <code>returns=log100</code> (or log, simple100, simple) to the options for "
+                 "those.")
+    else:
+        units = (f"<b>VaR and ES ({defined[0]})</b> are losses of the cumulative return (the sum of the returns over "
+                 f"the horizon) in those units: {defined[3]}."
+                 + (f" <b>VaR and ES in % of value</b> are the loss as a percentage of the position's value, from the "
+                    f"distribution of the value change: {defined[4]}." if has_value else ""))
     add('<section id="s8"><h2>8. Forecast term structure, VaR and ES</h2>')
     add(f"<p>Volatility of the cumulative return over the next 1..12 {unit}s (the square root of "
         "<code>VOLFORECAST</code>'s cumvar), and VaR and ES at "
         f"{res['level']:.1%} of that cumulative return as <code>VOLRISK</code> gives them: exact for one period, "
-        f"from {res['paths_words']} (seed {res['seed']}) beyond. <b>VaR and ES (log-return units)</b> "
-        "are losses of the cumulative return in the units of the returns"
-        + (" (percent log returns): a VaR of 10 means a log return of -10%, not a loss of 10% of the value" if opts.returns == "log100" else "")
-        + ". " + ("<b>VaR and ES in % of value</b> are the loss as a percentage of the position's value, from the "
-                  "distribution of the value change (for log returns VaR_value = 100 (1 - exp(-VaR/100)); ES_value is "
-                  "the mean of the value loss over the tail)."
-                  if has_value else "The returns' definition is not given, so no figure is in % of value; add "
-                  "<code>returns=log100</code> (or log, simple100, simple) to the options for those.") + "</p>")
-    head = [f"horizon ({unit}s)", "periods", "cumulative vol", "VaR (return units)", "ES (return units)"]
+        f"from {res['paths_words']} (seed {res['seed']}) beyond. " + units + "</p>")
+    short = _short_unit(opts)
+    head = [f"horizon ({unit}s)", "periods", "cumulative vol", f"VaR ({short})", f"ES ({short})"]
     if has_value:
         head += ["VaR (% of value)", "ES (% of value)"]
     rows = []
