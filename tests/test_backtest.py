@@ -76,3 +76,39 @@ def test_backtest_result_is_reused():
 def test_bad_inputs(args, pattern):
     out = VOLBACKTEST(CELLS, *args)
     assert len(out) == 1 and pattern in out[0][0], out
+
+
+def test_forecasts_that_are_not_numbers_are_refused_not_counted(monkeypatch):
+    """A refit whose parameters make the variance explode on the next windows (an EGARCH fit that
+    did not converge on a 123-month window of the demo returns, its estimate as found) leaves
+    one-step forecasts that are not numbers.  Coverage tests over them counted each as a period
+    without an exception (internal consistency: a forecast that is no number is no forecast); the
+    backtest now refuses, naming the first such row and the estimate behind it."""
+    import csv
+
+    import xlfuncs.core.backtest as bmod
+    from xlfuncs.demo import data_file
+
+    rows = list(csv.DictReader(open(data_file("demo_returns.csv"))))
+    r = [[float(x["return"])] for x in rows]
+    real_fit = bmod.fit
+
+    class Stuck:  # the estimate the estimator reported on rows 183-305, not converged
+        def __init__(self, res):
+            self.params = np.array([0.18533187, 0.04330948, -0.22604702, -0.28469345, 0.97768951])
+            self.converged = False
+            self.names = res.names
+
+    monkeypatch.setattr(bmod, "fit", lambda *a, **k: Stuck(real_fit(*a, **k)))
+    FIT_CACHE.clear()
+    out = VOLBACKTEST(r, "EGARCH(1,1)", 123, 0.99, "dist=normal; refit=7")
+    text = out[0][0]
+    assert text.startswith("ERROR: the one-step forecast of returns row") and "is not a number" in text, out[:3]
+    assert "did not converge" in text and "refit=1" in text
+    FIT_CACHE.clear()
+    series = None
+    monkeypatch.setattr(bmod, "fit", real_fit)
+    series = VOLBACKTEST(r, "EGARCH(1,1)", 123, 0.99, "dist=normal; refit=7; what=series")
+    # with the real estimator: either every forecast is a number, or the same refusal
+    assert (isinstance(series[0][0], str) and series[0][0].startswith("ERROR: the one-step forecast")) or all(
+        np.isfinite(v) for row in series[1:] for v in row[1:4])

@@ -505,3 +505,31 @@ def test_report_renders_in_headless_chromium(workbook_report, tmp_path):
         assert (im[top: top + 1000] < 128).mean() > 0.002, top
     # the figures were decoded: the embedded images give large non-white areas, not broken-image icons
     assert (im < 250).mean() > 0.05
+
+
+def test_an_egarch_report_is_written_when_its_backtest_cannot_run(tmp_path, capsys, monkeypatch):
+    """A backtest whose forecasts cannot all be computed (here every refit given the estimate an
+    EGARCH fit reported, not converged, on a 123-month window of the demo returns) stops the
+    backtest section with its reason; the rest of the report is written (exit 0), where the
+    model-against-EWMA loss comparison used to stop the command with an internal error."""
+    import numpy as np
+
+    import xlfuncs.core.backtest as bmod
+    from xlfuncs.demo import data_file
+
+    real_fit = bmod.fit
+
+    class Stuck:
+        def __init__(self, res):
+            self.params = np.array([0.18533187, 0.04330948, -0.22604702, -0.28469345, 0.97768951])
+            self.converged = False
+            self.names = res.names
+
+    monkeypatch.setattr(bmod, "fit", lambda *a, **k: Stuck(real_fit(*a, **k)) if a[1].canonical.startswith("EGARCH")
+                        else real_fit(*a, **k))
+    out = tmp_path / "eg.html"
+    rc, stdout, err = run(["report", str(data_file("demo_returns.csv")), "--model", "EGARCH(1,1)", "--dist", "normal",
+                           "--options", "paths=2000", "-o", str(out)], capsys)
+    assert rc == 0 and "internal error" not in err, err
+    text = out.read_text(encoding="utf-8")
+    assert "the backtest cannot be run" in text.lower() and "is not a number" in text

@@ -101,6 +101,7 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
         check_params(spec, dist, names, theta)
     fits = 0
     one = None if refilter else _one_pass(r, X, spec, dist, options)
+    blocks = []  # (first step, returns rows estimated on, converged) of each parameter vector
     i = 0
     while i < steps:  # blocks of steps that share one parameter vector
         i1 = steps if params is not None else min(steps, i + refit)
@@ -108,8 +109,10 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
         start = t - window if scheme == "rolling" else 0
         if params is None:
             xs = None if X is None else X[start:t]
-            theta = fit(r[start:t], spec, dist, options, xs).params
+            est = fit(r[start:t], spec, dist, options, xs)
+            theta = est.params
             fits += 1
+            blocks.append((i, (start + 1, t), bool(est.converged)))
         eta = theta[len(theta) - nd:]
         etas[i:i1] = eta
         if one is not None:
@@ -129,6 +132,21 @@ def backtest(r, spec, dist, options, window: int, level: float = 0.99, scheme: s
                     progress(k + 1, steps)
         vr[i:i1] = -(mean[i:i1] + np.sqrt(var_[i:i1]) * float(dist.ppf(1 - level, eta)))
         i = i1
+    bad = ~(np.isfinite(var_) & np.isfinite(vr) & np.isfinite(mean))
+    if bad.any():
+        # a forecast that is not a number is no forecast: coverage tests over it would count it
+        # as a day without an exception.  Say where, and from which estimate
+        k = int(np.flatnonzero(bad)[0])
+        row = window + k + 1
+        if params is not None:
+            raise InputError(f"the one-step forecast of returns row {row} is not a number ({int(bad.sum())} of {steps} "
+                             "forecasts): the parameters given make the variance explode on that window; check them")
+        first, (lo, hi), converged = max((b for b in blocks if b[0] <= k), key=lambda b: b[0])
+        how = "" if converged else " (that fit did not converge)"
+        raise InputError(f"the one-step forecast of returns row {row} is not a number ({int(bad.sum())} of {steps} "
+                         f"forecasts): the parameters estimated on returns rows {lo}-{hi}{how} make the variance "
+                         f"explode on the windows that follow; use a smaller refit (refit=1 re-estimates every "
+                         "window), a longer window, or another model")
     actual = r[window:]
     cov = coverage(actual, vr, level)
     e2 = (actual - mean) ** 2
