@@ -368,3 +368,19 @@ def test_an_error_only_table_writes_to_parquet(tmp_path, capsys):
     res = pd.read_parquet(tmp_path / "o.parquet")
     assert res["kind"].tolist() == ["error", "error"] and res["value"].isna().all()
     assert "constant series" in res["message"].iloc[0] and 'holds text "n/a"' in res["message"].iloc[1]
+
+
+def test_a_blank_standard_error_says_why_as_the_fit_table_does(wide):
+    """A parameter held fixed has no standard error: its row says `fixed` in `message`, the word
+    VOLFIT's fit table shows for it (internal consistency), so it is not read as a failed one."""
+    from xlfuncs import VOLFIT
+
+    path, df = wide
+    panel = read_panel(path)
+    rows = run_batch({"fund0": panel["fund0"]}, "GARCH(1,1)", "normal", options="alpha[1]=0.05", workers=1)
+    alpha = [r for r in rows if r[0] == "fund0" and r[2] == "alpha[1]"][0]
+    table = VOLFIT([[v] for v in df["fund0"].dropna()], "GARCH(1,1)", "normal", "alpha[1]=0.05")
+    shown = [row for row in table if row[0] == "alpha[1]"][0]
+    assert alpha[4] is None and alpha[5] == shown[2] == "fixed"
+    beta = [r for r in rows if r[0] == "fund0" and r[2] == "beta[1]"][0]
+    assert beta[4] is not None and beta[5] is None
