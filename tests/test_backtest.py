@@ -112,3 +112,25 @@ def test_forecasts_that_are_not_numbers_are_refused_not_counted(monkeypatch):
     # with the real estimator: either every forecast is a number, or the same refusal
     assert (isinstance(series[0][0], str) and series[0][0].startswith("ERROR: the one-step forecast")) or all(
         np.isfinite(v) for row in series[1:] for v in row[1:4])
+
+
+@pytest.mark.parametrize("options,pattern", [
+    ("dist=normal", "dist cannot apply to a fit table"),
+    ("nu=30", "nu cannot apply to a fit table"),
+    ("refit=12", "refit cannot apply to a fit table"),
+    ("foo=1", "foo cannot apply to a fit table"),
+])
+def test_options_a_fit_table_cannot_take_are_refused(options, pattern):
+    """With a fit table the parameters, distribution and options are kept: options that would
+    re-estimate or change the fit were taken silently (the same exceptions whatever dist= said,
+    'refit every 12' echoed with no estimation); now refused, as VOLFIT refuses unknown keys."""
+    table = VOLFIT(CELLS, "GARCH(1,1)")
+    out = VOLBACKTEST(CELLS, table, 350, 0.99, options)
+    assert out[0][0].startswith("ERROR: options:") and pattern in out[0][0], out
+
+
+def test_a_backtest_option_given_twice_is_refused():
+    """dist=t; dist=normal took the last value (and dist=normal; dist=t the other); the fit's own
+    options refuse a key given twice, and so does the backtest's now."""
+    out = VOLBACKTEST(CELLS, "GARCH(1,1)", 350, 0.99, "dist=t; dist=normal")
+    assert out[0][0] == "ERROR: options: dist is given twice; keep one value"

@@ -536,6 +536,8 @@ def _split_backtest_options(text):
                                  + " or ".join(f"{k}={c}" for c in _BACKTEST_KEYS[k]))
             if k == "refit":
                 v = int_arg(v, "options: refit", 1, 100_000)
+            if k in own:  # as the fit's own options: a key given twice is refused, not the last one taken
+                raise SheetError(f"options: {k} is given twice; keep one value")
             own[k] = v
         elif chunk.strip():
             rest.append(chunk)
@@ -563,6 +565,16 @@ def VOLBACKTEST(returns, fit_or_model, window=None, level=None, options=None, re
     else:
         table = decode(fit_or_model, "fit_or_model")
         spec, dist, opts, params = table.spec, table.dist, table.options, table.params
+        # a fit table's parameters are kept: what would re-estimate or change the fit does not apply
+        # (it was taken silently, and refit was echoed as if used); scheme still says which returns
+        # each forecast filters (the last window, or all before it)
+        unused = [k for k in ("dist", "refit") if k in own]
+        if rest:
+            unused += [c.partition("=")[0].strip() for c in rest.split(";") if c.strip()]
+        if unused:
+            raise SheetError(f"options: {', '.join(unused)} cannot apply to a fit table, whose parameters, "
+                             "distribution and options are kept (scheme= and what= apply); give a model string "
+                             "to re-estimate, or leave them out")
     data = returns_column(returns, "returns", opts.missing)
     X = regressors_block(regressors, data)
     if params is None:
