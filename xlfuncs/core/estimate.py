@@ -1117,6 +1117,8 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None, starts=()) -
             dist.check(eta)
         elif n in spec.variance_names:
             spec.family.check_fixed(n, v)
+    spec.family.check_fixed_set(options.fixed_dict)  # fixed weights that together leave no admissible model
+    lik.mean.check_fixed(options.fixed_dict)  # an AR part made non-stationary, an MA part non-invertible
     extra = _without_in_mean(r, spec, dist, options, X, lik) if spec.in_mean else []
     extra = list(extra) + [np.asarray(t, dtype=float) for t in starts if len(t) == lik.k]
     best = _run(problem, r, _start_candidates(problem, r, extra))
@@ -1131,7 +1133,9 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None, starts=()) -
     if spec.family.holds_at_bound and best[0] > -_PENALTY / 2:
         pers = persistence_of(spec, dist, problem.full(best[1]))
         first_ok = math.isfinite(best[3]) and best[3] < _DECREMENT_TOL
-        if pers is not None and (pers > 1.0 - 1e-3 or (pers > 0.9 and not first_ok)):
+        # (not when the weight the bound would imply is fixed: the fit cannot be held there)
+        implied_fixed = spec.family.sum_rule(dist.start(), dist)[0] in options.fixed_dict
+        if pers is not None and not implied_fixed and (pers > 1.0 - 1e-3 or (pers > 0.9 and not first_ok)):
             # the maximum lies on the stationarity bound: maximise on the bound itself, persistence
             # one (so the fit is the integrated model's and never scores below it), with the
             # implied weight set at every trial point from the moments at that point's shape
@@ -1152,6 +1156,8 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None, starts=()) -
             problem, best = on_edge
             off_bound = None
     ll, u, H, dec, active, res, steps = best
+    if not problem.admissible(problem.full(u)):
+        ll = -_PENALTY  # the best point is outside the region (every start was): no estimate
     if not ll > -_PENALTY / 2:
         raise ConvergenceError(
             f"no admissible estimate of {spec.canonical} with {dist.name} shocks was found from the starting points tried"

@@ -310,6 +310,32 @@ class MeanModel:
             return False
         return True
 
+    def check_fixed(self, fixed: dict) -> None:
+        """Raise InputError if AR or MA coefficients fixed in the options (``fixed``: name ->
+        value) make the AR part non-stationary or the MA part non-invertible: the roots of the lag
+        polynomial when all of a part's coefficients are fixed, else the last lag's, whose size is
+        the product of the inverse roots' and so must stay below 1."""
+        from .families import stationary
+
+        s = self.spec
+        for prefix, order, sign, poly, word in (("phi", s.ar, 1.0, "1 - phi[1] L - ...", "stationary"),
+                                                 ("theta", s.ma, -1.0, "1 + theta[1] L + ...", "invertible")):
+            names = [f"{prefix}[{i}]" for i in range(1, order + 1)]
+            given = [n for n in names if n in fixed]
+            if not given:
+                continue
+            part = "AR" if prefix == "phi" else "MA"
+            shown = ", ".join(f"{n}={float(fixed[n]):g}" for n in given)
+            if len(given) == order:
+                if not stationary(sign * np.array([float(fixed[n]) for n in names])):
+                    why = ("a fixed coefficient must be between -1 and 1, not -1 or 1" if order == 1 else
+                           f"its lag polynomial {poly} has a root on or inside the unit circle")
+                    raise InputError(f"options: {shown} makes the {part} part not {word} ({why}); fix values that "
+                                     f"keep it {word}, or leave them free")
+            elif names[-1] in fixed and not abs(float(fixed[names[-1]])) < 1.0:
+                raise InputError(f"options: {names[-1]}={float(fixed[names[-1]]):g} makes the {part} part not {word} "
+                                 f"(the last coefficient of a {word} {part} part is between -1 and 1, not -1 or 1)")
+
     def box(self) -> list:
         """(scale, (lower, upper)) per mean parameter (the optimiser's scaling and box)."""
         s, X = self.spec, self.X
@@ -337,6 +363,7 @@ class MeanModel:
         s = self.spec
         tm = np.zeros(self.k)
         only_mu = len(self.lin_idx) == (1 if s.has_mu else 0)
+        i0 = 1 if s.has_mu else 0
         if only_mu:
             if s.has_mu:
                 tm[0] = float(np.mean(self.r))
@@ -357,6 +384,12 @@ class MeanModel:
         for n, v in tm_fixed.items():
             if n in self.idx:
                 tm[self.idx[n]] = v
+        if s.ar and not stationary(tm[i0: i0 + s.ar] if not only_mu else tm[0:0]):
+            # fixed AR coefficients beside least-squares ones that together are not stationary:
+            # the free ones start at zero (a start outside the region is no start)
+            for k in range(s.ar):
+                if f"phi[{k + 1}]" not in tm_fixed:
+                    tm[i0 + k] = 0.0
         return tm
 
     # ------------------------------------------------------------------ forecasts

@@ -593,6 +593,46 @@ class LinearFamily(VarianceFamily):
     def _check_fixed(self, name, value):
         if name == "omega" and value <= 0:
             raise InputError(f"options: omega must be greater than 0, got {value:g}")
+        if (name.startswith("alpha[") or name.startswith("beta[")) and value < 0:
+            raise InputError(f"options: {name} must be 0 or more, got {value:g}")
+
+    def _check_fixed_set(self, fixed):
+        if self.integrated or type(self)._coefficients is not LinearFamily._coefficients:
+            return  # integrated by design (IGARCH), or weights that are not the parameters themselves
+        # the persistence over the free parameters is at least the fixed weights' sum: a free
+        # weight is 0 or more, and a GJR lag adds alpha_i + k gamma_i with k = E[z^2; z < 0] in
+        # [0, 1] and alpha_i + gamma_i >= 0, so at least alpha_i + min(0, gamma_i) (both fixed)
+        terms, total = [], 0.0
+        for i in range(1, self.p + 1):
+            a = fixed.get(f"alpha[{i}]")
+            if a is None:
+                continue
+            if self.asymmetric:
+                g = fixed.get(f"gamma[{i}]")
+                if g is None:
+                    continue
+                if a + g < 0:
+                    raise InputError(f"options: alpha[{i}] + gamma[{i}] must be 0 or more (the weight of a negative "
+                                     f"shock), got {a:g} + {g:g}")
+                a += min(0.0, g)
+                terms.append(f"alpha[{i}] + gamma[{i}]" if g < 0 else f"alpha[{i}]")
+            else:
+                terms.append(f"alpha[{i}]")
+            total += a
+        for j in range(1, self.q + 1):
+            b = fixed.get(f"beta[{j}]")
+            if b is not None:
+                terms.append(f"beta[{j}]")
+                total += b
+        if terms and total >= 1.0:
+            what = "alphas and betas" if self.q else "alphas"
+            if self.asymmetric:
+                what = "alphas, betas and the gammas' share"
+            fixed_words = (f"the fixed weight {terms[0]} alone brings the sum" if len(terms) == 1 else
+                           f"the fixed weights {' + '.join(terms)} sum")
+            raise InputError(f"options: {fixed_words} to {total:g}, and the other weights "
+                             f"cannot be below 0; a stationary {self.canonical} needs its {what} to sum below 1. "
+                             f"Fix smaller weights, or for a sum of 1 use an integrated (IGARCH) model")
 
     def _check(self, d, eta, dist):
         if not d["omega"] > 0:

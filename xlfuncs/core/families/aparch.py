@@ -213,6 +213,16 @@ class Aparch(VarianceFamily):
     def _check_fixed(self, name, value):
         self._check_one(name, value, "options: ")
 
+    def _check_fixed_set(self, fixed):
+        # each lag adds alpha_i E(|z| - gamma_i z)^delta >= 0 to the persistence: the fixed betas
+        # alone are a lower bound of it
+        names = [f"beta[{j}]" for j in range(1, self.q + 1) if f"beta[{j}]" in fixed]
+        total = sum(fixed[n] for n in names)
+        if names and total >= 1.0:
+            raise InputError(f"options: the fixed weights {' + '.join(names)} sum to {total:g}; a stationary "
+                             f"{self.canonical} needs its persistence (the betas plus the alphas' share) below 1, "
+                             f"so the betas must sum below 1")
+
     def _check_one(self, name, v, where=""):
         if name == "omega" and not v > 0:
             raise InputError(f"{where}omega must be greater than 0, got {v:g}")

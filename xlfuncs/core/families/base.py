@@ -257,6 +257,15 @@ class VarianceFamily:
     def _check_fixed(self, name, value):
         pass
 
+    def check_fixed_set(self, fixed: dict) -> None:
+        """Raise InputError if the values fixed in the options, together, leave no admissible
+        model (fixed weights whose persistence alone reaches the stationarity bound); ``fixed``
+        maps names to values, each already checked alone by :meth:`check_fixed`."""
+        self._check_fixed_set({n: float(v) for n, v in fixed.items() if n in self.param_names})
+
+    def _check_fixed_set(self, fixed):
+        pass
+
     def admissible(self, vp, eta=(), dist=None, held: bool = False) -> bool:
         """True inside the estimator's region; ``held``: the weights are held by a sum rule."""
         return bool(self._admissible(self._vp(vp), np.asarray(eta, dtype=float), dist, held))
