@@ -586,11 +586,22 @@ def _start_candidates(problem: _Problem, r, extra=()) -> list:
         th[idx[n]] = val
     cands = []
     vs = lik._vs
+    # the variance weights a start may shrink: free, and not the intercept (the first)
+    shrink = [i for i in range(vs.start + 1, vs.stop) if lik.names[i] not in fixed]
     for vp in problem.family.starts(v):
         t = th.copy()
         t[vs] = vp
         for n, val in fixed.items():
             t[idx[n]] = val
+        if shrink and not problem.admissible(t):
+            # fixed weights beside the usual starting ones can sum to 1 or more (beta[1]=0.95 with
+            # a start's alpha of 0.1): the free weights shrink towards 0 until the start is inside
+            for factor in (0.5, 0.25, 0.1, 0.0):
+                t2 = t.copy()
+                t2[shrink] *= factor
+                if problem.admissible(t2):
+                    t = t2
+                    break
         cands.append(t)
     cands.extend(np.asarray(t, dtype=float) for t in extra)
     scored = []
