@@ -226,3 +226,21 @@ def test_property_voldm_never_raises(a, b, lags):
     from xlfuncs import VOLDM
 
     _check_result(VOLDM(a, b, lags))
+
+
+def test_compare_does_not_rank_fits_on_different_returns():
+    """Under presample=drop each model leaves out its own lags: an AR(1) mean is fitted on one
+    return fewer than a constant mean, and BIC over different samples does not compare (common
+    practice: information criteria rank fits of the same data).  The ranks stay blank and a last
+    row says why; under presample=mean (the same returns for all) the ranks are given."""
+    import csv
+
+    from xlfuncs import VOLCOMPARE
+    from xlfuncs.demo import data_file
+
+    r = [[float(x["return"])] for x in csv.DictReader(open(data_file("demo_returns.csv")))]
+    out = VOLCOMPARE(r, [["GARCH(1,1)"], ["AR(1)-GARCH(1,1)"]], "normal", "presample=drop")
+    assert [row[8] for row in out[1:3]] == [None, None]
+    assert out[-1][0] == "note" and "no rank" in out[-1][1] and len(out[-1]) == len(out[0])
+    same = VOLCOMPARE(r, [["GARCH(1,1)"], ["AR(1)-GARCH(1,1)"]], "normal")
+    assert sorted(row[8] for row in same[1:]) == [1, 2] and same[-1][0] != "note"

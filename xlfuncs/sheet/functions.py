@@ -271,7 +271,7 @@ def VOLCOMPARE(returns, models, dist=None, options=None):
     check_compare(len(model_list) * len(dist_list), parsed)
     opts_text = text_arg(options, "options")
     parse_options(opts_text)  # a bad options string is one error for the whole call
-    rows, bics = [], []
+    rows, bics, nobs = [], [], set()
     for m in model_list:
         for d in dist_list:
             try:
@@ -289,6 +289,15 @@ def VOLCOMPARE(returns, models, dist=None, options=None):
                 bool(result.converged), None,
             ])
             bics.append(float(result.bic) if result.converged else None)
+            if result.converged:
+                nobs.add(int(result.nobs))
+    if len(nobs) > 1:
+        # fits on different returns (presample=drop drops each model's own lags): their criteria do
+        # not compare, so no rank; the last row says why
+        note = (f"no rank: the candidates are fitted on {min(nobs)} to {max(nobs)} returns (presample=drop "
+                "leaves out each model's own lags), and information criteria compare fits on the same returns "
+                "only; use presample=mean to rank them")
+        return [list(_COMPARE_HEADER)] + rows + [["note", note] + [None] * 7]
     order = sorted((b, i) for i, b in enumerate(bics) if b is not None)
     for rank, (_, i) in enumerate(order, start=1):
         rows[i][8] = rank
