@@ -434,3 +434,17 @@ def test_every_family_answers_the_shift_hook(dmbp, model):
     s_b, _ = fam.sim_step(fam.sim_continue(vp, eta, d, hist), vp, eta, d, np.ones(2), shift=0.0)
     assert_allclose(s_b, s_a, rtol=0, atol=0)
     assert fam.bad_shift(vp, np.zeros(3)).shape == (3,) and not fam.bad_shift(vp, np.zeros(3)).any()
+
+
+@pytest.mark.parametrize("second,xvar", [(lambda a: a, ()), (lambda a: 2.0 * a + 1.0, ()), (lambda a: 3.0 * a, (1, 2))],
+                         ids=["copy", "affine-with-mu", "variance-copy"])
+def test_collinear_regressors_are_refused(dmbp, second, xvar):
+    """Two regressor columns that are a combination of each other (and the constant, where mu or
+    omega is in the model): their coefficients cannot be told apart (common practice: a design
+    matrix of full column rank), and the fit stopped with the optimiser's own words and blank
+    standard errors; now refused, naming the columns."""
+    a = np.sin(np.arange(len(dmbp)) / 7.0) + 1.5
+    X = np.column_stack([a, second(a)])
+    opts = f"xvar={','.join(map(str, xvar))}" if xvar else None
+    with pytest.raises(InputError, match="regressors columns 1, 2 are collinear"):
+        fit(dmbp, "GARCH(1,1)", "normal", opts, X=X)

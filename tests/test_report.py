@@ -332,7 +332,7 @@ def test_report_states_the_paths_volrisk_simulated(workbook_report, book_inputs)
     repro = dict((r[0], r[1]) for r in tables(text)["repro"][1:])
     stated = repro["simulated paths (VaR/ES beyond one period)"]
     assert {int(x.replace(",", "")) for x in re.findall(r"([\d,]+) simulated paths", stated)} == used
-    assert f"from {stated} (seed" in text
+    assert f"(seed {b.get('seed', 20240531)}) with {stated}." in text or re.search(r"\(seed \d+\) with " + re.escape(stated), text)
 
 
 def test_paths_in_words_name_each_count_with_its_horizons():

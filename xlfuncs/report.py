@@ -963,8 +963,8 @@ def _rest(add, src, res, figs, fit, opts, now, command):
     add('<section id="s8"><h2>8. Forecast term structure, VaR and ES</h2>')
     add(f"<p>Volatility of the cumulative return over the next 1..12 {unit}s (the square root of "
         "<code>VOLFORECAST</code>'s cumvar), and VaR and ES at "
-        f"{res['level']:.1%} of that cumulative return as <code>VOLRISK</code> gives them: exact for one period, "
-        f"from {res['paths_words']} (seed {res['seed']}) beyond. " + units + "</p>")
+        f"{res['level']:.1%} of that cumulative return as <code>VOLRISK</code> gives them: exact for one period; "
+        f"beyond it simulated (seed {res['seed']}) with {res['paths_words']}. " + units + "</p>")
     short = _short_unit(opts)
     head = [f"horizon ({unit}s)", "periods", "cumulative vol", f"VaR ({short})", f"ES ({short})"]
     if has_value:

@@ -81,6 +81,19 @@ def check_regressors(X, T: int, spec, what: str = "regressors") -> np.ndarray | 
             other = "omega" if k in spec.xvar else "mu"
             raise InputError(f"{what} column {k} holds the same number in every row; with {other} in the model it "
                              "cannot be told apart: leave the column out")
+    # columns that are a combination of each other (two copies of one series): their coefficients
+    # cannot be told apart, and the optimiser stopped with its own words, standard errors blank
+    for cols, const in (([k for k in range(1, K + 1) if k not in spec.xvar], spec.has_mu), (list(spec.xvar), True)):
+        if len(cols) < 2 and not (cols and const):
+            continue
+        M = X[:, [k - 1 for k in cols]]
+        if const:
+            M = np.column_stack([np.ones(T), M])
+        if T > M.shape[1] and np.linalg.matrix_rank(M) < M.shape[1]:
+            listed = ", ".join(map(str, cols))
+            raise InputError(f"{what} columns {listed} are collinear (one is a combination of the others"
+                             f"{' and the constant' if const else ''}), so their coefficients cannot be told apart; "
+                             "leave one out")
     return X
 
 
