@@ -68,9 +68,14 @@ as positive percentages of the value:
   paths' tail mean of R (a control variate: the value map's change from their ES to the
   conditional one, so the Jensen gap stays that of the tail paths).
 * simple returns: V = prod_t (1 + c r[T+t]) - 1.  At horizon 1 that is c R, so VaR_value and
-  ES_value are VaR and ES times 100 c.  Beyond, VaR_value and ES_value are the weighted empirical
+  ES_value are VaR and ES times 100 c, with the loss capped at the whole value as beyond:
+  VaR_value = min(100 c VaR, 100) and ES_value the tail mean of min(-100 c R, 100), from the
+  fitted law's partial first moment (:func:`_simple_value_loss`).  Beyond, VaR_value and ES_value are the weighted empirical
   quantile and tail mean of V over the simulated paths (a factor 1 + c r below zero, a loss
   beyond the whole value, counts as 0: the position is gone).
+
+``returns=log`` and ``simple`` (fractions) are refused for returns whose standard deviation is
+above 1 (:func:`~xlfuncs.core.spec.check_return_units`, our own rule): percent data in the wrong units.
 """
 
 from __future__ import annotations
