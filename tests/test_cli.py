@@ -298,3 +298,58 @@ def test_cli_backtest_with_chart(tmp_path, capsys):
     assert png.read_bytes()[:4] == b"\x89PNG"
     assert main(["backtest", str(demo), "--window", "3"]) == 2
     assert capsys.readouterr().err.startswith("volcast: window must be")
+
+
+# ---------------------------------------------------------------------------------------------
+# the options against the file: periods a year against the dates' spacing (the rule of the
+# workbook refresh, our own: the usual spacing within 0.4 to 2.5 times 365.25/periods days), and
+# returns= against --levels (which makes log returns in percent, 100 ln(p[t]/p[t-1]), common practice)
+
+
+def _refused(argv, capsys, pattern):
+    rc, out, err = run(argv, capsys)
+    assert rc == 2, (rc, out, err)
+    lines = err.splitlines()
+    assert len(lines) == 1 and lines[0].startswith("volcast: "), err
+    assert "Traceback" not in err
+    assert re.search(pattern, lines[0]), lines[0]
+
+
+SPACING = (r"the dates are usually 3\d days apart \(monthly data\), but the options say periods=252 a year, one "
+           r"every 1\.4 days: every figure would be for the wrong horizon; set periods=12 for monthly data")
+
+
+@pytest.mark.parametrize("command", [["fit"], ["backtest", "--window", "200"], ["report", "-o", "rep.html"],
+                                     ["batch", "-o", "tidy.csv"]], ids=["fit", "backtest", "report", "batch"])
+def test_periods_that_disagree_with_monthly_dates_are_refused(tmp_path, returns_csv, capsys, command):
+    argv = [command[0], returns_csv] + [str(tmp_path / a) if a.endswith((".html", ".csv")) else a
+                                        for a in command[1:]]
+    _refused(argv + ["--options", "periods=252; returns=log100"], capsys, SPACING)
+    assert not (tmp_path / "rep.html").exists() and not (tmp_path / "tidy.csv").exists()
+    if command == ["fit"]:  # periods that agree with the dates are taken
+        rc, out, err = run(["fit", returns_csv, "--model", "ARCH(1)", "--options", "periods=12"], capsys)
+        assert rc == 0, err
+
+
+def _levels_csv(tmp_path):
+    levels = 100 * np.exp(np.cumsum(np.r_[0.0, A]) / 100)
+    return write_csv(tmp_path / "levels.csv", ["date", "level"], [["2001-01-28"] + MONTH_ENDS, list(levels)])
+
+
+@pytest.mark.parametrize("command", [["fit"], ["backtest", "--window", "200"], ["report", "-o", "rep.html"],
+                                     ["batch", "-o", "tidy.csv"]], ids=["fit", "backtest", "report", "batch"])
+@pytest.mark.parametrize("returns", ["simple", "simple100", "log"])
+def test_levels_with_another_returns_definition_are_refused(tmp_path, capsys, command, returns):
+    argv = [command[0], _levels_csv(tmp_path), "--levels"] + [
+        str(tmp_path / a) if a.endswith((".html", ".csv")) else a for a in command[1:]]
+    _refused(argv + ["--options", f"returns={returns}"], capsys,
+             rf"--levels makes log returns in percent, 100\*ln\(p\[t\]/p\[t-1\]\), but the options say "
+             rf"returns={returns}; use returns=log100 or leave returns out")
+
+
+def test_fraction_units_on_percent_returns_are_refused(capsys):
+    """The demo's returns are in percent (standard deviation about 4): returns=simple, which says
+    fractions, is refused (our own rule: a standard deviation above 1 is not fractions)."""
+    _refused(["fit", str(DEMO), "--options", "returns=simple"], capsys,
+             r"returns=simple means fractions \(0\.01 = 1 %\), but these returns have standard deviation 4\.\d+.*"
+             r"use returns=simple100")

@@ -224,16 +224,21 @@ def test_multi_period_log_iid_normal_against_lognormal_closed_form(series, level
 @pytest.mark.parametrize("level", [0.95, 0.99])
 def test_h1_simple_value_figures_are_the_return_figures(series, level):
     """One period of simple returns: the value changes by r itself (common practice), so in
-    percent VaR_value = VaR and ES_value = ES exactly; for returns=simple, times 100."""
+    percent VaR_value = VaR and ES_value = ES; for returns=simple (fractions), times 100.  (ES_value leaves
+    out the part of a loss beyond the whole value, here a t(7) tail beyond -100 standard
+    deviations, of relative size below 1e-9.)"""
     p = {"mu": 0.02, "omega": 0.05, "alpha[1]": 0.1, "beta[1]": 0.85, "nu": 7.0}
     f = _fit("GARCH(1,1)", "t", p, series, "returns=simple100")
     rk = risk(f, series, level)
     assert rk.returns == "simple100"
-    assert rk.var_value == rk.var and rk.es_value == rk.es
-    g = _fit("GARCH(1,1)", "t", p, series, "returns=simple")
-    rg = risk(g, series, level)
-    assert (rg.var, rg.es) == (rk.var, rk.es)
-    assert_allclose([rg.var_value, rg.es_value], [100 * rk.var, 100 * rk.es], rtol=1e-15)
+    assert rk.var_value == rk.var
+    assert_allclose(rk.es_value, rk.es, rtol=1e-9)
+    # the same position in fractions (mu/100, omega/100^2): returns=simple gives the same % of value
+    g = _fit("GARCH(1,1)", "t", {**p, "mu": p["mu"] / 100, "omega": p["omega"] / 1e4}, series / 100,
+             "returns=simple")
+    rg = risk(g, series / 100, level)
+    assert_allclose([100 * rg.var, 100 * rg.es], [rk.var, rk.es], rtol=1e-9)
+    assert_allclose([rg.var_value, rg.es_value], [100 * rg.var, 100 * rg.es], rtol=1e-9)
 
 
 @pytest.mark.parametrize("level", [0.95, 0.99])
@@ -271,6 +276,55 @@ def test_multi_period_simple_never_loses_more_than_the_value(series):
     rk = risk(f, series, 0.99, 3, paths=5000, seed=1)
     assert rk.var > 100
     assert 0 < rk.var_value <= 100 and rk.var_value <= rk.es_value <= 100
+
+
+def test_h1_simple_loss_beyond_the_value_is_the_value(series):
+    """One period, simple returns in percent, a normal law wide enough (sd 60 %) that the 1 %
+    quantile is a loss above 100 %: a long position cannot lose more than its value (common
+    practice), so VaR_value = ES_value = 100, as on the multi-period route."""
+    f = _fit("CONST", "normal", {"mu": 0.0, "omega": 60.0 ** 2}, series, "returns=simple100")
+    rk = risk(f, series, 0.99)
+    assert rk.var > 100 and rk.es > rk.var
+    assert (rk.var_value, rk.es_value) == (100.0, 100.0)
+
+
+@pytest.mark.parametrize("units,c", [("simple100", 0.01), ("simple", 1.0)])
+def test_h1_simple_es_value_is_the_tail_mean_of_the_capped_loss(series, units, c):
+    """VaR below the whole value but a tail reaching beyond it (unit-variance t(3), sd 30 %):
+    ES_value = 100/(1-level) * integral_{-inf}^{t.ppf(1-level)} min(-c (m + s k x), 1) t.pdf(x) dx
+    with k = sqrt((nu-2)/nu) (the loss capped at the value, common practice), by scipy quad over
+    scipy.stats.t.pdf."""
+    nu, sd, level = 3.0, 30.0 * (0.01 / c), 0.99
+    x = series * (0.01 / c) * 100  # scaled to a standard deviation near 1 % of value (0.01 or 1)
+    f = _fit("CONST", "t", {"mu": 0.0, "omega": sd ** 2, "nu": nu}, x, f"returns={units}")
+    rk = risk(f, x, level)
+    a, k = 1 - level, math.sqrt((nu - 2) / nu)
+    xq = stats.t.ppf(a, nu)
+    assert_allclose(rk.var_value, -100 * c * sd * k * xq, rtol=1e-10)
+    assert rk.var_value < 100
+    kink = -1 / (c * sd * k)  # where the loss reaches the whole value
+    head, _ = integrate.quad(lambda t: stats.t.pdf(t, nu), -np.inf, kink, epsabs=0, epsrel=1e-12)
+    body, _ = integrate.quad(lambda t: -c * sd * k * t * stats.t.pdf(t, nu), kink, xq, epsabs=0, epsrel=1e-12)
+    assert_allclose(rk.es_value, 100 * (head + body) / a, rtol=1e-9)
+    assert rk.es_value < 100 * c * rk.es - 0.5  # the cap matters here
+
+
+@pytest.mark.parametrize("units", ["log", "simple"])
+def test_fraction_units_refused_for_percent_returns(series, units):
+    """returns=log and returns=simple say 0.01 = 1 %; returns with a standard deviation above 1
+    (100 % a period, our own rule) are in the wrong units: risk() and VOLFIT refuse them, naming
+    the percent definition; the same returns as fractions are taken."""
+    p = {"mu": 0.02, "omega": 0.05, "alpha[1]": 0.1, "beta[1]": 0.85}
+    x = 4.0 * series  # percent returns with a standard deviation near 4 (the demo's)
+    f = _fit("GARCH(1,1)", "normal", p, x)
+    with pytest.raises(InputError, match=rf"returns={units} means fractions.*standard deviation 3\.95.*"
+                                         rf"use returns={units}100"):
+        risk(f, x, 0.99, returns=units)
+    out = VOLFIT([[v] for v in x], "GARCH(1,1)", "normal", f"returns={units}")
+    assert len(out) == 1 and out[0][0].startswith("ERROR:") and f"returns={units}100" in out[0][0]
+    frac = {**p, "mu": p["mu"] / 25, "omega": p["omega"] / 625}
+    ok = risk(_fit("GARCH(1,1)", "normal", frac, x / 25), x / 25, 0.99, returns=units)
+    assert 0 < ok.var_value < 100
 
 
 # --------------------------------------------------------------------------------------

@@ -104,6 +104,7 @@ class Panel(dict):
         self.lines = lines or {}
         self.bad = bad or {}
         self.name = name
+        self.days: dict = {}  # {series id: the day numbers of its dated rows}, when the file has dates
 
     def where(self, sid, i: int) -> str:
         """Where the series' value i is in the file: "data row 14 (line 15)"."""
@@ -231,6 +232,8 @@ def _wide_panel(path, header, columns, lines, date_col) -> Panel:
             panel[h], msg = _column_values(cells, lambda i, h=h: panel.where(h, i))
             if msg:
                 panel.bad[h] = msg
+    if date_idx is not None:
+        panel.days = {h: days[~np.isnan(days)] for h in names}
     return panel
 
 
@@ -282,6 +285,8 @@ def _long_panel(path, header, columns, lines, id_col, value_col, date_col) -> Pa
         panel[k], msg = _column_values([values[i] for i in idx], lambda i, k=k: panel.where(k, i))
         if msg:
             panel.bad[k] = msg
+    if dates is not None:
+        panel.days = {k: dates[np.asarray(idx)][~np.isnan(dates[np.asarray(idx)])] for k, idx in order.items()}
     return panel
 
 

@@ -227,6 +227,31 @@ def _core_error(exc) -> CliError:
     return CliError(excerpt(str(exc), _MAX_REASON_CHARS))
 
 
+def levels_returns_problem(levels: bool, returns, error=None):
+    """With --levels the returns are percent log returns: a ``returns=`` other than log100 says
+    otherwise.  The one-line reason (raised as ``error`` when given), else None."""
+    if not levels or returns in (None, "log100"):
+        return None
+    msg = (f"--levels makes log returns in percent, 100*ln(p[t]/p[t-1]), but the options say returns={returns}; "
+           "use returns=log100 or leave returns out")
+    if error is not None:
+        raise error(msg)
+    return msg
+
+
+def _check_spacing(args, opts, n: int) -> None:
+    """Refuse a CSV whose dates' usual spacing disagrees with the options' periods a year
+    (csvtext.spacing_problem, the rule of the workbook refresh)."""
+    from .csvtext import spacing_problem
+
+    if not opts.periods:
+        return
+    dates = _csv_dates(args.file, args.column, args.levels, n)
+    msg = None if dates is None else spacing_problem(args.file, dates, opts.periods)
+    if msg:
+        raise CliError(msg)
+
+
 def _cmd_fit(args) -> int:
     from .core.errors import VolcastError
     from .core.spec import parse_options
@@ -234,10 +259,12 @@ def _cmd_fit(args) -> int:
     from .sheet.functions import fit_from_cells
 
     try:
-        skip = parse_options(args.options).missing == "skip"
+        opts = parse_options(args.options)
     except InputError as exc:
         raise _core_error(exc) from None
-    series = load_returns_csv(args.file, args.column, skip_blanks=skip, levels=args.levels)
+    levels_returns_problem(args.levels, opts.returns, CliError)
+    series = load_returns_csv(args.file, args.column, skip_blanks=opts.missing == "skip", levels=args.levels)
+    _check_spacing(args, opts, len(series.returns))
     try:
         with _quiet():
             # the worksheet's own cleaning and fit table, without the worksheet's time bounds
@@ -397,7 +424,9 @@ def _cmd_backtest(args) -> int:
         raise CliError(f"--refit must be 1 or more, got {args.refit}")
     if args.png:
         _check_chart_path(args.png, args.file)
+    levels_returns_problem(args.levels, opts.returns, CliError)
     series = load_returns_csv(args.file, args.column, skip_blanks=opts.missing == "skip", levels=args.levels)
+    _check_spacing(args, opts, len(series.returns))
     try:
         with _quiet():
             bt = backtest(np.array(series.returns), spec, dist, opts, args.window, args.level, args.scheme,
@@ -516,7 +545,16 @@ def _cmd_batch(args) -> int:
             raise PanelError(f"--workers must be from 1 to {_MAX_WORKERS}, got {args.workers}")
         with _quiet():
             check_arguments(args.model, args.dist, args.options, args.horizon, args.level)
+        from .core.spec import parse_options
+        from .csvtext import spacing_problem
+
+        opts = parse_options(args.options)  # read by check_arguments above
+        levels_returns_problem(args.levels, opts.returns, PanelError)
         panel = load_panel(args.panel, args.id, args.value)
+        for sid, days in (panel.days.items() if opts.periods else ()):
+            msg = spacing_problem(args.panel, days, opts.periods)
+            if msg:
+                raise PanelError(msg.replace(": the dates", f': series "{excerpt(sid)}": the dates', 1))
         read_note = getattr(panel, "note", "")  # e.g. decimal commas read as points
         name = Path(args.panel).name
         where = (f'long panel {name} (ids "{excerpt(args.id)}", values "{excerpt(args.value)}")' if args.id

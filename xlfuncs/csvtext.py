@@ -11,6 +11,9 @@ Two checks for the commands that fit a file's rows in order: ``check_header_name
 line of numbers (a file without its header line would lose its first observation), and
 ``check_date_order`` refuses dates newest first, out of order or repeated (the last row is taken as
 the latest observation, so a file sorted the other way would be fitted backwards).
+
+``date_spacing`` compares the dates' usual spacing with ``periods`` a year (the rule the workbook
+refresh applies), and ``spacing_problem`` words a disagreement for the command line.
 """
 
 from __future__ import annotations
@@ -23,7 +26,8 @@ from pathlib import Path
 from .core.errors import excerpt
 
 __all__ = ["PanelError", "Records", "read_csv_records", "check_row_widths", "check_header_names", "check_date_order",
-           "day_number", "decimal_comma_hint", "MAX_FIELD_CHARS", "LEVELS_AUTOCORRELATION"]
+           "day_number", "decimal_comma_hint", "MAX_FIELD_CHARS", "LEVELS_AUTOCORRELATION", "SPACING_RATIO",
+           "date_spacing", "spacing_problem"]
 
 #: the longest CSV field read (Python's csv module stops at 128 KiB unless told otherwise); a longer
 #: field is refused: no number or name is that long, so the file is not a CSV of returns
@@ -260,3 +264,53 @@ def check_date_order(path, dated, what='column "date"') -> None:
                          "(a row pasted twice?)")
     raise PanelError(f"{path} {b[0]}: {what} is out of order ({excerpt(b[2])} after {excerpt(a[2])} on {a[0]}); "
                      "sort the file oldest first")
+
+
+#: the dates' usual spacing, over the spacing the fit's periods a year imply, must lie within
+#: these bounds (our own rule: daily trading data at 252 a year are 0.69, calendar-daily at 365
+#: 1.0, month ends at 12 a year about 1.0; monthly data under a daily setting are 21)
+SPACING_RATIO = (0.4, 2.5)
+
+
+def _median(xs):
+    s = sorted(xs)
+    m = len(s) // 2
+    return s[m] if len(s) % 2 else 0.5 * (s[m - 1] + s[m])
+
+
+def _days(gap):
+    """Days in a gap between dates (a timedelta) or between day numbers (a number)."""
+    return gap.days if hasattr(gap, "days") else float(gap)
+
+
+def date_spacing(dates, periods):
+    """(usual, expected, kind) when the usual spacing of ``dates`` (dates, or day numbers) (the median of the days between them)
+    disagrees with ``periods`` a year (one every 365.25 / periods days, outside
+    :data:`SPACING_RATIO`), else None; None too without ``periods`` or with fewer than 4 dates.
+    ``kind`` names the dates' frequency: daily, weekly, monthly, quarterly or yearly."""
+    spans = [_days(dates[i] - dates[i - 1]) for i in range(1, len(dates))]
+    if not periods or len(spans) < 3:
+        return None
+    usual = _median(spans)
+    expected = 365.25 / periods
+    if SPACING_RATIO[0] <= usual / expected <= SPACING_RATIO[1]:
+        return None
+    kind = "daily" if usual <= 4 else "weekly" if usual <= 10 else "monthly" if usual <= 45 else "quarterly" \
+        if usual <= 120 else "yearly"
+    return usual, expected, kind
+
+
+#: periods a year usual for each kind of dates, as suggested in :func:`spacing_problem`
+_USUAL_PERIODS = {"daily": 252, "weekly": 52, "monthly": 12, "quarterly": 4, "yearly": 1}
+
+
+def spacing_problem(path, dates, periods):
+    """The one-line refusal of a command whose file's dates disagree with ``periods`` a year
+    (:func:`date_spacing`), else None: every figure would be for the wrong horizon."""
+    found = date_spacing(dates, periods)
+    if found is None:
+        return None
+    usual, expected, kind = found
+    return (f"{path}: the dates are usually {usual:g} day{'s' if usual != 1 else ''} apart ({kind} data), but the "
+            f"options say periods={periods:g} a year, one every {expected:.1f} days: every figure would be for the "
+            f"wrong horizon; set periods={_USUAL_PERIODS[kind]} for {kind} data, or leave periods out")

@@ -118,8 +118,9 @@ def read_csv(path, column=None, levels=False, model=None, dist=None, options=Non
     """The returns of one CSV column (as ``volcast fit`` reads it) and the model given on the
     command line.  With ``levels`` the returns are percent log returns, so ``returns=log100`` is
     added to the options unless they say otherwise; a ``date`` column, if any, dates the returns."""
-    from .cli import CliError, _csv_rows, load_returns_csv
+    from .cli import CliError, _csv_rows, levels_returns_problem, load_returns_csv
     from .core.spec import parse_options
+    from .csvtext import spacing_problem
 
     p = Path(path)
     if not p.is_file():
@@ -128,6 +129,7 @@ def read_csv(path, column=None, levels=False, model=None, dist=None, options=Non
         opts = parse_options(options)
     except VolcastError as exc:
         raise ReportError(excerpt(str(exc), 300)) from None
+    levels_returns_problem(levels, opts.returns, ReportError)
     try:
         series = load_returns_csv(str(p), column, skip_blanks=opts.missing == "skip", levels=levels)
         header, records = _csv_rows(str(p))
@@ -136,6 +138,9 @@ def read_csv(path, column=None, levels=False, model=None, dist=None, options=Non
     if levels and opts.returns is None:
         options = "; ".join(x for x in ((options or "").strip().rstrip(";"), "returns=log100") if x)
     dates = _csv_dates(header, records, series, levels)
+    problem = None if dates is None or not opts.periods else spacing_problem(path, dates, opts.periods)
+    if problem:
+        raise ReportError(problem)
     return Source(np.asarray(series.returns, dtype=float), dates, model or "GARCH(1,1)", dist or "normal", options,
                   level, str(p), "CSV", series.note, _sha256_file(p))
 

@@ -68,9 +68,14 @@ as positive percentages of the value:
   paths' tail mean of R (a control variate: the value map's change from their ES to the
   conditional one, so the Jensen gap stays that of the tail paths).
 * simple returns: V = prod_t (1 + c r[T+t]) - 1.  At horizon 1 that is c R, so VaR_value and
-  ES_value are VaR and ES times 100 c.  Beyond, VaR_value and ES_value are the weighted empirical
+  ES_value are VaR and ES times 100 c, with the loss capped at the whole value as beyond:
+  VaR_value = min(100 c VaR, 100) and ES_value the tail mean of min(-100 c R, 100), from the
+  fitted law's partial first moment (:func:`_simple_value_loss`).  Beyond, VaR_value and ES_value are the weighted empirical
   quantile and tail mean of V over the simulated paths (a factor 1 + c r below zero, a loss
   beyond the whole value, counts as 0: the position is gone).
+
+``returns=log`` and ``simple`` (fractions) are refused for returns whose standard deviation is
+above 1 (:func:`~xlfuncs.core.spec.check_return_units`, our own rule): percent data in the wrong units.
 """
 
 from __future__ import annotations
@@ -88,7 +93,7 @@ from ._lazy import quad
 from .errors import InputError, value_words
 from .forecast import DEFAULT_PATHS, DEFAULT_SEED, MAX_HORIZON, forecast
 from .simulate import forward_steps
-from .spec import RETURN_DEFINITIONS
+from .spec import RETURN_DEFINITIONS, check_return_units
 
 # one period's value loss integrates with QUADPACK's routines loaded alone (_lazy.quad): importing
 # scipy.integrate brings scipy.optimize, about 0.3 s CPU
@@ -187,6 +192,28 @@ def _log_tail_value_loss(dist, eta, m: float, s: float, c: float, zq: float, a: 
 
     val, _ = quad(integrand, -math.inf, zq, epsabs=0.0, epsrel=1e-12, limit=200)
     return val / a
+
+
+def _simple_value_loss(dist, eta, m: float, s: float, c: float, var: float, es: float, a: float) -> tuple:
+    """(VaR_value, ES_value) in percent of value for one period of simple returns R = m + s z.
+
+    The value loss is L = min(100 c (-R), 100): the value cannot fall below zero, as on the
+    multi-period route.  VaR_value = min(100 c VaR, 100).  ES_value is the mean of L over the
+    tail z <= zq (probability a): 100 c ES less, where the loss passes 100 % (z <= k with
+    k = (-1/c - m)/s), the excess E[(100 c (-R) - 100) 1{z <= k}] / a, from the partial moment
+    E[z 1{z <= k}] of the fitted distribution.
+    """
+    var_value = min(100.0 * c * var, 100.0)
+    if var_value >= 100.0:
+        return 100.0, 100.0
+    es_value = 100.0 * c * es
+    k = np.array((-1.0 / c - m) / s) if s > 0 else np.array(-math.inf)
+    pk = float(dist.cdf(k, eta)) if math.isfinite(k) else 0.0
+    if pk > 0.0:
+        # E[(-R) 1{z <= k}] = -m F(k) - s E[z 1{z <= k}], the partial first moment of the fitted law
+        below = -m * pk - s * float(dist._partial_first_moment(k, np.asarray(eta, dtype=float)))
+        es_value -= (100.0 * c * below - 100.0 * pk) / a
+    return var_value, min(es_value, 100.0)
 
 
 def _weighted_quantile(x, w, alpha: float) -> float:
@@ -1042,6 +1069,7 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
     if returns is None:
         returns = getattr(getattr(fit, "options", None), "returns", None)
     defn = None if returns is None else _check_returns(returns)
+    check_return_units(r, defn)
     c = _UNIT.get(defn)
     is_log = defn in ("log100", "log")
 
@@ -1067,10 +1095,8 @@ def risk(fit, r, level=0.99, horizon=1, paths=None, seed=None, returns=None, X=N
         if is_log:
             var_value = -100.0 * math.expm1(-c * var)
             es_value = 100.0 * _log_tail_value_loss(fit.dist, eta, mean, sd, c, q, 1.0 - level)
-        elif defn == "simple100":  # already percent of value
-            var_value, es_value = var, es
-        elif defn == "simple":
-            var_value, es_value = 100.0 * var, 100.0 * es
+        elif defn in ("simple100", "simple"):
+            var_value, es_value = _simple_value_loss(fit.dist, eta, mean, sd, c, var, es, 1.0 - level)
     else:
         alpha = 1.0 - level
         scores = _Scores(horizon, paths, seed, alpha)

@@ -43,6 +43,8 @@ __all__ = [
     "MAX_ORDER",
     "MAX_REGRESSORS",
     "RETURN_DEFINITIONS",
+    "FRACTION_SD_LIMIT",
+    "check_return_units",
     "IN_MEAN_WORD",
 ]
 
@@ -369,6 +371,28 @@ _YES = {"yes": "yes", "true": "yes", "1": "yes", "on": "yes", "no": "no", "false
 _INT_KEYS = {"periods": (1, 100000), "seed": (0, 2**31 - 1), "paths": (1000, 1_000_000)}
 #: how the returns are defined (no default: unknown unless said); read by the risk figures only
 RETURN_DEFINITIONS = ("log100", "log", "simple100", "simple")
+#: our own rule: returns said to be fractions (returns=log or simple, 0.01 = 1 %) whose standard
+#: deviation is above this (100 % a period) are taken to be in the wrong units
+FRACTION_SD_LIMIT = 1.0
+
+
+def check_return_units(r, returns) -> None:
+    """Refuse ``returns=log`` or ``returns=simple`` (fractions, 0.01 = 1 %) for returns ``r``
+    whose sample standard deviation is above :data:`FRACTION_SD_LIMIT`, 100 % a period: such data
+    are almost surely percentages, and the loss as a percentage of value would be meaningless."""
+    if returns not in ("log", "simple"):
+        return
+    x = [float(v) for v in r]
+    x = [v for v in x if math.isfinite(v)]
+    if len(x) < 2:
+        return
+    mean = math.fsum(x) / len(x)
+    sd = math.sqrt(math.fsum((v - mean) ** 2 for v in x) / (len(x) - 1))
+    if sd > FRACTION_SD_LIMIT:
+        raise InputError(
+            f"options: returns={returns} means fractions (0.01 = 1 %), but these returns have standard deviation "
+            f"{sd:.3g} ({100 * sd:.3g} % a period); for percent returns use returns={returns}100 (Volcast's own rule: "
+            f"fraction units are refused above a standard deviation of {FRACTION_SD_LIMIT:g}, 100 % a period)")
 
 
 @dataclass(frozen=True)

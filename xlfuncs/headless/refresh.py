@@ -36,6 +36,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..core.errors import value_words
+from ..csvtext import SPACING_RATIO, date_spacing  # noqa: F401 (SPACING_RATIO: the rule, shared with the CLI)
 from .contract import FIGURES, HISTORY_HEADER, missing_names, name_range
 from .layout import BOOL_FORMAT, fit_to_data, format_results, values_copy_path, write_values_copy
 from .recalc import RecalcError, cell_name, recalc
@@ -52,10 +53,6 @@ JUMP_BOUND = 10.0
 # a new date closer than this share of the series' usual spacing to the one before is refused
 # (our own rule, see suspicious)
 SHORT_GAP = 0.6
-# the dates' usual spacing, over the spacing the fit's periods a year imply, must lie within
-# these bounds (our own rule: daily trading data at 252 a year are 0.69, calendar-daily at 365
-# 1.0, month ends at 12 a year about 1.0; monthly data under a daily setting are 21)
-SPACING_RATIO = (0.4, 2.5)
 _MAX_CSV_BYTES = 64 * 1024 * 1024
 
 
@@ -247,14 +244,9 @@ def frequency_problem(dates, periods, month_steps=None, year_steps=None):
                 f"{year_steps} periods and its 1-month figures {month_steps or year_steps / 12:g} (its template's "
                 f"year is {year_steps} periods): those figures would not be months; set periods back to {year_steps} "
                 "on the Inputs sheet, or start from the template of your data's frequency")
-    spans = [(dates[i] - dates[i - 1]).days for i in range(1, len(dates))]
-    if not periods or len(spans) < 3:
-        return None
-    usual = _median(spans)
-    expected = 365.25 / periods
-    if not SPACING_RATIO[0] <= usual / expected <= SPACING_RATIO[1]:
-        kind = "daily" if usual <= 4 else "weekly" if usual <= 10 else "monthly" if usual <= 45 else "quarterly" \
-            if usual <= 120 else "yearly"
+    found = date_spacing(dates, periods)
+    if found is not None:
+        usual, expected, kind = found
         where = f" ({month_steps} of them make its 'month')" if month_steps and month_steps > 1 else ""
         fix = (f"start from the {kind} template (volcast template {kind} -o BOOK.xlsx)" if kind in ("daily", "monthly")
                else "the shipped templates are for daily and monthly data")

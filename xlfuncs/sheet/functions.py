@@ -32,7 +32,7 @@ import numpy as np
 from ..core.distributions import get_distribution
 from ..core.estimate import evaluate, fit as core_fit
 from ..core.forecast import MAX_HORIZON, forecast as core_forecast, in_sample, long_run_in_sample, require_long_run
-from ..core.spec import parse_model, parse_options
+from ..core.spec import check_return_units, parse_model, parse_options
 from .cache import FIT_CACHE
 from ..core.diagnostics import MIN_OBS as MIN_TEST_OBS, default_lags, max_lags, run_tests
 from ..core.backtest import backtest as core_backtest, check_length
@@ -79,6 +79,7 @@ def fit_from_cells(returns, model=None, dist=None, options=None, bounded=True, r
         check_fit(spec, d)
     opts = parse_options(text_arg(options, "options"))
     data = returns_column(returns, "returns", opts.missing)
+    check_return_units(data.values, opts.returns)
     X = regressors_block(regressors, data)
     if X is None and opts.xvar:
         raise SheetError(f"options: xvar={','.join(map(str, opts.xvar))} sends regressor columns to the variance, but "
