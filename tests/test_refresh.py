@@ -717,6 +717,10 @@ def test_a_new_var_level_is_noted_in_the_history(small, tmp_path):
     assert "VaR level" not in third.history["moved"]
     header, rows = _history(third.out)
     assert "VaR level 0.99 -> 0.95" in rows[-2]["moved"] and "VaR level" not in (rows[-1]["moved"] or "")
+    # the note's row is as tall as its wrapped lines (LibreOffice and Excel do not fit it on opening)
+    ws = openpyxl.load_workbook(third.out)["History"]
+    noted = next(r for r in range(2, ws.max_row + 1) if "VaR level" in str(ws.cell(r, HISTORY_HEADER.index("moved") + 1).value))
+    assert (ws.row_dimensions[noted].height or 15) >= 12.75 * 3
 
 
 def test_the_history_prints_the_run_beside_the_estimates(monthly):

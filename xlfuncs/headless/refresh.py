@@ -601,8 +601,13 @@ def refresh(book, data, out, accept_jumps: bool = False, accept_gaps: bool = Fal
                 c.number_format = "0.00"
             elif h == "moved":  # a long note wraps in its column instead of running under the estimates
                 from openpyxl.styles import Alignment
+                from openpyxl.utils import get_column_letter
 
                 c.alignment = Alignment(wrap_text=True, vertical="top")
+                width = hist.column_dimensions[get_column_letter(j)].width or 13
+                lines = math.ceil(len(str(row.get(h) or "")) / max(width - 1, 8))
+                if lines > 1:  # as tall as its lines (a row's height is not fitted to its text on opening)
+                    hist.row_dimensions[r].height = 12.75 * lines
             elif h not in ("model", "dist", "converged", "moved"):
                 c.number_format = "0.0000"
         result.history = row
