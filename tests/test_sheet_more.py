@@ -244,3 +244,20 @@ def test_compare_does_not_rank_fits_on_different_returns():
     assert out[-1][0] == "note" and "no rank" in out[-1][1] and len(out[-1]) == len(out[0])
     same = VOLCOMPARE(r, [["GARCH(1,1)"], ["AR(1)-GARCH(1,1)"]], "normal")
     assert sorted(row[8] for row in same[1:]) == [1, 2] and same[-1][0] != "note"
+
+
+def test_volsim_refuses_an_explosive_typed_table():
+    """VOLSIM's paths start from the model's long-run variance; a typed table with alpha + beta =
+    1.2 has none (covariance stationarity needs the sum below 1: Bollerslev 1986), and its paths
+    ran to six figures without a word.  Refused; IGARCH (persistence 1 by design) and a stationary
+    table still simulate."""
+    from xlfuncs import VOLSIM
+
+    head = [["parameter", "estimate"], ["dist", "normal"], ["mu", 0.0], ["omega", 0.1]]
+    explosive = [head[0], ["model", "GARCH(1,1)"]] + head[1:] + [["alpha[1]", 0.6], ["beta[1]", 0.6]]
+    out = VOLSIM(explosive, 300, 2)
+    assert out[0][0].startswith("ERROR: the fit's persistence is 1.2, above 1")
+    for model, a, b in (("IGARCH(1,1)", 0.1, 0.9), ("GARCH(1,1)", 0.1, 0.8)):
+        table = [head[0], ["model", model]] + head[1:] + [["alpha[1]", a], ["beta[1]", b]]
+        rows = VOLSIM(table, 3, 2)
+        assert len(rows) == 3 and all(isinstance(v, float) for row in rows for v in row)
