@@ -316,3 +316,23 @@ def test_a_call_with_too_many_or_too_few_arguments_says_how_many_it_takes(tmp_pa
     got = openpyxl.load_workbook(tmp_path / "o.xlsx", data_only=True).active["C1"].value
     assert got.startswith("ERROR: VOLRISK(returns, fit, [level], [horizon]") and got.endswith("got 7")
     capsys.readouterr()
+
+
+def test_the_optimisers_own_stopping_words_are_translated():
+    """A fit that did not converge said 'NOT converged: ABNORMAL: ' or 'CONVERGENCE: RELATIVE
+    REDUCTION OF F <= FACTR*EPSMCH' (the optimiser's internal texts); it now says what happened in
+    words and what to try.  The component model with target=yes on the demo returns stops so."""
+    import csv
+
+    from xlfuncs import VOLFIT
+    from xlfuncs.core.estimate import _optimiser_words
+    from xlfuncs.demo import data_file
+
+    assert "line search failed" in _optimiser_words("ABNORMAL: ")
+    assert "no longer improved" in _optimiser_words("CONVERGENCE: RELATIVE REDUCTION OF F <= FACTR*EPSMCH")
+    assert _optimiser_words(b"SOMETHING ELSE") .startswith("the optimiser stopped (")
+    r = [[float(x["return"])] for x in csv.DictReader(open(data_file("demo_returns.csv")))]
+    table = VOLFIT(r, "CGARCH", "t", "target=yes")
+    row = [x for x in table if x[0] == "converged"][0]
+    if row[1] is False:
+        assert not any(w in row[2] for w in ("ABNORMAL", "FACTR", "EPSMCH")) and "try" in row[2], row

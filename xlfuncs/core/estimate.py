@@ -1074,6 +1074,25 @@ def _run(problem: _Problem, r, starts):
     return best
 
 
+# the optimiser's own stopping messages in a spreadsheet user's words (its texts, from its runs)
+_OPTIMISER_WORDS = (
+    ("RELATIVE REDUCTION OF F", "the optimiser stopped where the log-likelihood no longer improved by a relative step"),
+    ("ABNORMAL", "the optimiser's line search failed (the log-likelihood is flat or irregular there)"),
+    ("NORM OF PROJECTED GRADIENT", "the optimiser stopped where the gradient was small"),
+    ("TOTAL NO. OF", "the optimiser reached its limit of iterations"),
+    ("ITERATIONS REACHED LIMIT", "the optimiser reached its limit of iterations"),
+)
+
+
+def _optimiser_words(message) -> str:
+    """The optimiser's stopping message as words (its own text kept in brackets where unknown)."""
+    text = message if isinstance(message, str) else str(message)
+    for key, words in _OPTIMISER_WORDS:
+        if key in text.upper():
+            return words
+    return f"the optimiser stopped ({text.strip() or 'no reason given'})"
+
+
 def _clean_returns(r, spec: ModelSpec) -> np.ndarray:
     r = np.asarray(r, dtype=float).ravel()
     if r.size == 0:
@@ -1219,7 +1238,9 @@ def fit(r, model="GARCH(1,1)", dist="normal", options=None, X=None, starts=()) -
         msg = (f"NOT converged: the fit held at the stationarity bound ends with persistence {off_bound!s}, "
                f"not 1; the estimates are not the maximum on the bound")
     else:
-        msg = f"NOT converged: {res.message if isinstance(res.message, str) else res.message!s}; Newton decrement {dec:.2g} (tolerance {_DECREMENT_TOL:g})"
+        msg = (f"NOT converged: {_optimiser_words(res.message)}; Newton decrement {dec:.2g} (tolerance "
+               f"{_DECREMENT_TOL:g}): the log-likelihood may still rise; try other starting values (fix a "
+               "parameter), another model, or more data")
     se, cov = _std_errors(problem, u, H, active, options.se)
     return FitResult(
         spec=spec, dist=dist, options=options, names=lik.names, params=theta, std_errors=se,
