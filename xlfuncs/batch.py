@@ -30,7 +30,7 @@ from pathlib import Path
 import numpy as np
 
 from .core.errors import excerpt, typed_number
-from .sheet.fittable import _STATUS_TEXT  # the fit table's words for a blank standard error
+from .sheet.fittable import STATUS_TEXT  # the fit table's words for a blank standard error
 from .csvtext import (LEVELS_AUTOCORRELATION, MAX_FIELD_CHARS, PanelError, check_date_order, check_header_names,
                       check_row_widths, day_number, decimal_comma_hint, read_csv_records)
 
@@ -410,7 +410,7 @@ def run_one(task) -> list:
         for n, v, s, st in zip(f.names, f.params, f.std_errors, status):
             # a blank std_error says why, as the fit table's cell does: held fixed, implied by the
             # others, targeted, or on a bound of its domain (no standard error there)
-            rows.append([sid, "param", n, float(v), None if not math.isfinite(s) else float(s), _STATUS_TEXT.get(st)])
+            rows.append([sid, "param", n, float(v), None if not math.isfinite(s) else float(s), STATUS_TEXT.get(st)])
         fc = forecast(f, r, horizon)
         rows += [[sid, "forecast", "vol_1", float(fc.vol[0]), None, None],
                  [sid, "forecast", f"vol_{horizon}", float(fc.vol[-1]), None, None],

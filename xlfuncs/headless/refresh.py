@@ -36,7 +36,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..core.errors import value_words
-from ..csvtext import SPACING_RATIO, date_spacing  # noqa: F401 (SPACING_RATIO: the rule, shared with the CLI)
+from ..csvtext import date_spacing
 from .contract import FIGURES, HISTORY_HEADER, missing_names, name_range
 from .layout import BOOL_FORMAT, fit_to_data, format_results, values_copy_path, write_values_copy
 from .recalc import RecalcError, cell_name, recalc

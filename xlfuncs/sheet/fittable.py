@@ -26,8 +26,9 @@ from .cells import CHAINED_ERROR_CHARS, SheetError, as_rows, describe, excerpt, 
 __all__ = ["HEADER", "encode", "decode", "TableFit"]
 
 HEADER = ["parameter", "estimate", "std_error", "t_stat", "p_value"]
-_STATUS_TEXT = {"fixed": "fixed", "implied": "implied", "target": "targeted", "bound": "at bound", "given": None}
-_STATUS_OF_TEXT = {text: key for key, text in _STATUS_TEXT.items() if text}
+#: the word a parameter row shows where it has no standard error (the fit table, volcast batch)
+STATUS_TEXT = {"fixed": "fixed", "implied": "implied", "target": "targeted", "bound": "at bound", "given": None}
+_STATUS_OF_TEXT = {text: key for key, text in STATUS_TEXT.items() if text}
 
 
 def _num(x):
@@ -47,7 +48,7 @@ def encode(fit: FitResult) -> list:
     for i, name in enumerate(fit.names):
         se = _num(fit.std_errors[i])
         if se is None:
-            rows.append([name, _num(fit.params[i]), _STATUS_TEXT.get(fit.status[i]), None, None])
+            rows.append([name, _num(fit.params[i]), STATUS_TEXT.get(fit.status[i]), None, None])
         else:
             rows.append([name, _num(fit.params[i]), se, _num(t[i]), _num(pv[i])])
     rows.append(["loglik", _num(fit.loglik)] + blank)
